@@ -1,0 +1,20 @@
+"""pscore_strata: survivor average causal effects for outcomes truncated by death.
+
+The public names are re-exported here; the modules hold one job each (see DEVELOPERS.md).
+"""
+
+from . import datasets
+from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from .nuisance import MonotonicityWarning, OverlapWarning
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "PrincipalScoreWeighting",
+    "OutcomeRegression",
+    "MultiplyRobust",
+    "OverlapWarning",
+    "MonotonicityWarning",
+    "datasets",
+    "__version__",
+]

@@ -1,0 +1,5 @@
+"""Allow ``python -m pscore_strata``."""
+
+from .cli import main
+
+raise SystemExit(main())

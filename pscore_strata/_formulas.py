@@ -1,0 +1,180 @@
+"""Estimand formulas: always-survivor means and their influence values from nuisance predictions.
+
+Every function here takes an :class:`Oriented` view of the nuisance predictions and returns the
+two always-survivor means with per-row influence values. "Oriented" removes the monotonicity
+direction from the formulas: the *mixed* arm is the one whose survivors mix always-survivors with
+the stratum the treatment helps (the treated arm when treatment can only help survival), the
+*pure* arm is the other one, whose survivors are all always-survivors.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = [
+    "Oriented",
+    "orient",
+    "MeanParts",
+    "weighting_means",
+    "regression_means",
+    "robust_means",
+    "scale_effect",
+]
+
+
+@dataclass(frozen=True)
+class Oriented:
+    """Per-row arrays with the arms named by their role under monotonicity."""
+
+    mixed: np.ndarray  # 1.0 for rows in the mixed arm
+    pi: np.ndarray  # P(mixed arm | X)
+    p_mixed: np.ndarray  # P(S=1 | mixed arm, X)
+    p_pure: np.ndarray  # P(S=1 | pure arm, X): the always-survivor principal score
+    m_mixed: np.ndarray | None
+    m_pure: np.ndarray | None
+    survival: np.ndarray
+    outcome: np.ndarray  # 0 where survival == 0, so products stay finite
+    weight: np.ndarray
+    parametric: dict | None  # keys: "pi", "p_mixed", "p_pure", "m_mixed", "m_pure"
+    increasing: bool
+
+    def weighted_mean(self, values):
+        return float(np.sum(self.weight * values) / np.sum(self.weight))
+
+    def corrections(self, derivatives):
+        """Sum of the nuisance-estimation terms for the given d f / d prediction arrays."""
+        if self.parametric is None:
+            return 0.0
+        total = 0.0
+        for name, derivative in derivatives.items():
+            fit = self.parametric.get(name)
+            if fit is not None:
+                total = total + fit.correction(derivative, self.weight)
+        return total
+
+
+def orient(data, nuisance, monotonicity):
+    """Name the arms by role. ``monotonicity`` is ``"increasing"`` or ``"decreasing"``."""
+    increasing = monotonicity == "increasing"
+    mixed_arm, pure_arm = (1, 0) if increasing else (0, 1)
+    pi = nuisance.treatment_probability
+    outcome = nuisance.outcome
+    parametric = None
+    if nuisance.parametric is not None:
+        source = nuisance.parametric
+        parametric = {
+            "p_mixed": source.get(("survival", mixed_arm)),
+            "p_pure": source.get(("survival", pure_arm)),
+            "m_mixed": source.get(("outcome", mixed_arm)),
+            "m_pure": source.get(("outcome", pure_arm)),
+        }
+        if "treatment" in source:
+            # A logistic model of 1 - T is the same fit with every residual negated.
+            parametric["pi"] = source["treatment"] if increasing else source["treatment"].negated()
+    return Oriented(
+        mixed=(data.treatment == mixed_arm).astype(float),
+        pi=pi if increasing else 1.0 - pi,
+        p_mixed=nuisance.survival[mixed_arm],
+        p_pure=nuisance.survival[pure_arm],
+        m_mixed=None if outcome is None else outcome[mixed_arm],
+        m_pure=None if outcome is None else outcome[pure_arm],
+        survival=data.survival.astype(float),
+        outcome=np.where(data.survival == 1, data.outcome, 0.0),
+        weight=data.sample_weight,
+        parametric=parametric,
+        increasing=increasing,
+    )
+
+
+@dataclass(frozen=True)
+class MeanParts:
+    """Always-survivor means under each arm and their influence values."""
+
+    mean_treated: float
+    mean_control: float
+    influence_treated: np.ndarray
+    influence_control: np.ndarray
+
+
+def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
+    if o.increasing:
+        return MeanParts(mu_mixed, mu_pure, if_mixed, if_pure)
+    return MeanParts(mu_pure, mu_mixed, if_pure, if_mixed)
+
+
+def weighting_means(o):
+    """Normalized principal score weighting (Ding & Lu 2017, JRSSB), with M-estimation terms.
+
+    Mixed-arm survivors get weight ``p_pure / (pi p_mixed)`` (their chance of being
+    always-survivors over their chance of being observed); pure-arm survivors get ``1/(1-pi)``.
+    """
+    A, S, Y = o.mixed, o.survival, o.outcome
+    w_mixed = A * S * o.p_pure / (o.pi * o.p_mixed)
+    normalizer = o.weighted_mean(w_mixed)
+    mu_mixed = o.weighted_mean(w_mixed * Y) / normalizer
+    f = w_mixed * (Y - mu_mixed)
+    correction = o.corrections({"pi": -f / o.pi, "p_mixed": -f / o.p_mixed, "p_pure": f / o.p_pure})
+    if_mixed = (f + correction) / normalizer
+
+    w_pure = (1 - A) * S / (1 - o.pi)
+    normalizer = o.weighted_mean(w_pure)
+    mu_pure = o.weighted_mean(w_pure * Y) / normalizer
+    f = w_pure * (Y - mu_pure)
+    if_pure = (f + o.corrections({"pi": f / (1 - o.pi)})) / normalizer
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def regression_means(o):
+    """Outcome regression: ``mu_t = E[p_pure m_t] / E[p_pure]`` (principal ignorability)."""
+    normalizer = o.weighted_mean(o.p_pure)
+    result = []
+    for key, m in (("m_mixed", o.m_mixed), ("m_pure", o.m_pure)):
+        mu = o.weighted_mean(o.p_pure * m) / normalizer
+        f = o.p_pure * (m - mu)
+        correction = o.corrections({"p_pure": m - mu, key: o.p_pure})
+        result.append((mu, (f + correction) / normalizer))
+    (mu_mixed, if_mixed), (mu_pure, if_pure) = result
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def robust_terms(o):
+    """Efficient-influence-function terms of Jiang, Yang & Ding (2022, JRSSB), oriented.
+
+    Returns ``(phi_e, phi_mixed, phi_pure)``; the means are ``mean(phi_t) / mean(phi_e)``.
+    """
+    A, S, Y = o.mixed, o.survival, o.outcome
+    pure_residual = (1 - A) * (S - o.p_pure) / (1 - o.pi)
+    phi_e = pure_residual + o.p_pure
+    phi_mixed = (
+        pure_residual * o.m_mixed
+        + o.p_pure * A * S * (Y - o.m_mixed) / (o.pi * o.p_mixed)
+        + o.p_pure * o.m_mixed
+    )
+    phi_pure = (1 - A) * (S * Y - o.p_pure * o.m_pure) / (1 - o.pi) + o.p_pure * o.m_pure
+    return phi_e, phi_mixed, phi_pure
+
+
+def robust_means(o):
+    """Multiply robust means; influence values ``(phi_t - mu_t phi_e) / mean(phi_e)``."""
+    phi_e, phi_mixed, phi_pure = robust_terms(o)
+    share = o.weighted_mean(phi_e)
+    mu_mixed = o.weighted_mean(phi_mixed) / share
+    mu_pure = o.weighted_mean(phi_pure) / share
+    if_mixed = (phi_mixed - mu_mixed * phi_e) / share
+    if_pure = (phi_pure - mu_pure * phi_e) / share
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def scale_effect(parts, scale):
+    """Effect on the requested scale with delta-method influence values."""
+    mu1, mu0 = parts.mean_treated, parts.mean_control
+    if1, if0 = parts.influence_treated, parts.influence_control
+    if scale == "difference":
+        return mu1 - mu0, if1 - if0
+    if scale == "ratio":
+        ratio = mu1 / mu0
+        return ratio, ratio * (if1 / mu1 - if0 / mu0)
+    odds_ratio = (mu1 / (1 - mu1)) / (mu0 / (1 - mu0))
+    return odds_ratio, odds_ratio * (if1 / (mu1 * (1 - mu1)) - if0 / (mu0 * (1 - mu0)))
