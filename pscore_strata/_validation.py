@@ -78,7 +78,7 @@ class TruncationData:
         )
 
     def with_weights(self, sample_weight):
-        """A new container with other row weights (used by the multiplier and Bayesian bootstraps)."""
+        """A new container with other row weights (used by weight-perturbing bootstraps)."""
         return TruncationData(
             X=self.X,
             n_features=self.n_features,
