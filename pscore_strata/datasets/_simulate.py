@@ -220,7 +220,8 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
         outcomes, NaN where the unit would die under that arm), ``s0``, ``s1``,
         ``propensity``, ``principal_scores`` (columns in ``stratum_labels`` order),
         ``stratum_labels``, ``true_means`` (``mu1``, ``mu0`` among always-survivors),
-        ``params`` and ``DESCR``.
+        ``treatment_probability`` (0.5 when randomized, else None), ``params`` and
+        ``DESCR``.
 
     Notes
     -----
