@@ -25,7 +25,8 @@ SCENARIOS = {
     ),
     "weak_overlap": dict(
         settings={}, knobs={"treatment_scale": 3.0},
-        description="Treatment logits tripled so propensities reach about 0.02 and 0.98.",
+        description="Treatment logits tripled: a quarter of units have propensities "
+                    "below 0.05 or above 0.95.",
     ),
     "pi_violated": dict(
         settings={"pi_difference": 1.0}, knobs={},
@@ -87,7 +88,8 @@ def make_scenario(name, n_samples=2000, random_state=None):
 
         - ``"linear"``: the default :func:`make_truncation` setting;
         - ``"nonlinear"``: curved outcome, stratum and treatment models;
-        - ``"weak_overlap"``: treatment logits scaled by 3, propensities near 0.02 / 0.98;
+        - ``"weak_overlap"``: treatment logits scaled by 3; the 5% and 95% quantiles of
+          the propensity are about 0.015 and 0.985;
         - ``"pi_violated"``: ``pi_difference=1.0``;
         - ``"monotonicity_violated"``: ``harmed_ratio=0.3``;
         - ``"binary"``: binary outcome, truth a risk difference (Monte Carlo);
