@@ -98,6 +98,17 @@ class MeanParts:
     influence_control: np.ndarray
 
 
+def _ratio(numerator, denominator):
+    """``numerator / denominator`` with 0 where the numerator is 0 (rows that carry no weight).
+
+    A model may predict a probability of exactly 0 for rows outside the cell that the formula
+    weights (tree ensembles do); those rows contribute nothing and must not turn into NaN.
+    """
+    out = np.zeros(np.broadcast(numerator, denominator).shape)
+    np.divide(numerator, denominator, out=out, where=numerator != 0)
+    return out
+
+
 def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
     if o.increasing:
         return MeanParts(mu_mixed, mu_pure, if_mixed, if_pure)
@@ -111,18 +122,20 @@ def weighting_means(o):
     always-survivors over their chance of being observed); pure-arm survivors get ``1/(1-pi)``.
     """
     A, S, Y = o.mixed, o.survival, o.outcome
-    w_mixed = A * S * o.p_pure / (o.pi * o.p_mixed)
+    w_mixed = _ratio(A * S * o.p_pure, o.pi * o.p_mixed)
     normalizer = o.weighted_mean(w_mixed)
     mu_mixed = o.weighted_mean(w_mixed * Y) / normalizer
     f = w_mixed * (Y - mu_mixed)
-    correction = o.corrections({"pi": -f / o.pi, "p_mixed": -f / o.p_mixed, "p_pure": f / o.p_pure})
+    correction = o.corrections(
+        {"pi": -_ratio(f, o.pi), "p_mixed": -_ratio(f, o.p_mixed), "p_pure": _ratio(f, o.p_pure)}
+    )
     if_mixed = (f + correction) / normalizer
 
-    w_pure = (1 - A) * S / (1 - o.pi)
+    w_pure = _ratio((1 - A) * S, 1 - o.pi)
     normalizer = o.weighted_mean(w_pure)
     mu_pure = o.weighted_mean(w_pure * Y) / normalizer
     f = w_pure * (Y - mu_pure)
-    if_pure = (f + o.corrections({"pi": f / (1 - o.pi)})) / normalizer
+    if_pure = (f + o.corrections({"pi": _ratio(f, 1 - o.pi)})) / normalizer
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
@@ -145,14 +158,14 @@ def robust_terms(o):
     Returns ``(phi_e, phi_mixed, phi_pure)``; the means are ``mean(phi_t) / mean(phi_e)``.
     """
     A, S, Y = o.mixed, o.survival, o.outcome
-    pure_residual = (1 - A) * (S - o.p_pure) / (1 - o.pi)
+    pure_residual = _ratio((1 - A) * (S - o.p_pure), 1 - o.pi)
     phi_e = pure_residual + o.p_pure
     phi_mixed = (
         pure_residual * o.m_mixed
-        + o.p_pure * A * S * (Y - o.m_mixed) / (o.pi * o.p_mixed)
+        + _ratio(o.p_pure * A * S * (Y - o.m_mixed), o.pi * o.p_mixed)
         + o.p_pure * o.m_mixed
     )
-    phi_pure = (1 - A) * (S * Y - o.p_pure * o.m_pure) / (1 - o.pi) + o.p_pure * o.m_pure
+    phi_pure = _ratio((1 - A) * (S * Y - o.p_pure * o.m_pure), 1 - o.pi) + o.p_pure * o.m_pure
     return phi_e, phi_mixed, phi_pure
 
 

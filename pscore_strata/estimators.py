@@ -33,8 +33,9 @@ class _SurvivorEffectEstimator(BaseEstimator):
 
     # -- fitting -----------------------------------------------------------------------------
     def _models(self):
-        outcome = getattr(self, "outcome_model", None) if self._uses_outcome_model else None
-        return (self.treatment_model, self.survival_model, outcome)
+        """The models that will see X (for input checks that depend on them)."""
+        used = (self.treatment_model, self.survival_model)
+        return used + ((self.outcome_model,) if self._uses_outcome_model else ())
 
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
@@ -96,6 +97,13 @@ class _SurvivorEffectEstimator(BaseEstimator):
     def _store(self, data, nuisance):
         parts, oriented = self._means(data, nuisance)
         effect, influence = _formulas.scale_effect(parts, self.scale)
+        if not (np.isfinite(effect) and np.all(np.isfinite(influence))):
+            raise ValueError(
+                "The estimate is not finite: a fitted treatment or survival probability is exactly "
+                "0 or 1 where the formula divides by it (perfect separation, or no overlap). "
+                "Use a regularized model (for example LogisticRegression with a finite C), "
+                "coarser covariates, or restrict the population to where both arms occur."
+            )
         self.effect_ = float(effect)
         self.mean_treated_ = float(parts.mean_treated)
         self.mean_control_ = float(parts.mean_control)
