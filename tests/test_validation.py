@@ -165,10 +165,20 @@ def test_near_deterministic_probabilities_warn_with_counts():
 
 
 def test_probabilities_of_exactly_zero_or_one_are_an_error_not_nan():
-    from sklearn.tree import DecisionTreeClassifier
+    from sklearn.base import BaseEstimator, ClassifierMixin
 
-    # A fully grown tree predicts 0/1 treatment probabilities: no overlap anywhere.
-    est = ps.PrincipalScoreWeighting(treatment_model=DecisionTreeClassifier(), n_bootstrap=0)
+    class Certain(ClassifierMixin, BaseEstimator):
+        """Claims every row with x0 > 0 is treated for sure: no overlap there."""
+
+        def fit(self, X, y):
+            self.classes_ = np.array([0, 1])
+            return self
+
+        def predict_proba(self, X):
+            p = (np.asarray(X)[:, 0] > 0).astype(float)
+            return np.column_stack([1 - p, p])
+
+    est = ps.PrincipalScoreWeighting(treatment_model=Certain(), n_bootstrap=0)
     with pytest.raises(ValueError, match="exactly 0 or 1 where the formula divides"):
         _fit(est=est)
 
