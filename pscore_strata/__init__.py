@@ -3,7 +3,7 @@
 The public names are re-exported here; the modules hold one job each (see DEVELOPERS.md).
 """
 
-from . import datasets
+from . import datasets, simulation
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from .nuisance import MonotonicityWarning, OverlapWarning
 
@@ -16,5 +16,6 @@ __all__ = [
     "OverlapWarning",
     "MonotonicityWarning",
     "datasets",
+    "simulation",
     "__version__",
 ]
