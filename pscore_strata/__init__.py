@@ -3,7 +3,14 @@
 The public names are re-exported here; the modules hold one job each (see DEVELOPERS.md).
 """
 
-from . import datasets, simulation
+from . import datasets, diagnostics, plotting, simulation
+from .diagnostics import (
+    balance_table,
+    diagnostic_warnings,
+    monotonicity_check,
+    overlap_summary,
+    weight_summary,
+)
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from .nuisance import MonotonicityWarning, OverlapWarning
 
@@ -17,5 +24,12 @@ __all__ = [
     "MonotonicityWarning",
     "datasets",
     "simulation",
+    "diagnostics",
+    "plotting",
+    "balance_table",
+    "weight_summary",
+    "overlap_summary",
+    "monotonicity_check",
+    "diagnostic_warnings",
     "__version__",
 ]

@@ -1,0 +1,83 @@
+"""Per-row arrays the diagnostics look at: balancing weights, scores and the thresholds used.
+
+Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
+"increasing" and correct models, for any covariate function ``h(X)`` the always-survivor mean
+``E[h(X) | always-survivor]`` is the weighted mean of ``h`` among treated survivors with weights
+``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with
+weights ``p0``. Under "decreasing" the arms swap roles.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from sklearn.exceptions import NotFittedError
+
+from . import _formulas
+
+# Thresholds below are common practice (rules of thumb), not derived from theory.
+SMD_THRESHOLD = 0.1
+PROBABILITY_BOUNDS = (0.05, 0.95)
+SCORE_FLOOR = 0.05
+ROW_SHARE_TOLERANCE = 0.05
+
+
+def oriented_predictions(estimator):
+    if not (hasattr(estimator, "nuisance_") and hasattr(estimator, "training_data_")):
+        if hasattr(estimator, "fit") and hasattr(estimator, "get_params"):
+            raise NotFittedError(
+                f"This {type(estimator).__name__} is not fitted yet; call "
+                "fit(X, y, treatment=..., survival=...) before asking for diagnostics."
+            )
+        raise TypeError(
+            "`estimator` must be a fitted pscore_strata estimator (PrincipalScoreWeighting, "
+            f"OutcomeRegression or MultiplyRobust); got {type(estimator).__name__}."
+        )
+    monotonicity = getattr(estimator, "monotonicity", "increasing")
+    return _formulas.orient(estimator.training_data_, estimator.nuisance_, monotonicity)
+
+
+def treated_indicator(o):
+    return o.mixed if o.increasing else 1.0 - o.mixed
+
+
+def balancing_weights(o):
+    """Row weights of the three reconstructions, times the sample weights, keyed by group."""
+    A, S = o.mixed, o.survival
+    in_mixed = A * S > 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mixed = np.where(in_mixed, o.p_pure / (o.pi * o.p_mixed), 0.0)
+    pure = np.where((1 - A) * S > 0, 1.0 / (1.0 - o.pi), 0.0)
+    treated, control = (mixed, pure) if o.increasing else (pure, mixed)
+    return {
+        "treated_survivors": o.weight * treated,
+        "control_survivors": o.weight * control,
+        "everyone": o.weight * o.p_pure,
+    }
+
+
+def survivor_weights(o):
+    T = treated_indicator(o)
+    return {
+        "treated_survivors": o.weight * T * o.survival,
+        "control_survivors": o.weight * (1 - T) * o.survival,
+    }
+
+
+def effective_sample_size(weights):
+    """Kish (1965) effective sample size ``(sum w)^2 / sum w^2`` of non-negative weights."""
+    weights = np.asarray(weights, dtype=float)
+    square_sum = np.sum(weights**2)
+    return float(np.sum(weights) ** 2 / square_sum) if square_sum > 0 else 0.0
+
+
+def fitted_scores(o):
+    """Per-row scores: treatment probability and the principal scores (clipped as fitted)."""
+    always = np.minimum(o.p_pure, o.p_mixed)
+    helped = np.clip(o.p_mixed - o.p_pure, 0.0, None)
+    treatment_probability = o.pi if o.increasing else 1.0 - o.pi
+    return {
+        "treatment": treatment_probability,
+        "always_survivor": always,
+        "protected" if o.increasing else "harmed": helped,
+        "doomed": 1.0 - always - helped,
+    }

@@ -1,0 +1,324 @@
+"""Diagnostics of a fitted SACE analysis: covariate balance, weights, overlap and monotonicity.
+
+Everything here is a function of the per-row nuisance predictions stored by a fitted estimator
+(``nuisance_`` and ``training_data_``), so no model is refitted (DESIGN.md sections 4 and 6).
+
+Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
+"increasing" and correct models, for any covariate function ``h(X)`` the always-survivor mean
+``E[h(X) | always-survivor]`` is the weighted mean of ``h`` among treated survivors with weights
+``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with
+weights ``p0``. Under "decreasing" the arms swap roles. Disagreement between the three
+reconstructions points at a misspecified treatment or survival model.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from ._diagnostic_arrays import (
+    PROBABILITY_BOUNDS,
+    ROW_SHARE_TOLERANCE,
+    SCORE_FLOOR,
+    SMD_THRESHOLD,
+    balancing_weights,
+    effective_sample_size,
+    fitted_scores,
+    oriented_predictions,
+    survivor_weights,
+    treated_indicator,
+)
+from ._monotonicity import monotonicity_check
+
+__all__ = [
+    "balance_table",
+    "weight_summary",
+    "overlap_summary",
+    "monotonicity_check",
+    "diagnostic_warnings",
+    "effective_sample_size",
+]
+
+_GROUPS = ("treated_survivors", "control_survivors", "everyone")
+_PAIRS = (("treated", "control"), ("treated", "everyone"), ("control", "everyone"))
+
+
+def _categorical_indicators(name, column):
+    levels = pd.Categorical(column)
+    names, values = [], []
+    for code, level in enumerate(levels.categories):
+        names.append(f"{name}={level}")
+        values.append((levels.codes == code).astype(float))
+    if (levels.codes < 0).any():
+        names.append(f"{name}=(missing)")
+        values.append((levels.codes < 0).astype(float))
+    return names, values
+
+
+def _covariate_matrix(X, n_rows):
+    """Expand covariates into numeric balance rows: (names, matrix with NaN where missing)."""
+    if X is None:
+        raise ValueError(
+            "`X` is required for covariate balance: pass the covariates of the fitted rows "
+            "(the estimator does not keep them)."
+        )
+    if isinstance(X, pd.Series):
+        X = X.to_frame()
+    if not isinstance(X, pd.DataFrame):
+        array = np.asarray(X)
+        if array.ndim != 2:
+            raise ValueError(
+                f"`X` must be two-dimensional (rows x covariates); got shape {array.shape}."
+            )
+        X = pd.DataFrame(array, columns=[f"x{j}" for j in range(array.shape[1])], copy=False)
+    if len(X) != n_rows:
+        raise ValueError(
+            f"`X` has {len(X)} rows but the estimator was fitted on {n_rows}; pass the "
+            "covariates of the fitted rows, in the same order."
+        )
+    if X.shape[1] == 0:
+        raise ValueError("`X` has no columns; pass at least one covariate.")
+    names, values = [], []
+    for label in X.columns:
+        column, name = X[label], str(label)
+        if column.dtype == object:
+            converted = pd.to_numeric(column, errors="coerce")
+            if converted.notna().sum() == column.notna().sum():
+                column = converted
+        numeric = pd.api.types.is_numeric_dtype(column) or pd.api.types.is_bool_dtype(column)
+        if not numeric or isinstance(column.dtype, pd.CategoricalDtype):
+            more_names, more_values = _categorical_indicators(name, column)
+            names += more_names
+            values += more_values
+            continue
+        array = column.to_numpy(dtype=float, na_value=np.nan)
+        if np.isinf(array).any():
+            raise ValueError(
+                f"`X` column {name!r} has infinite values; replace them before checking balance."
+            )
+        names.append(name)
+        values.append(array)
+        missing = np.isnan(array)
+        if missing.any():
+            # Means use the rows where the covariate is observed; the missingness indicator gets
+            # its own balance row so the dropped rows stay visible.
+            names.append(f"{name} (missing)")
+            values.append(missing.astype(float))
+    return names, np.column_stack(values)
+
+
+def _moments(Z, observed, weights):
+    """Weighted means and variances per column over the observed entries."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        total = weights @ observed
+        mean = (weights @ Z) / total
+        variance = (weights @ (observed * (Z - mean) ** 2)) / total
+    return mean, variance
+
+
+def balance_table(estimator, X):
+    """Covariate balance of the always-survivor reconstructions (the balancing property).
+
+    Parameters
+    ----------
+    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        Any fitted estimator exposing ``nuisance_`` and ``training_data_``.
+    X : DataFrame or array-like of shape (n_samples, n_covariates)
+        Covariates of the fitted rows in the fitted order (they may include covariates the
+        models did not use). Text, boolean and categorical columns are expanded into one
+        indicator row per level. Numeric missing values get a ``"<name> (missing)"`` indicator
+        row and the column's means use its observed rows. ``X`` is not modified.
+
+    Returns
+    -------
+    table : DataFrame, one row per covariate (or indicator)
+        ``mean_treated_survivors``, ``mean_control_survivors``, ``mean_everyone``: the three
+        reconstructions of the always-survivor mean; ``smd_<a>_vs_<b>``: weighted standardized
+        mean differences between them; ``variance_ratio_<a>_vs_<b>``: ratios of their weighted
+        variances; ``raw_mean_*``, ``raw_smd_treated_vs_control`` and
+        ``raw_variance_ratio_treated_vs_control``: the survivor-only comparison without
+        balancing weights (what a naive survivor analysis compares); ``pooled_sd``.
+        ``attrs["effective_sample_size"]`` holds the Kish effective sample size of each weight
+        set.
+
+    Notes
+    -----
+    Every SMD is divided by the same pooled standard deviation ``sqrt((s1^2 + s0^2) / 2)`` of
+    the *unweighted* treated and control survivors (common practice for weighted comparisons:
+    the yardstick must not move with the weights). Where it is zero the whole-sample standard
+    deviation is used. Sample weights of the fit multiply every weight. A weighted |SMD| above
+    0.1 is the common-practice signal of imbalance.
+    """
+    o = oriented_predictions(estimator)
+    names, Z = _covariate_matrix(X, o.weight.shape[0])
+    observed = ~np.isnan(Z)
+    Z = np.where(observed, Z, 0.0)
+    weights = balancing_weights(o)
+    raw = survivor_weights(o)
+    mean, variance = {}, {}
+    for group, w in weights.items():
+        mean[group], variance[group] = _moments(Z, observed, w)
+    raw_mean, raw_variance = {}, {}
+    for group, w in raw.items():
+        raw_mean[group], raw_variance[group] = _moments(Z, observed, w)
+    pooled = np.sqrt((raw_variance["treated_survivors"] + raw_variance["control_survivors"]) / 2)
+    overall = np.sqrt(_moments(Z, observed, o.weight)[1])
+    pooled = np.where(pooled > 0, pooled, overall)
+    table = pd.DataFrame(index=pd.Index(names, name="covariate"))
+    for group in _GROUPS:
+        table[f"mean_{group}"] = mean[group]
+    key = {"treated": "treated_survivors", "control": "control_survivors", "everyone": "everyone"}
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for a, b in _PAIRS:
+            gap = mean[key[a]] - mean[key[b]]
+            table[f"smd_{a}_vs_{b}"] = np.where(pooled > 0, gap / pooled, 0.0)
+        for a, b in _PAIRS:
+            table[f"variance_ratio_{a}_vs_{b}"] = variance[key[a]] / variance[key[b]]
+        for group in ("treated_survivors", "control_survivors"):
+            table[f"raw_mean_{group}"] = raw_mean[group]
+        raw_gap = raw_mean["treated_survivors"] - raw_mean["control_survivors"]
+        table["raw_smd_treated_vs_control"] = np.where(pooled > 0, raw_gap / pooled, 0.0)
+        table["raw_variance_ratio_treated_vs_control"] = (
+            raw_variance["treated_survivors"] / raw_variance["control_survivors"]
+        )
+    table["pooled_sd"] = pooled
+    table.attrs["effective_sample_size"] = {
+        **{group: effective_sample_size(w) for group, w in weights.items()},
+        **{f"raw_{group}": effective_sample_size(w) for group, w in raw.items()},
+    }
+    table.attrs["smd_threshold"] = SMD_THRESHOLD
+    return table
+
+
+def weight_summary(estimator):
+    """Distribution of the balancing weights of each reconstruction.
+
+    Returns
+    -------
+    table : DataFrame indexed by weight set (``treated_survivors``, ``control_survivors``,
+        ``everyone``)
+        Over the rows with positive weight (balancing weight times sample weight, as the
+        estimator uses them): ``n_rows``, quantiles ``min`` ... ``max``, ``max_over_median``,
+        ``top1pct_share`` (share of the total weight carried by the largest 1% of rows),
+        ``effective_sample_size`` (Kish 1965: ``(sum w)^2 / sum w^2``) and ``ess_share``
+        (effective over actual rows).
+    """
+    o = oriented_predictions(estimator)
+    rows = {}
+    for group, w in balancing_weights(o).items():
+        w = w[w > 0]
+        ordered = np.sort(w)[::-1]
+        top = max(1, int(np.ceil(0.01 * w.size)))
+        quantiles = np.quantile(w, [0.0, 0.25, 0.5, 0.75, 0.9, 0.99, 1.0])
+        ess = effective_sample_size(w)
+        rows[group] = {
+            "n_rows": w.size,
+            **dict(
+                zip(("min", "q25", "median", "q75", "q90", "q99", "max"), quantiles, strict=True)
+            ),
+            "max_over_median": quantiles[-1] / quantiles[2],
+            "top1pct_share": ordered[:top].sum() / w.sum(),
+            "effective_sample_size": ess,
+            "ess_share": ess / w.size,
+        }
+    return pd.DataFrame.from_dict(rows, orient="index").rename_axis("weights")
+
+
+def overlap_summary(estimator):
+    """Distribution of the treatment probability and the principal scores in each arm.
+
+    Returns
+    -------
+    table : DataFrame indexed by (score, arm)
+        Row quantiles (unweighted: overlap concerns the rows the models saw), and
+        ``share_below_0.05`` / ``share_above_0.95``: the share of the arm's rows beyond the
+        common-practice bounds. ``attrs`` holds the shares over all rows of treatment
+        probabilities outside [0.05, 0.95] and of always-survivor scores below 0.05.
+    """
+    o = oriented_predictions(estimator)
+    T = treated_indicator(o)
+    low, high = PROBABILITY_BOUNDS
+    levels = [0.0, 0.01, 0.05, 0.25, 0.5, 0.75, 0.95, 0.99, 1.0]
+    labels = ["min", "q01", "q05", "q25", "median", "q75", "q95", "q99", "max"]
+    rows = {}
+    scores = fitted_scores(o)
+    for score, values in scores.items():
+        for arm, in_arm in (("treated", T == 1), ("control", T == 0)):
+            v = values[in_arm]
+            rows[(score, arm)] = {
+                "n_rows": v.size,
+                **dict(zip(labels, np.quantile(v, levels), strict=True)),
+                f"share_below_{low:g}": np.mean(v < low),
+                f"share_above_{high:g}": np.mean(v > high),
+            }
+    table = pd.DataFrame.from_dict(rows, orient="index")
+    table.index = pd.MultiIndex.from_tuples(table.index, names=["score", "arm"])
+    pi = scores["treatment"]
+    table.attrs["share_treatment_outside_bounds"] = float(np.mean((pi < low) | (pi > high)))
+    table.attrs["share_always_survivor_below_floor"] = float(
+        np.mean(scores["always_survivor"] < SCORE_FLOOR)
+    )
+    return table
+
+
+def diagnostic_warnings(estimator, X=None):
+    """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
+
+    Thresholds are common practice, not theory: weighted |SMD| above 0.1; treatment
+    probabilities outside [0.05, 0.95], or always-survivor scores below 0.05, for more than 5%
+    of rows; fitted survival probabilities reversed by more than 0.05 against the assumed
+    monotonicity direction for more than 5% of rows, or an
+    adjusted survival comparison on the wrong side of zero (Bonferroni over the strata). Balance
+    is checked only when ``X`` (the covariates of the fitted rows) is given.
+    """
+    o = oriented_predictions(estimator)
+    messages = []
+    if X is not None:
+        smd = balance_table(estimator, X).filter(regex="^smd_").abs().max(axis=1)
+        flagged = smd[smd > SMD_THRESHOLD].sort_values(ascending=False)
+        if len(flagged):
+            listed = ", ".join(f"{name} ({value:.2f})" for name, value in flagged.head(5).items())
+            messages.append(
+                f"Covariate balance: {len(flagged)} covariate(s) have a weighted |SMD| above "
+                f"{SMD_THRESHOLD} (common rule of thumb): {listed}. The reconstructions of the "
+                "always-survivors disagree, so the treatment or survival model is probably "
+                "misspecified; try interactions, transformations or a more flexible learner."
+            )
+    low, high = PROBABILITY_BOUNDS
+    scores = fitted_scores(o)
+    outside = float(np.mean((scores["treatment"] < low) | (scores["treatment"] > high)))
+    if outside > ROW_SHARE_TOLERANCE:
+        messages.append(
+            f"Overlap: {outside:.1%} of rows have a fitted treatment probability outside "
+            f"[{low}, {high}] (common practice allows about {ROW_SHARE_TOLERANCE:.0%}). Their "
+            "weights are large and unstable; consider restricting the population to the region "
+            "where both arms occur."
+        )
+    rare = float(np.mean(scores["always_survivor"] < SCORE_FLOOR))
+    if rare > ROW_SHARE_TOLERANCE:
+        messages.append(
+            f"Overlap: {rare:.1%} of rows have a fitted always-survivor score below "
+            f"{SCORE_FLOOR} (common practice allows about {ROW_SHARE_TOLERANCE:.0%}). The "
+            "always-survivor stratum is nearly absent there, so the estimate rests on few rows."
+        )
+    # Small fitted reversals arise from estimation noise where the arms' survival is close, so
+    # only reversals larger than the probability floor count.
+    reversed_rows = float(np.mean(o.p_pure - o.p_mixed > SCORE_FLOOR))
+    check = monotonicity_check(estimator)
+    if reversed_rows > ROW_SHARE_TOLERANCE:
+        helped, other = ("treatment", "control") if o.increasing else ("control", "treatment")
+        messages.append(
+            f"Monotonicity: for {reversed_rows:.1%} of rows the fitted survival probability "
+            f"under {helped} is more than {SCORE_FLOOR} below that under {other}, contradicting "
+            f"monotonicity ('{check.attrs['monotonicity']}'). Check the survival model and run "
+            "the sensitivity analysis for monotonicity."
+        )
+    strict = monotonicity_check(estimator, level=1 - 0.05 / len(check))
+    wrong = strict.index[strict["contradicts_monotonicity"]].tolist()
+    if wrong:
+        messages.append(
+            f"Monotonicity: survival differs between arms in the direction the assumption "
+            f"forbids in {', '.join(map(str, wrong))} (95% intervals, Bonferroni-adjusted). "
+            "Reconsider the monotonicity direction or use the sensitivity analysis."
+        )
+    return messages

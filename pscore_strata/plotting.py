@@ -1,0 +1,178 @@
+"""Figures for the diagnostics: covariate balance, score overlap and weight distributions.
+
+matplotlib is an optional dependency, imported inside each function so that
+``import pscore_strata`` never loads it. Every function draws on ``ax`` when given and returns
+the matplotlib Figure.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from . import _diagnostic_arrays as arrays
+from . import diagnostics
+
+__all__ = ["plot_balance", "plot_overlap", "plot_weights"]
+
+_COMPARISONS = ("treated_vs_control", "treated_vs_everyone", "control_vs_everyone")
+_GROUP_LABELS = {
+    "treated_survivors": "treated survivors",
+    "control_survivors": "control survivors",
+    "everyone": "everyone (weights: always-survivor score)",
+}
+_ARM_COLORS = {"treated": "#1f77b4", "control": "#d95f02"}
+
+
+def _figure_and_axes(ax, figsize):
+    if ax is not None:
+        return ax.figure, ax
+    import matplotlib.pyplot as plt
+
+    figure, ax = plt.subplots(figsize=figsize, layout="constrained")
+    return figure, ax
+
+
+def _legend_below(ax, ncol):
+    # Below the axes, so the legend never hides data whatever its shape.
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.18), ncol=ncol, fontsize=8, frameon=False)
+
+
+def plot_balance(estimator, X=None, *, comparison="treated_vs_control", threshold=0.1, ax=None):
+    """Dot plot of absolute standardized mean differences, raw and weighted, per covariate.
+
+    Parameters
+    ----------
+    estimator : fitted estimator or DataFrame
+        A fitted estimator (then ``X`` is required) or a table from
+        :func:`pscore_strata.balance_table`.
+    X : array-like or DataFrame, optional
+        Covariates of the fitted rows.
+    comparison : {"treated_vs_control", "treated_vs_everyone", "control_vs_everyone"}
+        Which pair of weighted always-survivor reconstructions to show beside the raw
+        (unweighted) comparison of treated and control survivors.
+    threshold : float, default=0.1
+        Reference line; 0.1 is the common-practice limit for a negligible imbalance.
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    if comparison not in _COMPARISONS:
+        raise ValueError(f"`comparison` must be one of {list(_COMPARISONS)}; got {comparison!r}.")
+    table = estimator if isinstance(estimator, pd.DataFrame) else None
+    if table is None:
+        table = diagnostics.balance_table(estimator, X)
+    raw = table["raw_smd_treated_vs_control"].abs()
+    weighted = table[f"smd_{comparison}"].abs()
+    order = raw.sort_values().index
+    positions = np.arange(len(order))
+    figure, ax = _figure_and_axes(ax, (6.4, 1.8 + 0.32 * len(order)))
+    ax.hlines(positions, 0, np.maximum(raw[order], weighted[order]), color="0.85", zorder=1)
+    ax.scatter(
+        raw[order], positions, marker="o", facecolors="white", edgecolors="0.35", s=36,
+        label="raw: treated vs control survivors", zorder=2,
+    )  # fmt: skip
+    first, second = comparison.split("_vs_")
+    ax.scatter(
+        weighted[order], positions, marker="o", color=_ARM_COLORS["treated"], s=36,
+        label=f"weighted: {first} vs {second} reconstruction", zorder=3,
+    )  # fmt: skip
+    ax.axvline(threshold, color="0.3", linestyle="--", linewidth=1)
+    ax.text(
+        threshold, 1.0, f" {threshold:g}", transform=ax.get_xaxis_transform(),
+        va="bottom", ha="left", fontsize=8, color="0.3",
+    )  # fmt: skip
+    ax.set_yticks(positions, [str(name) for name in order])
+    ax.set_ylim(-0.7, len(order) - 0.3)
+    right = max(float(np.nanmax([raw.max(), weighted.max()])), threshold) * 1.08
+    ax.set_xlim(-0.02 * right, right)
+    ax.set_xlabel("absolute standardized mean difference")
+    ax.set_title("Covariate balance of the always-survivor reconstructions", fontsize=10, pad=14)
+    _legend_below(ax, ncol=2)
+    return figure
+
+
+def plot_overlap(estimator, *, score="treatment", bins=40, ax=None):
+    """Histograms of a fitted score in the treated and control arms.
+
+    Parameters
+    ----------
+    estimator : fitted estimator exposing ``nuisance_`` and ``training_data_``
+    score : {"treatment", "always_survivor", "protected", "harmed", "doomed"}
+        ``"treatment"`` is the treatment probability ``pi(X)``; the others are principal
+        scores (``"protected"`` under monotonicity "increasing", ``"harmed"`` under
+        "decreasing").
+    bins : int, default=40
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    o = arrays.oriented_predictions(estimator)
+    scores = arrays.fitted_scores(o)
+    if score not in scores:
+        raise ValueError(f"`score` must be one of {list(scores)}; got {score!r}.")
+    values = scores[score]
+    treated = arrays.treated_indicator(o) == 1
+    figure, ax = _figure_and_axes(ax, (6.4, 4.2))
+    edges = np.linspace(0.0, 1.0, bins + 1)
+    for arm, rows in (("treated", treated), ("control", ~treated)):
+        ax.hist(
+            values[rows], bins=edges, density=True, alpha=0.45, color=_ARM_COLORS[arm],
+            label=f"{arm} (n={int(rows.sum())})",
+        )  # fmt: skip
+    low, high = arrays.PROBABILITY_BOUNDS
+    bounds = (low, high) if score == "treatment" else (low,)
+    for i, bound in enumerate(bounds):
+        label = f"common-practice bound{'s' if len(bounds) > 1 else ''}" if i == 0 else None
+        ax.axvline(bound, color="0.3", linestyle="--", linewidth=1, label=label)
+    name = "treatment probability" if score == "treatment" else f"{score} score"
+    ax.set_xlim(0, 1)
+    ax.set_xlabel(f"fitted {name.replace('_', '-')}")
+    ax.set_ylabel("density")
+    ax.set_title(f"Overlap of the fitted {name.replace('_', '-')} by arm", fontsize=10)
+    _legend_below(ax, ncol=3)
+    return figure
+
+
+def plot_weights(estimator, *, bins=50, ax=None):
+    """Distribution of the balancing weights of each reconstruction (log scale).
+
+    Each weight set is divided by its mean so the three share one axis; the legend gives the
+    Kish effective sample size against the number of rows with positive weight.
+
+    Parameters
+    ----------
+    estimator : fitted estimator exposing ``nuisance_`` and ``training_data_``
+    bins : int, default=50
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    o = arrays.oriented_predictions(estimator)
+    weights = {g: w[w > 0] for g, w in arrays.balancing_weights(o).items()}
+    scaled = {g: w / w.mean() for g, w in weights.items()}
+    low = min(v.min() for v in scaled.values())
+    high = max(v.max() for v in scaled.values())
+    edges = np.geomspace(low, high * (1 + 1e-9), bins + 1)
+    figure, ax = _figure_and_axes(ax, (6.4, 4.2))
+    colors = (_ARM_COLORS["treated"], _ARM_COLORS["control"], "0.4")
+    for (group, values), color in zip(scaled.items(), colors, strict=True):
+        ess = arrays.effective_sample_size(weights[group])
+        ax.hist(
+            values, bins=edges, weights=np.full(values.size, 1 / values.size),
+            histtype="step", linewidth=1.6, color=color,
+            label=f"{_GROUP_LABELS[group]}: ESS {ess:,.0f} of {values.size:,} rows",
+        )  # fmt: skip
+    ax.axvline(1.0, color="0.6", linestyle=":", linewidth=1)
+    ax.set_xscale("log")
+    ax.set_xlabel("weight / mean weight (log scale)")
+    ax.set_ylabel("share of the set's rows")
+    ax.set_title("Balancing weights of the always-survivor reconstructions", fontsize=10)
+    _legend_below(ax, ncol=1)
+    return figure
