@@ -4,6 +4,7 @@ The public names are re-exported here; the modules hold one job each (see DEVELO
 """
 
 from . import datasets, diagnostics, plotting, simulation
+from .bounds import TrimmingBounds
 from .diagnostics import (
     balance_table,
     diagnostic_warnings,
@@ -13,6 +14,7 @@ from .diagnostics import (
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from .nuisance import MonotonicityWarning, OverlapWarning
+from .sensitivity import sensitivity_grid, tipping_point
 
 __version__ = "0.1.0"
 
@@ -22,6 +24,9 @@ __all__ = [
     "MultiplyRobust",
     "OverlapWarning",
     "MonotonicityWarning",
+    "TrimmingBounds",
+    "sensitivity_grid",
+    "tipping_point",
     "datasets",
     "simulation",
     "diagnostics",

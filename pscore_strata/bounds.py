@@ -1,0 +1,395 @@
+"""Bounds on the SACE without principal ignorability, by trimming (Zhang & Rubin 2003; Lee 2009).
+
+Under monotonicity the survivors of the *pure* arm are all always-survivors, while the survivors
+of the *mixed* arm (treated, when treatment can only help survival) mix always-survivors, in
+share ``q = P(S=1 | pure arm) / P(S=1 | mixed arm)``, with units the treatment kept alive. Without
+principal ignorability nothing says *which* mixed-arm survivors are the always-survivors, so their
+mean lies between the mean of the lowest ``q``-fraction and of the highest ``q``-fraction of the
+mixed-arm survivors' outcomes (Lee 2009, Proposition 1b). Inverse probability of treatment
+weights make the arms represent the same population in observational data; trimming within
+covariate cells and averaging the cell bounds (weights: estimated always-survivor counts) can only
+narrow the bounds when ``q`` varies between cells (Lee 2009, Remark; Long & Hudgens 2013).
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+from scipy import optimize, stats
+from sklearn.base import BaseEstimator
+from sklearn.utils.validation import check_is_fitted
+
+from . import _formulas
+from ._validation import check_choice, check_level, check_truncation_data
+from .inference import influence_std_error
+from .nuisance import MonotonicityWarning, fit_nuisance
+
+__all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
+
+
+def trimmed_means(values, weights, share):
+    """Weighted means of the lowest and the highest ``share`` of the weight mass.
+
+    The observation that straddles the cut keeps the fraction of its weight that fits, so ties
+    and small samples are trimmed exactly (no rounding of ``share * n``).
+
+    Returns
+    -------
+    lower, upper : float
+    lower_cut, upper_cut : float
+        The ``share`` and ``1 - share`` weighted quantiles where the trimming stops.
+    """
+    order = np.argsort(values, kind="stable")
+    sorted_values, sorted_weights = values[order], weights[order]
+    target = share * sorted_weights.sum()
+    results = []
+    for vals, wts in ((sorted_values, sorted_weights), (sorted_values[::-1], sorted_weights[::-1])):
+        before = np.cumsum(wts) - wts
+        kept = np.clip(target - before, 0.0, wts)
+        last = np.flatnonzero(kept > 0)
+        results.append((float(np.sum(kept * vals) / target), float(vals[last[-1]])))
+    (lower, lower_cut), (upper, upper_cut) = results
+    return lower, upper, lower_cut, upper_cut
+
+
+def binary_trimmed_means(success_share, share):
+    """Closed form of :func:`trimmed_means` for 0/1 outcomes with mean ``success_share``.
+
+    The lowest ``share`` holds all the zeros it can (``1 - success_share`` of the mass); the
+    highest ``share`` holds all the ones it can (Zhang & Rubin 2003, section 4 for binary data).
+    """
+    lower = max(0.0, (success_share - (1.0 - share)) / share)
+    upper = min(1.0, success_share / share)
+    return lower, upper
+
+
+def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95):
+    """Interval covering every point of the identified set with probability ``level``.
+
+    Solves ``Phi(c + width / max(se)) - Phi(-c) = level`` for ``c`` (Imbens & Manski 2004,
+    Econometrica 72, section 4) and returns ``(lower - c se_lower, upper + c se_upper)``.
+    """
+    width = max(upper - lower, 0.0)
+    scale = max(se_lower, se_upper)
+    z_two_sided = stats.norm.ppf(0.5 + level / 2)
+    if not np.isfinite(scale) or scale <= 0:
+        return float(lower - z_two_sided * se_lower), float(upper + z_two_sided * se_upper)
+
+    def gap(c):
+        return stats.norm.cdf(c + width / scale) - stats.norm.cdf(-c) - level
+
+    c = 0.0 if gap(0.0) >= 0 else optimize.brentq(gap, 0.0, z_two_sided + 1.0, xtol=1e-12)
+    return float(lower - c * se_lower), float(upper + c * se_upper)
+
+
+class TrimmingBounds(BaseEstimator):
+    """Bounds on the survivor average causal effect that drop principal ignorability.
+
+    Parameters
+    ----------
+    treatment_model : estimator, float in (0, 1) or None, default=None
+        Model of ``P(T=1|X)`` for the inverse probability weights ``1/pi`` (treated) and
+        ``1/(1-pi)`` (control); a number is a known randomization probability. Unused when
+        ``X`` is ``None`` (the unadjusted bounds of a randomized trial).
+    survival_model : estimator or None, default=None
+        Classifier of ``P(S=1|T=t,X)``, fitted per arm; used only by ``strata="score"``.
+    monotonicity : {"increasing", "decreasing"}, default="increasing"
+        ``"increasing"``: treatment can only help survival; ``"decreasing"``: only harm it.
+    strata : {"none", "score"}, default="none"
+        ``"score"`` trims within ``n_strata`` quantile groups of the fitted always-survivor
+        probability among mixed-arm survivors, ``p_pure(X) / p_mixed(X)``, and averages.
+        Covariate cells of your own go to ``fit(cells=...)``.
+    n_strata : int, default=5
+        Number of score strata.
+
+    Attributes
+    ----------
+    lower_, upper_ : float
+        Estimated bounds on the SACE.
+    std_error_lower_, std_error_upper_ : float
+        Standard errors of the bounds from their influence values (see Notes).
+    influence_lower_, influence_upper_ : ndarray of shape (n_samples,)
+    trimming_share_ : float
+        Share of mixed-arm survivors trimmed, ``1 - q`` (always-survivor-weighted over cells).
+    cells_ : DataFrame
+        Per cell: weight, always-survivor share among mixed-arm survivors ``q``, bounds on the
+        mixed-arm always-survivor mean and the pure-arm mean.
+    n_clipped_cells_ : int
+        Cells where the data gave ``q > 1`` (contradicting monotonicity); ``q`` was set to 1.
+
+    Notes
+    -----
+    Standard errors use influence functions of the trimmed means: for the lower mean
+    ``L = E[Y | Y <= y_q]`` of a distribution ``F``, ``IF(y) = ((y - y_q) 1{y <= y_q} +
+    q y_q) / q - L`` plus ``(y_q - L) / q`` times the influence of the estimated share ``q``
+    (Lee 2009, Proposition 3, in influence-function form), and the mirror image for the upper
+    mean. When the treatment model is the default logistic regression its estimation is carried
+    through by M-estimation (as in :class:`PrincipalScoreWeighting`); other treatment models are
+    treated as known. Score strata are treated as fixed cells.
+
+    The always-survivor stratum is latent and monotonicity is untestable: these bounds describe
+    what the data say without principal ignorability, not an individual's benefit.
+
+    References
+    ----------
+    Zhang, J. L. & Rubin, D. B. (2003). Estimation of causal effects via principal
+    stratification when some outcomes are truncated by "death". JEBS 28.
+    Lee, D. S. (2009). Training, wages, and sample selection: estimating sharp bounds on
+    treatment effects. Review of Economic Studies 76.
+    Imbens, G. W. & Manski, C. F. (2004). Confidence intervals for partially identified
+    parameters. Econometrica 72.
+
+    Examples
+    --------
+    >>> import pscore_strata as ps
+    >>> data = ps.datasets.make_truncation(4000, design="randomized", random_state=0)
+    >>> bounds = ps.TrimmingBounds().fit(
+    ...     None, data.y, treatment=data.treatment, survival=data.survival)
+    >>> bounds.lower_ < data.true_effect < bounds.upper_
+    True
+    """
+
+    def __init__(
+        self,
+        *,
+        treatment_model=None,
+        survival_model=None,
+        monotonicity="increasing",
+        strata="none",
+        n_strata=5,
+    ):
+        self.treatment_model = treatment_model
+        self.survival_model = survival_model
+        self.monotonicity = monotonicity
+        self.strata = strata
+        self.n_strata = n_strata
+
+    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None):
+        """Estimate the bounds.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features) or None
+            Covariates for the treatment (and survival) models; ``None`` gives unadjusted
+            bounds.
+        y, treatment, survival, sample_weight, groups
+            As in :meth:`PrincipalScoreWeighting.fit`.
+        cells : array-like of shape (n_samples,), optional
+            Covariate cell labels (functions of pre-treatment covariates only). Bounds are
+            computed within each cell and averaged.
+
+        Returns
+        -------
+        self
+        """
+        check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
+        check_choice(self.strata, "strata", ("none", "score"))
+        data = check_truncation_data(
+            X, y, treatment, survival, sample_weight, groups,
+            models=(self.treatment_model, self.survival_model, None),
+        )  # fmt: skip
+        if self.strata == "score":
+            if data.X is None:
+                raise ValueError(
+                    "`strata='score'` needs covariates X to fit the survival model; pass X or "
+                    "use strata='none'."
+                )
+            if cells is not None:
+                raise ValueError(
+                    "Give either `cells` or `strata='score'`, not both: both define the cells "
+                    "the trimming is done in."
+                )
+            n_strata = self.n_strata
+            if isinstance(n_strata, bool) or not isinstance(n_strata, int | np.integer):
+                raise TypeError(f"`n_strata` must be an integer >= 1; got {n_strata!r}.")
+            if n_strata < 1:
+                raise ValueError(f"`n_strata` must be an integer >= 1; got {n_strata}.")
+        nuisance = fit_nuisance(data, self.treatment_model, self.survival_model, random_state=None)
+        o = _formulas.orient(data, nuisance, self.monotonicity)
+        labels = self._cell_labels(cells, data, o)
+        self._compute(o, labels, data)
+        return self
+
+    def _cell_labels(self, cells, data, o):
+        if self.strata == "score":
+            score = np.minimum(o.p_pure / o.p_mixed, 1.0)
+            edges = np.unique(np.quantile(score, np.linspace(0, 1, self.n_strata + 1)[1:-1]))
+            return np.searchsorted(edges, score, side="right")
+        if cells is None:
+            return np.zeros(data.n_samples, dtype=int)
+        if isinstance(cells, pd.Series | pd.DataFrame):
+            cells = cells.to_numpy()
+        cells = np.asarray(cells)
+        if cells.ndim != 1 or cells.shape[0] != data.n_samples:
+            raise ValueError(
+                f"`cells` must be one label per row ({data.n_samples} rows); got shape "
+                f"{cells.shape}."
+            )
+        if pd.isna(cells).any():
+            raise ValueError(
+                f"`cells` has {int(pd.isna(cells).sum())} missing label(s); give every row a "
+                "cell (or drop the rows yourself)."
+            )
+        return pd.factorize(cells, sort=True)[0]
+
+    def _compute(self, o, labels, data):
+        w, A, S, Y = o.weight, o.mixed, o.survival, o.outcome
+        mixed_weight, pure_weight = A / o.pi, (1 - A) / (1 - o.pi)
+        total = w.sum()
+        # Each influence piece is either proportional to a row's inverse-probability weight
+        # (``weighted``: its derivative in pi is known) or free of pi (``free``).
+        pieces = {key: np.zeros(o.pi.size) for key in ("lw", "uw", "lf", "uf")}
+        rows, alphas, alpha_influence, cell_values = [], [], [], []
+        n_clipped = 0
+        for code in np.unique(labels):
+            C = (labels == code).astype(float)
+            n_m, s_m = (
+                np.sum(w * C * mixed_weight) / total,
+                np.sum(w * C * mixed_weight * S) / total,
+            )
+            n_p, s_p = np.sum(w * C * pure_weight) / total, np.sum(w * C * pure_weight * S) / total
+            if s_m <= 0 or s_p <= 0:
+                arm = "mixed" if s_m <= 0 else "pure"
+                raise ValueError(
+                    f"Cell {code} has no survivors in the {arm} arm, so its bounds are undefined. "
+                    "Merge sparse `cells` (or lower `n_strata`)."
+                )
+            p_m, p_p = s_m / n_m, s_p / n_p
+            q = p_p / p_m
+            if q > 1:
+                n_clipped += 1
+                q = 1.0
+                if_q = np.zeros(o.pi.size)
+            else:
+                if_q = q * (C * pure_weight * (S - p_p) / (n_p * p_p)
+                            - C * mixed_weight * (S - p_m) / (n_m * p_m))  # fmt: skip
+            survivors = (C * A * S) > 0
+            y_cell, w_cell = Y[survivors], (w * mixed_weight)[survivors]
+            if data.binary_outcome:
+                success = float(np.sum(w_cell * y_cell) / w_cell.sum())
+                low, high = binary_trimmed_means(success, q)
+                _, _, cut_low, cut_high = trimmed_means(y_cell, w_cell, q)
+            else:
+                low, high, cut_low, cut_high = trimmed_means(y_cell, w_cell, q)
+            base = C * mixed_weight * S / s_m
+            if_low = base * (((Y - cut_low) * (Y <= cut_low) + q * cut_low) / q - low)
+            if_low += (cut_low - low) / q * if_q
+            if_high = base * (((Y - cut_high) * (Y >= cut_high) + q * cut_high) / q - high)
+            if_high += (cut_high - high) / q * if_q
+            pure_mean = np.sum(w * C * pure_weight * S * Y) / total / s_p
+            if_pure = C * pure_weight * S * (Y - pure_mean) / s_p
+            share = np.sum(w * C) / total
+            alphas.append(share * p_p)
+            # alpha = share * p_p: a pi-free part (C) and a weighted part (the influence of p_p).
+            alpha_influence.append((C * p_p, share * C * pure_weight * (S - p_p) / n_p))
+            cell_values.append((low - pure_mean, high - pure_mean, if_low - if_pure,
+                                if_high - if_pure))  # fmt: skip
+            rows.append((code, C.sum(), q, low, high, pure_mean))
+        alpha_total = sum(alphas)
+        omegas = [a / alpha_total for a in alphas]
+        weighted_alpha = sum(part for _, part in alpha_influence)
+        free_alpha = sum(part for part, _ in alpha_influence)
+        lower = sum(om * v[0] for om, v in zip(omegas, cell_values, strict=True))
+        upper = sum(om * v[1] for om, v in zip(omegas, cell_values, strict=True))
+        for (free, weighted), om, v in zip(alpha_influence, omegas, cell_values, strict=True):
+            pieces["lw"] += om * v[2] + v[0] / alpha_total * (weighted - om * weighted_alpha)
+            pieces["uw"] += om * v[3] + v[1] / alpha_total * (weighted - om * weighted_alpha)
+            pieces["lf"] += v[0] / alpha_total * (free - om * free_alpha)
+            pieces["uf"] += v[1] / alpha_total * (free - om * free_alpha)
+        influence = {}
+        for bound in ("l", "u"):
+            weighted, free = pieces[bound + "w"], pieces[bound + "f"]
+            raw = weighted + free
+            derivative = np.where(A == 1, -weighted / o.pi, weighted / (1 - o.pi))
+            influence[bound] = raw - o.weighted_mean(raw) + o.corrections({"pi": derivative})
+        if not o.increasing:
+            # SACE = pure-arm mean - mixed-arm mean: the bounds swap and change sign.
+            lower, upper = -upper, -lower
+            influence = {"l": -influence["u"], "u": -influence["l"]}
+        self.lower_, self.upper_ = float(lower), float(upper)
+        self.influence_lower_, self.influence_upper_ = influence["l"], influence["u"]
+        self.std_error_lower_ = influence_std_error(influence["l"], w, data.groups)
+        self.std_error_upper_ = influence_std_error(influence["u"], w, data.groups)
+        self.cells_ = pd.DataFrame(
+            rows,
+            columns=[
+                "cell",
+                "n_rows",
+                "always_survivor_share",
+                "mixed_mean_lower",
+                "mixed_mean_upper",
+                "pure_mean",
+            ],  # fmt: skip
+        ).set_index("cell")
+        self.cells_.insert(1, "weight", omegas)
+        self.trimming_share_ = float(1 - np.dot(omegas, self.cells_["always_survivor_share"]))
+        self.n_clipped_cells_ = n_clipped
+        self.n_samples_ = data.n_samples
+        self.n_features_in_ = data.n_features
+        self.binary_outcome_ = data.binary_outcome
+        if n_clipped:
+            warnings.warn(
+                f"In {n_clipped} cell(s) the {'treated' if o.increasing else 'control'} arm "
+                "survives less than the other arm, contradicting the monotonicity assumption; "
+                "no trimming was done there (always-survivor share set to 1).",
+                MonotonicityWarning,
+                stacklevel=3,
+            )
+
+    def conf_int(self, level=0.95, coverage="effect"):
+        """Confidence interval for a partially identified SACE.
+
+        Parameters
+        ----------
+        level : float, default=0.95
+        coverage : {"effect", "identified_set"}, default="effect"
+            ``"effect"`` covers the true SACE (every point of the identified set) with
+            probability ``level`` (Imbens & Manski 2004); ``"identified_set"`` covers the whole
+            set ``[lower, upper]`` at once, using ``z_{(1+level)/2}`` at each end (union
+            bound), and is wider.
+
+        Returns
+        -------
+        (low, high) : tuple of float
+        """
+        check_is_fitted(self, "lower_")
+        level = check_level(level)
+        check_choice(coverage, "coverage", ("effect", "identified_set"))
+        if coverage == "identified_set":
+            z = stats.norm.ppf(0.5 + level / 2)
+            return (
+                float(self.lower_ - z * self.std_error_lower_),
+                float(self.upper_ + z * self.std_error_upper_),
+            )
+        return imbens_manski_interval(
+            self.lower_, self.upper_, self.std_error_lower_, self.std_error_upper_, level
+        )
+
+    def summary(self, level=0.95):
+        """Bounds, standard errors and intervals as a DataFrame (cautions in ``attrs``)."""
+        check_is_fitted(self, "lower_")
+        low, high = self.conf_int(level)
+        table = pd.DataFrame(
+            {
+                "estimate": [self.lower_, self.upper_],
+                "std_error": [self.std_error_lower_, self.std_error_upper_],
+            },
+            index=pd.Index(["SACE lower bound", "SACE upper bound"], name="quantity"),
+        )
+        table["interval_end"] = [low, high]
+        table.attrs["notes"] = [
+            f"interval_end: the {level:.0%} Imbens-Manski interval for the SACE "
+            f"[{low:.4g}, {high:.4g}], which covers the true effect, not the whole bounds.",
+            f"{self.trimming_share_:.1%} of the "
+            f"{'treated' if self.monotonicity == 'increasing' else 'control'} survivors were "
+            "trimmed from each end in turn.",
+            "The bounds drop principal ignorability but keep monotonicity and, with covariates, "
+            "no unmeasured confounding of treatment; these assumptions are untestable.",
+            "The always-survivor stratum is latent: the bounds concern a group that cannot be "
+            "identified person by person and must not guide decisions about individuals.",
+            "Interpret them under the study protocol, local regulation and with a qualified "
+            "statistician.",
+        ]
+        return table

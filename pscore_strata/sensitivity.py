@@ -1,0 +1,391 @@
+"""Sensitivity of the SACE to principal ignorability and monotonicity, without refitting.
+
+Every quantity is a formula over the per-row nuisance predictions a fitted estimator stored
+(``est.nuisance_``, ``est.training_data_``), written in the oriented view of
+:func:`pscore_strata._formulas.orient`: the *mixed* arm's survivors are always-survivors plus the
+*helped* stratum (protected units when treatment can only help survival), the *pure* arm's are
+always-survivors plus the *opposite* stratum, which monotonicity rules out.
+
+Parameters (Ding & Lu 2017, section 5; Jiang, Yang & Ding 2022, section 6):
+
+- ``pi_difference`` ``delta = E[Y|helped,X] - E[Y|always,X]`` in the mixed arm;
+- ``pi_ratio`` ``eps = E[Y|helped,X] / E[Y|always,X]`` in the mixed arm;
+- ``harmed_ratio`` ``xi = e_opposite(X) / e_helped(X)``, in ``[0, 1)``.
+
+With ``xi``, ``e_helped = (p_m - p_p)/(1 - xi)`` and ``e_always = (p_p - xi p_m)/(1 - xi)``; the
+always-survivor mean in the mixed arm is ``m_m - delta e_helped/p_m`` or
+``m_m p_m/(e_always + eps e_helped)``, in the pure arm ``m_p`` (principal ignorability extended
+to the opposite stratum), and ``mu = E[e_always mu(X)] / E[e_always]``. The derivation of the
+influence functions is in docs/sensitivity.md.
+"""
+
+from __future__ import annotations
+
+import itertools
+import numbers
+import warnings
+
+import numpy as np
+import pandas as pd
+from scipy import optimize
+from sklearn.utils.validation import check_is_fitted
+
+from . import _formulas
+from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from .inference import influence_std_error, normal_interval
+
+__all__ = ["sensitivity_grid", "tipping_point", "adjusted_effect"]
+
+_NULL = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
+
+
+class _Stratum:
+    """Always-survivor score ``e_a`` and the mixed-arm functional ``G = e_a mu_mixed(X)``.
+
+    ``G`` is linear in the mixed-arm outcome mean ``m``, so the same function applied to an
+    observed ``Y`` gives the weighting estimator's numerator. The partial derivatives in
+    ``p_pure``, ``p_mixed`` and ``m`` feed both the efficient influence function and the
+    M-estimation corrections.
+    """
+
+    def __init__(self, o, delta, eps, xi):
+        self.o, self.delta, self.eps, self.xi = o, delta, eps, xi
+        p_p, p_m = o.p_pure, o.p_mixed
+        self.e_always = (p_p - xi * p_m) / (1 - xi)
+        self.e_helped = (p_m - p_p) / (1 - xi)
+        self.a_pure, self.a_mixed = 1 / (1 - xi), -xi / (1 - xi)
+        self.clipped = self.e_always < 0
+        if self.clipped.any():
+            # A negative always-survivor score is impossible: xi is too large for these rows.
+            self.e_always = np.where(self.clipped, 0.0, self.e_always)
+            self.a_pure = np.where(self.clipped, 0.0, self.a_pure)
+            self.a_mixed = np.where(self.clipped, 0.0, self.a_mixed)
+
+    def g(self, m):
+        """``G`` with its partials ``(G, dG/dp_pure, dG/dp_mixed, dG/dm)``."""
+        e_a, e_h, p_m = self.e_always, self.e_helped, self.o.p_mixed
+        a_p, a_m, h = self.a_pure, self.a_mixed, 1 / (1 - self.xi)
+        if self.eps is not None:
+            eps = self.eps
+            denominator = e_a + eps * e_h
+            d_pp = a_p - eps * h
+            d_pm = a_m + eps * h
+            k = e_a * p_m / denominator
+            k_pp = (a_p * p_m * denominator - e_a * p_m * d_pp) / denominator**2
+            k_pm = ((a_m * p_m + e_a) * denominator - e_a * p_m * d_pm) / denominator**2
+            return k * m, k_pp * m, k_pm * m, k
+        delta = self.delta
+        shift = e_a * e_h / p_m
+        shift_pp = (a_p * e_h - e_a * h) / p_m
+        shift_pm = (a_m * e_h + e_a * h) / p_m - shift / p_m
+        return (
+            e_a * m - delta * shift,
+            a_p * m - delta * shift_pp,
+            a_m * m - delta * shift_pm,
+            e_a,
+        )
+
+
+def _ratio(o, numerator, denominator, derivatives, parametric):
+    """Hajek-type ratio ``sum(w num)/sum(w den)`` with influence values.
+
+    ``derivatives(mu)`` returns d f / d prediction for ``f = num - mu den``; they enter through
+    the M-estimation corrections only when ``parametric`` is true.
+    """
+    normalizer = o.weighted_mean(denominator)
+    mu = o.weighted_mean(numerator) / normalizer
+    f = numerator - mu * denominator
+    correction = o.corrections(derivatives(mu, f)) if parametric else 0.0
+    return mu, (f + correction) / normalizer
+
+
+def _weighting(o, st, parametric):
+    A, S, Y, pi = o.mixed, o.survival, o.outcome, o.pi
+    base = A * S / (pi * o.p_mixed)
+    g, g_pp, g_pm, _ = st.g(Y)
+
+    def mixed_derivatives(mu, f):
+        return {
+            "pi": -f / pi,
+            "p_pure": base * (g_pp - mu * st.a_pure),
+            "p_mixed": -f / o.p_mixed + base * (g_pm - mu * st.a_mixed),
+        }
+
+    mu_m, if_m = _ratio(o, base * g, base * st.e_always, mixed_derivatives, parametric)
+    base = (1 - A) * S / ((1 - pi) * o.p_pure)
+
+    def pure_derivatives(mu, f):
+        return {
+            "pi": f / (1 - pi),
+            "p_pure": -f / o.p_pure + base * st.a_pure * (Y - mu),
+            "p_mixed": base * st.a_mixed * (Y - mu),
+        }
+
+    mu_p, if_p = _ratio(o, base * st.e_always * Y, base * st.e_always, pure_derivatives, parametric)
+    return mu_m, mu_p, if_m, if_p
+
+
+def _regression(o, st, parametric):
+    g, g_pp, g_pm, g_m = st.g(o.m_mixed)
+
+    def mixed_derivatives(mu, f):
+        return {
+            "p_pure": g_pp - mu * st.a_pure,
+            "p_mixed": g_pm - mu * st.a_mixed,
+            "m_mixed": g_m,
+        }
+
+    def pure_derivatives(mu, f):
+        return {
+            "p_pure": st.a_pure * (o.m_pure - mu),
+            "p_mixed": st.a_mixed * (o.m_pure - mu),
+            "m_pure": st.e_always,
+        }
+
+    mu_m, if_m = _ratio(o, g, st.e_always, mixed_derivatives, parametric)
+    mu_p, if_p = _ratio(o, st.e_always * o.m_pure, st.e_always, pure_derivatives, parametric)
+    return mu_m, mu_p, if_m, if_p
+
+
+def _robust(o, st, parametric):
+    """Efficient-influence-function estimator of the adjusted means (docs/sensitivity.md).
+
+    For a functional ``E[G(p_p, p_m, m)]`` the efficient influence function adds to ``G`` each
+    partial derivative times the residual of that regression, inverse-weighted by the chance of
+    being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022, Theorem 1).
+    """
+    A, S, Y, pi = o.mixed, o.survival, o.outcome, o.pi
+    resid_pure = (1 - A) * (S - o.p_pure) / (1 - pi)
+    resid_mixed = A * (S - o.p_mixed) / pi
+    g, g_pp, g_pm, g_m = st.g(o.m_mixed)
+    phi_mixed = (
+        g + g_pp * resid_pure + g_pm * resid_mixed
+        + g_m * A * S * (Y - o.m_mixed) / (pi * o.p_mixed)
+    )  # fmt: skip
+    score_resid = st.a_pure * resid_pure + st.a_mixed * resid_mixed
+    phi_e = st.e_always + score_resid
+    phi_pure = (
+        st.e_always * o.m_pure + o.m_pure * score_resid
+        + st.e_always * (1 - A) * S * (Y - o.m_pure) / ((1 - pi) * o.p_pure)
+    )  # fmt: skip
+    share = o.weighted_mean(phi_e)
+    mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
+    return mu_m, mu_p, (phi_mixed - mu_m * phi_e) / share, (phi_pure - mu_p * phi_e) / share
+
+
+_FORMULAS = {
+    PrincipalScoreWeighting: _weighting,
+    OutcomeRegression: _regression,
+    MultiplyRobust: _robust,
+}
+
+
+def _check_estimator(estimator):
+    formula = next((f for cls, f in _FORMULAS.items() if isinstance(estimator, cls)), None)
+    if formula is None:
+        raise TypeError(
+            "`estimator` must be a fitted PrincipalScoreWeighting, OutcomeRegression or "
+            f"MultiplyRobust; got {type(estimator).__name__}."
+        )
+    check_is_fitted(estimator, "nuisance_")
+    return formula
+
+
+def _check_value(name, value):
+    if isinstance(value, bool | np.bool_) or not isinstance(value, numbers.Real):
+        raise TypeError(f"`{name}` values must be real numbers; got {value!r}.")
+    value = float(value)
+    if not np.isfinite(value):
+        raise ValueError(f"`{name}` values must be finite; got {value}.")
+    if name == "pi_ratio" and value <= 0:
+        raise ValueError(f"`pi_ratio` values must be positive; got {value}.")
+    if name == "harmed_ratio" and not 0 <= value < 1:
+        raise ValueError(f"`harmed_ratio` values must lie in [0, 1); got {value}.")
+    return value
+
+
+def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None):
+    """SACE and influence values at one setting of the sensitivity parameters.
+
+    Returns
+    -------
+    effect : float
+    influence : ndarray of shape (n_samples,)
+    n_clipped : int
+        Rows whose implied always-survivor score was negative (set to 0).
+    """
+    formula = _check_estimator(estimator)
+    if pi_ratio is not None and pi_difference is not None:
+        raise ValueError(
+            "Give `pi_ratio` or `pi_difference`, not both: they are two scales for the same "
+            "departure from principal ignorability."
+        )
+    eps = None if pi_ratio is None else _check_value("pi_ratio", pi_ratio)
+    delta = 0.0 if pi_difference is None else _check_value("pi_difference", pi_difference)
+    xi = 0.0 if harmed_ratio is None else _check_value("harmed_ratio", harmed_ratio)
+    data, nuisance = estimator.training_data_, estimator.nuisance_
+    o = _formulas.orient(data, nuisance, estimator.monotonicity)
+    st = _Stratum(o, delta, eps, xi)
+    # Robust influence values need no corrections (orthogonal); the others get them exactly
+    # when the fitted estimator used them (default GLMs, no cross-fitting).
+    parametric = formula is not _robust and nuisance.parametric is not None
+    mu_m, mu_p, if_m, if_p = formula(o, st, parametric)
+    parts = _formulas._unorient(o, mu_m, mu_p, if_m, if_p)
+    effect, influence = _formulas.scale_effect(parts, estimator.scale)
+    return float(effect), influence, int(st.clipped.sum())
+
+
+def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
+    given = {
+        name: values
+        for name, values in (
+            ("pi_ratio", pi_ratio),
+            ("pi_difference", pi_difference),
+            ("harmed_ratio", harmed_ratio),
+        )
+        if values is not None
+    }
+    if not given:
+        raise ValueError(
+            "Give at least one of `pi_ratio`, `pi_difference` or `harmed_ratio` (a number or a "
+            "list of values)."
+        )
+    axes = {}
+    for name, values in given.items():
+        values = np.atleast_1d(np.asarray(values, dtype=object))
+        if values.ndim != 1 or values.size == 0:
+            raise ValueError(f"`{name}` must be a number or a non-empty 1-d list of numbers.")
+        axes[name] = [_check_value(name, v) for v in values]
+    return axes
+
+
+def sensitivity_grid(
+    estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None, level=0.95
+):
+    """SACE over a grid of sensitivity parameters, from a fitted estimator without refitting.
+
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust, fitted
+    pi_ratio, pi_difference : float or sequence of float, optional
+        Departure from principal ignorability in the mixed arm (treated, for increasing
+        monotonicity), as a ratio (``1`` = none) or a difference (``0`` = none) of the helped
+        stratum's mean outcome to the always-survivors' given X. Give at most one.
+    harmed_ratio : float or sequence of float in [0, 1), optional
+        Size of the stratum monotonicity rules out relative to the helped one (``0`` = none).
+    level : float, default=0.95
+
+    Returns
+    -------
+    DataFrame
+        One row per combination of the given values: the parameter columns, ``effect``,
+        ``std_error``, ``ci_low``, ``ci_high`` and ``n_rows_clipped``. At the null values the
+        row reproduces the estimator's own effect.
+
+    Notes
+    -----
+    Standard errors come from influence values. For the multiply robust estimator they are
+    the adjusted efficient influence function; for weighting and outcome regression they
+    include the M-estimation terms of the default logistic/linear models (as the estimators
+    do) and otherwise ignore the estimation of the nuisance models (a bootstrap of the
+    estimator would be needed then). The always-survivor stratum is latent and the parameters
+    cannot be estimated from the data: read the grid as "how strong would a violation have to
+    be", and consult a qualified statistician before drawing conclusions.
+    """
+    axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
+    _check_estimator(estimator)
+    data = estimator.training_data_
+    log_scale = estimator.scale != "difference"
+    rows = []
+    for values in itertools.product(*axes.values()):
+        setting = dict(zip(axes, values, strict=True))
+        effect, influence, clipped = adjusted_effect(estimator, **setting)
+        se = influence_std_error(influence, data.sample_weight, data.groups)
+        low, high = normal_interval(effect, se, level, log_scale)
+        rows.append({**setting, "effect": effect, "std_error": se, "ci_low": low,
+                     "ci_high": high, "n_rows_clipped": clipped})  # fmt: skip
+    return pd.DataFrame(rows)
+
+
+def tipping_point(
+    estimator, parameter="pi_difference", *, criterion="interval", level=0.95, search=None
+):
+    """Smallest departure from the null value at which the conclusion about the sign flips.
+
+    Parameters
+    ----------
+    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+    parameter : {"pi_difference", "pi_ratio", "harmed_ratio"}, default="pi_difference"
+    criterion : {"interval", "estimate"}, default="interval"
+        ``"interval"``: where the confidence interval first covers the null effect (0, or 1
+        on ratio scales); ``"estimate"``: where the estimate reaches it.
+    level : float, default=0.95
+    search : (float, float), optional
+        Range of the parameter to search; defaults to ``±20`` outcome standard deviations for
+        ``pi_difference``, ``[1/50, 50]`` for ``pi_ratio`` and ``[0, 0.999]`` for
+        ``harmed_ratio``.
+
+    Returns
+    -------
+    float
+        The parameter value nearest the null value (on the log scale for ``pi_ratio``) at which
+        the criterion is met, found by Brent's method on the no-refit formulas; ``0``/``1`` if
+        it is met at the null already; NaN (with a warning) if not met inside ``search``.
+    """
+    _check_estimator(estimator)
+    if parameter not in _NULL:
+        raise ValueError(f"`parameter` must be one of {list(_NULL)}; got {parameter!r}.")
+    if criterion not in ("interval", "estimate"):
+        raise ValueError(f"`criterion` must be 'interval' or 'estimate'; got {criterion!r}.")
+    data = estimator.training_data_
+    null_effect = 0.0 if estimator.scale == "difference" else 1.0
+    log_scale = estimator.scale != "difference"
+    sign = np.sign(estimator.effect_ - null_effect)
+
+    def distance(value):
+        effect, influence, _ = adjusted_effect(estimator, **{parameter: value})
+        if criterion == "estimate":
+            return sign * (effect - null_effect)
+        se = influence_std_error(influence, data.sample_weight, data.groups)
+        low, high = normal_interval(effect, se, level, log_scale)
+        return low - null_effect if sign > 0 else null_effect - high
+
+    null = _NULL[parameter]
+    if distance(null) <= 0:
+        return null
+    if search is None:
+        spread = float(np.nanstd(data.outcome[data.survival == 1])) or 1.0
+        search = {
+            "pi_difference": (-20 * spread, 20 * spread),
+            "pi_ratio": (1 / 50, 50.0),
+            "harmed_ratio": (0.0, 0.999),
+        }[parameter]
+    found = []
+    for end in search:
+        if end == null:
+            continue
+        points = _path(null, end, parameter)
+        previous = null
+        for point in points:
+            if distance(point) <= 0:
+                found.append(optimize.brentq(distance, previous, point, xtol=1e-10))
+                break
+            previous = point
+    if not found:
+        warnings.warn(
+            f"The {criterion} does not reach the null effect for {parameter} in {search}; "
+            "returning NaN.",
+            UserWarning,
+            stacklevel=2,
+        )
+        return float("nan")
+    if parameter == "pi_ratio":
+        return float(min(found, key=lambda v: abs(np.log(v))))
+    return float(min(found, key=lambda v: abs(v - null)))
+
+
+def _path(null, end, parameter, n_points=40):
+    """Points from the null value towards ``end`` (geometric for ratios), for bracketing."""
+    if parameter == "pi_ratio":
+        return np.exp(np.linspace(np.log(null), np.log(end), n_points + 1)[1:])
+    return np.linspace(null, end, n_points + 1)[1:]
