@@ -5,6 +5,12 @@ two always-survivor means with per-row influence values. "Oriented" removes the 
 direction from the formulas: the *mixed* arm is the one whose survivors mix always-survivors with
 the stratum the treatment helps (the treated arm when treatment can only help survival), the
 *pure* arm is the other one, whose survivors are all always-survivors.
+
+An optional ``subset`` (a 0/1 row indicator) restricts the estimand to the always-survivors of a
+subgroup without refitting: each estimating function is multiplied by the indicator while the
+nuisance fits stay those of the whole sample. The influence values are then those of the whole
+sample (zero outside the subgroup, up to nuisance terms), so they carry the randomness of the
+subgroup's size as well as that of the shared nuisance fits.
 """
 
 from __future__ import annotations
@@ -115,14 +121,20 @@ def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
     return MeanParts(mu_pure, mu_mixed, if_pure, if_mixed)
 
 
-def weighting_means(o):
+def _indicator(o, subset):
+    return np.ones_like(o.weight) if subset is None else np.asarray(subset, dtype=float)
+
+
+def weighting_means(o, subset=None):
     """Normalized principal score weighting (Ding & Lu 2017, JRSSB), with M-estimation terms.
 
     Mixed-arm survivors get weight ``p_pure / (pi p_mixed)`` (their chance of being
     always-survivors over their chance of being observed); pure-arm survivors get ``1/(1-pi)``.
+    Within a subgroup the weights are normalized over the subgroup's survivors.
     """
     A, S, Y = o.mixed, o.survival, o.outcome
-    w_mixed = _ratio(A * S * o.p_pure, o.pi * o.p_mixed)
+    g = _indicator(o, subset)
+    w_mixed = _ratio(g * A * S * o.p_pure, o.pi * o.p_mixed)
     normalizer = o.weighted_mean(w_mixed)
     mu_mixed = o.weighted_mean(w_mixed * Y) / normalizer
     f = w_mixed * (Y - mu_mixed)
@@ -131,7 +143,7 @@ def weighting_means(o):
     )
     if_mixed = (f + correction) / normalizer
 
-    w_pure = _ratio((1 - A) * S, 1 - o.pi)
+    w_pure = _ratio(g * (1 - A) * S, 1 - o.pi)
     normalizer = o.weighted_mean(w_pure)
     mu_pure = o.weighted_mean(w_pure * Y) / normalizer
     f = w_pure * (Y - mu_pure)
@@ -139,14 +151,16 @@ def weighting_means(o):
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
-def regression_means(o):
+def regression_means(o, subset=None):
     """Outcome regression: ``mu_t = E[p_pure m_t] / E[p_pure]`` (principal ignorability)."""
-    normalizer = o.weighted_mean(o.p_pure)
+    g = _indicator(o, subset)
+    always = g * o.p_pure
+    normalizer = o.weighted_mean(always)
     result = []
     for key, m in (("m_mixed", o.m_mixed), ("m_pure", o.m_pure)):
-        mu = o.weighted_mean(o.p_pure * m) / normalizer
-        f = o.p_pure * (m - mu)
-        correction = o.corrections({"p_pure": m - mu, key: o.p_pure})
+        mu = o.weighted_mean(always * m) / normalizer
+        f = always * (m - mu)
+        correction = o.corrections({"p_pure": g * (m - mu), key: always})
         result.append((mu, (f + correction) / normalizer))
     (mu_mixed, if_mixed), (mu_pure, if_pure) = result
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
@@ -169,9 +183,16 @@ def robust_terms(o):
     return phi_e, phi_mixed, phi_pure
 
 
-def robust_means(o):
-    """Multiply robust means; influence values ``(phi_t - mu_t phi_e) / mean(phi_e)``."""
-    phi_e, phi_mixed, phi_pure = robust_terms(o)
+def robust_means(o, subset=None):
+    """Multiply robust means; influence values ``(phi_t - mu_t phi_e) / mean(phi_e)``.
+
+    No nuisance-estimation terms are added: the efficient influence function is orthogonal to
+    the nuisance functions (Jiang, Yang & Ding 2022, Theorem 2), so with cross-fitting, or with
+    parametric models that are all correct, their estimation does not change the first-order
+    variance.
+    """
+    g = _indicator(o, subset)
+    phi_e, phi_mixed, phi_pure = (g * phi for phi in robust_terms(o))
     share = o.weighted_mean(phi_e)
     mu_mixed = o.weighted_mean(phi_mixed) / share
     mu_pure = o.weighted_mean(phi_pure) / share

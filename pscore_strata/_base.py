@@ -1,0 +1,307 @@
+"""Shared machinery of the SACE estimators: fitting, repeats, bootstrap fallback, results.
+
+A concrete estimator (:mod:`pscore_strata.estimators`) only names its estimand formula from
+:mod:`pscore_strata._formulas` and whether it needs the outcome model.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import replace
+
+import numpy as np
+import pandas as pd
+from joblib import Parallel, delayed
+from sklearn.base import BaseEstimator
+from sklearn.utils.validation import check_is_fitted
+
+from . import _formulas
+from ._heterogeneity import conditional_effect, subgroup_effects
+from ._repeats import check_repeats, median_aggregate, repeat_seeds
+from ._summary import summary_table
+from ._validation import check_choice, check_features, check_level, check_truncation_data
+from .inference import influence_std_error, normal_interval, spawn_seeds, stratified_resample
+from .nuisance import MonotonicityWarning, fit_nuisance, predict_models
+
+__all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
+
+_SCALES = ("difference", "ratio", "odds_ratio")
+
+
+class SurvivorEffectEstimator(BaseEstimator):
+    """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
+
+    _uses_outcome_model = False
+
+    # -- fitting -----------------------------------------------------------------------------
+    def _models(self):
+        """The models that will see X (for input checks that depend on them)."""
+        used = (self.treatment_model, self.survival_model)
+        return used + ((self.outcome_model,) if self._uses_outcome_model else ())
+
+    def _check_params(self):
+        check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
+        check_choice(self.scale, "scale", _SCALES)
+        n_bootstrap = getattr(self, "n_bootstrap", 0)
+        if not isinstance(n_bootstrap, int | np.integer) or n_bootstrap < 0:
+            raise ValueError(f"`n_bootstrap` must be a non-negative integer; got {n_bootstrap!r}.")
+        return check_repeats(getattr(self, "n_repeats", 1), self.n_folds)
+
+    def _fit_nuisance(self, data, random_state):
+        return fit_nuisance(
+            data,
+            self.treatment_model,
+            self.survival_model,
+            getattr(self, "outcome_model", None),
+            fit_outcome=self._uses_outcome_model,
+            n_folds=self.n_folds,
+            random_state=random_state,
+        )
+
+    def _means(self, data, nuisance):
+        oriented = _formulas.orient(data, nuisance, self.monotonicity)
+        return type(self)._formula(oriented), oriented
+
+    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None):
+        """Estimate the survivor average causal effect.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features) or None
+            Pre-treatment covariates. ``None`` (or zero columns) gives the unadjusted analysis,
+            where every model reduces to arm-wise shares and means.
+        y : array-like of shape (n_samples,)
+            Outcome. Values of non-survivors are ignored (they may be NaN).
+        treatment, survival : array-like of shape (n_samples,)
+            0/1 indicators.
+        sample_weight : array-like of shape (n_samples,), optional
+            Survey (sampling) or frequency weights. Every model is fitted with them and every
+            mean in the formulas is weighted, so an integer weight gives the same point
+            estimate as repeating the row that many times. Standard errors treat each row as
+            one sampled unit carrying its weight (linearization variance
+            ``sum_i (w_i IF_i)^2 / (sum_i w_i)^2``): right for survey weights, conservative
+            for frequency weights (repeat the rows to get the frequency-weight error).
+        groups : array-like of shape (n_samples,), optional
+            Cluster labels: standard errors add influence values within clusters.
+
+        Returns
+        -------
+        self
+        """
+        n_repeats = self._check_params()
+        data = check_truncation_data(
+            X, y, treatment, survival, sample_weight, groups, models=self._models()
+        )
+        if self.scale == "odds_ratio" and not data.binary_outcome:
+            raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
+        if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
+            raise ValueError("`scale='ratio'` needs a non-negative outcome; `y` has negatives.")
+        fits = [
+            self._fit_nuisance(data, seed) for seed in repeat_seeds(self.random_state, n_repeats)
+        ]
+        self._store(data, fits)
+        if self.std_error_method_ == "bootstrap":
+            self._bootstrap_std_errors(data)
+        return self
+
+    def _evaluate(self, data, nuisance):
+        """Estimates of one nuisance fit (one cross-fitting repeat)."""
+        parts, oriented = self._means(data, nuisance)
+        effect, influence = _formulas.scale_effect(parts, self.scale)
+        if not (np.isfinite(effect) and np.all(np.isfinite(influence))):
+            raise ValueError(
+                "The estimate is not finite: a fitted treatment or survival probability is exactly "
+                "0 or 1 where the formula divides by it (perfect separation, or no overlap). "
+                "Use a regularized model (for example LogisticRegression with a finite C), "
+                "coarser covariates, or restrict the population to where both arms occur."
+            )
+        w, groups = data.sample_weight, data.groups
+        row = {
+            "effect": float(effect),
+            "std_error": influence_std_error(influence, w, groups),
+            "mean_treated": float(parts.mean_treated),
+            "std_error_mean_treated": influence_std_error(parts.influence_treated, w, groups),
+            "mean_control": float(parts.mean_control),
+            "std_error_mean_control": influence_std_error(parts.influence_control, w, groups),
+        }
+        return row, influence, parts, oriented
+
+    def _store(self, data, fits):
+        evaluated = [self._evaluate(data, nuisance) for nuisance in fits]
+        table = pd.DataFrame([row for row, *_ in evaluated])
+        effect, std_error = median_aggregate(table["effect"], table["std_error"])
+        # The repeat closest to the median supplies the per-row quantities (one split's values).
+        chosen = int(np.argmin(np.abs(table["effect"].to_numpy() - effect)))
+        _, influence, parts, oriented = evaluated[chosen]
+        self.effect_ = float(effect)
+        self.std_error_ = float(std_error)
+        self.mean_treated_ = float(np.median(table["mean_treated"]))
+        self.mean_control_ = float(np.median(table["mean_control"]))
+        self.repeat_estimates_ = table
+        self.influence_ = influence
+        self._mean_influence = (parts.influence_treated, parts.influence_control)
+        self.nuisance_ = fits[chosen]
+        self._repeat_fits = fits
+        self.training_data_ = replace(data, X=None)
+        self.n_samples_ = data.n_samples
+        self.n_features_in_ = data.n_features
+        self.feature_names_ = data.feature_names
+        self.classes_ = np.array(
+            ["always_survivor", "protected" if oriented.increasing else "harmed", "doomed"]
+        )
+        self.principal_scores_ = _principal_scores(oriented.p_mixed, oriented.p_pure)
+        violations = int(np.sum(oriented.p_mixed < oriented.p_pure))
+        self.n_monotonicity_violations_ = violations
+        if violations:
+            warnings.warn(
+                f"For {violations} of {data.n_samples} rows ({violations / data.n_samples:.1%}) "
+                f"the fitted survival probability under "
+                f"{'treatment' if oriented.increasing else 'control'} is below that under the "
+                "other arm, contradicting the monotonicity assumption. Principal scores are "
+                "clipped at zero there. Check the survival model, and see the sensitivity "
+                "analysis for monotonicity.",
+                MonotonicityWarning,
+                stacklevel=3,
+            )
+        self.std_error_method_ = self._std_error_method(self.nuisance_)
+        self.bootstrap_replicates_ = None
+
+    def _std_error_method(self, nuisance):
+        if self._formula is _formulas.robust_means:
+            return "influence function"
+        if nuisance.parametric is not None:
+            return "sandwich"
+        return "bootstrap" if self.n_bootstrap > 0 else "influence function (nuisance ignored)"
+
+    # -- bootstrap fallback ------------------------------------------------------------------
+    def _refit_means(self, data):
+        nuisance = self._fit_nuisance(data, self.random_state)
+        parts, _ = self._means(data, nuisance)
+        effect, _ = _formulas.scale_effect(parts, self.scale)
+        return effect, parts.mean_treated, parts.mean_control
+
+    def _bootstrap_std_errors(self, data):
+        """Resample rows within arms (clusters, if given) and refit every model."""
+        seeds = spawn_seeds(self.random_state, self.n_bootstrap)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            results = Parallel(n_jobs=self.n_jobs)(
+                delayed(_one_replicate)(self, data, seed) for seed in seeds
+            )
+        table = pd.DataFrame(
+            [r for r in results if r is not None],
+            columns=["effect", "mean_treated", "mean_control"],
+        )
+        self.bootstrap_replicates_ = table
+        self.n_bootstrap_failed_ = len(results) - len(table)
+        if len(table) < 2:
+            raise RuntimeError("Fewer than two bootstrap resamples could be fitted.")
+        self.std_error_ = float(table["effect"].std(ddof=1))
+
+    # -- results -----------------------------------------------------------------------------
+    def conf_int(self, level=0.95):
+        """Normal-approximation confidence interval for the SACE (log scale for ratios).
+
+        Returns
+        -------
+        (low, high) : tuple of float
+        """
+        check_is_fitted(self, "effect_")
+        return normal_interval(self.effect_, self.std_error_, level, self.scale != "difference")
+
+    def predict_proba(self, X):
+        """Principal scores per row, columns in ``classes_`` order.
+
+        Under monotonicity the always-survivor score is the survival probability in the pure arm,
+        the helped stratum's score the difference of the arms' survival probabilities (clipped at
+        zero where the models contradict monotonicity), and the doomed score the rest. With
+        cross-fitting, the predictions average every fold model (of every repeat).
+        """
+        check_is_fitted(self, "effect_")
+        X, n_features, _ = check_features(X, self._models())
+        if n_features != self.n_features_in_:
+            raise ValueError(
+                f"`X` has {n_features} features but the estimator was fitted with "
+                f"{self.n_features_in_}."
+            )
+        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
+        scores = {}
+        for arm in (mixed, pure):
+            models = [m for fit in self._repeat_fits for m in fit.models[("survival", arm)]]
+            scores[arm] = predict_models(models, X)
+        return _principal_scores(scores[mixed], scores[pure])
+
+    def predict(self, X):
+        """The most probable principal stratum per row."""
+        return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+
+    def summary(self, level=0.95):
+        """Estimates with standard errors and confidence intervals, one row per quantity.
+
+        Rows: the SACE (its scale in the row name), the always-survivor mean under each arm, the
+        principal stratum shares, and the naive survivor-only contrast (biased when treatment
+        changes who survives; shown for comparison). ``attrs["notes"]`` explains how the
+        standard errors were obtained and states the cautions that go with every SACE.
+        """
+        check_is_fitted(self, "effect_")
+        return summary_table(self, level)
+
+    def effect_by(self, labels, level=0.95):
+        """Subgroup SACEs from the fitted models, without refitting.
+
+        In subgroup ``g`` every estimating function of the estimator is restricted to the rows
+        of ``g`` (for the multiply robust estimator ``mu_t(g) = sum_g phi_t / sum_g phi_e``; for
+        weighting, weights normalized within ``g``). Standard errors come from the matching
+        influence values over the whole sample (cluster-robust and weighted as in :meth:`fit`;
+        nuisance estimation included where :attr:`std_error_method_` is ``"sandwich"`` or
+        ``"influence function"``).
+
+        Parameters
+        ----------
+        labels : array-like of shape (n_samples,)
+            Subgroup label of each training row, in the order given to :meth:`fit`.
+        level : float, default=0.95
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``label``, ``n`` (rows), ``effect``, ``std_error``, ``ci_low``, ``ci_high``;
+            ``attrs["notes"]`` holds the cautions.
+        """
+        check_is_fitted(self, "effect_")
+        check_level(level)
+        return subgroup_effects(self, labels, level)
+
+
+class ConditionalEffectMixin:
+    def predict_effect(self, X):
+        """The always-survivor effect given ``X``: ``m1(X) - m0(X)`` (ratio scales: their ratio).
+
+        Valid under principal ignorability, which makes the survivors' outcome mean in each arm
+        equal the always-survivors' mean given ``X``. With cross-fitting, each ``m_t`` averages
+        the fold models (of every repeat). A classifier outcome model gives risks.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+        """
+        check_is_fitted(self, "effect_")
+        return conditional_effect(self, X)
+
+
+def _one_replicate(estimator, data, seed):
+    rows = stratified_resample(data.treatment, seed, data.groups)
+    try:
+        return estimator._refit_means(data.take(rows))
+    except (ValueError, np.linalg.LinAlgError):
+        return None
+
+
+def _principal_scores(p_mixed, p_pure):
+    always = np.minimum(p_pure, p_mixed)
+    helped = np.clip(p_mixed - p_pure, 0.0, None)
+    return np.column_stack([always, helped, 1.0 - always - helped])

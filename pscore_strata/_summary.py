@@ -1,0 +1,155 @@
+"""The summary table of a fitted SACE estimator: estimates, standard errors, intervals, notes."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from ._repeats import median_aggregate
+from .inference import influence_std_error, normal_interval
+
+__all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
+
+SCALE_LABELS = {"difference": "difference", "ratio": "ratio", "odds_ratio": "odds ratio"}
+
+CAUTIONS = (
+    "The always-survivor stratum is latent: nobody can be identified as an always-survivor, and "
+    "the SACE rests on untestable assumptions (monotonicity, principal ignorability). See the "
+    "bounds and sensitivity analyses. These are population-level estimates: do not use them for "
+    "decisions about individual patients. Interpret them under the study's protocol and local "
+    "regulation, with a qualified statistician."
+)
+
+
+def summary_table(estimator, level):
+    """Rows: the SACE, the always-survivor means, the stratum shares and the naive contrast."""
+    data = estimator.training_data_
+    w, groups = data.sample_weight, data.groups
+    method = estimator.std_error_method_
+    boot = estimator.bootstrap_replicates_
+    repeats = estimator.repeat_estimates_
+    rows = [
+        (
+            f"SACE ({SCALE_LABELS[estimator.scale]})",
+            estimator.effect_,
+            estimator.std_error_,
+            method,
+        )
+    ]
+    for name, value, column in (
+        ("always-survivor mean, treated", estimator.mean_treated_, "mean_treated"),
+        ("always-survivor mean, control", estimator.mean_control_, "mean_control"),
+    ):
+        if boot is not None:
+            se = float(boot[column].std(ddof=1))
+        else:
+            se = float(median_aggregate(repeats[column], repeats[f"std_error_{column}"])[1])
+        rows.append((name, value, se, method))
+    for name, value, infl in _stratum_shares(estimator):
+        rows.append((name, value, influence_std_error(infl, w, groups), "influence function"))
+    naive, naive_influence = _naive_contrast(data)
+    rows.append(
+        (
+            "naive survivor contrast (biased)",
+            naive,
+            influence_std_error(naive_influence, w, groups),
+            "influence function",
+        )
+    )
+    table = pd.DataFrame(rows, columns=["quantity", "estimate", "std_error", "std_error_method"])
+    log_first = estimator.scale != "difference"
+    intervals = [
+        normal_interval(est, se, level, i == 0 and log_first)
+        for i, (est, se) in enumerate(zip(table["estimate"], table["std_error"], strict=True))
+    ]
+    table.insert(3, "ci_low", [low for low, _ in intervals])
+    table.insert(4, "ci_high", [high for _, high in intervals])
+    table = table.set_index("quantity")
+    table.attrs["scale"] = estimator.scale
+    table.attrs["notes"] = _notes(estimator)
+    return table
+
+
+def _stratum_shares(estimator):
+    """Stratum shares from doubly robust means of the arm survival probabilities.
+
+    ``E[p_t(X)]`` is estimated by ``mean(1{T=t}(S - p_t)/P(T=t|X) + p_t)``; its influence values
+    are the centered terms.
+    """
+    data, nuisance = estimator.training_data_, estimator.nuisance_
+    w = data.sample_weight
+    pi = nuisance.treatment_probability
+    T, S = data.treatment, data.survival
+    shares, influence = {}, {}
+    for arm, arm_prob in ((1, pi), (0, 1 - pi)):
+        p = nuisance.survival[arm]
+        in_arm = (T == arm).astype(float)
+        terms = np.divide(in_arm * (S - p), arm_prob, out=np.zeros_like(p), where=in_arm > 0) + p
+        shares[arm] = float(np.sum(w * terms) / w.sum())
+        influence[arm] = terms - shares[arm]
+    mixed, pure = (1, 0) if estimator.monotonicity == "increasing" else (0, 1)
+    helped = "protected" if mixed == 1 else "harmed"
+    return [
+        ("share always-survivor", shares[pure], influence[pure]),
+        (f"share {helped}", shares[mixed] - shares[pure], influence[mixed] - influence[pure]),
+        ("share doomed", 1 - shares[mixed], -influence[mixed]),
+    ]
+
+
+def _naive_contrast(data):
+    """Difference of survivor means between arms, with its influence values."""
+    w, T, S = data.sample_weight, data.treatment, data.survival
+    Y = np.where(S == 1, data.outcome, 0.0)
+    influence = np.zeros(data.n_samples)
+    means = {}
+    for arm, sign in ((1, 1.0), (0, -1.0)):
+        cell = (T == arm) & (S == 1)
+        share = np.sum(w * cell) / w.sum()
+        means[arm] = np.sum(w * cell * Y) / np.sum(w * cell)
+        influence += sign * cell * (Y - means[arm]) / share
+    return float(means[1] - means[0]), influence
+
+
+def _notes(estimator):
+    notes = []
+    method = estimator.std_error_method_
+    if method == "sandwich":
+        notes.append(
+            "Standard errors stack the logistic-model score equations with the estimating "
+            "equations (M-estimation sandwich), so they account for the fitted models."
+        )
+    elif method == "bootstrap":
+        notes.append(
+            f"Standard errors of the SACE and the always-survivor means come from "
+            f"{len(estimator.bootstrap_replicates_)} bootstrap resamples (within arms) that refit "
+            "every model, because the sandwich formula is available only for the default "
+            "logistic/linear models."
+        )
+    elif method == "influence function":
+        notes.append("Standard errors come from the efficient influence function.")
+    else:
+        notes.append(
+            "Standard errors ignore the estimation of the nuisance models (n_bootstrap=0); they "
+            "may be too wide or too narrow."
+        )
+    n_repeats = len(estimator.repeat_estimates_)
+    if n_repeats > 1:
+        notes.append(
+            f"Cross-fitting was repeated with {n_repeats} random fold splits: the estimates are "
+            "medians over the repeats, and the standard errors add the spread between repeats. "
+            "Stratum shares and the naive contrast come from the repeat closest to the median."
+        )
+    if estimator.training_data_.weighted:
+        notes.append(
+            "Sample weights enter every model fit and every mean; standard errors treat each row "
+            "as one sampled unit carrying its weight (survey linearization)."
+        )
+    if estimator.training_data_.groups is not None:
+        notes.append("Standard errors are cluster-robust (influence values summed per cluster).")
+    if estimator.n_monotonicity_violations_:
+        notes.append(
+            f"{estimator.n_monotonicity_violations_} rows contradict monotonicity in the fitted "
+            "survival models."
+        )
+    notes.append(CAUTIONS)
+    return notes
