@@ -56,7 +56,7 @@ def _categorical_indicators(name, column):
 
 
 def _covariate_matrix(X, n_rows):
-    """Expand covariates into numeric balance rows: (names, matrix with NaN where missing)."""
+    """Expand covariates into balance rows: (names, covariates x rows matrix, NaN if missing)."""
     if X is None:
         raise ValueError(
             "`X` is required for covariate balance: pass the covariates of the fitted rows "
@@ -104,16 +104,21 @@ def _covariate_matrix(X, n_rows):
             # its own balance row so the dropped rows stay visible.
             names.append(f"{name} (missing)")
             values.append(missing.astype(float))
-    return names, np.column_stack(values)
+    # Covariates x rows: each covariate is one contiguous row, cheap to stack and to reduce.
+    return names, np.vstack(values)
 
 
 def _moments(Z, observed, weights):
-    """Weighted means and variances per column over the observed entries."""
+    """Weighted means and variances per covariate (rows of ``Z``) over the observed entries.
+
+    ``Z`` is centered beforehand and zero where missing, so ``E[Z^2] - E[Z]^2`` loses no
+    precision; einsum avoids a covariates-by-rows temporary.
+    """
     with np.errstate(divide="ignore", invalid="ignore"):
-        total = weights @ observed
-        mean = (weights @ Z) / total
-        variance = (weights @ (observed * (Z - mean) ** 2)) / total
-    return mean, variance
+        total = observed @ weights
+        mean = (Z @ weights) / total
+        variance = np.einsum("ji,ji,i->j", Z, Z, weights) / total - mean**2
+    return mean, np.maximum(variance, 0.0)
 
 
 def balance_table(estimator, X):
@@ -151,8 +156,12 @@ def balance_table(estimator, X):
     """
     o = oriented_predictions(estimator)
     names, Z = _covariate_matrix(X, o.weight.shape[0])
-    observed = ~np.isnan(Z)
-    Z = np.where(observed, Z, 0.0)
+    missing = np.isnan(Z)
+    observed = (~missing).astype(float)
+    Z[missing] = 0.0  # Z is a fresh matrix built from X, never the caller's array
+    center = Z.sum(axis=1) / np.maximum(observed.sum(axis=1), 1)
+    Z -= center[:, None]
+    Z[missing] = 0.0
     weights = balancing_weights(o)
     raw = survivor_weights(o)
     mean, variance = {}, {}
@@ -166,7 +175,7 @@ def balance_table(estimator, X):
     pooled = np.where(pooled > 0, pooled, overall)
     table = pd.DataFrame(index=pd.Index(names, name="covariate"))
     for group in _GROUPS:
-        table[f"mean_{group}"] = mean[group]
+        table[f"mean_{group}"] = mean[group] + center
     key = {"treated": "treated_survivors", "control": "control_survivors", "everyone": "everyone"}
     with np.errstate(divide="ignore", invalid="ignore"):
         for a, b in _PAIRS:
@@ -175,7 +184,7 @@ def balance_table(estimator, X):
         for a, b in _PAIRS:
             table[f"variance_ratio_{a}_vs_{b}"] = variance[key[a]] / variance[key[b]]
         for group in ("treated_survivors", "control_survivors"):
-            table[f"raw_mean_{group}"] = raw_mean[group]
+            table[f"raw_mean_{group}"] = raw_mean[group] + center
         raw_gap = raw_mean["treated_survivors"] - raw_mean["control_survivors"]
         table["raw_smd_treated_vs_control"] = np.where(pooled > 0, raw_gap / pooled, 0.0)
         table["raw_variance_ratio_treated_vs_control"] = (

@@ -38,7 +38,15 @@ def _legend_below(ax, ncol):
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.18), ncol=ncol, fontsize=8, frameon=False)
 
 
-def plot_balance(estimator, X=None, *, comparison="treated_vs_control", threshold=0.1, ax=None):
+def plot_balance(
+    estimator,
+    X=None,
+    *,
+    comparison="treated_vs_control",
+    threshold=0.1,
+    max_covariates=40,
+    ax=None,
+):
     """Dot plot of absolute standardized mean differences, raw and weighted, per covariate.
 
     Parameters
@@ -53,12 +61,17 @@ def plot_balance(estimator, X=None, *, comparison="treated_vs_control", threshol
         (unweighted) comparison of treated and control survivors.
     threshold : float, default=0.1
         Reference line; 0.1 is the common-practice limit for a negligible imbalance.
+    max_covariates : int, default=40
+        Show at most this many covariates, those with the largest raw or weighted |SMD| (the
+        title then says how many were left out; the full list is in the balance table).
     ax : matplotlib Axes, optional
 
     Returns
     -------
     matplotlib.figure.Figure
     """
+    if not isinstance(max_covariates, int | np.integer) or max_covariates < 1:
+        raise ValueError(f"`max_covariates` must be a positive integer; got {max_covariates!r}.")
     if comparison not in _COMPARISONS:
         raise ValueError(f"`comparison` must be one of {list(_COMPARISONS)}; got {comparison!r}.")
     table = estimator if isinstance(estimator, pd.DataFrame) else None
@@ -66,7 +79,8 @@ def plot_balance(estimator, X=None, *, comparison="treated_vs_control", threshol
         table = diagnostics.balance_table(estimator, X)
     raw = table["raw_smd_treated_vs_control"].abs()
     weighted = table[f"smd_{comparison}"].abs()
-    order = raw.sort_values().index
+    shown = np.maximum(raw, weighted).sort_values(ascending=False).index[:max_covariates]
+    order = raw[shown].sort_values().index
     positions = np.arange(len(order))
     figure, ax = _figure_and_axes(ax, (6.4, 1.8 + 0.32 * len(order)))
     ax.hlines(positions, 0, np.maximum(raw[order], weighted[order]), color="0.85", zorder=1)
@@ -89,7 +103,10 @@ def plot_balance(estimator, X=None, *, comparison="treated_vs_control", threshol
     right = max(float(np.nanmax([raw.max(), weighted.max()])), threshold) * 1.08
     ax.set_xlim(-0.02 * right, right)
     ax.set_xlabel("absolute standardized mean difference")
-    ax.set_title("Covariate balance of the always-survivor reconstructions", fontsize=10, pad=14)
+    title = "Covariate balance of the always-survivor reconstructions"
+    if len(order) < len(raw):
+        title += f"\n({len(order)} of {len(raw)} covariates: the largest differences)"
+    ax.set_title(title, fontsize=10, pad=14)
     _legend_below(ax, ncol=2)
     return figure
 
@@ -154,6 +171,8 @@ def plot_weights(estimator, *, bins=50, ax=None):
     -------
     matplotlib.figure.Figure
     """
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
     o = arrays.oriented_predictions(estimator)
     weights = {g: w[w > 0] for g, w in arrays.balancing_weights(o).items()}
     scaled = {g: w / w.mean() for g, w in weights.items()}
@@ -171,6 +190,10 @@ def plot_weights(estimator, *, bins=50, ax=None):
         )  # fmt: skip
     ax.axvline(1.0, color="0.6", linestyle=":", linewidth=1)
     ax.set_xscale("log")
+    # Plain numbers at 1-2-5 steps read better than powers of ten over a narrow weight range.
+    ax.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda value, _: f"{value:g}"))
+    ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel("weight / mean weight (log scale)")
     ax.set_ylabel("share of the set's rows")
     ax.set_title("Balancing weights of the always-survivor reconstructions", fontsize=10)

@@ -208,6 +208,11 @@ def test_text_and_categorical_columns_become_indicator_rows(small_fit, small):
     np.testing.assert_allclose(
         table.loc[["site=north", "site=south"]].filter(like="mean_").sum(), 1.0
     )
+    array = small.X.copy()
+    array[::5, 3] = np.nan
+    before = array.copy()
+    ps.balance_table(small_fit, array)
+    np.testing.assert_array_equal(array, before)  # NaN included: arrays are not changed either
     text_array = frame[["c0", "site"]].to_numpy()  # numpy object array: text and numbers
     assert list(ps.balance_table(small_fit, text_array).index) == ["x0", "x1=north", "x1=south"]
 
@@ -318,6 +323,7 @@ def _png(figure):
     "draw",
     [
         lambda est, X, ax: plotting.plot_balance(est, X, ax=ax),
+        lambda est, X, ax: plotting.plot_balance(est, X, max_covariates=3, ax=ax),
         lambda est, X, ax: plotting.plot_balance(
             ps.balance_table(est, X), comparison="control_vs_everyone", ax=ax
         ),
@@ -389,5 +395,7 @@ def test_bad_monotonicity_arguments_are_rejected(small_fit, small):
 def test_bad_plot_arguments_are_rejected(small_fit, small):
     with pytest.raises(ValueError, match="`comparison` must be one of"):
         plotting.plot_balance(small_fit, small.X, comparison="raw")
+    with pytest.raises(ValueError, match="`max_covariates` must be a positive integer"):
+        plotting.plot_balance(small_fit, small.X, max_covariates=0)
     with pytest.raises(ValueError, match="`score` must be one of"):
         plotting.plot_overlap(small_fit, score="harmed")
