@@ -4,6 +4,7 @@ The public names are re-exported here; the modules hold one job each (see DEVELO
 """
 
 from . import datasets, diagnostics, plotting, simulation
+from .bootstrap import BootstrapResult, bootstrap
 from .bounds import TrimmingBounds
 from .diagnostics import (
     balance_table,
@@ -25,6 +26,8 @@ __all__ = [
     "OverlapWarning",
     "MonotonicityWarning",
     "TrimmingBounds",
+    "bootstrap",
+    "BootstrapResult",
     "sensitivity_grid",
     "tipping_point",
     "datasets",

@@ -2,18 +2,37 @@
 
 One mechanism serves every estimator (DESIGN.md section 3): an estimator hands over its influence
 values ``IF_i`` (scaled so that ``estimate - truth ~ sum_i w_i IF_i / sum_i w_i``) and the
-standard error follows, with optional sample weights and clusters.
+standard error follows, with optional sample weights and clusters. The same values drive the
+multiplier bootstrap; the resampling schemes, bootstrap interval formulas and the joblib runner
+used by :func:`pscore_strata.bootstrap` live here too.
 """
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 import pandas as pd
+from joblib import Parallel
 from scipy import stats
 
 from ._validation import check_level
 
-__all__ = ["influence_std_error", "normal_interval", "spawn_seeds"]
+__all__ = [
+    "influence_std_error",
+    "normal_interval",
+    "spawn_seeds",
+    "stratified_resample",
+    "resample_rows",
+    "jackknife_blocks",
+    "percentile_interval",
+    "bca_interval",
+    "jackknife_acceleration",
+    "influence_acceleration",
+    "multiplier_contributions",
+    "multiplier_draws",
+    "run_tasks",
+]
 
 
 def influence_std_error(influence, sample_weight=None, groups=None):
@@ -94,3 +113,269 @@ def stratified_resample(treatment, seed, groups=None):
         arm_rows = np.flatnonzero(treatment == arm)
         rows.append(arm_rows[rng.integers(0, arm_rows.size, arm_rows.size)])
     return np.sort(np.concatenate(rows))
+
+
+# -- resampling schemes ------------------------------------------------------------------------
+def _unit_codes(treatment, groups, stratify):
+    """Resampling units (rows or clusters) and the stratum (arm or 0) of each unit.
+
+    Returns ``(codes, unit_stratum)``: ``codes`` maps rows to units, or is ``None`` when every
+    row is its own unit. Clusters are stratified by arm only when each lies within one arm (a
+    cluster-randomized design); otherwise whole clusters are drawn across arms.
+    """
+    treatment = np.asarray(treatment)
+    if groups is None:
+        return None, (treatment.astype(np.int8) if stratify else np.zeros(treatment.size, np.int8))
+    codes, _ = pd.factorize(np.asarray(groups))
+    n_units = codes.max() + 1
+    arm_sum = np.bincount(codes, weights=treatment, minlength=n_units)
+    size = np.bincount(codes, minlength=n_units)
+    single_arm = np.all((arm_sum == 0) | (arm_sum == size))
+    unit_stratum = (
+        (arm_sum > 0).astype(np.int8) if stratify and single_arm else np.zeros(n_units, np.int8)
+    )
+    return codes, unit_stratum
+
+
+def resample_rows(treatment, seed, groups=None, stratify=True):
+    """Row positions of one bootstrap resample.
+
+    Extends :func:`stratified_resample` (whose draws it reproduces for ``stratify=True``): rows
+    are drawn with replacement within each arm, or across arms when ``stratify=False``; with
+    ``groups``, whole clusters are drawn (within arms when every cluster lies in one arm).
+    """
+    if stratify and groups is None:
+        return stratified_resample(np.asarray(treatment), seed)
+    codes, unit_stratum = _unit_codes(treatment, groups, stratify)
+    rng = np.random.default_rng(seed)
+    chosen = []
+    for stratum in np.unique(unit_stratum):
+        units = np.flatnonzero(unit_stratum == stratum)
+        chosen.append(units[rng.integers(0, units.size, units.size)])
+    chosen = np.sort(np.concatenate(chosen))
+    if codes is None:
+        return chosen
+    order = np.argsort(codes, kind="stable")
+    starts = np.concatenate([[0], np.cumsum(np.bincount(codes))])
+    return np.concatenate([order[starts[c] : starts[c + 1]] for c in chosen])
+
+
+def jackknife_blocks(treatment, seed, groups=None, stratify=True, n_groups=25):
+    """Leave-out blocks for a (grouped) jackknife that respects the resampling strata.
+
+    Within each stratum the units (rows or clusters) are split at random into ``n_groups``
+    blocks of near-equal size, or left out one at a time when there are no more units than
+    that (the ordinary jackknife).
+
+    Returns
+    -------
+    block : ndarray of shape (n_rows,)
+        Block label of each row.
+    block_stratum : ndarray of shape (n_blocks,)
+        Stratum of each block.
+    """
+    codes, unit_stratum = _unit_codes(treatment, groups, stratify)
+    rng = np.random.default_rng(seed)
+    unit_block = np.empty(unit_stratum.size, dtype=np.intp)
+    block_stratum = []
+    for stratum in np.unique(unit_stratum):
+        units = rng.permutation(np.flatnonzero(unit_stratum == stratum))
+        k = min(n_groups, units.size)
+        unit_block[units] = len(block_stratum) + np.arange(units.size) % k
+        block_stratum.extend([stratum] * k)
+    block = unit_block if codes is None else unit_block[codes]
+    return block, np.asarray(block_stratum)
+
+
+# -- interval formulas -------------------------------------------------------------------------
+def percentile_interval(replicates, level=0.95):
+    """Percentile interval: the ``(1 -/+ level)/2`` quantiles of the replicates (per column)."""
+    level = check_level(level)
+    alpha = (1 - level) / 2
+    values = np.asarray(replicates, dtype=float)
+    return np.quantile(values, alpha, axis=0), np.quantile(values, 1 - alpha, axis=0)
+
+
+def jackknife_acceleration(leave_out, block_stratum=None):
+    """BCa acceleration from leave-one-block-out estimates (Efron & Tibshirani 1993, eq. 14.15).
+
+    With ``G_s`` blocks in stratum ``s`` and ``U = (G_s - 1)(mean_s - theta_(j))``,
+    ``a = sum_s sum_j U^3 / G_s^3 / (6 (sum_s sum_j U^2 / G_s^2)^(3/2))``: each stratum is
+    jackknifed separately, the same stratified form that :func:`scipy.stats.bootstrap` uses for
+    several independent samples.
+    """
+    values = np.asarray(leave_out, dtype=float)
+    values = values.reshape(values.shape[0], -1)
+    strata = np.zeros(values.shape[0]) if block_stratum is None else np.asarray(block_stratum)
+    cubes = np.zeros(values.shape[1])
+    squares = np.zeros(values.shape[1])
+    for stratum in np.unique(strata):
+        part = values[strata == stratum]
+        g = part.shape[0]
+        if g < 2:
+            continue
+        u = (g - 1) * (part.mean(axis=0) - part)
+        cubes += np.sum(u**3, axis=0) / g**3
+        squares += np.sum(u**2, axis=0) / g**2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(squares > 0, cubes / (6 * squares**1.5), 0.0)
+
+
+def influence_acceleration(contributions):
+    """BCa acceleration from influence contributions: ``sum c^3 / (6 (sum c^2)^(3/2))``.
+
+    The jackknife's ``U`` values are first-order the centered influence contributions, so this is
+    the limit of :func:`jackknife_acceleration` without refits.
+    """
+    c = np.asarray(contributions, dtype=float)
+    c = c.reshape(c.shape[0], -1)
+    c = c - c.mean(axis=0)
+    squares = np.sum(c**2, axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(squares > 0, np.sum(c**3, axis=0) / (6 * squares**1.5), 0.0)
+
+
+def bca_interval(replicates, estimate, acceleration, level=0.95):
+    """Bias-corrected and accelerated interval (Efron 1987, JASA 82; per column).
+
+    The bias correction ``z0`` counts ties as half (as :func:`scipy.stats.bootstrap` does); the
+    adjusted levels are ``Phi(z0 + (z0 + z) / (1 - a (z0 + z)))``.
+    """
+    level = check_level(level)
+    values = np.asarray(replicates, dtype=float)
+    values = values.reshape(values.shape[0], -1)
+    estimate = np.atleast_1d(np.asarray(estimate, dtype=float))
+    acceleration = np.broadcast_to(np.asarray(acceleration, dtype=float), estimate.shape)
+    below = np.sum(values < estimate, axis=0) + np.sum(values <= estimate, axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z0 = stats.norm.ppf(below / (2 * values.shape[0]))
+        low, high = np.full(estimate.shape, np.nan), np.full(estimate.shape, np.nan)
+        for j in range(estimate.size):
+            levels = []
+            for z in stats.norm.ppf([(1 - level) / 2, (1 + level) / 2]):
+                shifted = z0[j] + z
+                levels.append(stats.norm.cdf(z0[j] + shifted / (1 - acceleration[j] * shifted)))
+            if np.all(np.isfinite(levels)):
+                low[j], high[j] = np.quantile(values[:, j], levels)
+    return low, high
+
+
+# -- multiplier bootstrap ----------------------------------------------------------------------
+# Row chunks keep the memory of a block of B replicates at O(B * chunk), whatever n is.
+_RADEMACHER_CHUNK_BYTES = 2048  # eight rows per random byte
+_GAUSSIAN_CHUNK_ROWS = 16384
+# Row v of the table holds the signs (+1/-1) that the bits of byte value v give to eight rows.
+_BYTE_SIGNS = ((np.arange(256)[:, None] >> np.arange(8)[None, :]) & 1) * 2.0 - 1.0
+
+
+def multiplier_contributions(influence, sample_weight=None, groups=None):
+    """Per-unit terms ``c`` of a multiplier bootstrap, one row per row or per cluster.
+
+    ``c_g = sqrt(G/(G-1)) (d_g - mean(d))`` with ``d_g = sum_{i in g} w_i IF_i / sum_i w_i``, so
+    that ``sum_g xi_g c_g`` for independent mean-zero unit-variance multipliers ``xi_g`` has
+    exactly the variance :func:`influence_std_error` reports (one multiplier per cluster).
+    """
+    influence = np.asarray(influence, dtype=float)
+    influence = influence.reshape(influence.shape[0], -1)
+    n = influence.shape[0]
+    weights = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    terms = influence * (weights / weights.sum())[:, None]
+    if groups is not None:
+        codes, _ = pd.factorize(np.asarray(groups))
+        terms = np.column_stack(
+            [np.bincount(codes, weights=terms[:, j]) for j in range(terms.shape[1])]
+        )
+    n_units = terms.shape[0]
+    if n_units < 2:
+        raise ValueError("The multiplier bootstrap needs at least two rows (or clusters).")
+    return (terms - terms.mean(axis=0)) * np.sqrt(n_units / (n_units - 1))
+
+
+def multiplier_draws(contributions, seeds, kind="rademacher"):
+    """``sum_g xi_g c_g`` for each seed, the multipliers ``xi`` drawn from that seed alone.
+
+    Each replicate reads its own generator in a fixed row order, so its value does not depend on
+    how replicates are grouped into tasks. Rademacher signs come eight rows per random byte:
+    each chunk of rows gets a table of the 256 signed sums of every eight rows, and a replicate
+    adds up one table entry per byte.
+
+    Returns
+    -------
+    ndarray of shape (len(seeds), n_columns)
+    """
+    c = np.asarray(contributions, dtype=float)
+    c = c.reshape(c.shape[0], -1)
+    n, k = c.shape
+    generators = [np.random.default_rng(seed) for seed in seeds]
+    draws = np.zeros((len(generators), k))
+    if kind == "gaussian":
+        ct = np.ascontiguousarray(c.T)
+        buffer = np.empty(min(n, _GAUSSIAN_CHUNK_ROWS))
+        for b, rng in enumerate(generators):
+            for start in range(0, n, _GAUSSIAN_CHUNK_ROWS):
+                block = ct[:, start : start + _GAUSSIAN_CHUNK_ROWS]
+                xi = rng.standard_normal(out=buffer[: block.shape[1]])
+                # einsum's own loop, not BLAS: threaded BLAS calls this small stall on a busy
+                # machine, and joblib already parallelizes over replicates.
+                draws[b] += np.einsum("km,m->k", block, xi)
+        return draws
+    if kind != "rademacher":
+        raise ValueError(f"`multiplier` must be 'rademacher' or 'gaussian'; got {kind!r}.")
+    rows_per_chunk = 8 * _RADEMACHER_CHUNK_BYTES
+    indices = np.empty((len(generators), _RADEMACHER_CHUNK_BYTES), dtype=np.intp)
+    for start in range(0, n, rows_per_chunk):
+        block = c[start : start + rows_per_chunk]
+        n_bytes = -(-block.shape[0] // 8)
+        if block.shape[0] < 8 * n_bytes:
+            block = np.vstack([block, np.zeros((8 * n_bytes - block.shape[0], k))])
+        table = np.einsum("jrk,vr->jvk", block.reshape(n_bytes, 8, k), _BYTE_SIGNS)
+        table = table.reshape(n_bytes * 256, k)
+        idx = indices[:, :n_bytes]
+        for b, rng in enumerate(generators):
+            idx[b] = np.frombuffer(rng.bytes(n_bytes), dtype=np.uint8)
+        idx += np.arange(n_bytes) * 256
+        for j in range(k):
+            draws[:, j] += table[idx, j].sum(axis=1)
+    return draws
+
+
+# -- execution ---------------------------------------------------------------------------------
+def run_tasks(tasks, sizes, n_jobs, progress, label):
+    """Run the tasks through joblib, moving a progress bar as blocks finish."""
+    bar = _progress_bar(progress, sum(sizes), label)
+    out = []
+    for size, result in zip(
+        sizes, Parallel(n_jobs=n_jobs, return_as="generator")(tasks), strict=True
+    ):
+        out.append(result)
+        if bar is not None:
+            bar.update(size)
+    if bar is not None:
+        bar.close()
+    return out
+
+
+def _progress_bar(progress, total, label):
+    if progress is False or (progress is None and not _stderr_is_terminal()):
+        return None
+    try:
+        from tqdm import tqdm
+    except ImportError:
+        if progress:
+            raise ImportError("`progress=True` needs tqdm: pip install tqdm.") from None
+        return None
+    # In automatic mode the bar appears only once the run has taken a few seconds.
+    return tqdm(
+        total=total,
+        desc=label,
+        unit="replicate",
+        file=sys.stderr,
+        delay=3.0 if progress is None else 0.0,
+    )
+
+
+def _stderr_is_terminal():
+    try:
+        return sys.stderr.isatty()
+    except (AttributeError, ValueError):
+        return False
