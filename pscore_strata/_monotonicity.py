@@ -146,5 +146,13 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
         level=level,
         monotonicity="increasing" if o.increasing else "decreasing",
         n_fitted_violations=int(violations.sum()),
+        notes=[
+            "Survival differing in the forbidden direction contradicts monotonicity; agreement "
+            "cannot confirm it, because the assumption concerns each unit's two potential "
+            "survival outcomes and is untestable.",
+            "Shares are weighted by the inverse treatment probability."
+            if adjust
+            else "Crude shares: confounded in observational data; prefer adjust=True.",
+        ],
     )
     return table
