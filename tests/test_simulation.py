@@ -211,15 +211,28 @@ def test_dask_backend_gives_the_same_results():
     import joblib
     from distributed import Client, LocalCluster
 
+    # One single-threaded worker: Python's warning filters are process-wide, so only the
+    # ``warnings`` column could differ between threads fitting at once in one process.
     with (
         LocalCluster(
-            n_workers=1, threads_per_worker=2, processes=False, dashboard_address=None
+            n_workers=1, threads_per_worker=1, processes=False, dashboard_address=None
         ) as cluster,
         Client(cluster),
     ):
         with joblib.parallel_config(backend="dask"):
             on_dask = run_study(ESTIMATORS, "linear", 300, n_reps=3, random_state=5)
     _same(on_dask, run_study(ESTIMATORS, "linear", 300, n_reps=3, random_state=5, n_jobs=1))
+
+
+# Threads share the warning filters, so a warning may escape the per-fit recorder here.
+@pytest.mark.filterwarnings("ignore")
+def test_threads_give_the_same_estimates():
+    import joblib
+
+    with joblib.parallel_config(backend="threading", n_jobs=2):
+        threaded = run_study(ESTIMATORS, "linear", 300, n_reps=3, random_state=5)
+    alone = run_study(ESTIMATORS, "linear", 300, n_reps=3, random_state=5, n_jobs=1)
+    _same(threaded.drop(columns="warnings"), alone.drop(columns="warnings"))
 
 
 class SeedReporter(DifferenceInMeans):
