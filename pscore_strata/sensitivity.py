@@ -291,6 +291,18 @@ def sensitivity_grid(
     estimator would be needed then). The always-survivor stratum is latent and the parameters
     cannot be estimated from the data: read the grid as "how strong would a violation have to
     be", and consult a qualified statistician before drawing conclusions.
+
+    Examples
+    --------
+    >>> import pscore_strata as ps
+    >>> data = ps.datasets.make_truncation(2000, pi_difference=0.5, random_state=0)
+    >>> est = ps.MultiplyRobust().fit(
+    ...     data.X, data.y, treatment=data.treatment, survival=data.survival)
+    >>> grid = ps.sensitivity_grid(est, pi_difference=[0.0, 0.5], harmed_ratio=[0.0, 0.2])
+    >>> grid.shape
+    (4, 7)
+    >>> bool(grid["effect"].iloc[0] == est.effect_)
+    True
     """
     axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
     _check_estimator(estimator)
@@ -331,6 +343,17 @@ def tipping_point(
         The parameter value nearest the null value (on the log scale for ``pi_ratio``) at which
         the criterion is met, found by Brent's method on the no-refit formulas; ``0``/``1`` if
         it is met at the null already; NaN (with a warning) if not met inside ``search``.
+
+    Examples
+    --------
+    >>> import pscore_strata as ps
+    >>> data = ps.datasets.make_truncation(2000, random_state=0)
+    >>> est = ps.OutcomeRegression().fit(
+    ...     data.X, data.y, treatment=data.treatment, survival=data.survival)
+    >>> delta = ps.tipping_point(est)
+    >>> row = ps.sensitivity_grid(est, pi_difference=delta)
+    >>> round(float(row["ci_low"].iloc[0]), 6) == 0
+    True
     """
     _check_estimator(estimator)
     if parameter not in _NULL:
