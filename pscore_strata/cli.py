@@ -1,77 +1,304 @@
-"""Command line: ``pscore-strata demo`` fits the estimators on the bundled demo registry."""
+"""Command line: ``pscore-strata analyze | demo | simulate``.
+
+``analyze`` runs a complete SACE analysis of a CSV or Parquet file and writes a shareable report
+(the work is done by :mod:`pscore_strata.report`); ``demo`` does the same on the bundled,
+invented critical-care registry; ``simulate`` writes data with a known SACE. A user error prints
+one line and exits with status 2; progress goes to standard error.
+"""
 
 from __future__ import annotations
 
 import argparse
 import sys
-import warnings
+import time
+from pathlib import Path
 
-import pandas as pd
+__all__ = ["main", "build_parser"]
 
-CAUTION = (
-    "Caution: the always-survivor stratum is latent (nobody can be identified as one), and the "
-    "estimate rests on untestable assumptions (treatment ignorability, monotonicity, principal "
-    "ignorability). It describes a population, never an individual patient: do not use it for "
-    "individual decisions. Follow the study protocol and local regulation, and have a qualified "
-    "statistician review the analysis."
-)
+USER_ERRORS = (ValueError, TypeError, FileNotFoundError, ImportError, OSError, RuntimeError)
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):
+        # One line, no usage block: the user reads what went wrong and where to look.
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
+class _Progress:
+    def __init__(self, quiet):
+        self.quiet = quiet
+        self.start = time.perf_counter()
+
+    def __call__(self, message):
+        if not self.quiet:
+            elapsed = time.perf_counter() - self.start
+            print(f"[{elapsed:6.1f}s] {message} ...", file=sys.stderr, flush=True)
+
+
+def _options(args):
+    from .report import AnalysisOptions
+
+    if args.folds is not None and args.folds < 2:
+        raise ValueError(f"--folds must be at least 2; got {args.folds}.")
+    if args.bootstrap < 0:
+        raise ValueError(f"--bootstrap must be 0 or more resamples; got {args.bootstrap}.")
+    if not 0 < args.level < 1:
+        raise ValueError(f"--level must lie strictly between 0 and 1; got {args.level}.")
+    return AnalysisOptions(
+        method=args.method,
+        learner=args.learner,
+        folds=args.folds,
+        bootstrap=args.bootstrap,
+        level=args.level,
+        monotonicity=args.monotonicity,
+        seed=args.seed,
+    )
+
+
+def _print_key_results(results, out_dir):
+    level = f"{results['settings']['level']:.0%}"
+    print(f"Survivor average causal effect of '{results['columns']['treatment']}' on "
+          f"'{results['columns']['outcome']}' ({results['data_overview']['n_rows_analyzed']} "
+          "rows analysed):")  # fmt: skip
+    for record in results["estimates"]:
+        tag = "  <- primary" if record["primary"] else ""
+        print(f"  {record['label']:<27} {record['effect']:>10.3f}   {level} CI "
+              f"{record['ci_low']:.3f} to {record['ci_high']:.3f}{tag}")  # fmt: skip
+    boot = results.get("bootstrap")
+    if boot:
+        print(f"  {'Bootstrap (percentile)':<27} {boot['estimate']:>10.3f}   {level} CI "
+              f"{boot['ci_low']:.3f} to {boot['ci_high']:.3f}")  # fmt: skip
+    bounds = results.get("bounds", {})
+    if "lower" in bounds:
+        print(f"  {'Bounds (no princ. ignor.)':<27} {bounds['lower']:>10.3f} to "
+              f"{bounds['upper']:.3f}")  # fmt: skip
+    naive = results["naive_survivor_contrast"]
+    print(f"  {'Naive survivor contrast':<27} {naive['estimate']:>10.3f}   (biased; comparison)")
+    sens = results.get("sensitivity", {})
+    if "pi_difference" in sens:
+        tip = sens["pi_difference"]["tipping_point"]
+        shown = "not reached" if tip is None else f"{tip:.3g}"
+        print(f"  Tipping point for principal ignorability (difference): {shown}")
+    for message in results.get("diagnostics", {}).get("warnings", []):
+        print(f"  warning: {message}")
+    print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
+    print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
+          "no individual decisions. Follow the study protocol and local regulation, and have a "
+          "qualified statistician review the analysis.")  # fmt: skip
+
+
+def _analyze(args):
+    from .report import ColumnRoles, analyze_frame, read_table
+
+    options = _options(args)
+    progress = _Progress(args.quiet)
+    progress(f"reading {args.data}")
+    frame = read_table(args.data)
+    roles = ColumnRoles(
+        outcome=args.outcome,
+        treatment=args.treatment,
+        survival=args.survival,
+        covariates=tuple(args.covariates),
+        categorical=tuple(args.categorical),
+        cluster=args.cluster,
+        weights=args.weights,
+    )
+    analysis = analyze_frame(
+        frame, roles, options, args.out, drop_incomplete=args.drop_incomplete,
+        source=Path(args.data).name, progress=progress,
+    )  # fmt: skip
+    dropped = analysis.results["data_overview"]["n_rows_dropped"]
+    if dropped:
+        print(f"Dropped {dropped} incomplete row(s) (--drop-incomplete).", file=sys.stderr)
+    _print_key_results(analysis.results, args.out)
+    return 0
 
 
 def _demo(args):
-    from . import MultiplyRobust, PrincipalScoreWeighting
     from .datasets import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
+    from .report import AnalysisOptions, ColumnRoles, analyze_frame
 
-    data = load_demo()
-    roles = DEMO_ROLES
-    X = pd.get_dummies(
-        data[roles["covariates"]], columns=roles["categorical"], drop_first=True, dtype=float
+    roles = ColumnRoles(
+        outcome=DEMO_ROLES["outcome"],
+        treatment=DEMO_ROLES["treatment"],
+        survival=DEMO_ROLES["survival"],
+        covariates=tuple(DEMO_ROLES["covariates"]),
+        categorical=tuple(DEMO_ROLES["categorical"]),
     )
-    print(
-        f"Invented critical-care registry: {len(data)} patients; treatment "
-        f"'{roles['treatment']}', survival '{roles['survival']}', outcome '{roles['outcome']}'."
-    )
-    print(f"Covariates: {', '.join(roles['covariates'])} (categorical: site, one-hot coded).\n")
-    pd.set_option("display.width", 120)
-    for estimator in (PrincipalScoreWeighting(), MultiplyRobust()):
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            estimator.fit(
-                X,
-                data[roles["outcome"]],
-                treatment=data[roles["treatment"]],
-                survival=data[roles["survival"]],
-            )
-        table = estimator.summary()
-        print(f"== {type(estimator).__name__} ==")
-        print(table.round(3).to_string())
-        for note in table.attrs["notes"]:
-            print(f"  note: {note}")
-        for warning in caught:
-            print(f"  warning: {warning.message}")
-        print()
-    print(f"(The demo data are simulated: their true SACE is {DEMO_TRUE_EFFECT:+.1f} points.)")
-    print(CAUTION)
+    print("Invented critical-care registry (simulated patients, not real people).")
+    analysis = analyze_frame(
+        load_demo(), roles, AnalysisOptions(bootstrap=args.bootstrap), args.out,
+        source="bundled demo registry (invented)", progress=_Progress(args.quiet),
+    )  # fmt: skip
+    _print_key_results(analysis.results, args.out)
+    print(f"(The data were simulated with a true SACE of {DEMO_TRUE_EFFECT:+.1f} points.)")
+    return 0
+
+
+def _simulate(args):
+    import numpy as np
+    import pandas as pd
+
+    from .datasets import list_scenarios, make_scenario
+
+    names = list_scenarios()["name"].tolist()
+    if args.scenario not in names:
+        raise ValueError(f"Unknown scenario '{args.scenario}'. Available: {', '.join(names)}.")
+    if args.n < 10:
+        raise ValueError(f"--n must be at least 10 rows; got {args.n}.")
+    out = Path(args.out)
+    if out.suffix.lower() not in (".csv", ".parquet"):
+        raise ValueError(f"--out '{out.name}' must end in .csv or .parquet.")
+    data = make_scenario(args.scenario, args.n, random_state=args.seed)
+    frame = pd.DataFrame(data.X, columns=[f"x{j + 1}" for j in range(data.X.shape[1])])
+    frame["treatment"] = np.asarray(data.treatment, dtype=int)
+    frame["survival"] = np.asarray(data.survival, dtype=int)
+    frame["outcome"] = data.y
+    if data.get("groups") is not None:
+        frame["cluster"] = data.groups
+    out.parent.mkdir(parents=True, exist_ok=True)
+    if out.suffix.lower() == ".csv":
+        frame.to_csv(out, index=False)
+    else:
+        frame.to_parquet(out, index=False)
+    covariates = " ".join(c for c in frame.columns if c.startswith("x"))
+    print(f"Wrote {len(frame)} rows of scenario '{args.scenario}' to {out}; true SACE "
+          f"{data.true_effect:.4f}.")  # fmt: skip
+    print(f"Analyse it with: pscore-strata analyze {out} --outcome outcome --treatment treatment "
+          f"--survival survival --covariates {covariates}"
+          + (" --cluster cluster" if "cluster" in frame else ""))  # fmt: skip
     return 0
 
 
 def build_parser():
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="pscore-strata",
         description="Survivor average causal effects for outcomes truncated by death.",
     )
-    commands = parser.add_subparsers(dest="command", required=True)
-    demo = commands.add_parser("demo", help="analyze the bundled, invented demo registry")
-    demo.set_defaults(handler=_demo)
+    commands = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    analyze = commands.add_parser(
+        "analyze", help="analyse a CSV or Parquet file and write a shareable report",
+        description="Estimate the survivor average causal effect and write report.html, "
+        "results.json and the figures into --out.",
+    )  # fmt: skip
+    analyze.add_argument("data", metavar="DATA", help="a .csv or .parquet file, one row per unit")
+    analyze.add_argument(
+        "--outcome",
+        required=True,
+        metavar="COL",
+        help="outcome column (may be empty for non-survivors)",
+    )
+    analyze.add_argument("--treatment", required=True, metavar="COL", help="0/1 treatment column")
+    analyze.add_argument(
+        "--survival",
+        required=True,
+        metavar="COL",
+        help="0/1 column: 1 if the unit survived (its outcome exists)",
+    )
+    analyze.add_argument(
+        "--covariates",
+        nargs="*",
+        default=[],
+        metavar="COL",
+        help="pre-treatment covariates (none: unadjusted analysis)",
+    )
+    analyze.add_argument(
+        "--categorical",
+        nargs="*",
+        default=[],
+        metavar="COL",
+        help="categorical covariates, one-hot coded (added to the covariates)",
+    )
+    analyze.add_argument(
+        "--method",
+        choices=("weighting", "regression", "robust"),
+        default="robust",
+        help="primary estimator (default: robust); the report shows all three",
+    )
+    analyze.add_argument(
+        "--learner",
+        choices=("linear", "boosting"),
+        default="linear",
+        help="linear: logistic/linear models; boosting: histogram gradient "
+        "boosting with cross-fitting",
+    )
+    analyze.add_argument(
+        "--folds",
+        type=int,
+        default=None,
+        metavar="K",
+        help="cross-fitting folds (default: none for linear, 5 for boosting)",
+    )
+    analyze.add_argument(
+        "--bootstrap",
+        type=int,
+        default=0,
+        metavar="N",
+        help="bootstrap resamples refitting every model (default: 0)",
+    )
+    analyze.add_argument(
+        "--cluster",
+        default=None,
+        metavar="COL",
+        help="cluster column: cluster-robust standard errors",
+    )
+    analyze.add_argument(
+        "--weights", default=None, metavar="COL", help="survey or sampling weight column"
+    )
+    analyze.add_argument(
+        "--drop-incomplete",
+        action="store_true",
+        help="drop rows with missing values (reported) instead of stopping",
+    )
+    analyze.add_argument(
+        "--monotonicity",
+        choices=("increasing", "decreasing"),
+        default="increasing",
+        help="increasing: treatment can only help survival (default)",
+    )
+    analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
+    analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")
+    analyze.add_argument(
+        "--out",
+        default="pscore_report",
+        metavar="DIR",
+        help="output directory (default: pscore_report)",
+    )
+    analyze.add_argument("--quiet", action="store_true", help="no progress messages")
+    analyze.set_defaults(handler=_analyze)  # fmt: skip
+
+    demo = commands.add_parser("demo", help="analyse the bundled, invented demo registry")
+    demo.add_argument(
+        "--out", default="report", metavar="DIR", help="output directory (default: report)"
+    )
+    demo.add_argument(
+        "--bootstrap", type=int, default=0, metavar="N", help="bootstrap resamples (default: 0)"
+    )
+    demo.add_argument("--quiet", action="store_true", help="no progress messages")
+    demo.set_defaults(handler=_demo)  # fmt: skip
+
+    simulate = commands.add_parser("simulate", help="write simulated data with a known SACE")
+    simulate.add_argument(
+        "scenario",
+        metavar="SCENARIO",
+        help="scenario name (see pscore_strata.datasets.list_scenarios())",
+    )
+    simulate.add_argument("--n", type=int, default=2000, help="number of rows (default: 2000)")
+    simulate.add_argument("--out", required=True, metavar="FILE", help="a .csv or .parquet file")
+    simulate.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
+    simulate.set_defaults(handler=_simulate)  # fmt: skip
     return parser
 
 
 def main(argv=None):
-    parser = build_parser()
-    args = parser.parse_args(argv)
+    """Run the command line; returns the exit status."""
+    args = build_parser().parse_args(argv)
     try:
         return args.handler(args)
-    except (ValueError, TypeError, FileNotFoundError) as error:
-        print(f"pscore-strata: error: {error}", file=sys.stderr)
+    except USER_ERRORS as error:
+        message = " ".join(str(error).split()) or type(error).__name__
+        print(f"pscore-strata {args.command}: error: {message}", file=sys.stderr)
         return 2
 
 

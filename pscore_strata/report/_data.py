@@ -1,0 +1,237 @@
+"""Reading a data file and turning its columns into the arrays an analysis needs.
+
+Every problem a user can cause from the command line (a wrong column name, missing values, an
+unreadable file) raises :class:`InputError` with a one-line message that names the option and
+says what to do.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data"]
+
+_READERS = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}
+
+
+class InputError(ValueError):
+    """A problem with the user's data or options, reported without a traceback."""
+
+
+@dataclass(frozen=True)
+class ColumnRoles:
+    """Which column plays which part in the analysis."""
+
+    outcome: str
+    treatment: str
+    survival: str
+    covariates: tuple = ()
+    categorical: tuple = ()
+    cluster: str | None = None
+    weights: str | None = None
+
+    def all_covariates(self):
+        """Covariates in the order given, categorical columns included (added if unlisted)."""
+        listed = list(self.covariates)
+        return tuple(listed + [c for c in self.categorical if c not in listed])
+
+    def used_columns(self):
+        named = [self.outcome, self.treatment, self.survival, *self.all_covariates()]
+        named += [c for c in (self.cluster, self.weights) if c is not None]
+        return list(dict.fromkeys(named))
+
+    def as_dict(self):
+        return {
+            "outcome": self.outcome,
+            "treatment": self.treatment,
+            "survival": self.survival,
+            "covariates": list(self.all_covariates()),
+            "categorical": list(self.categorical),
+            "cluster": self.cluster,
+            "weights": self.weights,
+        }
+
+
+@dataclass(frozen=True)
+class PreparedData:
+    """The analysed rows: covariates (raw and model-ready) and the role arrays."""
+
+    frame: pd.DataFrame  # the analysed rows of the used columns (a copy)
+    covariates: pd.DataFrame | None  # raw covariates, categoricals as read
+    design: pd.DataFrame | None  # model-ready: categoricals one-hot coded (drop_first)
+    outcome: np.ndarray
+    treatment: np.ndarray
+    survival: np.ndarray
+    groups: np.ndarray | None
+    sample_weight: np.ndarray | None
+    n_rows_read: int
+    n_rows_dropped: int
+    missing_counts: dict = field(default_factory=dict)
+
+
+def read_table(path):
+    """Read a CSV or Parquet file into a DataFrame."""
+    path = Path(path)
+    kind = _READERS.get(path.suffix.lower())
+    if kind is None:
+        raise InputError(
+            f"DATA file '{path.name}' has type '{path.suffix or '(none)'}'; give a .csv or "
+            ".parquet file."
+        )
+    if not path.is_file():
+        raise InputError(f"DATA file '{path}' does not exist; check the path.")
+    try:
+        if kind == "csv":
+            return pd.read_csv(path)
+        return pd.read_parquet(path)
+    except ImportError as error:
+        raise InputError(f"Reading Parquet needs pyarrow ({error}); pip install pyarrow.") from None
+    except Exception as error:  # the readers raise many types; all mean "not a readable table"
+        first_line = str(error).splitlines()[0] if str(error) else type(error).__name__
+        raise InputError(
+            f"DATA file '{path.name}' could not be read as {kind}: {first_line}"
+        ) from None
+
+
+def _check_columns(frame, roles):
+    available = [str(c) for c in frame.columns]
+    options = {
+        "--outcome": [roles.outcome],
+        "--treatment": [roles.treatment],
+        "--survival": [roles.survival],
+        "--covariates": list(roles.covariates),
+        "--categorical": list(roles.categorical),
+        "--cluster": [roles.cluster] if roles.cluster else [],
+        "--weights": [roles.weights] if roles.weights else [],
+    }
+    unknown = [
+        f"{option} '{name}'"
+        for option, names in options.items()
+        for name in names
+        if name not in frame.columns
+    ]
+    if unknown:
+        raise InputError(
+            f"Unknown column(s): {', '.join(unknown)}. Available columns: {', '.join(available)}."
+        )
+    key = [roles.outcome, roles.treatment, roles.survival]
+    if len(set(key)) < 3:
+        raise InputError("--outcome, --treatment and --survival must name three different columns.")
+    clash = [c for c in roles.all_covariates() if c in key]
+    if clash:
+        raise InputError(
+            f"Covariate(s) {', '.join(clash)} are also the outcome, treatment or survival column; "
+            "covariates must be measured before treatment."
+        )
+
+
+def _indicator(frame, column, option):
+    values = frame[column]
+    if values.dtype == bool:
+        return values.to_numpy(dtype=np.int8)
+    numeric = pd.to_numeric(values, errors="coerce")
+    found = sorted(pd.unique(values.dropna()).tolist(), key=str)
+    if numeric.isna().any() or not numeric.isin([0, 1]).all():
+        shown = ", ".join(map(str, found[:6])) + (" ..." if len(found) > 6 else "")
+        raise InputError(
+            f"{option} column '{column}' must hold 0/1 values (1 = treated / survived); found "
+            f"{shown}. Recode it first."
+        )
+    return numeric.to_numpy(dtype=np.int8)
+
+
+def _missing_rows(frame, roles):
+    """Per column, the rows that make a unit incomplete (outcome counts only for survivors)."""
+    survived = pd.to_numeric(frame[roles.survival], errors="coerce") == 1
+    counts, incomplete = {}, np.zeros(len(frame), dtype=bool)
+    for column in roles.used_columns():
+        missing = frame[column].isna().to_numpy()
+        if column == roles.outcome:
+            # A non-survivor has no outcome by definition: that is truncation, not missingness.
+            missing = missing & survived.to_numpy()
+        if missing.any():
+            counts[column] = int(missing.sum())
+            incomplete |= missing
+    return counts, incomplete
+
+
+def prepare_data(frame, roles, *, drop_incomplete=False):
+    """Check the columns and build the analysis arrays; the caller's frame is not modified.
+
+    Parameters
+    ----------
+    frame : DataFrame
+    roles : ColumnRoles
+    drop_incomplete : bool, default=False
+        Drop rows with a missing value in a used column (an outcome is missing only for a
+        survivor). Otherwise such rows raise :class:`InputError` with the counts per column.
+
+    Returns
+    -------
+    PreparedData
+    """
+    _check_columns(frame, roles)
+    n_read = len(frame)
+    counts, incomplete = _missing_rows(frame, roles)
+    if counts and not drop_incomplete:
+        listed = ", ".join(
+            f"'{c}' {n}" + (" (survivors only)" if c == roles.outcome else "")
+            for c, n in counts.items()
+        )
+        raise InputError(
+            f"Missing values in {int(incomplete.sum())} of {n_read} rows: {listed}. Impute them "
+            "first, or pass --drop-incomplete to analyse complete rows only."
+        )
+    used = frame.loc[~incomplete, roles.used_columns()].copy()
+    used = used.reset_index(drop=True)
+    if len(used) == 0:
+        raise InputError("No complete rows are left to analyse; check the missing values.")
+    treatment = _indicator(used, roles.treatment, "--treatment")
+    survival = _indicator(used, roles.survival, "--survival")
+    outcome = pd.to_numeric(used[roles.outcome], errors="coerce")
+    bad = outcome.isna() & used[roles.outcome].notna()
+    if bad.any():
+        raise InputError(
+            f"--outcome column '{roles.outcome}' must be numeric; found values such as "
+            f"{used.loc[bad, roles.outcome].iloc[0]!r}."
+        )
+    covariates = design = None
+    names = roles.all_covariates()
+    if names:
+        covariates = used[list(names)]
+        text = [
+            c
+            for c in names
+            if c not in roles.categorical and not pd.api.types.is_numeric_dtype(covariates[c])
+        ]
+        if text:
+            raise InputError(
+                f"Covariate(s) {', '.join(text)} are not numeric; list them with --categorical "
+                "to one-hot code them."
+            )
+        design = pd.get_dummies(
+            covariates, columns=list(roles.categorical), drop_first=True, dtype=float
+        ).astype(float)
+    weights = None
+    if roles.weights is not None:
+        weights = pd.to_numeric(used[roles.weights], errors="coerce").to_numpy(dtype=float)
+        if np.isnan(weights).any() or (weights < 0).any():
+            raise InputError(f"--weights column '{roles.weights}' must hold non-negative numbers.")
+    groups = None if roles.cluster is None else used[roles.cluster].to_numpy()
+    return PreparedData(
+        frame=used,
+        covariates=covariates,
+        design=design,
+        outcome=outcome.to_numpy(dtype=float),
+        treatment=treatment,
+        survival=survival,
+        groups=groups,
+        sample_weight=weights,
+        n_rows_read=n_read,
+        n_rows_dropped=int(incomplete.sum()),
+        missing_counts=counts,
+    )

@@ -1,0 +1,145 @@
+"""The report's figures as PNG bytes (matplotlib with the non-interactive Agg canvas)."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+
+__all__ = ["draw_figures"]
+
+_PRIMARY, _OTHER, _GREY = "#1f5f8b", "#7a9cb8", "#8c8c8c"
+
+
+def _png(figure):
+    import matplotlib.pyplot as plt
+
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
+    plt.close(figure)
+    return buffer.getvalue()
+
+
+def _estimates_figure(results):
+    import matplotlib.pyplot as plt
+
+    rows = []
+    for record in results["estimates"]:
+        rows.append((record["label"] + (" (primary)" if record["primary"] else ""),
+                     record["effect"], record["ci_low"], record["ci_high"],
+                     _PRIMARY if record["primary"] else _OTHER))  # fmt: skip
+    boot = results.get("bootstrap")
+    if boot:
+        rows.append(("Bootstrap percentile interval", boot["estimate"], boot["ci_low"],
+                     boot["ci_high"], _PRIMARY))  # fmt: skip
+    bounds = results.get("bounds", {})
+    if "lower" in bounds:
+        rows.append(("Bounds (no principal ignorability)", None, bounds["lower"],
+                     bounds["upper"], "#b5651d"))  # fmt: skip
+    naive = results["naive_survivor_contrast"]
+    rows.append(("Naive survivor contrast (biased)", naive["estimate"], naive["ci_low"],
+                 naive["ci_high"], _GREY))  # fmt: skip
+    figure, ax = plt.subplots(figsize=(7.2, 0.55 * len(rows) + 1.2), layout="constrained")
+    positions = np.arange(len(rows))[::-1]
+    for y, (_, effect, low, high, color) in zip(positions, rows, strict=True):
+        if effect is None:
+            ax.plot([low, high], [y, y], color=color, linewidth=7, alpha=0.5,
+                    solid_capstyle="butt")  # fmt: skip
+        else:
+            ax.plot([low, high], [y, y], color=color, linewidth=2)
+            ax.plot([effect], [y], "o", color=color, markersize=7)
+    ax.axvline(0, color="0.3", linewidth=1, linestyle="--")
+    ax.set_yticks(positions, [label for label, *_ in rows])
+    level = results["settings"]["level"]
+    ax.set_xlabel(f"effect on '{results['columns']['outcome']}' ({level:.0%} intervals)")
+    ax.set_title("Survivor average causal effect", fontsize=10)
+    ax.grid(axis="x", color="0.92")
+    return figure
+
+
+def _sensitivity_figure(results):
+    import matplotlib.pyplot as plt
+
+    sens = results["sensitivity"]
+    figure, axes = plt.subplots(1, 2, figsize=(9.6, 3.6), layout="constrained")
+    panels = (
+        ("pi_difference", "helped minus always-survivor mean\n(0 = principal ignorability)"),
+        ("harmed_ratio", "harmed / helped stratum size\n(0 = monotonicity)"),
+    )
+    for ax, (key, label) in zip(axes, panels, strict=True):
+        grid = sens[key]["grid"]
+        x = np.array([g["value"] for g in grid])
+        effect = np.array([g["effect"] for g in grid])
+        low = np.array([np.nan if g["ci_low"] is None else g["ci_low"] for g in grid])
+        high = np.array([np.nan if g["ci_high"] is None else g["ci_high"] for g in grid])
+        ax.fill_between(x, low, high, color=_OTHER, alpha=0.35, linewidth=0)
+        ax.plot(x, effect, color=_PRIMARY, linewidth=2)
+        ax.axhline(0, color="0.3", linewidth=1, linestyle="--")
+        tip = sens[key]["tipping_point"]
+        if tip is not None and x.min() <= tip <= x.max():
+            ax.axvline(tip, color="#b5651d", linewidth=1)
+            ax.text(tip, 0.98, f" tipping point {tip:.3g}", transform=ax.get_xaxis_transform(),
+                    va="top", fontsize=8, color="#b5651d")  # fmt: skip
+        ax.set_xlabel(label, fontsize=9)
+        ax.set_ylabel("SACE")
+        ax.grid(color="0.92")
+    figure.suptitle("How the estimate moves when an untestable assumption is relaxed", fontsize=10)
+    return figure
+
+
+def draw_figures(analysis):
+    """Draw every figure the results allow.
+
+    Returns
+    -------
+    list of dict
+        ``name`` (file name), ``title``, ``caption`` and ``png`` (bytes), in report order.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    results = analysis.results
+    figures = [
+        ("estimates.png", "Estimates side by side", _estimates_figure, (results,),
+         "Points and lines: estimates and confidence intervals. Shaded bar: the bounds, which "
+         "drop principal ignorability. The naive comparison of survivors is biased when "
+         "treatment changes who survives; it is shown only for contrast."),
+    ]  # fmt: skip
+    diagnostics = results.get("diagnostics", {})
+    if diagnostics.get("available", True):
+        from .. import plotting
+
+        if analysis.covariates is not None:
+            figures.append(
+                (
+                    "balance.png",
+                    "Covariate balance",
+                    plotting.plot_balance,
+                    (analysis.primary, analysis.covariates),
+                    "Open circles: treated against control survivors without weights (what a naive "
+                    "survivor analysis compares). Filled: the weighted always-survivor "
+                    "reconstructions from the two arms. Below the dashed line (0.1, common "
+                    "practice) the reconstructions agree.",
+                )  # fmt: skip
+            )
+        figures.append(
+            ("overlap.png", "Overlap of the treatment probability", plotting.plot_overlap,
+             (analysis.primary,),
+             "Both arms should cover the same range; dashed lines at 0.05 and 0.95.")
+        )  # fmt: skip
+        figures.append(
+            ("weights.png", "Balancing weights", plotting.plot_weights, (analysis.primary,),
+             "A long right tail means a few rows carry much of the weight.")
+        )  # fmt: skip
+    if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
+        figures.append(
+            ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),
+             "Line: the SACE if the assumption failed by the amount on the horizontal axis; "
+             "band: its confidence interval. The tipping point is where the interval first "
+             "covers zero.")
+        )  # fmt: skip
+    drawn = []
+    for name, title, draw, args, caption in figures:
+        figure = draw(*args)
+        drawn.append({"name": name, "title": title, "caption": caption, "png": _png(figure)})
+    return drawn

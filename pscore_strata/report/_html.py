@@ -1,0 +1,111 @@
+"""Write the report files: report.html (self-contained), results.json and the PNG figures."""
+
+from __future__ import annotations
+
+import base64
+import json
+from importlib import resources
+from pathlib import Path
+
+__all__ = ["write_report", "render_html", "schema"]
+
+TEMPLATE = "template.html"
+SCHEMA = "results.schema.json"
+
+
+def schema():
+    """The JSON Schema that ``results.json`` follows."""
+    text = resources.files("pscore_strata.report").joinpath(SCHEMA).read_text(encoding="utf-8")
+    return json.loads(text)
+
+
+def number(value, digits=3):
+    """Readable fixed-point text: more digits for small values, thousands separators for big."""
+    if value is None:
+        return "n/a"
+    size = abs(value)
+    if size >= 1000:
+        return f"{value:,.0f}"
+    if size >= 100:
+        return f"{value:,.1f}"
+    return f"{value:.{digits}f}"
+
+
+def percent(value):
+    return "n/a" if value is None else f"{100 * value:.1f}%"
+
+
+def interval(low, high):
+    return f"{number(low)} to {number(high)}"
+
+
+def _view(results, figures):
+    level = f"{results['settings']['level']:.0%}"
+    primary = next(e for e in results["estimates"] if e["primary"])
+    diagnostics = results.get("diagnostics", {})
+    balance = sorted(
+        diagnostics.get("balance", []),
+        key=lambda r: -abs(r["raw_smd_treated_vs_control"] or 0),
+    )
+    sens = results.get("sensitivity", {})
+    selected = []
+    if "pi_difference" in sens:
+        grid = sens["pi_difference"]["grid"]
+        selected = grid[:: max(1, len(grid) // 6)]
+        if grid[-1] not in selected:
+            selected.append(grid[-1])
+    return {
+        "r": results,
+        "level": level,
+        "primary": primary,
+        "balance": balance,
+        "selected_grid": selected,
+        "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
+        "fmt": number,
+        "pct": percent,
+        "interval": interval,
+    }
+
+
+def render_html(results, figures):
+    """The report as one HTML string; every value from the user is escaped by jinja2."""
+    try:
+        import jinja2
+    except ImportError as error:
+        raise ImportError(
+            "The HTML report needs jinja2 and matplotlib: pip install 'pscore_strata[report]'."
+        ) from error
+    text = resources.files("pscore_strata.report").joinpath(TEMPLATE).read_text(encoding="utf-8")
+    environment = jinja2.Environment(
+        autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True
+    )
+    return environment.from_string(text).render(**_view(results, figures))
+
+
+def write_report(analysis, out_dir):
+    """Write ``report.html``, ``results.json`` and one PNG per figure into ``out_dir``.
+
+    Returns
+    -------
+    dict
+        Paths of the written files by kind.
+    """
+    from ._figures import draw_figures
+
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    figures = draw_figures(analysis)
+    results = dict(analysis.results)
+    results["figures"] = [f["name"] for f in figures]
+    paths = {"figures": []}
+    for figure in figures:
+        path = out / figure["name"]
+        path.write_bytes(figure["png"])
+        paths["figures"].append(path)
+    paths["json"] = out / "results.json"
+    paths["json"].write_text(json.dumps(results, indent=2, allow_nan=False) + "\n",
+                             encoding="utf-8")  # fmt: skip
+    paths["html"] = out / "report.html"
+    paths["html"].write_text(render_html(results, figures), encoding="utf-8")
+    analysis.results = results
+    return paths
