@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 
 from ._repeats import median_aggregate
+from .diagnostics import diagnostic_warnings
 from .inference import influence_std_error, normal_interval
 
 __all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
@@ -66,7 +67,7 @@ def summary_table(estimator, level):
     table.insert(4, "ci_high", [high for _, high in intervals])
     table = table.set_index("quantity")
     table.attrs["scale"] = estimator.scale
-    table.attrs["notes"] = _notes(estimator)
+    table.attrs["notes"] = _notes(estimator) + diagnostic_warnings(estimator)
     return table
 
 
