@@ -15,6 +15,7 @@ import pytest
 from threadpoolctl import threadpool_limits
 
 import pscore_strata as ps
+from pscore_strata import report
 from pscore_strata.bounds import TrimmingBounds
 from pscore_strata.cli import main
 from pscore_strata.datasets import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
@@ -226,9 +227,9 @@ def test_missing_outcome_of_non_survivors_is_not_incomplete(tmp_path):
     # The demo registry has no outcome for every patient who died; that is truncation.
     frame = load_demo()
     assert frame[ROLES["outcome"]].isna().sum() == (frame[ROLES["survival"]] == 0).sum()
-    data = ps.report.prepare_data(
+    data = report.prepare_data(
         frame,
-        ps.report.ColumnRoles(
+        report.ColumnRoles(
             outcome=ROLES["outcome"], treatment=ROLES["treatment"], survival=ROLES["survival"]
         ),
     )
