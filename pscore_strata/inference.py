@@ -343,10 +343,12 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
 def run_tasks(tasks, sizes, n_jobs, progress, label):
     """Run the tasks through joblib, moving a progress bar as blocks finish."""
     bar = _progress_bar(progress, sum(sizes), label)
+    try:
+        parallel = Parallel(n_jobs=n_jobs, return_as="generator")
+    except ValueError:  # a backend that cannot stream results (Ray's): the bar jumps at the end
+        parallel = Parallel(n_jobs=n_jobs)
     out = []
-    for size, result in zip(
-        sizes, Parallel(n_jobs=n_jobs, return_as="generator")(tasks), strict=True
-    ):
+    for size, result in zip(sizes, parallel(tasks), strict=True):
         out.append(result)
         if bar is not None:
             bar.update(size)

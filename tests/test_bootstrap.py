@@ -268,6 +268,25 @@ def test_same_replicates_for_any_n_jobs_and_dask(small, method):
     assert not np.allclose(one.to_numpy(), other_seed.replicates.to_numpy())
 
 
+def test_same_replicates_on_ray_when_installed(small):
+    ray = pytest.importorskip("ray")
+    from ray.util.joblib import register_ray
+
+    kwargs = dict(
+        treatment=small.treatment, survival=small.survival, n_resamples=12, random_state=42
+    )
+    est = ps.PrincipalScoreWeighting()
+    one = bootstrap(est, small.X, small.y, n_jobs=1, **kwargs).replicates
+    ray.init(num_cpus=2, include_dashboard=False, _node_ip_address="127.0.0.1")
+    try:
+        register_ray()
+        with joblib.parallel_config(backend="ray"):
+            on_ray = bootstrap(est, small.X, small.y, **kwargs).replicates
+    finally:
+        ray.shutdown()
+    pd.testing.assert_frame_equal(one, on_ray)
+
+
 def test_default_resampling_matches_stratified_resample():
     t = np.r_[np.ones(30, int), np.zeros(45, int)]
     for seed in spawn_seeds(1, 5):
