@@ -171,8 +171,26 @@ def _estimate_record(method, estimator, level, primary):
         "mean_treated": float(estimator.mean_treated_),
         "mean_control": float(estimator.mean_control_),
         "std_error_method": str(estimator.std_error_method_),
-        "notes": [n for n in table.attrs["notes"] if n != table.attrs["notes"][-1]],
+        "notes": _method_notes(estimator, table.attrs["notes"]),
     }
+
+
+def _method_notes(estimator, notes):
+    """The summary's notes on how the estimate was obtained.
+
+    The cautions and diagnostic warnings that the summary repeats have their own sections in
+    the report, so they are left out here.
+    """
+    from .._summary import CAUTIONS as SUMMARY_CAUTIONS
+
+    repeated = {SUMMARY_CAUTIONS}
+    try:
+        from ..diagnostics import diagnostic_warnings
+
+        repeated.update(diagnostic_warnings(estimator))
+    except ImportError:
+        pass
+    return [note for note in notes if note not in repeated]
 
 
 def _summary_rows(estimator, level):
