@@ -149,6 +149,7 @@ def bootstrap(
                 "The influence values ignore the estimation of the nuisance models, and so do "
                 "these replicates; use method='resample' for an interval that accounts for it."
             )
+            warnings.warn(notes[-1], UserWarning, stacklevel=2)
     else:
         size = -(-n_resamples // _RESAMPLE_TASKS)
         blocks = [seeds[i : i + size] for i in range(0, n_resamples, size)]

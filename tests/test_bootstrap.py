@@ -208,6 +208,52 @@ def test_multiplier_std_error_matches_influence_std_error(small, multiplier):
         )
 
 
+def test_sample_weights_flow_into_both_methods(small):
+    w = np.random.default_rng(1).uniform(0.5, 2.0, small.y.size)
+    common = dict(
+        treatment=small.treatment, survival=small.survival, sample_weight=w, random_state=0
+    )
+    fitted = ps.PrincipalScoreWeighting().fit(
+        small.X, small.y, treatment=small.treatment, survival=small.survival, sample_weight=w
+    )
+    multiplier = bootstrap(
+        ps.PrincipalScoreWeighting(),
+        small.X,
+        small.y,
+        method="multiplier",
+        n_resamples=3000,
+        **common,
+    )
+    assert multiplier.estimate == pytest.approx(fitted.effect_)
+    # Same identity as above, with the weighted linearization variance.
+    assert multiplier.std_error / influence_std_error(fitted.influence_, w) == pytest.approx(
+        1.0, abs=0.05
+    )
+    resample = bootstrap(
+        ps.PrincipalScoreWeighting(), small.X, small.y, n_resamples=40, stratify=False, **common
+    )
+    assert resample.estimate == pytest.approx(fitted.effect_)
+    assert 0.6 < resample.std_error / fitted.std_error_ < 1.5  # 40 refits: a loose check
+
+
+def test_multiplier_warns_when_influence_values_ignore_the_models(small):
+    from sklearn.ensemble import HistGradientBoostingClassifier
+
+    model = HistGradientBoostingClassifier(max_iter=20)
+    with pytest.warns(UserWarning, match="ignore the estimation"):
+        result = bootstrap(
+            ps.PrincipalScoreWeighting(survival_model=model),
+            small.X,
+            small.y,
+            treatment=small.treatment,
+            survival=small.survival,
+            method="multiplier",
+            n_resamples=50,
+            random_state=0,
+        )
+    assert any("method='resample'" in note for note in result.summary().attrs["notes"])
+
+
 def test_multiplier_draws_equal_dense_computation():
     rng = np.random.default_rng(0)
     c = rng.standard_normal((1000, 2))
@@ -285,6 +331,20 @@ def test_same_replicates_on_ray_when_installed(small):
     finally:
         ray.shutdown()
     pd.testing.assert_frame_equal(one, on_ray)
+
+
+def test_unseeded_random_learners_are_seeded_per_replicate(small):
+    from sklearn.ensemble import RandomForestClassifier
+
+    est = ps.PrincipalScoreWeighting(
+        survival_model=RandomForestClassifier(n_estimators=5, min_samples_leaf=20)
+    )
+    kwargs = dict(treatment=small.treatment, survival=small.survival, n_resamples=6, random_state=3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        first, second = (bootstrap(est, small.X, small.y, **kwargs).replicates for _ in range(2))
+    pd.testing.assert_frame_equal(first, second)
+    assert est.survival_model.random_state is None  # the caller's template is left alone
 
 
 def test_default_resampling_matches_stratified_resample():
