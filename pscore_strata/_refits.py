@@ -104,7 +104,10 @@ def _refit(template, arrays, rows, seed):
         fitted = _fit_rows(estimator, *arrays, rows)
     except REFIT_ERRORS as exc:
         return None, f"{type(exc).__name__}: {exc}"
-    return statistics(fitted)[1], None
+    values = statistics(fitted)[1]
+    if not np.all(np.isfinite(values)):
+        return None, f"non-finite statistic {values.tolist()}"
+    return values, None
 
 
 def refit_block(

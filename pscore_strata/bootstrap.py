@@ -173,7 +173,8 @@ def bootstrap(
     _check_failures(failures, n_resamples)
     replicates = pd.DataFrame(values, columns=list(names))
     replicates.index.name = "replicate"
-    replicates = replicates.dropna()
+    if failures:
+        replicates = replicates[np.isfinite(values).all(axis=1)]  # failed fits gave NaN rows
 
     def jackknife():
         return refit_jackknife_acceleration(
@@ -329,10 +330,12 @@ def _describe(method, stratify, clustered, failures, extra):
         )
         text += ", one multiplier per cluster." if clustered else "."
     else:
-        unit = "clusters" if clustered else "rows"
+        where = ""
+        if stratify:
+            where = " within each arm" + (" (if every cluster lies in one arm)" * clustered)
         text = (
-            f"Resample bootstrap: {unit} drawn with replacement"
-            f"{' within each arm' if stratify else ''}, every model refitted."
+            f"Resample bootstrap: {'whole clusters' if clustered else 'rows'} drawn with "
+            f"replacement{where}, every model refitted."
         )
     notes = [text, *extra]
     if failures:

@@ -495,21 +495,26 @@ def test_more_than_one_percent_failures_raise():
         )
 
 
-def test_rare_failures_are_counted_and_reported():
+@pytest.mark.parametrize("failure", ["raise", "nan"])
+def test_rare_failures_are_counted_and_reported(failure):
     class Fragile(MeanDifference):
         def fit(self, X, y, **kwargs):
+            super().fit(X, y, **kwargs)
             if np.sum(np.asarray(X)[:, 0] == 0) >= 5:  # row 0 drawn five times or more
-                raise ValueError("row 0 too often")
-            return super().fit(X, y, **kwargs)
+                if failure == "raise":
+                    raise ValueError("row 0 too often")
+                self.effect_ = np.nan
+            return self
 
     y, t, s = skewed_two_samples()
     X = np.arange(y.size, dtype=float)[:, None]
-    with pytest.warns(RuntimeWarning, match="left out"):
+    with pytest.warns(RuntimeWarning, match="row 0 too often|non-finite"):
         result = bootstrap(
             Fragile(), X, y, treatment=t, survival=s, n_resamples=1000, random_state=3
         )
     assert 0 < result.n_failed <= 10
     assert len(result.replicates) == 1000 - result.n_failed
+    assert np.isfinite(result.replicates.to_numpy()).all()
     assert "n_failed" in repr(result)
 
 
