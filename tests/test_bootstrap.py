@@ -306,8 +306,10 @@ def test_same_replicates_for_any_n_jobs_and_dask(small, method):
     with distributed.LocalCluster(
         n_workers=2, threads_per_worker=1, processes=False, dashboard_address="127.0.0.1:0"
     ) as cluster:
-        with distributed.Client(cluster), joblib.parallel_config(backend="dask"):
-            on_dask = bootstrap(est, small.X, small.y, **kwargs).replicates
+        with distributed.Client(cluster) as client, joblib.parallel_config(backend="dask"):
+            with distributed.get_task_stream(client) as stream:
+                on_dask = bootstrap(est, small.X, small.y, **kwargs).replicates
+    assert len(stream.data) > 0  # the work did run on the cluster
     for other in (two, threads, on_dask):
         pd.testing.assert_frame_equal(one, other)
     other_seed = bootstrap(est, small.X, small.y, n_jobs=1, **{**kwargs, "random_state": 43})
