@@ -2,7 +2,7 @@
 
 Usage::
 
-    python benchmarks/run_all.py            # full: 200 replicates per cell (about 30 min)
+    python benchmarks/run_all.py            # full: 200 replicates per cell (about 15 min)
     python benchmarks/run_all.py --quick    # smoke run: 20 replicates per cell (a few minutes)
 
 Part 1, the statistical benchmark, runs every named scenario of ``ps.datasets`` against the
@@ -75,6 +75,7 @@ def statistical_benchmark(n_reps, n_jobs, checkpoint, figure):
         "multiply_robust": ps.MultiplyRobust(),
     }
     scenarios = list(ps.datasets.SCENARIOS)
+    resumed = checkpoint is not None and any(Path(checkpoint).glob("part-*.parquet"))
     start = time.perf_counter()
     results = ps.simulation.run_study(
         estimators,
@@ -141,8 +142,10 @@ def statistical_benchmark(n_reps, n_jobs, checkpoint, figure):
         f"Every scenario of `ps.datasets.list_scenarios()` x the three estimators with their "
         f"default models (unpenalized logistic survival and treatment models, linear outcome "
         f"model) x n = {', '.join(map(str, SIZES))}, **{n_reps} replicates per cell** "
-        f"(seed {SEED}; `n_jobs={n_jobs}`). Wall time {seconds / 60:.1f} min for "
-        f"{len(results)} fits. Confidence intervals are 95% Wald intervals with each "
+        f"(seed {SEED}; `n_jobs={n_jobs}`): {len(results)} fits taking "
+        f"{results['fit_seconds'].sum() / 60:.1f} min of fitting in all; wall time "
+        f"{seconds / 60:.1f} min{' (resumed from a checkpoint: this run only)' if resumed else ''}"
+        ". Confidence intervals are 95% Wald intervals with each "
         "estimator's own standard error (sandwich for weighting and regression, influence "
         "function for multiply robust); `clustered` passes the cluster labels, so its standard "
         "errors are cluster-robust.",
