@@ -263,7 +263,6 @@ def bca_interval(replicates, estimate, acceleration, level=0.95):
 # -- multiplier bootstrap ----------------------------------------------------------------------
 # Row chunks keep the memory of a block of B replicates at O(B * chunk), whatever n is.
 _RADEMACHER_CHUNK_BYTES = 2048  # eight rows per random byte
-_GAUSSIAN_CHUNK_ROWS = 16384
 # Row v of the table holds the signs (+1/-1) that the bits of byte value v give to eight rows.
 _BYTE_SIGNS = ((np.arange(256)[:, None] >> np.arange(8)[None, :]) & 1) * 2.0 - 1.0
 
@@ -294,10 +293,13 @@ def multiplier_contributions(influence, sample_weight=None, groups=None):
 def multiplier_draws(contributions, seeds, kind="rademacher"):
     """``sum_g xi_g c_g`` for each seed, the multipliers ``xi`` drawn from that seed alone.
 
-    Each replicate reads its own generator in a fixed row order, so its value does not depend on
-    how replicates are grouped into tasks. Rademacher signs come eight rows per random byte:
-    each chunk of rows gets a table of the 256 signed sums of every eight rows, and a replicate
-    adds up one table entry per byte.
+    Gaussian multipliers are drawn in distribution (see the comment in the code); Rademacher
+    multipliers are drawn row by row.
+
+    Each Rademacher replicate reads its own generator in a fixed row order, so its value does not
+    depend on how replicates are grouped into tasks. Signs come eight rows per random byte: each
+    chunk of rows gets a table of the 256 signed sums of every eight rows, and a replicate adds
+    up one table entry per byte.
 
     Returns
     -------
@@ -309,15 +311,13 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
     generators = [np.random.default_rng(seed) for seed in seeds]
     draws = np.zeros((len(generators), k))
     if kind == "gaussian":
-        ct = np.ascontiguousarray(c.T)
-        buffer = np.empty(min(n, _GAUSSIAN_CHUNK_ROWS))
+        # With standard normal multipliers, sum_g xi_g c_g is exactly N(0, C'C): draw it from
+        # k normals per replicate and a square root of the k x k matrix C'C. Same distribution
+        # as drawing n multipliers, at O(n k^2 + B k^2) cost instead of O(n B).
+        eigenvalues, eigenvectors = np.linalg.eigh(c.T @ c)
+        root = np.sqrt(np.clip(eigenvalues, 0.0, None))[:, None] * eigenvectors.T
         for b, rng in enumerate(generators):
-            for start in range(0, n, _GAUSSIAN_CHUNK_ROWS):
-                block = ct[:, start : start + _GAUSSIAN_CHUNK_ROWS]
-                xi = rng.standard_normal(out=buffer[: block.shape[1]])
-                # einsum's own loop, not BLAS: threaded BLAS calls this small stall on a busy
-                # machine, and joblib already parallelizes over replicates.
-                draws[b] += np.einsum("km,m->k", block, xi)
+            draws[b] = rng.standard_normal(k) @ root
         return draws
     if kind != "rademacher":
         raise ValueError(f"`multiplier` must be 'rademacher' or 'gaussian'; got {kind!r}.")
