@@ -71,7 +71,7 @@ def test_monte_carlo_truth_matches_quadrature():
     # simulator's Monte Carlo sample. The stratum and outcome formulas below restate the
     # documented generative model; the SACE is E[e_a (mu1 - mu0)] / E[e_a].
     def always_share(Z):
-        return expit(0.1 - 0.3 * Z[:, 0] + 0.5 * Z[:, 1])
+        return expit(0.05 - 0.8 * Z[:, 0] + 0.5 * Z[:, 1])
 
     heterogeneous = make_truncation(10, effect_heterogeneity=0.5, random_state=0)
     share = _gauss_hermite_average(always_share, 2)

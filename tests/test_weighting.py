@@ -189,12 +189,11 @@ def test_summary_reports_every_quantity():
 
 
 def test_non_default_learner_falls_back_to_bootstrap():
-    from sklearn.linear_model import LogisticRegression
     from sklearn.pipeline import make_pipeline
     from sklearn.preprocessing import StandardScaler
 
     data = make_truncation(1500, random_state=9)
-    model = make_pipeline(StandardScaler(), LogisticRegression(C=np.inf))
+    model = make_pipeline(StandardScaler(), ps.nuisance.default_binary_model())
     est = _fit(data, survival_model=model, n_bootstrap=60, random_state=0)
     assert est.std_error_method_ == "bootstrap"
     assert len(est.bootstrap_replicates_) == 60

@@ -26,19 +26,23 @@ def _active_columns(X):
 
 
 def _stratum_logits(X, outcome):
-    """Logits of the always-survivor share and of the helped share among the rest.
+    """Logit of the always-survivor share, and the lift of the logit that treatment adds.
 
-    The helped share rises with x1, as does the outcome: the units that treatment changes
-    the fate of are those with high outcomes, which is what biases survivor-only contrasts.
+    Survival under the pure arm is ``expit(always)`` and under the mixed arm (monotonicity
+    holding) ``expit(always + lift)`` with ``lift > 0``: both are main-effects logistic models in
+    the linear and binary settings, so the default survival models are correctly specified there.
+    The helped share ``expit(always + lift) - expit(always)`` is largest where the always-survivor
+    logit is low, i.e. at high x1, and the outcome rises with x1: the units whose fate treatment
+    changes have high outcomes, which is what biases survivor-only contrasts.
     """
     x1, x2, _ = _active_columns(X)
-    always = 0.1 - 0.3 * x1 + 0.5 * x2
-    helped = -0.45 + 1.0 * x1 - 0.3 * x2
+    always = 0.05 - 0.8 * x1 + 0.5 * x2
+    lift = np.full(X.shape[0], 1.0)
     if outcome == "nonlinear":
-        # Curvature that a main-effects logistic model cannot represent.
+        # Curvature that a main-effects logistic model cannot represent; the lift stays positive.
         always = always + 0.6 * (np.abs(x2) - 0.8)
-        helped = helped + 0.5 * (x1**2 - 1.0)
-    return always, helped
+        lift = 0.6 + 0.5 * x1**2
+    return always, lift
 
 
 def _treatment_logit(X, outcome, scale):
@@ -61,9 +65,9 @@ def _control_index(X, outcome):
 
 def _principal_scores(X, outcome, harmed_ratio, monotonicity):
     """True stratum probabilities given X, columns in ``STRATUM_LABELS`` order."""
-    always_logit, helped_logit = _stratum_logits(X, outcome)
+    always_logit, lift = _stratum_logits(X, outcome)
     always = expit(always_logit)
-    changed = (1.0 - always) * expit(helped_logit)
+    changed = expit(always_logit + lift) - always
     helped = changed / (1.0 + harmed_ratio)
     opposite = harmed_ratio * helped
     protected, harmed = (helped, opposite) if monotonicity == "increasing" else (opposite, helped)
