@@ -61,7 +61,8 @@ class SurvivorEffectEstimator(BaseEstimator):
 
     def _means(self, data, nuisance):
         oriented = _formulas.orient(data, nuisance, self.monotonicity)
-        return type(self)._formula(oriented), oriented
+        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
+            return type(self)._formula(oriented), oriented
 
     def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None):
         """Estimate the survivor average causal effect.
@@ -201,7 +202,12 @@ class SurvivorEffectEstimator(BaseEstimator):
         self.bootstrap_replicates_ = table
         self.n_bootstrap_failed_ = len(results) - len(table)
         if len(table) < 2:
-            raise RuntimeError("Fewer than two bootstrap resamples could be fitted.")
+            raise RuntimeError(
+                f"Fewer than two of the `n_bootstrap`={self.n_bootstrap} resamples could be "
+                "fitted (resamples lost the survivors or deaths of an arm, or the fitted "
+                "probabilities reached 0 or 1). Use the default models (sandwich standard "
+                "errors), set n_bootstrap=0, or use more data."
+            )
         self.std_error_ = float(table["effect"].std(ddof=1))
 
     # -- results -----------------------------------------------------------------------------
@@ -219,8 +225,10 @@ class SurvivorEffectEstimator(BaseEstimator):
         """Principal scores per row, columns in ``classes_`` order.
 
         Under monotonicity the always-survivor score is the survival probability in the pure arm,
-        the helped stratum's score the difference of the arms' survival probabilities (clipped at
-        zero where the models contradict monotonicity), and the doomed score the rest. With
+        the helped stratum's score the difference of the arms' survival probabilities, and the
+        doomed score the rest. Where the fitted models contradict monotonicity (survival in the
+        mixed arm below that in the pure arm) the helped score is 0 and the always-survivor
+        score the smaller of the two survival probabilities. With
         cross-fitting, the predictions average every fold model (of every repeat).
         """
         check_is_fitted(self, "effect_")
@@ -302,9 +310,12 @@ class ConditionalEffectMixin:
 def _one_replicate(estimator, data, seed):
     rows = stratified_resample(data.treatment, seed, data.groups)
     try:
-        return estimator._refit_means(data.take(rows))
+        values = estimator._refit_means(data.take(rows))
     except (ValueError, np.linalg.LinAlgError):
         return None
+    # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
+    # count it as a failed fit, as the full-sample fit would refuse it.
+    return values if np.all(np.isfinite(values)) else None
 
 
 def _principal_scores(p_mixed, p_pure):

@@ -47,7 +47,9 @@ class Oriented:
     increasing: bool
 
     def weighted_mean(self, values):
-        return float(np.sum(self.weight * values) / np.sum(self.weight))
+        # A numpy scalar, not a float: a zero normalizer (no always-survivor weight left) then
+        # gives inf/NaN, which the estimators turn into a clear error, not a ZeroDivisionError.
+        return np.float64(np.sum(self.weight * values) / np.sum(self.weight))
 
     def corrections(self, derivatives):
         """Sum of the nuisance-estimation terms for the given d f / d prediction arrays."""

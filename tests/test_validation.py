@@ -187,3 +187,14 @@ def test_predict_proba_feature_mismatch():
     est = _fit()
     with pytest.raises(ValueError, match="`X` has 2 features but the estimator was fitted with 3"):
         est.predict_proba(DATA.X[:, :2])
+
+
+@pytest.mark.parametrize("estimator", [ps.PrincipalScoreWeighting, ps.OutcomeRegression])
+def test_zero_survival_predictions_give_a_clear_error(estimator):
+    # A model that predicts survival probability 0 for every row leaves no always-survivor
+    # weight: the fit must say so, not fail with a bare ZeroDivisionError.
+    from sklearn.dummy import DummyClassifier
+
+    model = DummyClassifier(strategy="constant", constant=0)
+    with pytest.warns(ps.OverlapWarning), pytest.raises(ValueError, match="not finite"):
+        _fit(est=estimator(survival_model=model, n_bootstrap=0))

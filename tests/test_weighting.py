@@ -202,3 +202,36 @@ def test_non_default_learner_falls_back_to_bootstrap():
     # Same model (scaling does not change a logistic fit): the two SEs agree roughly.
     assert est.effect_ == pytest.approx(sandwich.effect_, abs=1e-4)
     assert 0.6 < est.std_error_ / sandwich.std_error_ < 1.6
+
+
+class _DegenerateOnRefits:
+    """Survival classifier whose refits predict probability 0 everywhere (after the first two)."""
+
+    fits = 0
+
+    def __init__(self):
+        pass
+
+    def get_params(self, deep=True):
+        return {}
+
+    def set_params(self, **params):
+        return self
+
+    def fit(self, X, y, sample_weight=None):
+        type(self).fits += 1
+        self.classes_ = np.array([0, 1])
+        self.share_ = 0.0 if type(self).fits > 2 else float(np.mean(y))
+        return self
+
+    def predict_proba(self, X):
+        return np.column_stack([np.full(len(X), 1 - self.share_), np.full(len(X), self.share_)])
+
+
+def test_bootstrap_fallback_counts_non_finite_refits_as_failures():
+    # Every refit gives 0/0 always-survivor means; the error says what to do instead.
+    _DegenerateOnRefits.fits = 0
+    data = make_truncation(300, random_state=1)
+    message = r"Fewer than two of the `n_bootstrap`=5 .* n_bootstrap=0"
+    with pytest.raises(RuntimeError, match=message):
+        _fit(data, survival_model=_DegenerateOnRefits(), n_bootstrap=5, random_state=0)
