@@ -35,13 +35,20 @@ class _Progress:
             print(f"[{elapsed:6.1f}s] {message} ...", file=sys.stderr, flush=True)
 
 
+def _check_bootstrap(n_resamples):
+    # Checked before any fitting, so the message names the option rather than the API argument.
+    if n_resamples < 0 or n_resamples == 1:
+        raise ValueError(
+            f"--bootstrap must be 0 (no bootstrap) or at least 2 resamples; got {n_resamples}."
+        )
+
+
 def _options(args):
     from .report import AnalysisOptions
 
     if args.folds is not None and args.folds < 2:
         raise ValueError(f"--folds must be at least 2; got {args.folds}.")
-    if args.bootstrap < 0:
-        raise ValueError(f"--bootstrap must be 0 or more resamples; got {args.bootstrap}.")
+    _check_bootstrap(args.bootstrap)
     if not 0 < args.level < 1:
         raise ValueError(f"--level must lie strictly between 0 and 1; got {args.level}.")
     return AnalysisOptions(
@@ -125,6 +132,7 @@ def _demo(args):
         covariates=tuple(DEMO_ROLES["covariates"]),
         categorical=tuple(DEMO_ROLES["categorical"]),
     )
+    _check_bootstrap(args.bootstrap)
     print("Invented critical-care registry (simulated patients, not real people).")
     analysis = analyze_frame(
         load_demo(), roles, AnalysisOptions(bootstrap=args.bootstrap), args.out,

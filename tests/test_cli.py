@@ -257,6 +257,7 @@ def test_bad_file(tmp_path, name, message):
         (lambda f: f, ["--covariates", "age", "site"],
          "Covariate(s) site are not numeric; list them with --categorical"),
         (lambda f: f, ["--folds", "1"], "--folds must be at least 2"),
+        (lambda f: f, ["--bootstrap", "1"], "--bootstrap must be 0 (no bootstrap) or at least 2"),
         (lambda f: f.assign(w=-1.0), ["--weights", "w"], "non-negative numbers"),
         (lambda f: f, ["--covariates", "alive_6mo"], "also the outcome, treatment or survival"),
     ],
@@ -270,6 +271,13 @@ def test_option_errors(tmp_path, capsys, change, extra, message):
     assert main(args) == 2
     err = capsys.readouterr().err
     assert message in err and len(err.strip().splitlines()) == 1
+
+
+def test_demo_bootstrap_error_names_the_option(tmp_path, capsys):
+    assert main(["demo", "--bootstrap", "-3", "--quiet", "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert "--bootstrap must be 0 (no bootstrap) or at least 2" in err
+    assert len(err.strip().splitlines()) == 1
 
 
 def test_simulate_errors(tmp_path, capsys):
