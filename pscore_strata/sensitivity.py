@@ -31,6 +31,7 @@ from scipy import optimize
 from sklearn.utils.validation import check_is_fitted
 
 from . import _formulas
+from ._summary import CAUTIONS
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from .inference import influence_std_error, normal_interval
 
@@ -280,7 +281,7 @@ def sensitivity_grid(
     DataFrame
         One row per combination of the given values: the parameter columns, ``effect``,
         ``std_error``, ``ci_low``, ``ci_high`` and ``n_rows_clipped``. At the null values the
-        row reproduces the estimator's own effect.
+        row reproduces the estimator's own effect. ``attrs["notes"]`` holds the cautions.
 
     Notes
     -----
@@ -316,7 +317,13 @@ def sensitivity_grid(
         low, high = normal_interval(effect, se, level, log_scale)
         rows.append({**setting, "effect": effect, "std_error": se, "ci_low": low,
                      "ci_high": high, "n_rows_clipped": clipped})  # fmt: skip
-    return pd.DataFrame(rows)
+    table = pd.DataFrame(rows)
+    table.attrs["notes"] = [
+        "The sensitivity parameters cannot be estimated from the data: read the grid as how "
+        "strong a departure from the assumptions would have to be to change the conclusion.",
+        CAUTIONS,
+    ]
+    return table
 
 
 def tipping_point(

@@ -191,6 +191,8 @@ def test_grid_shape_and_clipping(plain):
     assert {"effect", "std_error", "ci_low", "ci_high"} <= set(grid.columns)
     assert grid.loc[grid["harmed_ratio"] == 0, "n_rows_clipped"].eq(0).all()
     assert grid.loc[grid["harmed_ratio"] == 0.95, "n_rows_clipped"].gt(0).all()
+    notes = " ".join(grid.attrs["notes"])
+    assert "latent" in notes and "individual" in notes and "statistician" in notes
 
 
 @pytest.mark.parametrize(
