@@ -111,11 +111,23 @@ def test_stratum_shares_match_principal_scores():
 
 
 def test_default_shares_are_typical():
+    # Source: the logistic-normal integrals E[expit(a + c)] of the documented stratum logits
+    # (always-survivor logit a = 0.05 - 0.8 x1 + 0.5 x2 ~ N(0.05, 0.89), treatment lift c = 1),
+    # computed by scipy quadrature; the sample mean has a standard error near 0.0004.
+    from scipy import integrate, stats
+
+    def survival_share(lift):
+        def integrand(z):
+            return expit(0.05 + lift + np.sqrt(0.89) * z) * stats.norm.pdf(z)
+
+        return integrate.quad(integrand, -np.inf, np.inf)[0]
+
+    always, treated = survival_share(0.0), survival_share(1.0)
     data = make_truncation(LARGE, random_state=4)
     shares = data.principal_scores.mean(axis=0)
-    assert shares[0] == pytest.approx(0.5, abs=0.05)
-    assert shares[1] == pytest.approx(0.2, abs=0.05)
-    assert shares[3] == pytest.approx(0.3, abs=0.05)
+    assert shares[0] == pytest.approx(always, abs=0.002)  # about 0.51
+    assert shares[1] == pytest.approx(treated - always, abs=0.002)  # about 0.20
+    assert shares[3] == pytest.approx(1 - treated, abs=0.002)  # about 0.29
 
 
 @pytest.mark.parametrize("monotonicity", ["increasing", "decreasing"])
