@@ -13,7 +13,11 @@ import numpy as np
 import pandas as pd
 from sklearn.compose import ColumnTransformer
 from sklearn.pipeline import Pipeline
-from sklearn.utils import get_tags
+
+try:
+    from sklearn.utils import get_tags
+except ImportError:  # scikit-learn < 1.6 (the declared minimum is 1.4): legacy tag dictionaries
+    get_tags = None
 
 __all__ = ["TruncationData", "check_truncation_data", "check_level", "check_features"]
 
@@ -143,6 +147,8 @@ def _accepts_missing(model):
     if isinstance(model, Pipeline | ColumnTransformer):
         return True
     try:
+        if get_tags is None:
+            return bool(model._get_tags().get("allow_nan", False))
         return bool(get_tags(model).input_tags.allow_nan)
     except Exception:  # third-party estimators without tags: let the model itself decide
         return True
