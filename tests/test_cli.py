@@ -163,6 +163,18 @@ def test_boosting_learner_parquet_weights(tmp_path, capsys):
     assert results["columns"]["weights"] == "w"
     robust = results["estimates"][0]
     assert robust["std_error_method"] == "influence function"
+    # Reference: statsmodels DescrStatsW (weighted mean and SD of the treated survivors).
+    from statsmodels.stats.weightstats import DescrStatsW
+
+    treated = frame[(frame[ROLES["treatment"]] == 1) & (frame[ROLES["survival"]] == 1)]
+    stats = DescrStatsW(treated[ROLES["outcome"]].to_numpy(), weights=treated["w"].to_numpy())
+    arm = {a["arm"]: a for a in results["data_overview"]["arms"]}["treated"]
+    assert arm["outcome_mean_survivors"] == pytest.approx(stats.mean, rel=1e-12)
+    # DescrStatsW divides by sum(w); the report's SD by sum(w) - sum(w^2)/sum(w) (unbiased for
+    # reliability weights, the ordinary n - 1 for unit weights).
+    w = treated["w"].to_numpy()
+    correction = np.sqrt(w.sum() / (w.sum() - np.sum(w**2) / w.sum()))
+    assert arm["outcome_sd_survivors"] == pytest.approx(stats.std * correction, rel=1e-10)
 
 
 def test_bootstrap_option(tmp_path, demo_csv):

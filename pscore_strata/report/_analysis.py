@@ -143,7 +143,9 @@ def _overview(data, roles):
             "survival_share": _number(np.sum(w[rows] * data.survival[rows]) / np.sum(w[rows])),
             "outcome_mean_survivors": _number(np.average(y, weights=w[survivors]))
             if y.size else None,
-            "outcome_sd_survivors": _number(np.std(y, ddof=1)) if y.size > 1 else None,
+            # Weighted like the mean beside it (np.cov with aweights: ddof=1 for unit weights).
+            "outcome_sd_survivors": _number(np.sqrt(np.cov(y, aweights=w[survivors])))
+            if y.size > 1 else None,
         })  # fmt: skip
     return {
         "n_rows_read": data.n_rows_read,
