@@ -31,6 +31,7 @@ from scipy import optimize
 from sklearn.utils.validation import check_is_fitted
 
 from . import _formulas
+from ._repeats import median_aggregate
 from ._summary import CAUTIONS
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from .inference import influence_std_error, normal_interval
@@ -216,15 +217,23 @@ def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_rati
         Rows whose implied always-survivor score was negative (set to 0).
     """
     formula = _check_estimator(estimator)
+    _check_one_scale(pi_ratio, pi_difference)
+    eps = None if pi_ratio is None else _check_value("pi_ratio", pi_ratio)
+    delta = 0.0 if pi_difference is None else _check_value("pi_difference", pi_difference)
+    xi = 0.0 if harmed_ratio is None else _check_value("harmed_ratio", harmed_ratio)
+    return _adjusted(formula, estimator, estimator.nuisance_, delta, eps, xi)
+
+
+def _check_one_scale(pi_ratio, pi_difference):
     if pi_ratio is not None and pi_difference is not None:
         raise ValueError(
             "Give `pi_ratio` or `pi_difference`, not both: they are two scales for the same "
             "departure from principal ignorability."
         )
-    eps = None if pi_ratio is None else _check_value("pi_ratio", pi_ratio)
-    delta = 0.0 if pi_difference is None else _check_value("pi_difference", pi_difference)
-    xi = 0.0 if harmed_ratio is None else _check_value("harmed_ratio", harmed_ratio)
-    data, nuisance = estimator.training_data_, estimator.nuisance_
+
+
+def _adjusted(formula, estimator, nuisance, delta, eps, xi):
+    data = estimator.training_data_
     o = _formulas.orient(data, nuisance, estimator.monotonicity)
     st = _Stratum(o, delta, eps, xi)
     # Robust influence values need no corrections (orthogonal); the others get them exactly
@@ -234,6 +243,29 @@ def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_rati
     parts = _formulas._unorient(o, mu_m, mu_p, if_m, if_p)
     effect, influence = _formulas.scale_effect(parts, estimator.scale)
     return float(effect), influence, int(st.clipped.sum())
+
+
+def _effect_and_error(estimator, setting):
+    """Effect and standard error at one setting, combined over cross-fitting repeats.
+
+    Each repeat's nuisance fit gives its own adjusted effect; they are combined as the estimator
+    combines its repeats (median, variance adding the spread between repeats), so the null
+    setting reproduces ``effect_`` and ``std_error_``. Returns ``(effect, std_error, clipped)``.
+    """
+    formula = _check_estimator(estimator)
+    _check_one_scale(setting.get("pi_ratio"), setting.get("pi_difference"))
+    eps = setting.get("pi_ratio")
+    delta = setting.get("pi_difference", 0.0)
+    xi = setting.get("harmed_ratio", 0.0)
+    data = estimator.training_data_
+    effects, errors, clipped = [], [], 0
+    for nuisance in getattr(estimator, "_repeat_fits", [estimator.nuisance_]):
+        effect, influence, n_clipped = _adjusted(formula, estimator, nuisance, delta, eps, xi)
+        effects.append(effect)
+        errors.append(influence_std_error(influence, data.sample_weight, data.groups))
+        clipped = max(clipped, n_clipped)
+    effect, std_error = median_aggregate(effects, errors)
+    return float(effect), float(std_error), clipped
 
 
 def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
@@ -281,7 +313,8 @@ def sensitivity_grid(
     DataFrame
         One row per combination of the given values: the parameter columns, ``effect``,
         ``std_error``, ``ci_low``, ``ci_high`` and ``n_rows_clipped``. At the null values the
-        row reproduces the estimator's own effect. ``attrs["notes"]`` holds the cautions.
+        row reproduces the estimator's own effect and standard error (cross-fitting repeats
+        are combined as the estimator combines them). ``attrs["notes"]`` holds the cautions.
 
     Notes
     -----
@@ -307,13 +340,11 @@ def sensitivity_grid(
     """
     axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
     _check_estimator(estimator)
-    data = estimator.training_data_
     log_scale = estimator.scale != "difference"
     rows = []
     for values in itertools.product(*axes.values()):
         setting = dict(zip(axes, values, strict=True))
-        effect, influence, clipped = adjusted_effect(estimator, **setting)
-        se = influence_std_error(influence, data.sample_weight, data.groups)
+        effect, se, clipped = _effect_and_error(estimator, setting)
         low, high = normal_interval(effect, se, level, log_scale)
         rows.append({**setting, "effect": effect, "std_error": se, "ci_low": low,
                      "ci_high": high, "n_rows_clipped": clipped})  # fmt: skip
@@ -373,10 +404,9 @@ def tipping_point(
     sign = np.sign(estimator.effect_ - null_effect)
 
     def distance(value):
-        effect, influence, _ = adjusted_effect(estimator, **{parameter: value})
+        effect, se, _ = _effect_and_error(estimator, {parameter: _check_value(parameter, value)})
         if criterion == "estimate":
             return sign * (effect - null_effect)
-        se = influence_std_error(influence, data.sample_weight, data.groups)
         low, high = normal_interval(effect, se, level, log_scale)
         return low - null_effect if sign > 0 else null_effect - high
 
