@@ -271,6 +271,7 @@ def test_bad_file(tmp_path, name, message):
         (lambda f: f, ["--folds", "1"], "--folds must be at least 2"),
         (lambda f: f, ["--bootstrap", "1"], "--bootstrap must be 0 (no bootstrap) or at least 2"),
         (lambda f: f.assign(w=-1.0), ["--weights", "w"], "non-negative numbers"),
+        (lambda f: f.assign(w=0.0), ["--weights", "w"], "is zero in every analysed row"),
         (lambda f: f, ["--covariates", "alive_6mo"], "also the outcome, treatment or survival"),
     ],
 )  # fmt: skip

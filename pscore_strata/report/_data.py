@@ -219,8 +219,13 @@ def prepare_data(frame, roles, *, drop_incomplete=False):
     weights = None
     if roles.weights is not None:
         weights = pd.to_numeric(used[roles.weights], errors="coerce").to_numpy(dtype=float)
-        if np.isnan(weights).any() or (weights < 0).any():
+        if np.isnan(weights).any() or (weights < 0).any() or not np.isfinite(weights).all():
             raise InputError(f"--weights column '{roles.weights}' must hold non-negative numbers.")
+        if weights.sum() <= 0:
+            raise InputError(
+                f"--weights column '{roles.weights}' is zero in every analysed row; at least one "
+                "row needs a positive weight."
+            )
     groups = None if roles.cluster is None else used[roles.cluster].to_numpy()
     return PreparedData(
         frame=used,
