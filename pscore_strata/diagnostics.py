@@ -301,7 +301,10 @@ def diagnostic_warnings(estimator, X=None):
             f"Overlap: {outside:.1%} of rows have a fitted treatment probability outside "
             f"[{low}, {high}] (common practice allows about {ROW_SHARE_TOLERANCE:.0%}). Their "
             "weights are large and unstable; consider restricting the population to the region "
-            "where both arms occur."
+            "where both arms occur. With weights like these the estimate has heavy tails, and "
+            "standard errors understate its spread (in the weak-overlap simulation scenario, "
+            "mean SE / SD was about 0.8 for weighting and multiply robust, and the same with the "
+            "refitting bootstrap)."
         )
     rare = float(np.mean(scores["always_survivor"] < SCORE_FLOOR))
     if rare > ROW_SHARE_TOLERANCE:
