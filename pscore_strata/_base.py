@@ -33,6 +33,7 @@ class SurvivorEffectEstimator(BaseEstimator):
     """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
 
     _uses_outcome_model = False
+    _treatment_enters_estimate = True
 
     # -- fitting -----------------------------------------------------------------------------
     def _models(self):
@@ -57,6 +58,7 @@ class SurvivorEffectEstimator(BaseEstimator):
             fit_outcome=self._uses_outcome_model,
             n_folds=self.n_folds,
             random_state=random_state,
+            treatment_enters_estimate=self._treatment_enters_estimate,
         )
 
     def _means(self, data, nuisance):

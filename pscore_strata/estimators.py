@@ -145,6 +145,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
 
     _formula = staticmethod(_formulas.regression_means)
     _uses_outcome_model = True
+    _treatment_enters_estimate = False
 
     def __init__(
         self,

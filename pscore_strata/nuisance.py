@@ -217,6 +217,7 @@ def fit_nuisance(
     fit_outcome=False,
     n_folds=None,
     random_state=None,
+    treatment_enters_estimate=True,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -233,6 +234,9 @@ def fit_nuisance(
         K-fold cross-fitting (folds stratified by treatment x survival) when given.
     random_state : int, RandomState or None
         Seeds the fold split.
+    treatment_enters_estimate : bool, default=True
+        ``False`` when the estimator's formula does not use ``pi`` (outcome regression), so a
+        non-default treatment model does not rule out the sandwich standard error.
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -300,16 +304,18 @@ def fit_nuisance(
                 fitted[("outcome", arm)].append(model)
 
     parametric = None
+    # The sandwich needs every model that enters the estimate to be a default GLM fitted on all
+    # rows; a treatment model that only feeds reported shares (outcome regression) may be any.
     defaults = (
         n_folds is None
-        and (treatment_model is None or known_probability)
+        and (treatment_model is None or known_probability or not treatment_enters_estimate)
         and survival_model is None
         and (outcome_model is None or not fit_outcome)
     )
     if defaults:
         design = _numeric_design(X)
         parametric = {}
-        if not known_probability:
+        if treatment_model is None:
             parametric["treatment"] = _parametric(design, np.ones(n, bool), T, pi, pi * (1 - pi), w)
         for arm in (0, 1):
             p = survival[arm]

@@ -87,3 +87,22 @@ def test_weighted_sandwich_with_integer_weights_matches_duplicated_rows_estimate
             survival=data.survival[rows],
         )
     assert weighted.effect_ == pytest.approx(duplicated.effect_, abs=1e-8)
+
+
+def test_regression_keeps_the_sandwich_with_any_treatment_model():
+    # Identity: outcome regression's estimate does not involve the treatment model, so a
+    # different treatment model changes neither the estimate nor its sandwich standard error.
+    from sklearn.ensemble import HistGradientBoostingClassifier
+
+    data = make_truncation(1500, n_features=2, random_state=14)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fits = [
+            ps.OutcomeRegression(treatment_model=model).fit(
+                data.X, data.y, treatment=data.treatment, survival=data.survival
+            )
+            for model in (None, HistGradientBoostingClassifier(max_iter=20))
+        ]
+    assert fits[1].std_error_method_ == "sandwich"
+    assert fits[1].effect_ == pytest.approx(fits[0].effect_, abs=1e-12)
+    assert fits[1].std_error_ == pytest.approx(fits[0].std_error_, rel=1e-10)
