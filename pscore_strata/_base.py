@@ -12,12 +12,13 @@ from dataclasses import replace
 import numpy as np
 import pandas as pd
 from joblib import Parallel, delayed
-from sklearn.base import BaseEstimator
+from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
 from . import _formulas
 from ._diagnostic_arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ._heterogeneity import conditional_effect, subgroup_effects
+from ._refits import _seed_models
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._summary import summary_table
 from ._validation import check_choice, check_features, check_level, check_truncation_data
@@ -311,6 +312,9 @@ class ConditionalEffectMixin:
 
 def _one_replicate(estimator, data, seed):
     rows = stratified_resample(data.treatment, seed, data.groups)
+    # Learners left at random_state=None get a seed from the replicate, so the bootstrap
+    # standard error is reproducible with random learners too.
+    estimator = _seed_models(clone(estimator), seed)
     try:
         values = estimator._refit_means(data.take(rows))
     except (ValueError, np.linalg.LinAlgError):

@@ -235,3 +235,15 @@ def test_bootstrap_fallback_counts_non_finite_refits_as_failures():
     message = r"Fewer than two of the `n_bootstrap`=5 .* n_bootstrap=0"
     with pytest.raises(RuntimeError, match=message):
         _fit(data, survival_model=_DegenerateOnRefits(), n_bootstrap=5, random_state=0)
+
+
+def test_bootstrap_fallback_is_reproducible_with_random_learners():
+    from sklearn.ensemble import RandomForestClassifier
+
+    data = make_truncation(600, random_state=1)
+    forest = RandomForestClassifier(n_estimators=10, min_samples_leaf=20)  # random_state=None
+    errors = [
+        _fit(data, survival_model=forest, n_bootstrap=10, random_state=3).std_error_
+        for _ in range(2)
+    ]
+    assert errors[0] == errors[1]
