@@ -22,7 +22,7 @@ from ._refits import _seed_models
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._summary import summary_table
 from ._validation import check_choice, check_features, check_level, check_truncation_data
-from .inference import influence_std_error, normal_interval, spawn_seeds, stratified_resample
+from .inference import influence_std_error, normal_interval, resample_rows, spawn_seeds
 from .nuisance import MonotonicityWarning, fit_nuisance, predict_models
 
 __all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
@@ -311,7 +311,7 @@ class ConditionalEffectMixin:
 
 
 def _one_replicate(estimator, data, seed):
-    rows = stratified_resample(data.treatment, seed, data.groups)
+    rows = resample_rows(data.treatment, seed, data.groups)
     # Learners left at random_state=None get a seed from the replicate, so the bootstrap
     # standard error is reproducible with random learners too.
     estimator = _seed_models(clone(estimator), seed)

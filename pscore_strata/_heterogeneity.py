@@ -16,7 +16,7 @@ from sklearn.base import is_classifier
 from . import _formulas
 from ._repeats import median_aggregate
 from ._summary import CAUTIONS
-from ._validation import check_features
+from ._validation import _one_dimensional, check_features
 from .inference import influence_std_error, normal_interval
 from .nuisance import predict_models
 
@@ -51,16 +51,7 @@ def conditional_effect(estimator, X):
 def _check_labels(labels, n_samples):
     if labels is None:
         raise ValueError("`labels` is required: pass one subgroup label per training row.")
-    if isinstance(labels, pd.DataFrame):
-        if labels.shape[1] != 1:
-            raise ValueError(
-                f"`labels` must be one-dimensional; got a DataFrame with {labels.shape[1]} "
-                "columns. Pass a single column, or combine the columns into one label first."
-            )
-        labels = labels.iloc[:, 0]
-    array = np.asarray(labels.to_numpy() if isinstance(labels, pd.Series) else labels)
-    if array.ndim != 1:
-        raise ValueError(f"`labels` must be one-dimensional; got shape {array.shape}.")
+    array = _one_dimensional(labels, "labels")
     if array.shape[0] != n_samples:
         raise ValueError(
             f"`labels` has {array.shape[0]} rows but the estimator was fitted on {n_samples}; "

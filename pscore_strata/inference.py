@@ -98,16 +98,12 @@ def spawn_seeds(random_state, n):
     return root.spawn(n)
 
 
-def stratified_resample(treatment, seed, groups=None):
-    """Row positions of one bootstrap resample, drawn within each arm (or clusters, if given)."""
+def stratified_resample(treatment, seed):
+    """Row positions of one bootstrap resample, drawn with replacement within each arm.
+
+    Cluster and unstratified schemes are in :func:`resample_rows`.
+    """
     rng = np.random.default_rng(seed)
-    if groups is not None:
-        codes, _ = pd.factorize(np.asarray(groups))
-        order = np.argsort(codes, kind="stable")
-        boundaries = np.flatnonzero(np.diff(codes[order])) + 1
-        members = np.split(order, boundaries)
-        chosen = rng.integers(0, len(members), len(members))
-        return np.concatenate([members[c] for c in chosen])
     rows = []
     for arm in (0, 1):
         arm_rows = np.flatnonzero(treatment == arm)
