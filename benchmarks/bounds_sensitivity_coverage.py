@@ -22,8 +22,8 @@ import pandas as pd
 from scipy.special import expit
 
 import pscore_strata as ps
+from pscore_strata.assumptions import adjusted_effect
 from pscore_strata.inference import influence_std_error
-from pscore_strata.sensitivity import adjusted_effect
 
 
 def population_bounds():

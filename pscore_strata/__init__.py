@@ -1,11 +1,10 @@
 """pscore_strata: survivor average causal effects for outcomes truncated by death.
 
-The public names are re-exported here; the modules hold one job each (see DEVELOPERS.md).
+The public names are re-exported here; each subpackage holds one family (see DEVELOPERS.md).
 """
 
-from . import datasets, diagnostics, plotting, simulation
-from .bootstrap import BootstrapResult, bootstrap
-from .bounds import TrimmingBounds
+from . import assumptions, datasets, diagnostics, inference, nuisance, plotting, simulation
+from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
     balance_table,
     diagnostic_warnings,
@@ -14,8 +13,8 @@ from .diagnostics import (
     weight_summary,
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from .inference import BootstrapResult, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning
-from .sensitivity import sensitivity_grid, tipping_point
 
 __version__ = "0.1.0"
 
@@ -34,6 +33,9 @@ __all__ = [
     "simulation",
     "diagnostics",
     "plotting",
+    "assumptions",
+    "inference",
+    "nuisance",
     "balance_table",
     "weight_summary",
     "overlap_summary",

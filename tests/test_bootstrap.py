@@ -13,9 +13,10 @@ from scipy import stats
 from sklearn.base import BaseEstimator
 
 import pscore_strata as ps
-from pscore_strata.bootstrap import BootstrapResult, bootstrap
 from pscore_strata.inference import (
+    BootstrapResult,
     bca_interval,
+    bootstrap,
     influence_std_error,
     jackknife_blocks,
     multiplier_contributions,
@@ -464,7 +465,7 @@ def test_bounds_give_two_named_columns(method):
 
 
 def test_trimming_bounds_if_available(small):
-    bounds = pytest.importorskip("pscore_strata.bounds")
+    bounds = pytest.importorskip("pscore_strata.assumptions._bounds")
     result = bootstrap(
         bounds.TrimmingBounds(),
         small.X,

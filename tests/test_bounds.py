@@ -9,7 +9,11 @@ from scipy import stats
 from sklearn.base import clone
 
 import pscore_strata as ps
-from pscore_strata.bounds import binary_trimmed_means, imbens_manski_interval, trimmed_means
+from pscore_strata.assumptions._bounds import (
+    binary_trimmed_means,
+    imbens_manski_interval,
+    trimmed_means,
+)
 
 
 def _quiet_fit(estimator, X, data, **kwargs):

@@ -16,10 +16,9 @@ from threadpoolctl import threadpool_limits
 
 import pscore_strata as ps
 from pscore_strata import report
-from pscore_strata.bounds import TrimmingBounds
+from pscore_strata.assumptions import TrimmingBounds, tipping_point
 from pscore_strata.cli import main
 from pscore_strata.datasets import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
-from pscore_strata.sensitivity import tipping_point
 
 ROLES = DEMO_ROLES
 COVARIATES = ["age", "female", "severity_score", "comorbidities", "pf_ratio"]

@@ -8,8 +8,8 @@ import pytest
 from scipy.special import expit
 
 import pscore_strata as ps
+from pscore_strata.assumptions._sensitivity import _Stratum, adjusted_effect
 from pscore_strata.inference import influence_std_error
-from pscore_strata.sensitivity import _Stratum, adjusted_effect
 
 ESTIMATORS = {
     "weighting": lambda **kw: ps.PrincipalScoreWeighting(n_bootstrap=0, **kw),
@@ -145,7 +145,7 @@ def test_robust_influence_function_matches_monte_carlo_spread():
 @pytest.mark.parametrize("kind", ["difference", "ratio"])
 def test_functional_partials_match_finite_differences(plain, kind):
     est = _fit("robust", plain)
-    from pscore_strata import _formulas
+    from pscore_strata.estimators import _formulas
 
     o = _formulas.orient(est.training_data_, est.nuisance_, "increasing")
     setting = (0.4, None, 0.2) if kind == "difference" else (0.0, 1.3, 0.2)
@@ -239,7 +239,7 @@ def test_estimator_errors(plain):
 def test_plots_render(plain, tmp_path):
     matplotlib = pytest.importorskip("matplotlib")
     matplotlib.use("Agg")
-    from pscore_strata.plotting_sensitivity import plot_sensitivity, plot_sensitivity_contour
+    from pscore_strata.plotting import plot_sensitivity, plot_sensitivity_contour
 
     est = _fit("robust", plain)
     ax = plot_sensitivity(est)

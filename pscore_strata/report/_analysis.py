@@ -15,38 +15,21 @@ from datetime import datetime, timezone
 import numpy as np
 
 from .. import __version__
-from ..estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from ._options import (
+    METHOD_LABELS,
+    METHODS,
+    AnalysisOptions,
+    build_estimator,
+    fit_arguments,
+    model_settings,
+    number,
+)
+from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
 from ._text import CAUTIONS, assumptions, estimand
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
 SCHEMA_VERSION = "1.0.0"
-METHODS = {
-    "weighting": PrincipalScoreWeighting,
-    "regression": OutcomeRegression,
-    "robust": MultiplyRobust,
-}
-METHOD_LABELS = {
-    "weighting": "Principal score weighting",
-    "regression": "Outcome regression",
-    "robust": "Multiply robust",
-}
-SENSITIVITY_POINTS = 21
-# Shallow trees, a small learning rate and at least 40 rows per leaf: in samples of a few
-# thousand, unregularized boosting pushes fitted probabilities to 0 or 1 and the weights explode
-# (checked on the "nonlinear" scenario: 1500 rows, SE 1.3 unregularized against 0.14 here).
-BOOSTING_PARAMS = dict(max_iter=200, learning_rate=0.05, max_leaf_nodes=8, min_samples_leaf=40)
-
-
-@dataclass(frozen=True)
-class AnalysisOptions:
-    method: str = "robust"
-    learner: str = "linear"
-    folds: int | None = None
-    bootstrap: int = 0
-    level: float = 0.95
-    monotonicity: str = "increasing"
-    seed: int = 0
 
 
 @dataclass
@@ -58,44 +41,6 @@ class Analysis:
     primary: object = None
     covariates: object = None
     bounds: object = None
-
-
-def _models(options):
-    """Nuisance models and fold count for the chosen learner."""
-    if options.learner == "linear":
-        return {}, options.folds
-    from sklearn.ensemble import HistGradientBoostingClassifier
-
-    classifier = HistGradientBoostingClassifier(random_state=options.seed, **BOOSTING_PARAMS)
-    models = {"treatment_model": classifier, "survival_model": classifier}
-    return models, options.folds or 5
-
-
-def build_estimator(method, options):
-    """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
-    models, folds = _models(options)
-    params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed)  # fmt: skip
-    if method != "weighting" and models:
-        from sklearn.ensemble import HistGradientBoostingRegressor
-
-        params["outcome_model"] = HistGradientBoostingRegressor(
-            random_state=options.seed, **BOOSTING_PARAMS
-        )
-    if method != "robust" and models:
-        # The refitting bootstrap inside these estimators would refit every boosting model
-        # hundreds of times; --bootstrap N runs it once, for the primary estimator, instead.
-        params["n_bootstrap"] = 0
-    return METHODS[method](**params)
-
-
-def _fit_arguments(data):
-    return dict(
-        treatment=data.treatment,
-        survival=data.survival,
-        sample_weight=data.sample_weight,
-        groups=data.groups,
-    )
 
 
 class _Collector:
@@ -124,11 +69,6 @@ class _Collector:
         return [f"{'; '.join(steps)}: {text}" for text, steps in self.steps.items()]
 
 
-def _number(value):
-    value = float(value)
-    return value if np.isfinite(value) else None
-
-
 def _overview(data, roles):
     arms = []
     w = np.ones(len(data.treatment)) if data.sample_weight is None else data.sample_weight
@@ -140,11 +80,11 @@ def _overview(data, roles):
             "arm": label,
             "n": int(rows.sum()),
             "n_survivors": int(survivors.sum()),
-            "survival_share": _number(np.sum(w[rows] * data.survival[rows]) / np.sum(w[rows])),
-            "outcome_mean_survivors": _number(np.average(y, weights=w[survivors]))
+            "survival_share": number(np.sum(w[rows] * data.survival[rows]) / np.sum(w[rows])),
+            "outcome_mean_survivors": number(np.average(y, weights=w[survivors]))
             if y.size else None,
             # Weighted like the mean beside it (np.cov with aweights: ddof=1 for unit weights).
-            "outcome_sd_survivors": _number(np.sqrt(np.cov(y, aweights=w[survivors])))
+            "outcome_sd_survivors": number(np.sqrt(np.cov(y, aweights=w[survivors])))
             if y.size > 1 else None,
         })  # fmt: skip
     return {
@@ -183,7 +123,7 @@ def _method_notes(estimator, notes):
     The cautions and diagnostic warnings that the summary repeats have their own sections in
     the report, so they are left out here.
     """
-    from .._summary import CAUTIONS as SUMMARY_CAUTIONS
+    from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
 
     repeated = {SUMMARY_CAUTIONS}
     try:
@@ -200,158 +140,14 @@ def _summary_rows(estimator, level):
     rows = {}
     for name, row in table.iterrows():
         rows[name] = {
-            "estimate": _number(row["estimate"]),
-            "std_error": _number(row["std_error"]),
-            "ci_low": _number(row["ci_low"]),
-            "ci_high": _number(row["ci_high"]),
+            "estimate": number(row["estimate"]),
+            "std_error": number(row["std_error"]),
+            "ci_low": number(row["ci_low"]),
+            "ci_high": number(row["ci_high"]),
         }
     shares = {key.replace("share ", "").replace("-", "_"): value for key, value in rows.items()
               if key.startswith("share ")}  # fmt: skip
     return shares, rows["naive survivor contrast (biased)"]
-
-
-def _bootstrap(collector, options, data):
-    from ..bootstrap import bootstrap
-
-    template = build_estimator(options.method, options)
-    result = collector.run(
-        f"bootstrap: {options.bootstrap} resamples refitting every model",
-        bootstrap,
-        template,
-        data.design,
-        data.outcome,
-        n_resamples=options.bootstrap,
-        random_state=options.seed,
-        progress=None,
-        **_fit_arguments(data),
-    )
-    low, high = result.conf_int(options.level, kind="percentile")
-    return {
-        "n_resamples": int(result.n_resamples),
-        "n_failed": int(result.n_failed),
-        "method": str(result.method),
-        "estimate": float(result.estimate),
-        "std_error": float(result.std_error),
-        "ci_low": float(low),
-        "ci_high": float(high),
-        "interval": "percentile",
-        "notes": list(result.notes),
-    }
-
-
-def _diagnostics(collector, primary, covariates):
-    from .. import diagnostics
-
-    out = {"warnings": [], "balance": [], "effective_sample_size": {}, "weights": []}
-    out["warnings"] = list(
-        collector.run("diagnostics", diagnostics.diagnostic_warnings, primary, covariates)
-    )
-    if covariates is not None:
-        table = diagnostics.balance_table(primary, covariates)
-        for name, row in table.iterrows():
-            out["balance"].append({
-                "covariate": str(name),
-                "raw_smd_treated_vs_control": _number(row["raw_smd_treated_vs_control"]),
-                "smd_treated_vs_control": _number(row["smd_treated_vs_control"]),
-                "smd_treated_vs_everyone": _number(row["smd_treated_vs_everyone"]),
-                "smd_control_vs_everyone": _number(row["smd_control_vs_everyone"]),
-            })  # fmt: skip
-        ess = table.attrs["effective_sample_size"]
-        out["effective_sample_size"] = {k: _number(v) for k, v in ess.items()}
-    for name, row in diagnostics.weight_summary(primary).iterrows():
-        out["weights"].append({
-            "weights": str(name),
-            "n_rows": int(row["n_rows"]),
-            "median": _number(row["median"]),
-            "max": _number(row["max"]),
-            "max_over_median": _number(row["max_over_median"]),
-            "effective_sample_size": _number(row["effective_sample_size"]),
-        })  # fmt: skip
-    overlap = diagnostics.overlap_summary(primary).attrs
-    out["share_treatment_probability_outside_0.05_0.95"] = _number(
-        overlap["share_treatment_outside_bounds"]
-    )
-    out["share_always_survivor_score_below_0.05"] = _number(
-        overlap["share_always_survivor_below_floor"]
-    )
-    out["n_monotonicity_violations"] = int(primary.n_monotonicity_violations_)
-    return out
-
-
-def _bounds(collector, options, data):
-    from ..bounds import TrimmingBounds
-
-    models, _ = _models(options)
-    bounds = TrimmingBounds(monotonicity=options.monotonicity, **models)
-    collector.run(
-        "bounds without principal ignorability",
-        bounds.fit,
-        data.design,
-        data.outcome,
-        **_fit_arguments(data),
-    )
-    low, high = bounds.conf_int(options.level)
-    record = {
-        "lower": float(bounds.lower_),
-        "upper": float(bounds.upper_),
-        "std_error_lower": _number(bounds.std_error_lower_),
-        "std_error_upper": _number(bounds.std_error_upper_),
-        "ci_low": _number(low),
-        "ci_high": _number(high),
-        "interval": "Imbens-Manski (covers the true SACE)",
-        "trimming_share": float(bounds.trimming_share_),
-        "notes": list(bounds.summary(options.level).attrs["notes"][:3]),
-    }
-    return record, bounds
-
-
-def _sensitivity(collector, primary, data, level):
-    from ..sensitivity import sensitivity_grid, tipping_point
-
-    spread = float(np.nanstd(data.outcome[data.survival == 1], ddof=1)) or 1.0
-    label = "sensitivity analysis"
-    tips = {}
-    for parameter in ("pi_difference", "harmed_ratio"):
-        value = collector.run(label, tipping_point, primary, parameter, level=level)
-        tips[parameter] = _number(value)
-    # The grids reach a little past the tipping points so that the figure shows them.
-    reach = max(0.5 * spread, 1.25 * abs(tips["pi_difference"] or 0.0))
-    deltas = np.round(np.linspace(-reach, reach, SENSITIVITY_POINTS), 10)
-    top = min(0.95, max(0.5, 1.1 * (tips["harmed_ratio"] or 0.0)))
-    harmed = np.round(np.linspace(0.0, top, 11), 4)
-
-    def rows(table, parameter):
-        return [
-            {
-                "value": float(r[parameter]),
-                "effect": float(r["effect"]),
-                "std_error": _number(r["std_error"]),
-                "ci_low": _number(r["ci_low"]),
-                "ci_high": _number(r["ci_high"]),
-            }
-            for _, r in table.iterrows()
-        ]
-
-    grid_pi = collector.run(label, sensitivity_grid, primary, pi_difference=deltas, level=level)
-    grid_mono = collector.run(
-        label, sensitivity_grid, primary, harmed_ratio=harmed.tolist(), level=level
-    )
-    return {
-        "pi_difference": {
-            "description": "Mean outcome under treatment of the helped stratum minus that of the "
-            "always-survivors with the same covariates (0 = principal ignorability).",
-            "outcome_sd_survivors": spread,
-            "grid": rows(grid_pi, "pi_difference"),
-            "tipping_point": tips["pi_difference"],
-        },
-        "harmed_ratio": {
-            "description": "Size of the stratum that monotonicity rules out relative to the "
-            "helped stratum (0 = monotonicity).",
-            "grid": rows(grid_mono, "harmed_ratio"),
-            "tipping_point": tips["harmed_ratio"],
-        },
-        "criterion": f"the {level:.0%} confidence interval first covers 0",
-    }
 
 
 def _unavailable(name, error):
@@ -384,7 +180,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             estimator.fit,
             data.design,
             data.outcome,
-            **_fit_arguments(data),
+            **fit_arguments(data),
         )
         estimators[method] = estimator
     primary = estimators[options.method]
@@ -398,7 +194,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         "settings": {
             "method": options.method,
             "learner": options.learner,
-            "folds": _models(options)[1],
+            "folds": model_settings(options)[1],
             "bootstrap_resamples": options.bootstrap,
             "level": options.level,
             "monotonicity": options.monotonicity,
@@ -413,18 +209,21 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         "stratum_shares": shares,
         "naive_survivor_contrast": naive,
     }
-    results["bootstrap"] = _bootstrap(collector, options, data) if options.bootstrap else None
+    if options.bootstrap:
+        results["bootstrap"] = bootstrap_section(collector, options, data)
+    else:
+        results["bootstrap"] = None
     analysis = Analysis(results, estimators, primary, data.covariates)
     try:
-        results["diagnostics"] = _diagnostics(collector, primary, data.covariates)
+        results["diagnostics"] = diagnostics_section(collector, primary, data.covariates)
     except ImportError as error:
         results["diagnostics"] = _unavailable("Diagnostics", error)
     try:
-        results["bounds"], analysis.bounds = _bounds(collector, options, data)
+        results["bounds"], analysis.bounds = bounds_section(collector, options, data)
     except (ImportError, ValueError) as error:
         results["bounds"] = _unavailable("Bounds", error)
     try:
-        results["sensitivity"] = _sensitivity(collector, primary, data, options.level)
+        results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
     except ImportError as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)
     results["assumptions"] = assumptions(roles, options.monotonicity)

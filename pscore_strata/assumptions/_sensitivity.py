@@ -2,9 +2,10 @@
 
 Every quantity is a formula over the per-row nuisance predictions a fitted estimator stored
 (``est.nuisance_``, ``est.training_data_``), written in the oriented view of
-:func:`pscore_strata._formulas.orient`: the *mixed* arm's survivors are always-survivors plus the
-*helped* stratum (protected units when treatment can only help survival), the *pure* arm's are
-always-survivors plus the *opposite* stratum, which monotonicity rules out.
+:func:`pscore_strata.estimators._formulas.orient`: the *mixed* arm's survivors are
+always-survivors plus the *helped* stratum (protected units when treatment can only help
+survival), the *pure* arm's are always-survivors plus the *opposite* stratum, which monotonicity
+rules out.
 
 Parameters (Ding & Lu 2017, section 5; Jiang, Yang & Ding 2022, section 6):
 
@@ -23,20 +24,18 @@ from __future__ import annotations
 
 import itertools
 import numbers
-import warnings
 
 import numpy as np
 import pandas as pd
-from scipy import optimize
 from sklearn.utils.validation import check_is_fitted
 
-from . import _formulas
-from ._repeats import median_aggregate
-from ._summary import CAUTIONS
-from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
-from .inference import influence_std_error, normal_interval
+from ..estimators import _formulas
+from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from ..estimators._repeats import median_aggregate
+from ..estimators._summary import CAUTIONS
+from ..inference._influence import influence_std_error, normal_interval
 
-__all__ = ["sensitivity_grid", "tipping_point", "adjusted_effect"]
+__all__ = ["sensitivity_grid", "adjusted_effect"]
 
 _NULL = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
 
@@ -355,97 +354,3 @@ def sensitivity_grid(
         CAUTIONS,
     ]
     return table
-
-
-def tipping_point(
-    estimator, parameter="pi_difference", *, criterion="interval", level=0.95, search=None
-):
-    """Smallest departure from the null value at which the conclusion about the sign flips.
-
-    Parameters
-    ----------
-    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
-    parameter : {"pi_difference", "pi_ratio", "harmed_ratio"}, default="pi_difference"
-    criterion : {"interval", "estimate"}, default="interval"
-        ``"interval"``: where the confidence interval first covers the null effect (0, or 1
-        on ratio scales); ``"estimate"``: where the estimate reaches it.
-    level : float, default=0.95
-    search : (float, float), optional
-        Range of the parameter to search; defaults to ``±20`` outcome standard deviations for
-        ``pi_difference``, ``[1/50, 50]`` for ``pi_ratio`` and ``[0, 0.999]`` for
-        ``harmed_ratio``.
-
-    Returns
-    -------
-    float
-        The parameter value nearest the null value (on the log scale for ``pi_ratio``) at which
-        the criterion is met, found by Brent's method on the no-refit formulas; ``0``/``1`` if
-        it is met at the null already; NaN (with a warning) if not met inside ``search``.
-
-    Examples
-    --------
-    >>> import pscore_strata as ps
-    >>> data = ps.datasets.make_truncation(2000, random_state=0)
-    >>> est = ps.OutcomeRegression().fit(
-    ...     data.X, data.y, treatment=data.treatment, survival=data.survival)
-    >>> delta = ps.tipping_point(est)
-    >>> row = ps.sensitivity_grid(est, pi_difference=delta)
-    >>> round(float(row["ci_low"].iloc[0]), 6) == 0
-    True
-    """
-    _check_estimator(estimator)
-    if parameter not in _NULL:
-        raise ValueError(f"`parameter` must be one of {list(_NULL)}; got {parameter!r}.")
-    if criterion not in ("interval", "estimate"):
-        raise ValueError(f"`criterion` must be 'interval' or 'estimate'; got {criterion!r}.")
-    data = estimator.training_data_
-    null_effect = 0.0 if estimator.scale == "difference" else 1.0
-    log_scale = estimator.scale != "difference"
-    sign = np.sign(estimator.effect_ - null_effect)
-
-    def distance(value):
-        effect, se, _ = _effect_and_error(estimator, {parameter: _check_value(parameter, value)})
-        if criterion == "estimate":
-            return sign * (effect - null_effect)
-        low, high = normal_interval(effect, se, level, log_scale)
-        return low - null_effect if sign > 0 else null_effect - high
-
-    null = _NULL[parameter]
-    if distance(null) <= 0:
-        return null
-    if search is None:
-        spread = float(np.nanstd(data.outcome[data.survival == 1])) or 1.0
-        search = {
-            "pi_difference": (-20 * spread, 20 * spread),
-            "pi_ratio": (1 / 50, 50.0),
-            "harmed_ratio": (0.0, 0.999),
-        }[parameter]
-    found = []
-    for end in search:
-        if end == null:
-            continue
-        points = _path(null, end, parameter)
-        previous = null
-        for point in points:
-            if distance(point) <= 0:
-                found.append(optimize.brentq(distance, previous, point, xtol=1e-10))
-                break
-            previous = point
-    if not found:
-        warnings.warn(
-            f"The {criterion} does not reach the null effect for {parameter} in {search}; "
-            "returning NaN.",
-            UserWarning,
-            stacklevel=2,
-        )
-        return float("nan")
-    if parameter == "pi_ratio":
-        return float(min(found, key=lambda v: abs(np.log(v))))
-    return float(min(found, key=lambda v: abs(v - null)))
-
-
-def _path(null, end, parameter, n_points=40):
-    """Points from the null value towards ``end`` (geometric for ratios), for bracketing."""
-    if parameter == "pi_ratio":
-        return np.exp(np.linspace(np.log(null), np.log(end), n_points + 1)[1:])
-    return np.linspace(null, end, n_points + 1)[1:]

@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..diagnostics._tables import diagnostic_warnings
+from ..inference._influence import influence_std_error, normal_interval
 from ._repeats import median_aggregate
-from .diagnostics import diagnostic_warnings
-from .inference import influence_std_error, normal_interval
 
 __all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
 

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 from sklearn.exceptions import NotFittedError
 
-from . import _formulas
+from ..estimators import _formulas
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
 SMD_THRESHOLD = 0.1

@@ -15,9 +15,8 @@ import pandas as pd
 from joblib import delayed
 from sklearn.base import clone
 
-from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
-from ._validation import check_choice, check_level
-from .inference import (
+from .._validation import check_choice, check_level
+from ._influence import (
     bca_interval,
     influence_acceleration,
     multiplier_contributions,
@@ -27,6 +26,7 @@ from .inference import (
     run_tasks,
     spawn_seeds,
 )
+from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
 
 __all__ = ["bootstrap", "BootstrapResult"]
 

@@ -21,10 +21,10 @@ from scipy import optimize, stats
 from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
-from . import _formulas
-from ._validation import check_choice, check_level, check_truncation_data
-from .inference import influence_std_error
-from .nuisance import MonotonicityWarning, fit_nuisance
+from .._validation import check_choice, check_level, check_truncation_data
+from ..estimators import _formulas
+from ..inference._influence import influence_std_error
+from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 
 __all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
 

@@ -6,13 +6,13 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from ._diagnostic_arrays import (
+from .._validation import check_level
+from ._arrays import (
     effective_sample_size,
     fitted_scores,
     oriented_predictions,
     treated_indicator,
 )
-from ._validation import check_level
 
 __all__ = ["monotonicity_check"]
 

@@ -10,8 +10,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from . import _diagnostic_arrays as arrays
-from . import diagnostics
+from .. import diagnostics
+from ..diagnostics import _arrays as arrays
 
 __all__ = ["plot_balance", "plot_overlap", "plot_weights"]
 

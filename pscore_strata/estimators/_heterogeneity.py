@@ -3,8 +3,8 @@
 Under principal ignorability, ``m_t(X) = E[Y | T=t, S=1, X]`` equals ``E[Y(t) | always-survivor,
 X]`` (Jiang, Yang & Ding 2022, section 3), so ``m1(X) - m0(X)`` is the always-survivor effect given
 ``X``. A subgroup SACE applies the estimator's own formula with every estimating function
-restricted to the subgroup (``subset`` in :mod:`pscore_strata._formulas`); the fitted nuisance
-models are reused as they are.
+restricted to the subgroup (``subset`` in :mod:`._formulas`); the fitted nuisance models are
+reused as they are.
 """
 
 from __future__ import annotations
@@ -13,12 +13,12 @@ import numpy as np
 import pandas as pd
 from sklearn.base import is_classifier
 
+from .._validation import _one_dimensional, check_features
+from ..inference._influence import influence_std_error, normal_interval
+from ..nuisance._fit import predict_models
 from . import _formulas
 from ._repeats import median_aggregate
 from ._summary import CAUTIONS
-from ._validation import _one_dimensional, check_features
-from .inference import influence_std_error, normal_interval
-from .nuisance import predict_models
 
 __all__ = ["conditional_effect", "subgroup_effects"]
 

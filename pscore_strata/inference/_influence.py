@@ -16,7 +16,7 @@ import pandas as pd
 from joblib import Parallel
 from scipy import stats
 
-from ._validation import check_level
+from .._validation import check_level
 
 __all__ = [
     "influence_std_error",

@@ -1,8 +1,8 @@
 """Estimators of the survivor average causal effect (SACE).
 
 Each class is a thin scikit-learn estimator over the shared machinery: validation, the nuisance
-layer (:mod:`pscore_strata.nuisance`), one estimand formula (:mod:`pscore_strata._formulas`) and
-the shared fit and result logic (:mod:`pscore_strata._base`).
+layer (:mod:`pscore_strata.nuisance`), one estimand formula (:mod:`._formulas`) and the shared
+fit and result logic (:mod:`._base`).
 """
 
 from __future__ import annotations

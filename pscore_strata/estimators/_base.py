@@ -1,7 +1,7 @@
 """Shared machinery of the SACE estimators: fitting, repeats, bootstrap fallback, results.
 
 A concrete estimator (:mod:`pscore_strata.estimators`) only names its estimand formula from
-:mod:`pscore_strata._formulas` and whether it needs the outcome model.
+:mod:`pscore_strata.estimators._formulas` and whether it needs the outcome model.
 """
 
 from __future__ import annotations
@@ -15,15 +15,15 @@ from joblib import Parallel, delayed
 from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
+from .._validation import check_choice, check_features, check_level, check_truncation_data
+from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
+from ..inference._influence import influence_std_error, normal_interval, resample_rows, spawn_seeds
+from ..inference._refits import _seed_models
+from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from . import _formulas
-from ._diagnostic_arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ._heterogeneity import conditional_effect, subgroup_effects
-from ._refits import _seed_models
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._summary import summary_table
-from ._validation import check_choice, check_features, check_level, check_truncation_data
-from .inference import influence_std_error, normal_interval, resample_rows, spawn_seeds
-from .nuisance import MonotonicityWarning, fit_nuisance, predict_models
 
 __all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
 

@@ -19,7 +19,7 @@ from sklearn.model_selection import StratifiedKFold
 from sklearn.pipeline import Pipeline
 from sklearn.utils.validation import has_fit_parameter
 
-from ._validation import EXTREME_PROBABILITY
+from .._validation import EXTREME_PROBABILITY
 
 __all__ = [
     "NuisanceFit",

@@ -6,7 +6,7 @@ import numbers
 
 import numpy as np
 
-from .datasets import SCENARIOS
+from ..datasets import SCENARIOS
 
 
 def check_estimators(estimators):

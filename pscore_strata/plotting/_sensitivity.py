@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .sensitivity import _NULL, sensitivity_grid, tipping_point
+from ..assumptions._sensitivity import _NULL, sensitivity_grid
+from ..assumptions._tipping import tipping_point
 
 __all__ = ["plot_sensitivity", "plot_sensitivity_contour"]
 

@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ._diagnostic_arrays import (
+from ._arrays import (
     PROBABILITY_BOUNDS,
     ROW_SHARE_TOLERANCE,
     SCORE_FLOOR,

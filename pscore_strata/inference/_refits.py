@@ -16,7 +16,7 @@ import pandas as pd
 from joblib import Parallel, delayed
 from sklearn.base import clone
 
-from .inference import jackknife_acceleration, jackknife_blocks, resample_rows
+from ._influence import jackknife_acceleration, jackknife_blocks, resample_rows
 
 REFIT_ERRORS = (ValueError, np.linalg.LinAlgError)
 
