@@ -9,8 +9,19 @@ from pathlib import Path
 
 __all__ = ["write_report", "render_html", "schema"]
 
-TEMPLATE = "template.html"
+TEMPLATE = "report.html"
 SCHEMA = "results.schema.json"
+# The report's numbered sections, in order; each is ``templates/section_<name>.html``.
+SECTIONS = (
+    "estimand",
+    "data",
+    "estimates",
+    "diagnostics",
+    "bounds",
+    "sensitivity",
+    "assumptions",
+    "cautions",
+)
 
 
 def schema():
@@ -56,6 +67,7 @@ def _view(results, figures):
             selected.append(grid[-1])
     return {
         "r": results,
+        "sections": SECTIONS,
         "level": level,
         "primary": primary,
         "balance": balance,
@@ -75,11 +87,14 @@ def render_html(results, figures):
         raise ImportError(
             "The HTML report needs jinja2 and matplotlib: pip install 'pscore_strata[report]'."
         ) from error
-    text = resources.files("pscore_strata.report").joinpath(TEMPLATE).read_text(encoding="utf-8")
     environment = jinja2.Environment(
-        autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True
+        loader=jinja2.PackageLoader("pscore_strata.report", "templates"),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
     )
-    return environment.from_string(text).render(**_view(results, figures))
+    return environment.get_template(TEMPLATE).render(**_view(results, figures))
 
 
 def write_report(analysis, out_dir):
