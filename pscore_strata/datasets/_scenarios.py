@@ -53,12 +53,12 @@ SCENARIOS = {
         description="100 covariates of which 3 matter.",
     ),
     # Missing at random given X: complete-case analysis is biased in both (the effect varies
-    # with x2, and losses depend on x2 differently in the two arms).
+    # with x2, and losses depend on x2).
     "lost_to_follow_up": dict(
         settings={"effect_heterogeneity": 0.5}, knobs={},
-        missing={"follow_up": {"treated": (0.75, -1.0), "control": (0.85, 1.0)}},
-        description="Survival status unknown for about a fifth of units, more often at high "
-                    "x2 when treated and at low x2 under control; the effect rises with x2.",
+        missing={"follow_up": {"treated": (0.7, -1.5), "control": (0.8, -1.5)}},
+        description="Survival status unknown for about a quarter of units, mostly at high x2, "
+                    "where the effect is largest: complete cases understate the SACE.",
     ),
     "missing_outcomes": dict(
         settings={"effect_heterogeneity": 0.5}, knobs={},
