@@ -59,6 +59,7 @@ def _options(args):
         level=args.level,
         monotonicity=args.monotonicity,
         seed=args.seed,
+        missing=args.missing,
     )
 
 
@@ -79,6 +80,12 @@ def _print_key_results(results, out_dir):
     if "lower" in bounds:
         print(f"  {'Bounds (no princ. ignor.)':<27} {bounds['lower']:>10.3f} to "
               f"{bounds['upper']:.3f}")  # fmt: skip
+    missing = results.get("missing_data") or {}
+    for arm in missing.get("by_arm", []):
+        print(f"  Missing data, {arm['arm']}: status unknown {arm['n_status_unknown']} "
+              f"({arm['share_status_unknown']:.1%}), outcome missing {arm['n_outcome_missing']} "
+              f"of {arm['n_known_survivors']} known survivors "
+              f"({arm['share_outcome_missing']:.1%}); assumed missing at random")  # fmt: skip
     naive = results["naive_survivor_contrast"]
     print(f"  {'Naive survivor contrast':<27} {naive['estimate']:>10.3f}   (biased; comparison)")
     sens = results.get("sensitivity", {})
@@ -264,6 +271,14 @@ def build_parser():
         choices=("increasing", "decreasing"),
         default="increasing",
         help="increasing: treatment can only help survival (default)",
+    )
+    analyze.add_argument(
+        "--missing",
+        choices=("error", "at_random"),
+        default="error",
+        help="at_random: blank survival = status unknown (lost to follow-up), blank outcome of "
+        "a survivor = not observed; both assumed missing at random given the covariates within "
+        "each arm (default: error)",
     )
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")
