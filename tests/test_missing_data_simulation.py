@@ -73,7 +73,10 @@ def test_coverage_of_95_percent_intervals_over_300_replicates(cls):
         errors.append(est.effect_ - data.true_effect)
         ses.append(est.std_error_)
     assert 0.92 <= np.mean(hits) <= 0.98
-    assert 0.8 < np.mean(ses) / np.std(errors) < 1.25
+    # Inverse-probability weights give the estimates heavy tails at n = 2000, so the spread is
+    # measured robustly (interquartile range / 1.349, the normal's SD).
+    spread = np.subtract(*np.percentile(errors, [75, 25])) / 1.349
+    assert 0.8 < np.median(ses) / spread < 1.25
 
 
 def _mnar_data(n, seed, shift, response):

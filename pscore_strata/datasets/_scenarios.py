@@ -63,9 +63,10 @@ SCENARIOS = {
     "missing_outcomes": dict(
         settings={"effect_heterogeneity": 0.5}, knobs={},
         missing={"follow_up": (0.9, 0.5),
-                 "response": {"treated": (0.65, -1.2), "control": (0.8, 0.8)}},
-        description="A tenth of units lost to follow-up and a quarter of survivors without "
-                    "an outcome, both depending on x2 (which drives the effect).",
+                 "response": {"treated": (0.7, -1.5), "control": (0.7, 1.5)}},
+        description="A tenth of units lost to follow-up and 30% of survivors without an "
+                    "outcome, both depending on x2 (which drives the effect), in opposite "
+                    "directions in the two arms.",
     ),
 }
 
