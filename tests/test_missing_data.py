@@ -255,3 +255,60 @@ def test_cross_fitting_and_refitting_bootstrap_cover_the_new_models():
                           treatment=data.treatment, survival=data.survival, n_resamples=10,
                           random_state=0)  # fmt: skip
     assert np.isfinite(result.std_error)
+
+
+def test_simulator_missingness_follows_the_requested_probabilities():
+    # Source: the simulator's own probabilities (law of large numbers) and its known truth.
+    plain = make_truncation(50_000, random_state=11)
+    data = make_truncation(50_000, follow_up=(0.8, 1.0), response={"treated": 0.6,
+                           "control": (0.9, -0.5)}, random_state=11)  # fmt: skip
+    np.testing.assert_array_equal(data.survival_full, plain.survival)  # same draws before
+    assert data.true_effect == plain.true_effect
+    assert np.mean(data.status_known) == pytest.approx(np.mean(data.follow_up_probability),
+                                                       abs=0.01)  # fmt: skip
+    treated_known_survivors = (data.treatment == 1) & (data.status_known == 1) & (
+        data.survival_full == 1)
+    assert np.mean(data.outcome_observed[treated_known_survivors]) == pytest.approx(0.6, abs=0.01)
+    assert np.all(np.isnan(data.survival) == (data.status_known == 0))
+    assert np.all(np.isnan(data.y) == (data.outcome_observed == 0))
+    with pytest.raises(ValueError, match="follow_up probability must be above 0"):
+        make_truncation(100, follow_up=0.0)
+    with pytest.raises(TypeError, match="response must be None"):
+        make_truncation(100, response="high")
+    with pytest.raises(ValueError, match="'treated' and 'control'"):
+        make_truncation(100, response={"treated": 0.5})
+
+
+def test_outcome_shift_interface():
+    data = _mar_data(1500, 12)
+    est = _fit(ps.OutcomeRegression, data)
+    both = ps.sensitivity_grid(est, outcome_shift=0.5)
+    per_arm = ps.sensitivity_grid(est, outcome_shift={"treated": [0.5], "control": [0.5]})
+    # Identity: the same shift in both arms, given either way, is the same analysis.
+    assert both["effect"].iloc[0] == pytest.approx(per_arm["effect"].iloc[0], abs=1e-12)
+    assert list(per_arm.columns[:2]) == ["outcome_shift_treated", "outcome_shift_control"]
+    with pytest.raises(ValueError, match="on its own"):
+        ps.sensitivity_grid(est, outcome_shift=[0.0], pi_difference=[0.0])
+    with pytest.raises(ValueError, match="'treated' and 'control'"):
+        ps.sensitivity_grid(est, outcome_shift={"treated": [1.0]})
+    complete = make_truncation(500, random_state=1)
+    plain = ps.OutcomeRegression().fit(complete.X, complete.y, treatment=complete.treatment,
+                                       survival=complete.survival)  # fmt: skip
+    with pytest.raises(ValueError, match="without missing outcomes"):
+        ps.sensitivity_grid(plain, outcome_shift=[0.0])
+
+
+def test_bounds_with_missing_data_use_the_weighted_observed_survivors():
+    # Source: simulated truth (randomized design, principal ignorability holds, so the truth
+    # lies inside the bounds) and the bounds of the full data before blanking.
+    data = _mar_data(20_000, 13, design="randomized")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        bounds = ps.TrimmingBounds(missing="at_random").fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival)
+        full = ps.TrimmingBounds().fit(data.X, data.y_full, treatment=data.treatment,
+                                       survival=data.survival_full)  # fmt: skip
+    assert bounds.lower_ < data.true_effect < bounds.upper_
+    assert bounds.lower_ == pytest.approx(full.lower_, abs=3 * bounds.std_error_lower_)
+    assert bounds.upper_ == pytest.approx(full.upper_, abs=3 * bounds.std_error_upper_)
+    assert bounds.std_error_lower_ > full.std_error_lower_  # less information

@@ -29,11 +29,11 @@ import numpy as np
 import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
+from .._validation import check_level
 from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
-from .._validation import check_level
 from ..inference._influence import influence_std_error, normal_interval
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
