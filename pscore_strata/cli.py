@@ -167,7 +167,9 @@ def _simulate(args):
     data = make_scenario(args.scenario, args.n, random_state=args.seed)
     frame = pd.DataFrame(data.X, columns=[f"x{j + 1}" for j in range(data.X.shape[1])])
     frame["treatment"] = np.asarray(data.treatment, dtype=int)
-    frame["survival"] = np.asarray(data.survival, dtype=int)
+    # Scenarios with missing data leave survival blank where the status is unknown.
+    survival = np.asarray(data.survival, dtype=float)
+    frame["survival"] = survival if np.isnan(survival).any() else survival.astype(int)
     frame["outcome"] = data.y
     if data.get("groups") is not None:
         frame["cluster"] = data.groups
@@ -181,7 +183,9 @@ def _simulate(args):
           f"{data.true_effect:.4f}.")  # fmt: skip
     print(f"Analyse it with: pscore-strata analyze {out} --outcome outcome --treatment treatment "
           f"--survival survival --covariates {covariates}"
-          + (" --cluster cluster" if "cluster" in frame else ""))  # fmt: skip
+          + (" --cluster cluster" if "cluster" in frame else "")
+          + (" --missing at_random" if frame[["survival", "outcome"]].isna().any().any()
+             and "status_known" in data else ""))  # fmt: skip
     return 0
 
 

@@ -312,3 +312,17 @@ def test_bounds_with_missing_data_use_the_weighted_observed_survivors():
     assert bounds.lower_ == pytest.approx(full.lower_, abs=3 * bounds.std_error_lower_)
     assert bounds.upper_ == pytest.approx(full.upper_, abs=3 * bounds.std_error_upper_)
     assert bounds.std_error_lower_ > full.std_error_lower_  # less information
+
+
+def test_missing_data_summary_counts_by_arm():
+    # Source: counts recomputed directly from the simulated arrays.
+    data = _mar_data(2000, 14)
+    est = _fit(ps.PrincipalScoreWeighting, data)
+    table = ps.diagnostics.missing_data_summary(est)
+    for arm, label in ((1, "treated"), (0, "control")):
+        rows = data.treatment == arm
+        assert table.loc[label, "n_status_unknown"] == np.sum(rows & np.isnan(data.survival))
+        missing = rows & (data.survival == 1) & np.isnan(data.y)
+        assert table.loc[label, "n_outcome_missing"] == missing.sum()
+        assert table.loc[label, "share_status_unknown"] == pytest.approx(
+            np.mean(np.isnan(data.survival[rows])))

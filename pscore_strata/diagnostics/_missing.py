@@ -15,7 +15,7 @@ import pandas as pd
 
 from ._arrays import PROBABILITY_BOUNDS, ROW_SHARE_TOLERANCE, SMD_THRESHOLD, oriented_predictions
 
-__all__ = ["missing_data_balance", "missing_data_warnings"]
+__all__ = ["missing_data_balance", "missing_data_summary", "missing_data_warnings"]
 
 
 def _groups(estimator):
@@ -36,6 +36,22 @@ def _groups(estimator):
         survivors = in_arm * C * S
         groups[("response", label)] = (w * survivors, w * survivors * R, w * survivors * R / r)
     return groups
+
+
+def missing_data_summary(estimator):
+    """Counts and shares of unknown survival status and of missing outcomes, by arm.
+
+    Returns
+    -------
+    DataFrame indexed by arm (``treated``, ``control``)
+        ``n``, ``n_status_unknown``, ``share_status_unknown`` (weighted, of the arm),
+        ``n_known_survivors``, ``n_outcome_missing``, ``share_outcome_missing`` (weighted, of
+        the known survivors). All zero when nothing was missing.
+    """
+    from ..nuisance._missing import missingness_counts
+
+    oriented_predictions(estimator)  # a clear error for unfitted estimators
+    return pd.DataFrame(missingness_counts(estimator.training_data_)).set_index("arm")
 
 
 def missing_data_balance(estimator, X):
