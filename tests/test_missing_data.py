@@ -326,3 +326,56 @@ def test_missing_data_summary_counts_by_arm():
         assert table.loc[label, "n_outcome_missing"] == missing.sum()
         assert table.loc[label, "share_status_unknown"] == pytest.approx(
             np.mean(np.isnan(data.survival[rows])))
+
+
+@pytest.mark.parametrize("key, kind, arm", [("c_mixed", "follow_up", 1), ("c_pure", "follow_up", 0),
+                                            ("r_mixed", "response", 1), ("r_pure", "response", 0)])
+def test_bounds_terms_of_follow_up_and_response_models_match_numerical_derivatives(key, kind,
+                                                                                   arm):
+    # Reference: the delta method (Stefanski & Boos 2002). The term a fitted logistic model adds
+    # to a bound's influence values must be I_i . d bound / d gamma, with I_i the model's
+    # influence rows (from its statsmodels fit) and the derivative by central differences.
+    from pscore_strata._validation import check_truncation_data
+
+    data = _mar_data(3000, 15)
+    d = check_truncation_data(data.X, data.y, data.treatment, data.survival, missing="at_random")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        nuisance = fit_nuisance(d)
+    bounds = ps.TrimmingBounds(missing="at_random")
+    cells = np.zeros(d.n_samples, dtype=int)
+
+    def compute(nuisance, drop=None):
+        o = _formulas.orient(d, nuisance, "increasing")
+        if drop is not None:
+            o = replace(o, parametric={k: v for k, v in o.parametric.items() if k != drop})
+        bounds._compute(o, cells, d)
+        return np.array([bounds.lower_, bounds.upper_]), (bounds.influence_lower_,
+                                                          bounds.influence_upper_)  # fmt: skip
+
+    _, full = compute(nuisance)
+    _, without = compute(nuisance, drop=key)
+    D = sm.add_constant(data.X)
+    T, C = d.treatment, d.status_known
+    mask = (T == arm) if kind == "follow_up" else (T == arm) & (C == 1) & (d.survival == 1)
+    target = C if kind == "follow_up" else d.outcome_observed
+    gamma = _glm(target.astype(float), D, mask).params
+    probability = expit(D @ gamma)
+    np.testing.assert_allclose(probability, nuisance.missingness[kind][arm], atol=1e-6)
+    information = (D[mask] * (probability * (1 - probability))[mask, None]).T @ D[mask] / len(T)
+    rows = (mask * (target - probability))[:, None] * D @ np.linalg.inv(information)
+    gradient = np.empty((2, gamma.size))
+    for j in range(gamma.size):
+        values = []
+        for step in (1e-5, -1e-5):
+            shifted = gamma.copy()
+            shifted[j] += step
+            missingness = {k: dict(v) for k, v in nuisance.missingness.items()}
+            missingness[kind][arm] = expit(D @ shifted)
+            values.append(compute(replace(nuisance, missingness=missingness))[0])
+        gradient[:, j] = (values[0] - values[1]) / 2e-5
+    for index in (0, 1):
+        term = full[index] - without[index]
+        expected = rows @ gradient[index]
+        assert np.abs(expected).max() > 1e-3  # the model's estimation matters here
+        np.testing.assert_allclose(term, expected, atol=1e-4 * np.abs(expected).max())
