@@ -79,7 +79,7 @@ def test_estimates_match_statsmodels_fits_and_the_written_out_formulas(cls):
         assert est.nuisance_.missingness["response"][t] == pytest.approx(r[t], abs=1e-6)
 
 
-def _stacked_reference(data, target):
+def _stacked_reference(data, target, monotonicity="increasing"):
     """Sandwich SE of the SACE from all stacked equations, A from scipy's numerical derivative."""
     X, T = data.X, data.treatment
     C, R = data.status_known, data.outcome_observed
@@ -110,9 +110,13 @@ def _stacked_reference(data, target):
         }  # fmt: skip
         if target == "regression":
             return fitted, (fitted["p0"] * fitted["m1"], fitted["p0"] * fitted["m0"]), fitted["p0"]
-        w1 = (T * C * S * R * fitted["p0"]
-              / (fitted["pi"] * fitted["c1"] * fitted["p1"] * fitted["r1"]))  # fmt: skip
+        w1 = T * C * S * R / (fitted["pi"] * fitted["c1"] * fitted["r1"])
         w0 = (1 - T) * C * S * R / ((1 - fitted["pi"]) * fitted["c0"] * fitted["r0"])
+        # The arm whose survivors mix strata gets the always-survivor odds p_pure / p_mixed.
+        if monotonicity == "increasing":
+            w1 = w1 * fitted["p0"] / fitted["p1"]
+        else:
+            w0 = w0 * fitted["p1"] / fitted["p0"]
         return fitted, (w1 * Y, w0 * Y), (w1, w0)
 
     def stacked(theta):
@@ -141,15 +145,17 @@ def _stacked_reference(data, target):
 
 
 @pytest.mark.parametrize(
-    "cls, target",
-    [(ps.PrincipalScoreWeighting, "weighting"), (ps.OutcomeRegression, "regression")],
-)
-def test_sandwich_includes_follow_up_and_response_models(cls, target):
+    "cls, target, monotonicity",
+    [(ps.PrincipalScoreWeighting, "weighting", "increasing"),
+     (ps.PrincipalScoreWeighting, "weighting", "decreasing"),
+     (ps.OutcomeRegression, "regression", "increasing")],
+)  # fmt: skip
+def test_sandwich_includes_follow_up_and_response_models(cls, target, monotonicity):
     # Reference: A^-1 B A^-T / n for the stacked logistic / least-squares equations of every
     # model (follow-up and response included) and the estimator's two mean equations.
     data = _mar_data(1500, 2)
-    est = _fit(cls, data)
-    effect, reference_se = _stacked_reference(data, target)
+    est = _fit(cls, data, monotonicity=monotonicity)
+    effect, reference_se = _stacked_reference(data, target, monotonicity)
     assert est.std_error_method_ == "sandwich"
     assert est.effect_ == pytest.approx(effect, abs=1e-6)
     assert est.std_error_ == pytest.approx(reference_se, rel=1e-4)

@@ -76,7 +76,8 @@ def subgroup_effects(estimator, labels, level):
     for code, name in enumerate(names):
         in_group = (codes == code) & (w > 0)
         for arm, arm_name in ((1, "treated"), (0, "control")):
-            if not np.any(in_group & (T == arm) & (S == 1)):
+            observed = S == 1 if data.outcome_observed is None else data.outcome_observed == 1
+            if not np.any(in_group & (T == arm) & observed):
                 raise ValueError(
                     f"Subgroup {name!r} of `labels` has no survivors in the {arm_name} arm, so "
                     "its SACE is not estimable. Merge it with a neighbouring subgroup."
