@@ -296,6 +296,14 @@ def check_truncation_data(
                 f"`y` must be numeric; got dtype {outcome.dtype} with values such as "
                 f"{list(pd.unique(outcome[survival == 1])[:5])}. Convert the outcome to numbers."
             ) from None
+    if status_known is not None:
+        contradicting = np.flatnonzero((status_known == 0) & ~np.isnan(outcome.astype(float)))
+        if contradicting.size:
+            raise ValueError(
+                f"`y` is observed for {contradicting.size} row(s) whose `survival` is unknown "
+                f"(NaN), at row positions {contradicting[:5].tolist()}. An outcome exists only "
+                "for survivors: set survival to 1 for those rows if they survived, or blank y."
+            )
     outcome = np.where(survival == 1, outcome.astype(float), np.nan)
     unobserved = np.flatnonzero(np.isnan(outcome) & (survival == 1))
     outcome_observed = None

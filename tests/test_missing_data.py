@@ -385,3 +385,14 @@ def test_bounds_terms_of_follow_up_and_response_models_match_numerical_derivativ
         expected = rows @ gradient[index]
         assert np.abs(expected).max() > 1e-3  # the model's estimation matters here
         np.testing.assert_allclose(term, expected, atol=1e-4 * np.abs(expected).max())
+
+
+def test_an_outcome_with_unknown_survival_is_refused_not_dropped():
+    data = _mar_data(600, 16, follow_up=0.8, response=None)
+    y = data.y.copy()
+    row = np.flatnonzero(np.isnan(data.survival))[0]
+    y[row] = 1.0
+    with pytest.raises(ValueError, match="whose `survival` is unknown"):
+        ps.MultiplyRobust(missing="at_random").fit(
+            data.X, y, treatment=data.treatment, survival=data.survival
+        )
