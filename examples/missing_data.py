@@ -1,5 +1,4 @@
-"""
-Lost to follow-up and missing questionnaires
+"""Lost to follow-up and missing questionnaires
 ============================================
 
 A simulated trial-like study in which some units are lost to follow-up before their survival

@@ -46,12 +46,21 @@ def missing_data_summary(estimator):
     DataFrame indexed by arm (``treated``, ``control``)
         ``n``, ``n_status_unknown``, ``share_status_unknown`` (weighted, of the arm),
         ``n_known_survivors``, ``n_outcome_missing``, ``share_outcome_missing`` (weighted, of
-        the known survivors). All zero when nothing was missing.
+        the known survivors). All zero when nothing was missing. With fitted models also
+        ``min_follow_up_probability`` and ``min_response_probability`` (over the rows each
+        model is fitted on; 1 where the model was not needed), the overlap of the two models.
     """
     from ..nuisance._missing import missingness_counts
 
     oriented_predictions(estimator)  # a clear error for unfitted estimators
-    return pd.DataFrame(missingness_counts(estimator.training_data_)).set_index("arm")
+    table = pd.DataFrame(missingness_counts(estimator.training_data_)).set_index("arm")
+    missingness = estimator.nuisance_.missingness
+    if missingness is not None:
+        for (kind, label), (reference, _, _) in _groups(estimator).items():
+            rows = reference > 0
+            values = missingness[kind][1 if label == "treated" else 0][rows]
+            table.loc[label, f"min_{kind}_probability"] = values.min() if values.size else 1.0
+    return table
 
 
 def missing_data_balance(estimator, X):
