@@ -136,6 +136,11 @@ MISSING_AT_RANDOM_ASSUMPTION = (
 
 def _binary_indicator(values, name, allow_missing=False):
     array = _one_dimensional(values, name)
+    if array.dtype.kind == "O" and pd.isna(array).any():
+        # pandas nullable integers (pd.NA) arrive as objects: numbers with NA are NaN floats.
+        numeric = pd.to_numeric(pd.Series(array), errors="coerce")
+        if numeric.notna().sum() == pd.notna(array).sum():
+            array = numeric.to_numpy(dtype=float)
     if array.dtype.kind in "OUS" or isinstance(array.dtype, pd.CategoricalDtype):
         found = pd.unique(array)[:10]
         raise TypeError(

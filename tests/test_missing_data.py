@@ -412,3 +412,17 @@ def test_any_classifier_or_pipeline_as_response_model():
     assert custom.effect_ == pytest.approx(default.effect_, abs=0.2 * default.std_error_)
     assert abs(custom.effect_ - data.true_effect) < 4 * custom.std_error_
     assert len(custom.nuisance_.models[("follow_up", 0)]) == 3
+
+
+def test_nullable_integer_survival_reads_na_as_unknown():
+    # Identity: pandas' nullable Int64 with <NA> is the same data as float NaN.
+    import pandas as pd
+
+    data = _mar_data(1500, 18)
+    nullable = pd.Series(data.survival).astype("Int64")
+    with pytest.raises(ValueError, match='missing="at_random"'):
+        ps.OutcomeRegression().fit(data.X, data.y, treatment=data.treatment, survival=nullable)
+    a = _fit(ps.OutcomeRegression, data)
+    b = ps.OutcomeRegression(missing="at_random").fit(
+        data.X, data.y, treatment=data.treatment, survival=nullable)
+    assert a.effect_ == b.effect_
