@@ -426,3 +426,21 @@ def test_nullable_integer_survival_reads_na_as_unknown():
     b = ps.OutcomeRegression(missing="at_random").fit(
         data.X, data.y, treatment=data.treatment, survival=nullable)
     assert a.effect_ == b.effect_
+
+
+@pytest.mark.parametrize("cls", ESTIMATORS)
+def test_integer_weights_equal_duplicated_rows_with_missing_data(cls):
+    # Identity: integer sample weights enter every fit, the follow-up and response models
+    # included, as duplicated rows would.
+    data = _mar_data(800, 19)
+    weights = np.random.default_rng(1).integers(1, 4, size=800)
+    rows = np.repeat(np.arange(800), weights)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        weighted = cls(missing="at_random").fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival,
+            sample_weight=weights)  # fmt: skip
+        duplicated = cls(missing="at_random").fit(
+            data.X[rows], data.y[rows], treatment=data.treatment[rows],
+            survival=data.survival[rows])  # fmt: skip
+    assert weighted.effect_ == pytest.approx(duplicated.effect_, abs=1e-7)
