@@ -444,3 +444,17 @@ def test_integer_weights_equal_duplicated_rows_with_missing_data(cls):
             data.X[rows], data.y[rows], treatment=data.treatment[rows],
             survival=data.survival[rows])  # fmt: skip
     assert weighted.effect_ == pytest.approx(duplicated.effect_, abs=1e-7)
+
+
+def test_small_follow_up_or_response_probabilities_warn():
+    # Specification: like small treatment or survival probabilities, fitted response
+    # probabilities below 0.01 raise an OverlapWarning, and the diagnostics flag them when more
+    # than 5% of rows fall below 0.05 (common practice).
+    data = _mar_data(4000, 20, follow_up=None, response={"treated": (0.3, -4.0),
+                                                         "control": 0.9})  # fmt: skip
+    with pytest.warns(ps.OverlapWarning, match="response"):
+        est = ps.MultiplyRobust(missing="at_random").fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival
+        )
+    messages = ps.diagnostic_warnings(est, data.X)
+    assert any(m.startswith("Missing data:") and "response" in m for m in messages)
