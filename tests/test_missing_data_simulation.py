@@ -117,3 +117,28 @@ def test_outcome_shift_recovers_a_known_departure_from_missing_at_random(cls):
     assert abs(estimates.mean()) < 3 * ses.mean() / 2
     assert np.all(np.abs(estimates) < 4 * ses)
     assert np.mean(mar_errors) < -4 * ses.mean()  # assuming MAR understates the SACE here
+
+
+@pytest.mark.slow
+def test_multiply_robust_survives_a_wrong_response_model():
+    # Simulated truth. With correct survival and outcome models the multiply robust terms keep
+    # mean zero whatever r_t is (docs/missing-data.md, section 2), so an intercept-only response
+    # model (DummyClassifier: the arm's response share) leaves it unbiased, while weighting,
+    # which rests on r_t alone, is biased.
+    from sklearn.dummy import DummyClassifier
+
+    wrong = DummyClassifier(strategy="prior")
+    robust, weighting = [], []
+    for seed in range(3):
+        data = ps.datasets.make_scenario("missing_outcomes", 20_000, random_state=seed)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            fit = dict(treatment=data.treatment, survival=data.survival)
+            mr = ps.MultiplyRobust(missing="at_random", response_model=wrong).fit(
+                data.X, data.y, **fit)
+            psw = ps.PrincipalScoreWeighting(missing="at_random", response_model=wrong,
+                                             n_bootstrap=0).fit(data.X, data.y, **fit)
+        robust.append((mr.effect_ - data.true_effect) / mr.std_error_)
+        weighting.append((psw.effect_ - data.true_effect) / psw.std_error_)
+    assert np.all(np.abs(robust) < 3)
+    assert abs(np.mean(weighting)) > 3
