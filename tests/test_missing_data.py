@@ -158,7 +158,7 @@ def test_sandwich_includes_follow_up_and_response_models(cls, target, monotonici
     effect, reference_se = _stacked_reference(data, target, monotonicity)
     assert est.std_error_method_ == "sandwich"
     assert est.effect_ == pytest.approx(effect, abs=1e-6)
-    assert est.std_error_ == pytest.approx(reference_se, rel=1e-4)
+    assert est.std_error_ == pytest.approx(reference_se, rel=1e-6)
 
 
 @pytest.mark.parametrize("cls", ESTIMATORS)
