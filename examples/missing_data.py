@@ -44,7 +44,10 @@ keep = ~unknown & ~no_outcome
 print(f"\n{'estimator':>26} {'at random':>22} {'complete cases':>22}")
 fitted = {}
 with warnings.catch_warnings():
+    # A few extreme fitted probabilities are expected at this size; the diagnostics below
+    # report what matters.
     warnings.simplefilter("ignore", ps.MonotonicityWarning)
+    warnings.simplefilter("ignore", ps.OverlapWarning)
     for cls in (ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust):
         est = cls(missing="at_random").fit(
             data.X, data.y, treatment=data.treatment, survival=data.survival
@@ -65,6 +68,8 @@ for note in robust.summary().attrs["notes"]:
 balance = ps.diagnostics.missing_data_balance(robust, data.X)
 print("\nLargest |SMD| of the response check, raw and reweighted:")
 print(balance.filter(like="response").abs().max().round(3).to_string())
+for message in ps.diagnostic_warnings(robust, data.X):
+    print("warning:", message)
 
 # %%
 # If non-responders differ from responders with the same covariates (not at random): the
