@@ -458,3 +458,17 @@ def test_small_follow_up_or_response_probabilities_warn():
         )
     messages = ps.diagnostic_warnings(est, data.X)
     assert any(m.startswith("Missing data:") and "response" in m for m in messages)
+
+
+def test_monotonicity_check_counts_only_rows_of_known_status():
+    # Identity: unadjusted, the follow-up model is each arm's known share, so the weighted
+    # survival share is the share among rows of known status (not counting unknown as deaths).
+    data = _mar_data(3000, 21, design="randomized", follow_up=0.7, response=None)
+    est = ps.OutcomeRegression(missing="at_random").fit(
+        None, data.y, treatment=data.treatment, survival=data.survival
+    )
+    row = ps.monotonicity_check(est, strata=np.zeros(3000), adjust=False).loc["overall"]
+    known = ~np.isnan(data.survival)
+    for arm, column in ((1, "survival_treated"), (0, "survival_control")):
+        expected = np.mean(data.survival[known & (data.treatment == arm)])
+        assert row[column] == pytest.approx(expected, abs=1e-10)
