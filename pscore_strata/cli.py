@@ -86,6 +86,11 @@ def _print_key_results(results, out_dir):
               f"({arm['share_status_unknown']:.1%}), outcome missing {arm['n_outcome_missing']} "
               f"of {arm['n_known_survivors']} known survivors "
               f"({arm['share_outcome_missing']:.1%}); assumed missing at random")  # fmt: skip
+    shift = missing.get("outcome_shift") or {}
+    if shift:
+        value = shift["smallest_shift_covering_zero"]
+        shown = "not within the grid" if value is None else f"{value:.3g}"
+        print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
     naive = results["naive_survivor_contrast"]
     print(f"  {'Naive survivor contrast':<27} {naive['estimate']:>10.3f}   (biased; comparison)")
     sens = results.get("sensitivity", {})

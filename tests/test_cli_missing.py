@@ -68,6 +68,10 @@ def test_missing_at_random_report_matches_the_api(blank_csv, tmp_path, capsys):
     grid = results["missing_data"]["outcome_shift"]["grid"]
     zero = next(g for g in grid if g["value"] == 0)
     assert zero["effect"] == pytest.approx(api.effect_, abs=1e-12)
+    # The reported shift is the grid's smallest |shift| whose interval covers 0.
+    covering = [g["value"] for g in grid if g["ci_low"] <= 0 <= g["ci_high"]]
+    reported = results["missing_data"]["outcome_shift"]["smallest_shift_covering_zero"]
+    assert reported == (min(covering, key=abs) if covering else None)
     html = (tmp_path / "report.html").read_text()
     assert "Missing data" in html and "Assumption (missing at random)" in html
     assert any(a["name"].startswith("Missing at random") for a in results["assumptions"])

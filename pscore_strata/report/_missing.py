@@ -52,15 +52,25 @@ def missing_section(collector, primary, data, level):
         grid = collector.run(
             "missing-data checks", sensitivity_grid, primary, outcome_shift=shifts, level=level
         )
+        rows = [
+            {"value": float(r["outcome_shift"]), "effect": float(r["effect"]),
+             "std_error": number(r["std_error"]), "ci_low": number(r["ci_low"]),
+             "ci_high": number(r["ci_high"])}
+            for _, r in grid.iterrows()
+        ]  # fmt: skip
         record["outcome_shift"] = {
             "description": "Mean outcome of survivors without an observed outcome minus that of "
             "responders with the same covariates and arm, in both arms (0 = missing at random).",
             "outcome_sd_responders": spread,
-            "grid": [
-                {"value": float(r["outcome_shift"]), "effect": float(r["effect"]),
-                 "std_error": number(r["std_error"]), "ci_low": number(r["ci_low"]),
-                 "ci_high": number(r["ci_high"])}
-                for _, r in grid.iterrows()
-            ],  # fmt: skip
+            "grid": rows,
+            "smallest_shift_covering_zero": _smallest_covering_zero(rows),
         }
     return record
+
+
+def _smallest_covering_zero(rows):
+    """The grid shift of smallest size whose interval covers 0 (``None`` if none does)."""
+    covering = [r["value"] for r in rows
+                if r["ci_low"] is not None and r["ci_high"] is not None
+                and r["ci_low"] <= 0 <= r["ci_high"]]  # fmt: skip
+    return min(covering, key=abs) if covering else None
