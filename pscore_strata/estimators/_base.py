@@ -60,6 +60,8 @@ class SurvivorEffectEstimator(BaseEstimator):
             n_folds=self.n_folds,
             random_state=random_state,
             treatment_enters_estimate=self._treatment_enters_estimate,
+            # The multiply robust influence values never use the sandwich pieces.
+            sandwich=self._formula is not _formulas.robust_means,
         )
 
     def _means(self, data, nuisance):

@@ -14,12 +14,13 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 from sklearn.base import clone, is_classifier
-from sklearn.linear_model import LinearRegression, LogisticRegression
 from sklearn.model_selection import StratifiedKFold
 from sklearn.pipeline import Pipeline
 from sklearn.utils.validation import has_fit_parameter
 
 from .._validation import EXTREME_PROBABILITY
+from ._conditioned import StandardizedLinearRegression, StandardizedLogisticRegression
+from ._sandwich import build_parametric
 
 __all__ = [
     "NuisanceFit",
@@ -42,12 +43,18 @@ class MonotonicityWarning(UserWarning):
 
 
 def default_binary_model():
-    """Unpenalized logistic regression (``C=inf``; exact Newton steps, tight tolerance)."""
-    return LogisticRegression(C=np.inf, solver="newton-cholesky", tol=1e-10, max_iter=200)
+    """Unpenalized logistic regression (``C=inf``; exact Newton steps, tight tolerance).
+
+    Fitted on standardized columns and mapped back, so the units of the covariates do not
+    change the fit (:mod:`._conditioned`).
+    """
+    return StandardizedLogisticRegression(
+        C=np.inf, solver="newton-cholesky", tol=1e-10, max_iter=200
+    )
 
 
 def _default_outcome_model(binary):
-    return default_binary_model() if binary else LinearRegression()
+    return default_binary_model() if binary else StandardizedLinearRegression()
 
 
 @dataclass(frozen=True)
@@ -110,15 +117,9 @@ def _information(X, a):
 
 
 def _parametric(design, mask, target, prediction, slope, weights):
-    residual = np.where(mask, np.nan_to_num(target) - prediction, 0.0)
-    info = _information(design, weights * mask * slope) / weights.sum()
-    return ParametricFit(
-        design=design,
-        mask=mask.astype(float),
-        residual=residual,
-        slope=slope,
-        h_inverse=np.linalg.pinv(info),
-    )
+    from ._sandwich import parametric_piece
+
+    return parametric_piece(design, mask, target, prediction, slope, weights)
 
 
 @dataclass
@@ -218,6 +219,7 @@ def fit_nuisance(
     n_folds=None,
     random_state=None,
     treatment_enters_estimate=True,
+    sandwich=True,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -237,6 +239,9 @@ def fit_nuisance(
     treatment_enters_estimate : bool, default=True
         ``False`` when the estimator's formula does not use ``pi`` (outcome regression), so a
         non-default treatment model does not rule out the sandwich standard error.
+    sandwich : bool, default=True
+        Build the M-estimation sandwich pieces (``parametric``) when the models allow it;
+        ``False`` skips them (the multiply robust estimator never uses them).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -303,38 +308,26 @@ def fit_nuisance(
                 )
                 fitted[("outcome", arm)].append(model)
 
-    parametric = None
-    # The sandwich needs every model that enters the estimate to be a default GLM fitted on all
-    # rows; a treatment model that only feeds reported shares (outcome regression) may be any.
-    defaults = (
-        n_folds is None
-        and (treatment_model is None or known_probability or not treatment_enters_estimate)
-        and survival_model is None
-        and (outcome_model is None or not fit_outcome)
-    )
-    if defaults:
-        design = _numeric_design(X)
-        parametric = {}
-        if treatment_model is None:
-            parametric["treatment"] = _parametric(design, np.ones(n, bool), T, pi, pi * (1 - pi), w)
-        for arm in (0, 1):
-            p = survival[arm]
-            parametric[("survival", arm)] = _parametric(design, T == arm, S, p, p * (1 - p), w)
-            if fit_outcome:
-                m = outcome[arm]
-                slope = m * (1 - m) if binary_outcome else np.ones(n)
-                mask = (T == arm) & (S == 1)
-                parametric[("outcome", arm)] = _parametric(design, mask, Y, m, slope, w)
-
-    _warn_extremes(pi, survival, known_probability)
-    return NuisanceFit(
+    result = NuisanceFit(
         treatment_probability=pi,
         survival=survival,
         outcome=outcome,
-        parametric=parametric,
+        parametric=None,
         models=fitted,
         cross_fitted=n_folds is not None,
     )
+    if sandwich:
+        # Every model that enters the estimate must be an unpenalized GLM fitted on all rows
+        # (the defaults, or a user's model that _sandwich recognizes).
+        result.parametric = build_parametric(
+            data, result,
+            {"treatment": treatment_model, "survival": survival_model, "outcome": outcome_model},
+            fit_outcome=fit_outcome, binary_outcome=binary_outcome,
+            known_probability=known_probability,
+            treatment_enters_estimate=treatment_enters_estimate,
+        )  # fmt: skip
+    _warn_extremes(pi, survival, known_probability)
+    return result
 
 
 def _warn_extremes(pi, survival, known_probability):
