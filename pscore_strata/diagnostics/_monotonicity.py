@@ -13,6 +13,7 @@ from ._arrays import (
     oriented_predictions,
     treated_indicator,
 )
+from ._cache import cached_diagnostic, without_strata
 
 __all__ = ["monotonicity_check"]
 
@@ -85,6 +86,7 @@ def _two_proportions(S, T, w, z_crit):
     }
 
 
+@cached_diagnostic(without_strata)
 def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.95):
     """Compare survival between arms overall and within covariate strata.
 

@@ -20,6 +20,7 @@ from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ..inference._influence import influence_std_error, normal_interval, resample_rows, spawn_seeds
 from ..inference._refits import _seed_models
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
+from ..nuisance._share import record_settings, shared_nuisance
 from . import _formulas
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -51,7 +52,7 @@ class SurvivorEffectEstimator(BaseEstimator):
         return check_repeats(getattr(self, "n_repeats", 1), self.n_folds)
 
     def _fit_nuisance(self, data, random_state):
-        return fit_nuisance(
+        fitted = fit_nuisance(
             data,
             self.treatment_model,
             self.survival_model,
@@ -63,13 +64,14 @@ class SurvivorEffectEstimator(BaseEstimator):
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=self._formula is not _formulas.robust_means,
         )
+        return record_settings(fitted, self, data, random_state)
 
     def _means(self, data, nuisance):
         oriented = _formulas.orient(data, nuisance, self.monotonicity)
         with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
             return type(self)._formula(oriented), oriented
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None):
+    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, nuisance=None):
         """Estimate the survivor average causal effect.
 
         Parameters
@@ -90,6 +92,12 @@ class SurvivorEffectEstimator(BaseEstimator):
             for frequency weights (repeat the rows to get the frequency-weight error).
         groups : array-like of shape (n_samples,), optional
             Cluster labels: standard errors add influence values within clusters.
+        nuisance : NuisanceFit, optional
+            The ``nuisance_`` of another estimator fitted on the same rows with the same
+            models, folds and monotonicity (outcome regression and multiply robust share five
+            models; weighting needs the first three). Its models are reused instead of
+            refitted, giving the numbers a separate fit would; a fit on other data or with
+            other settings is refused.
 
         Returns
         -------
@@ -103,9 +111,19 @@ class SurvivorEffectEstimator(BaseEstimator):
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
             raise ValueError("`scale='ratio'` needs a non-negative outcome; `y` has negatives.")
-        fits = [
-            self._fit_nuisance(data, seed) for seed in repeat_seeds(self.random_state, n_repeats)
-        ]
+        if nuisance is not None:
+            fits = [
+                shared_nuisance(
+                    self, nuisance, data, uses_outcome=self._uses_outcome_model,
+                    sandwich=self._formula is not _formulas.robust_means,
+                    treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
+                )
+            ]  # fmt: skip
+        else:
+            fits = [
+                self._fit_nuisance(data, seed)
+                for seed in repeat_seeds(self.random_state, n_repeats)
+            ]
         self._store(data, fits)
         if self.std_error_method_ == "bootstrap":
             self._bootstrap_std_errors(data)

@@ -141,6 +141,9 @@ class NuisanceFit:
     models : dict
         Fitted models (a list per arm: one per fold when cross-fitted), for predictions on new
         rows.
+    settings : dict or None
+        The rows and model settings of the fit, so that another estimator can reuse it
+        (``fit(..., nuisance=est.nuisance_)``) and refuse it when they differ.
     """
 
     treatment_probability: np.ndarray
@@ -149,6 +152,7 @@ class NuisanceFit:
     parametric: dict | None
     models: dict = field(default_factory=dict)
     cross_fitted: bool = False
+    settings: dict | None = None  # what it was fitted with, for sharing (see _share.py)
 
 
 def _fit(model, X, target, weights):

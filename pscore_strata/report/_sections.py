@@ -81,7 +81,7 @@ def diagnostics_section(collector, primary, covariates):
     return out
 
 
-def bounds_section(collector, options, data):
+def bounds_section(collector, options, data, nuisance=None):
     from ..assumptions import TrimmingBounds
 
     models, _ = model_settings(options)
@@ -92,6 +92,7 @@ def bounds_section(collector, options, data):
         data.design,
         data.outcome,
         **fit_arguments(data),
+        nuisance=nuisance,
     )
     low, high = bounds.conf_int(options.level)
     record = {

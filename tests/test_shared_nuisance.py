@@ -1,0 +1,107 @@
+"""One nuisance fit shared between estimators gives the numbers of separate fits (issue 12)."""
+
+import numpy as np
+import pytest
+from sklearn.ensemble import HistGradientBoostingClassifier
+from sklearn.linear_model import LogisticRegression
+
+import pscore_strata as ps
+from pscore_strata.datasets import make_truncation
+
+FIELDS = ("effect_", "std_error_", "mean_treated_", "mean_control_")
+
+
+@pytest.fixture(scope="module")
+def data():
+    return make_truncation(1200, random_state=5)
+
+
+def _fit(est, data, **kwargs):
+    return est.fit(data.X, data.y, treatment=data.treatment, survival=data.survival, **kwargs)
+
+
+@pytest.mark.parametrize("params", [{}, {"monotonicity": "decreasing"}])
+def test_shared_fit_gives_identical_numbers(data, params):
+    monotonicity = {k: v for k, v in params.items() if k == "monotonicity"}
+    source = _fit(ps.MultiplyRobust(**params), data)
+    for cls in (ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust):
+        separate = _fit(cls(**params), data)
+        shared = _fit(cls(**params), data, nuisance=source.nuisance_)
+        for name in FIELDS:
+            assert getattr(shared, name) == getattr(separate, name), (cls, name)
+        assert shared.std_error_method_ == separate.std_error_method_
+        np.testing.assert_array_equal(shared.influence_, separate.influence_)
+        assert shared.summary().equals(separate.summary())
+    separate = ps.TrimmingBounds(strata="score", **monotonicity)
+    shared = ps.TrimmingBounds(strata="score", **monotonicity)
+    _fit(separate, data)
+    _fit(shared, data, nuisance=source.nuisance_)
+    for name in ("lower_", "upper_", "std_error_lower_", "std_error_upper_"):
+        assert getattr(shared, name) == getattr(separate, name)
+
+
+def test_shared_cross_fitted_learners(data):
+    model = HistGradientBoostingClassifier(max_iter=20, random_state=0)
+    params = dict(treatment_model=model, survival_model=model, n_folds=3, random_state=1)
+    source = _fit(ps.PrincipalScoreWeighting(n_bootstrap=0, **params), data)
+    separate = _fit(ps.PrincipalScoreWeighting(n_bootstrap=0, **params), data)
+    shared = _fit(ps.PrincipalScoreWeighting(n_bootstrap=0, **params), data,
+                  nuisance=source.nuisance_)  # fmt: skip
+    assert shared.effect_ == separate.effect_
+    assert shared.std_error_ == separate.std_error_
+    with pytest.raises(ValueError, match="cross-fitted"):
+        _fit(ps.TrimmingBounds(**{k: params[k] for k in ("treatment_model", "survival_model")}),
+             data, nuisance=source.nuisance_)  # fmt: skip
+
+
+def test_sandwich_rebuilt_for_the_receiving_estimator(data):
+    # The multiply robust fit builds no sandwich pieces; weighting gets its own from the models.
+    source = _fit(ps.MultiplyRobust(), data)
+    assert source.nuisance_.parametric is None
+    shared = _fit(ps.PrincipalScoreWeighting(), data, nuisance=source.nuisance_)
+    assert shared.std_error_method_ == "sandwich"
+
+
+@pytest.mark.parametrize(
+    "change, words",
+    [
+        (lambda d: d.update(rows=slice(0, 1000)), "fitted on 1200 rows"),
+        (lambda d: d.update(flip=True), "other data"),
+        (lambda d: d.update(params={"survival_model": LogisticRegression()}), "survival_model="),
+        (lambda d: d.update(params={"monotonicity": "decreasing"}), "monotonicity="),
+        (lambda d: d.update(params={"n_folds": 3}), "n_folds="),
+        (lambda d: d.update(cls=ps.OutcomeRegression, source=ps.PrincipalScoreWeighting),
+         "without the outcome model"),
+        (lambda d: d.update(columns=slice(0, 3)), "covariates"),
+    ],
+)
+def test_mismatched_nuisance_is_refused(data, change, words):
+    setting = {"rows": slice(None), "flip": False, "params": {}, "cls": ps.MultiplyRobust,
+               "source": ps.MultiplyRobust, "columns": slice(None)}  # fmt: skip
+    change(setting)
+    source = _fit(setting["source"](), data)
+    rows, columns = setting["rows"], setting["columns"]
+    treatment = data.treatment[rows].copy()
+    if setting["flip"]:
+        treatment[0] = 1 - treatment[0]
+    est = setting["cls"](**setting["params"])
+    with pytest.raises(ValueError, match=words):
+        est.fit(data.X[rows, columns], data.y[rows], treatment=treatment,
+                survival=data.survival[rows], nuisance=source.nuisance_)  # fmt: skip
+
+
+def test_nuisance_must_be_a_fit(data):
+    with pytest.raises(TypeError, match="NuisanceFit"):
+        _fit(ps.MultiplyRobust(), data, nuisance={"pi": 1})
+    source = _fit(ps.MultiplyRobust(n_folds=2, random_state=0), data)
+    with pytest.raises(ValueError, match="n_repeats"):
+        _fit(ps.MultiplyRobust(n_folds=2, n_repeats=2, random_state=0), data,
+             nuisance=source.nuisance_)  # fmt: skip
+
+
+def test_groups_may_differ(data):
+    source = _fit(ps.MultiplyRobust(), data)
+    groups = np.arange(data.y.size) % 40
+    separate = _fit(ps.OutcomeRegression(), data, groups=groups)
+    shared = _fit(ps.OutcomeRegression(), data, groups=groups, nuisance=source.nuisance_)
+    assert shared.std_error_ == separate.std_error_
