@@ -31,9 +31,9 @@ from sklearn.utils.validation import check_is_fitted
 
 from ..estimators import _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
-from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import influence_std_error, normal_interval
+from ..inference._influence import normal_interval
+from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
 
@@ -234,37 +234,38 @@ def _check_one_scale(pi_ratio, pi_difference):
 def _adjusted(formula, estimator, nuisance, delta, eps, xi):
     data = estimator.training_data_
     o = _formulas.orient(data, nuisance, estimator.monotonicity)
+    parts, clipped = _adjust_view(formula, estimator, o, nuisance.parametric, delta, eps, xi)
+    effect, influence = _formulas.scale_effect(parts, estimator.scale)
+    return float(effect), influence, clipped
+
+
+def _adjust_view(formula, estimator, o, parametric, delta, eps, xi):
+    """Adjusted always-survivor means on an oriented view: ``(MeanParts, n_clipped)``."""
     st = _Stratum(o, delta, eps, xi)
     # Robust influence values need no corrections (orthogonal); the others get them exactly
     # when the fitted estimator used them (default GLMs, no cross-fitting).
-    parametric = formula is not _robust and nuisance.parametric is not None
-    mu_m, mu_p, if_m, if_p = formula(o, st, parametric)
-    parts = _formulas._unorient(o, mu_m, mu_p, if_m, if_p)
-    effect, influence = _formulas.scale_effect(parts, estimator.scale)
-    return float(effect), influence, int(st.clipped.sum())
+    use_corrections = formula is not _robust and parametric is not None
+    mu_m, mu_p, if_m, if_p = formula(o, st, use_corrections)
+    return _formulas._unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
 
 
-def _effect_and_error(estimator, setting):
+def sensitivity_path(estimator):
+    """A :class:`._paths.SensitivityPath` over the estimator's stored predictions."""
+    formula = _check_estimator(estimator)
+    return SensitivityPath(estimator, formula, _adjust_view)
+
+
+def _effect_and_error(estimator, setting, path=None):
     """Effect and standard error at one setting, combined over cross-fitting repeats.
 
     Each repeat's nuisance fit gives its own adjusted effect; they are combined as the estimator
     combines its repeats (median, variance adding the spread between repeats), so the null
     setting reproduces ``effect_`` and ``std_error_``. Returns ``(effect, std_error, clipped)``.
     """
-    formula = _check_estimator(estimator)
+    _check_estimator(estimator)
     _check_one_scale(setting.get("pi_ratio"), setting.get("pi_difference"))
-    eps = setting.get("pi_ratio")
-    delta = setting.get("pi_difference", 0.0)
-    xi = setting.get("harmed_ratio", 0.0)
-    data = estimator.training_data_
-    effects, errors, clipped = [], [], 0
-    for nuisance in getattr(estimator, "_repeat_fits", [estimator.nuisance_]):
-        effect, influence, n_clipped = _adjusted(formula, estimator, nuisance, delta, eps, xi)
-        effects.append(effect)
-        errors.append(influence_std_error(influence, data.sample_weight, data.groups))
-        clipped = max(clipped, n_clipped)
-    effect, std_error = median_aggregate(effects, errors)
-    return float(effect), float(std_error), clipped
+    path = path or sensitivity_path(estimator)
+    return path.evaluate(setting)
 
 
 def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
@@ -339,11 +340,12 @@ def sensitivity_grid(
     """
     axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
     _check_estimator(estimator)
+    path = sensitivity_path(estimator)
     log_scale = estimator.scale != "difference"
     rows = []
     for values in itertools.product(*axes.values()):
         setting = dict(zip(axes, values, strict=True))
-        effect, se, clipped = _effect_and_error(estimator, setting)
+        effect, se, clipped = _effect_and_error(estimator, setting, path)
         low, high = normal_interval(effect, se, level, log_scale)
         rows.append({**setting, "effect": effect, "std_error": se, "ci_low": low,
                      "ci_high": high, "n_rows_clipped": clipped})  # fmt: skip
