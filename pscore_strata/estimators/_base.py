@@ -51,7 +51,7 @@ class SurvivorEffectEstimator(BaseEstimator):
             raise ValueError(f"`n_bootstrap` must be a non-negative integer; got {n_bootstrap!r}.")
         return check_repeats(getattr(self, "n_repeats", 1), self.n_folds)
 
-    def _fit_nuisance(self, data, random_state):
+    def _fit_nuisance(self, data, random_state, sandwich=True):
         fitted = fit_nuisance(
             data,
             self.treatment_model,
@@ -62,7 +62,7 @@ class SurvivorEffectEstimator(BaseEstimator):
             random_state=random_state,
             treatment_enters_estimate=self._treatment_enters_estimate,
             # The multiply robust influence values never use the sandwich pieces.
-            sandwich=self._formula is not _formulas.robust_means,
+            sandwich=sandwich and self._formula is not _formulas.robust_means,
         )
         return record_settings(fitted, self, data, random_state)
 
@@ -111,6 +111,8 @@ class SurvivorEffectEstimator(BaseEstimator):
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
             raise ValueError("`scale='ratio'` needs a non-negative outcome; `y` has negatives.")
+        if getattr(self, "_statistic_only", False) and nuisance is None:
+            return self._fit_statistic(data, n_repeats)
         if nuisance is not None:
             fits = [
                 shared_nuisance(
@@ -158,13 +160,16 @@ class SurvivorEffectEstimator(BaseEstimator):
         # The repeat closest to the median supplies the per-row quantities (one split's values).
         chosen = int(np.argmin(np.abs(table["effect"].to_numpy() - effect)))
         _, influence, parts, oriented = evaluated[chosen]
+        # Only the nuisance arrays are needed from here: drop the oriented copies before the
+        # principal scores are built (peak memory at a million rows).
+        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)
+        del evaluated
         self.effect_ = float(effect)
         self.std_error_ = float(std_error)
         self.mean_treated_ = float(np.median(table["mean_treated"]))
         self.mean_control_ = float(np.median(table["mean_control"]))
         self.repeat_estimates_ = table
         self.influence_ = influence
-        self._mean_influence = (parts.influence_treated, parts.influence_control)
         self.nuisance_ = fits[chosen]
         self._repeat_fits = fits
         self.training_data_ = replace(data, X=None)
@@ -204,11 +209,25 @@ class SurvivorEffectEstimator(BaseEstimator):
         return "bootstrap" if self.n_bootstrap > 0 else "influence function (nuisance ignored)"
 
     # -- bootstrap fallback ------------------------------------------------------------------
-    def _refit_means(self, data):
-        nuisance = self._fit_nuisance(data, self.random_state)
+    def _refit_means(self, data, random_state=None):
+        """The statistic of one refit: no standard errors, sandwich pieces or diagnostics."""
+        seed = self.random_state if random_state is None else random_state
+        nuisance = self._fit_nuisance(data, seed, sandwich=False)
         parts, _ = self._means(data, nuisance)
         effect, _ = _formulas.scale_effect(parts, self.scale)
         return effect, parts.mean_treated, parts.mean_control
+
+    def _fit_statistic(self, data, n_repeats):
+        """A bootstrap replicate's fit (``ps.bootstrap`` sets ``_statistic_only``): the effect
+        and the always-survivor means (medians over cross-fitting repeats), nothing else."""
+        values = np.array([
+            self._refit_means(data, seed) for seed in repeat_seeds(self.random_state, n_repeats)
+        ], dtype=float)  # fmt: skip
+        self.effect_, self.mean_treated_, self.mean_control_ = map(
+            float, np.median(values, axis=0)
+        )
+        self.n_samples_ = data.n_samples
+        return self
 
     def _bootstrap_std_errors(self, data):
         """Resample rows within arms (clusters, if given) and refit every model."""
@@ -345,6 +364,19 @@ def _one_replicate(estimator, data, seed):
 
 
 def _principal_scores(p_mixed, p_pure):
-    always = np.minimum(p_pure, p_mixed)
-    helped = np.clip(p_mixed - p_pure, 0.0, None)
-    return np.column_stack([always, helped, 1.0 - always - helped])
+    # Written into one array (three n-vectors at the peak, not six).
+    scores = np.empty((p_mixed.shape[0], 3))
+    always, helped, doomed = scores[:, 0], scores[:, 1], scores[:, 2]
+    np.minimum(p_pure, p_mixed, out=always)
+    np.subtract(p_mixed, p_pure, out=helped)
+    np.clip(helped, 0.0, None, out=helped)
+    np.subtract(1.0, always, out=doomed)
+    doomed -= helped
+    return scores
+
+
+class _Roles:
+    """The two survival predictions by role, and the monotonicity direction."""
+
+    def __init__(self, p_mixed, p_pure, increasing):
+        self.p_mixed, self.p_pure, self.increasing = p_mixed, p_pure, increasing

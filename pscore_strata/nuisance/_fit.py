@@ -202,8 +202,9 @@ def _fit_predict(model, X, target, fit_rows, predict_rows, weights, weighted, bi
         fitted = _ConstantModel(np.sum(w * target[fit_rows]) / w.sum())
         return fitted, _predict(fitted, None, binary).repeat(predict_rows.size)
     fitted = _fit(
-        clone(model), _rows(X, fit_rows), target[fit_rows], weights[fit_rows] if weighted else None
-    )
+        clone(model), _rows(X, fit_rows), _rows(target, fit_rows),
+        _rows(weights, fit_rows) if weighted else None,
+    )  # fmt: skip
     return fitted, _predict(fitted, _rows(X, predict_rows), binary)
 
 

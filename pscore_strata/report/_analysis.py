@@ -173,11 +173,12 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     """
     collector = _Collector(progress)
     estimators = {}
+    n_rows = int(len(data.treatment))
     order = (options.method, *[m for m in METHODS if m != options.method])
     shared = None
     # One fit of the five models serves every estimator: those with the outcome model first.
     for method in sorted(order, key=lambda m: not METHODS[m]._uses_outcome_model):
-        estimator = build_estimator(method, options)
+        estimator = build_estimator(method, options, n_rows)
         collector.run(
             f"{METHOD_LABELS[method].lower()} estimator",
             estimator.fit,
@@ -200,7 +201,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         "settings": {
             "method": options.method,
             "learner": options.learner,
-            "folds": model_settings(options)[1],
+            "folds": model_settings(options, n_rows)[1],
             "bootstrap_resamples": options.bootstrap,
             "level": options.level,
             "monotonicity": options.monotonicity,

@@ -16,7 +16,7 @@ __all__ = ["bootstrap_section", "diagnostics_section", "bounds_section", "sensit
 def bootstrap_section(collector, options, data):
     from ..inference import bootstrap
 
-    template = build_estimator(options.method, options)
+    template = build_estimator(options.method, options, len(data.treatment))
     result = collector.run(
         f"bootstrap: {options.bootstrap} resamples refitting every model",
         bootstrap,
@@ -84,7 +84,7 @@ def diagnostics_section(collector, primary, covariates):
 def bounds_section(collector, options, data, nuisance=None):
     from ..assumptions import TrimmingBounds
 
-    models, _ = model_settings(options)
+    models, _ = model_settings(options, len(data.treatment))
     bounds = TrimmingBounds(monotonicity=options.monotonicity, **models)
     collector.run(
         "bounds without principal ignorability",
