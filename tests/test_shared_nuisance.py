@@ -105,3 +105,23 @@ def test_groups_may_differ(data):
     separate = _fit(ps.OutcomeRegression(), data, groups=groups)
     shared = _fit(ps.OutcomeRegression(), data, groups=groups, nuisance=source.nuisance_)
     assert shared.std_error_ == separate.std_error_
+
+
+def test_fit_estimators_equals_separate_fits(data):
+    fits = ps.fit_estimators(data.X, data.y, treatment=data.treatment, survival=data.survival)
+    for key, cls in (("weighting", ps.PrincipalScoreWeighting),
+                     ("regression", ps.OutcomeRegression), ("robust", ps.MultiplyRobust)):
+        separate = _fit(cls(), data)
+        for name in FIELDS:
+            assert getattr(fits[key], name) == getattr(separate, name), (key, name)
+
+
+def test_bootstrap_replicate_fits_only_the_statistic(data):
+    # ps.bootstrap marks its refits: same effect, no standard error or diagnostics computed.
+    full = _fit(ps.PrincipalScoreWeighting(), data)
+    replicate = ps.PrincipalScoreWeighting()
+    replicate._statistic_only = True
+    _fit(replicate, data)
+    assert replicate.effect_ == pytest.approx(full.effect_, abs=1e-12)
+    assert replicate.mean_treated_ == pytest.approx(full.mean_treated_, abs=1e-12)
+    assert not hasattr(replicate, "std_error_")
