@@ -179,7 +179,6 @@ class SurvivorEffectEstimator(BaseEstimator):
         self.classes_ = np.array(
             ["always_survivor", "protected" if oriented.increasing else "harmed", "doomed"]
         )
-        self.principal_scores_ = _principal_scores(oriented.p_mixed, oriented.p_pure)
         violations = int(np.sum(oriented.p_mixed < oriented.p_pure))
         self.n_monotonicity_violations_ = violations
         # Small reversals are estimation noise where the arms' survival is close; warn when
@@ -200,6 +199,19 @@ class SurvivorEffectEstimator(BaseEstimator):
             )
         self.std_error_method_ = self._std_error_method(self.nuisance_)
         self.bootstrap_replicates_ = None
+
+    @property
+    def principal_scores_(self):
+        """Principal scores of the training rows, shape (n_samples, 3), ``classes_`` order.
+
+        Computed from the stored survival predictions on each access (not kept, so three
+        estimators sharing one nuisance fit do not hold three n x 3 copies).
+        """
+        if "nuisance_" not in self.__dict__:
+            raise AttributeError("principal_scores_ is set by fit")
+        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
+        survival = self.nuisance_.survival
+        return _principal_scores(survival[mixed], survival[pure])
 
     def _std_error_method(self, nuisance):
         if self._formula is _formulas.robust_means:
