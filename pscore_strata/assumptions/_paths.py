@@ -52,7 +52,7 @@ class SensitivityPath:
     ----------
     estimator : fitted estimator (checked by the caller)
     formula : the estimator's formula from :mod:`._sensitivity`
-    adjust : callable ``adjust(formula, estimator, oriented, parametric, delta, eps, xi)``
+    adjust : callable ``adjust(formula, estimator, oriented, parametric, delta, eps, xi, cache)``
         returning ``(MeanParts, n_clipped)``.
     """
 
@@ -61,8 +61,9 @@ class SensitivityPath:
         data = estimator.training_data_
         self.weights, self.groups = data.sample_weight, data.groups
         fits = getattr(estimator, "_repeat_fits", None) or [estimator.nuisance_]
+        # Per fit: the oriented view, its sandwich pieces and a cache of parameter-free arrays.
         self.views = [
-            (_formulas.orient(data, nuisance, estimator.monotonicity), nuisance.parametric)
+            (_formulas.orient(data, nuisance, estimator.monotonicity), nuisance.parametric, {})
             for nuisance in fits
         ]
         self._lines = {}
@@ -71,9 +72,9 @@ class SensitivityPath:
     def at(self, delta=0.0, eps=None, xi=0.0):
         """``(effect, std_error, n_clipped)`` at one setting, repeats combined by medians."""
         effects, errors, clipped = [], [], 0
-        for o, parametric in self.views:
+        for o, parametric, cache in self.views:
             parts, n_clipped = self.adjust(self.formula, self.estimator, o, parametric,
-                                           delta, eps, xi)  # fmt: skip
+                                           delta, eps, xi, cache)  # fmt: skip
             effect, influence = _formulas.scale_effect(parts, self.estimator.scale)
             effects.append(float(effect))
             errors.append(influence_std_error(influence, self.weights, self.groups))
@@ -85,10 +86,11 @@ class SensitivityPath:
     def _line(self, xi):
         if xi not in self._lines:
             lines = []
-            for o, parametric in self.views:
+            for o, parametric, cache in self.views:
                 start, clipped = self.adjust(self.formula, self.estimator, o, parametric,
-                                             0.0, None, xi)  # fmt: skip
-                end, _ = self.adjust(self.formula, self.estimator, o, parametric, 1.0, None, xi)
+                                             0.0, None, xi, cache)  # fmt: skip
+                end, _ = self.adjust(self.formula, self.estimator, o, parametric, 1.0, None, xi,
+                                     cache)  # fmt: skip
                 means = np.array([start.mean_treated, end.mean_treated - start.mean_treated,
                                   start.mean_control, end.mean_control - start.mean_control])
                 basis = np.column_stack([

@@ -148,26 +148,46 @@ def _regression(o, st, parametric):
     return mu_m, mu_p, if_m, if_p
 
 
-def _robust(o, st, parametric):
+def _robust_pieces(o):
+    """The parameter-free arrays of :func:`_robust` (kept by a sensitivity path)."""
+    A, S, pi = o.mixed, o.survival, o.pi
+    return {
+        "resid_pure": (1 - A) * (S - o.p_pure) / (1 - pi),
+        "resid_mixed": A * (S - o.p_mixed) / pi,
+        "pure": 1 - A,
+        "gap_mixed": o.outcome - o.m_mixed,
+        "gap_pure": o.outcome - o.m_pure,
+        "denominator_mixed": pi * o.p_mixed,
+        "denominator_pure": (1 - pi) * o.p_pure,
+    }
+
+
+def _robust(o, st, parametric, cache=None):
     """Efficient-influence-function estimator of the adjusted means (docs/sensitivity.md).
 
     For a functional ``E[G(p_p, p_m, m)]`` the efficient influence function adds to ``G`` each
     partial derivative times the residual of that regression, inverse-weighted by the chance of
     being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022, Theorem 1).
+    ``cache`` (a dict) keeps the parameter-free arrays between calls; the arithmetic is the
+    same with or without it.
     """
-    A, S, Y, pi = o.mixed, o.survival, o.outcome, o.pi
-    resid_pure = (1 - A) * (S - o.p_pure) / (1 - pi)
-    resid_mixed = A * (S - o.p_mixed) / pi
+    A, S = o.mixed, o.survival
+    if cache is None:
+        cache = {}
+    if "robust" not in cache:
+        cache["robust"] = _robust_pieces(o)
+    pieces = cache["robust"]
+    resid_pure, resid_mixed = pieces["resid_pure"], pieces["resid_mixed"]
     g, g_pp, g_pm, g_m = st.g(o.m_mixed)
     phi_mixed = (
         g + g_pp * resid_pure + g_pm * resid_mixed
-        + g_m * A * S * (Y - o.m_mixed) / (pi * o.p_mixed)
+        + g_m * A * S * pieces["gap_mixed"] / pieces["denominator_mixed"]
     )  # fmt: skip
     score_resid = st.a_pure * resid_pure + st.a_mixed * resid_mixed
     phi_e = st.e_always + score_resid
     phi_pure = (
         st.e_always * o.m_pure + o.m_pure * score_resid
-        + st.e_always * (1 - A) * S * (Y - o.m_pure) / ((1 - pi) * o.p_pure)
+        + st.e_always * pieces["pure"] * S * pieces["gap_pure"] / pieces["denominator_pure"]
     )  # fmt: skip
     share = o.weighted_mean(phi_e)
     mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
@@ -239,13 +259,15 @@ def _adjusted(formula, estimator, nuisance, delta, eps, xi):
     return float(effect), influence, clipped
 
 
-def _adjust_view(formula, estimator, o, parametric, delta, eps, xi):
+def _adjust_view(formula, estimator, o, parametric, delta, eps, xi, cache=None):
     """Adjusted always-survivor means on an oriented view: ``(MeanParts, n_clipped)``."""
     st = _Stratum(o, delta, eps, xi)
     # Robust influence values need no corrections (orthogonal); the others get them exactly
     # when the fitted estimator used them (default GLMs, no cross-fitting).
-    use_corrections = formula is not _robust and parametric is not None
-    mu_m, mu_p, if_m, if_p = formula(o, st, use_corrections)
+    if formula is _robust:
+        mu_m, mu_p, if_m, if_p = _robust(o, st, False, cache)
+    else:
+        mu_m, mu_p, if_m, if_p = formula(o, st, parametric is not None)
     return _formulas._unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
 
 

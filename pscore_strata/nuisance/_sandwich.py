@@ -52,8 +52,8 @@ _FIXED = (
     FunctionTransformer,
 )
 # One Newton step from the fitted coefficients (in equilibrated coordinates) larger than this
-# means the solver stopped well before the root of the score (our choice: a hundredth of a
-# typical standard error at n = 10,000).
+# means the solver stopped well before the root of the score (our choice: about a twentieth of
+# the standard error of a standardized coefficient at n = 10,000).
 _LOOSE_STEP = 1e-3
 _CHUNK = 65_536
 
