@@ -125,3 +125,34 @@ def test_bootstrap_replicate_fits_only_the_statistic(data):
     assert replicate.effect_ == pytest.approx(full.effect_, abs=1e-12)
     assert replicate.mean_treated_ == pytest.approx(full.mean_treated_, abs=1e-12)
     assert not hasattr(replicate, "std_error_")
+
+
+def test_report_fits_the_models_once_and_matches_separate_fits():
+    from unittest import mock
+
+    from pscore_strata import report
+    from pscore_strata.assumptions import _bounds
+    from pscore_strata.datasets import DEMO_ROLES, load_demo
+    from pscore_strata.estimators import _base
+
+    frame = load_demo()
+    roles = report.ColumnRoles(
+        outcome=DEMO_ROLES["outcome"], treatment=DEMO_ROLES["treatment"],
+        survival=DEMO_ROLES["survival"], covariates=("age", "female", "severity_score"),
+    )  # fmt: skip
+    data = report.prepare_data(frame, roles)
+    with mock.patch.object(_base, "fit_nuisance", wraps=_base.fit_nuisance) as fits, \
+            mock.patch.object(_bounds, "fit_nuisance", wraps=_bounds.fit_nuisance) as bounds:
+        analysis = report.run_analysis(data, roles, report.AnalysisOptions())
+    assert fits.call_count == 1 and bounds.call_count == 0  # five models, fitted once
+    options = report.AnalysisOptions()
+    for record in analysis.results["estimates"]:
+        separate = report.build_estimator(record["method"], options).fit(
+            data.design, data.outcome, treatment=data.treatment, survival=data.survival
+        )
+        assert record["effect"] == separate.effect_
+        assert record["std_error"] == separate.std_error_
+    separate = ps.TrimmingBounds().fit(data.design, data.outcome, treatment=data.treatment,
+                                       survival=data.survival)  # fmt: skip
+    assert analysis.results["bounds"]["lower"] == separate.lower_
+    assert analysis.results["bounds"]["upper"] == separate.upper_
