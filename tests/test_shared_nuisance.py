@@ -156,3 +156,20 @@ def test_report_fits_the_models_once_and_matches_separate_fits():
                                        survival=data.survival)  # fmt: skip
     assert analysis.results["bounds"]["lower"] == separate.lower_
     assert analysis.results["bounds"]["upper"] == separate.upper_
+
+
+def test_shared_fit_with_missing_data():
+    import warnings
+
+    data = make_truncation(1200, n_features=2, follow_up=(0.8, -1.0),
+                           response={"treated": (0.7, -1.0), "control": (0.8, 1.0)},
+                           random_state=6)  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        source = _fit(ps.MultiplyRobust(missing="at_random"), data)
+        for cls in (ps.PrincipalScoreWeighting, ps.OutcomeRegression):
+            separate = _fit(cls(missing="at_random"), data)
+            shared = _fit(cls(missing="at_random"), data, nuisance=source.nuisance_)
+            assert shared.std_error_method_ == separate.std_error_method_ == "sandwich"
+            for name in FIELDS:
+                assert getattr(shared, name) == getattr(separate, name), (cls, name)

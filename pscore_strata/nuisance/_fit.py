@@ -20,7 +20,7 @@ from sklearn.utils.validation import has_fit_parameter
 
 from .._validation import EXTREME_PROBABILITY
 from ._conditioned import StandardizedLinearRegression, StandardizedLogisticRegression
-from ._sandwich import build_parametric
+from ._sandwich import build_parametric, response_glm
 
 __all__ = [
     "NuisanceFit",
@@ -152,6 +152,9 @@ class NuisanceFit:
     parametric: dict | None
     models: dict = field(default_factory=dict)
     cross_fitted: bool = False
+    # missing="at_random" (nuisance/_missing.py): {"follow_up": {0: c0, 1: c1}, "response":
+    # {0: r0, 1: r1}} per row; None when nothing is missing.
+    missingness: dict | None = None
     settings: dict | None = None  # what it was fitted with, for sharing (see _share.py)
 
 
@@ -224,6 +227,7 @@ def fit_nuisance(
     n_folds=None,
     random_state=None,
     treatment_enters_estimate=True,
+    response_model=None,
     sandwich=True,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
@@ -244,6 +248,10 @@ def fit_nuisance(
     treatment_enters_estimate : bool, default=True
         ``False`` when the estimator's formula does not use ``pi`` (outcome regression), so a
         non-default treatment model does not rule out the sandwich standard error.
+    response_model : classifier or None
+        Follow-up and response models when ``data`` has missing status or outcomes
+        (``None``: the default logistic model); survival models are then fitted on rows with
+        known status and outcome models on rows with an observed outcome.
     sandwich : bool, default=True
         Build the M-estimation sandwich pieces (``parametric``) when the models allow it;
         ``False`` skips them (the multiply robust estimator never uses them).
@@ -252,6 +260,9 @@ def fit_nuisance(
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
     weighted = data.weighted
     X = data.X
+    coarsened = data.status_known is not None
+    known = data.status_known == 1 if coarsened else np.ones(n, bool)
+    observed = data.outcome_observed == 1 if coarsened else S == 1
     known_probability = isinstance(treatment_model, int | float) and not isinstance(
         treatment_model, bool
     )
@@ -303,11 +314,12 @@ def fit_nuisance(
         for arm in (0, 1):
             arm_rows = train[T[train] == arm]
             model, survival[arm][test] = _fit_predict(
-                models["survival"], X, S.astype(float), arm_rows, test, w, weighted, True
+                models["survival"], X, S.astype(float), arm_rows[known[arm_rows]], test, w,
+                weighted, True,
             )
             fitted[("survival", arm)].append(model)
             if fit_outcome:
-                rows = arm_rows[S[arm_rows] == 1]
+                rows = arm_rows[observed[arm_rows]]
                 model, outcome[arm][test] = _fit_predict(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
@@ -330,7 +342,23 @@ def fit_nuisance(
             fit_outcome=fit_outcome, binary_outcome=binary_outcome,
             known_probability=known_probability,
             treatment_enters_estimate=treatment_enters_estimate,
+            known=known, observed=observed,
         )  # fmt: skip
+    if coarsened:
+        from ._missing import fit_missingness
+
+        # The response model's pieces share the raw design, so it must be a bare GLM.
+        pieces = result.parametric is not None and response_glm(response_model)
+        missingness, missing_models, missing_parametric = fit_missingness(
+            data,
+            default_binary_model() if response_model is None else response_model,
+            splits,
+            _numeric_design(X) if pieces else None,
+            _parametric if pieces else None,
+        )
+        fitted.update(missing_models)
+        result.missingness = missingness
+        result.parametric = {**result.parametric, **missing_parametric} if pieces else None
     _warn_extremes(pi, survival, known_probability)
     return result
 

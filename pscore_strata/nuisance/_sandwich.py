@@ -40,7 +40,9 @@ from sklearn.preprocessing import (
     StandardScaler,
 )
 
-__all__ = ["glm_kind", "sandwich_reason", "build_parametric", "LooseFitWarning"]
+__all__ = [
+    "glm_kind", "sandwich_reason", "build_parametric", "response_glm", "LooseFitWarning"
+]  # fmt: skip
 
 _FIXED = (
     StandardScaler,
@@ -198,17 +200,28 @@ def _information_vector(Z, u):
     return np.concatenate([[u.sum()], Z.T @ u])
 
 
+def response_glm(model):
+    """Whether a follow-up/response model admits the sandwich on the raw covariates."""
+    return model is None or (not isinstance(model, Pipeline) and glm_kind(model) == "logistic")
+
+
 def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, known_probability,
-                     treatment_enters_estimate=True):  # fmt: skip
+                     treatment_enters_estimate=True, known=None, observed=None):  # fmt: skip
     """Sandwich pieces of every model that enters the estimate, or None if one does not qualify.
 
     ``given`` maps ``"treatment"``, ``"survival"``, ``"outcome"`` to the models the user passed
-    (None: the default). Each qualifying model must have been fitted once, on all rows.
+    (None: the default). Each qualifying model must have been fitted once, on all rows (with
+    missing data: survival models on rows of known status, ``known``, and outcome models on
+    rows with an observed outcome, ``observed``; the defaults are those of complete data).
     """
     if nuisance.cross_fitted:
         return None
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
     n = data.n_samples
+    if known is None:
+        known = np.ones(n, bool)
+    if observed is None:
+        observed = S == 1
     roles = ["survival"] + (["outcome"] if fit_outcome else [])
     if not known_probability:
         roles.insert(0, "treatment")
@@ -256,14 +269,14 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
             if role == "survival":
                 p = nuisance.survival[arm]
                 pieces[("survival", arm)] = parametric_piece(
-                    design_for(fitted, user), T == arm, S, p, p * (1 - p), w,
+                    design_for(fitted, user), (T == arm) & known, S, p, p * (1 - p), w,
                     check_root=check, role=f"survival model (arm {arm})",
                 )  # fmt: skip
             else:
                 m = nuisance.outcome[arm]
                 slope = m * (1 - m) if binary_outcome else 1.0
                 pieces[("outcome", arm)] = parametric_piece(
-                    design_for(fitted, user), (T == arm) & (S == 1), Y, m, slope, w,
+                    design_for(fitted, user), (T == arm) & observed, Y, m, slope, w,
                     check_root=check, role=f"outcome model (arm {arm})",
                 )  # fmt: skip
     memo.update(pieces)

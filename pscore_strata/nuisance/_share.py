@@ -17,7 +17,7 @@ from dataclasses import replace
 import numpy as np
 from sklearn.base import is_classifier
 
-from ._sandwich import build_parametric
+from ._sandwich import build_parametric, parametric_piece, response_glm
 
 __all__ = ["record_settings", "shared_nuisance", "model_key"]
 
@@ -44,8 +44,10 @@ def _fingerprint(data):
     """Digest of the rows the models were fitted on (treatment, survival, outcome, weights)."""
     digest = hashlib.blake2b(digest_size=16)
     for values in (data.treatment, data.survival, np.nan_to_num(data.outcome, nan=0.0),
-                   data.sample_weight):  # fmt: skip
-        digest.update(np.ascontiguousarray(values).tobytes())
+                   data.sample_weight, getattr(data, "status_known", None),
+                   getattr(data, "outcome_observed", None)):  # fmt: skip
+        if values is not None:
+            digest.update(np.ascontiguousarray(values).tobytes())
     return digest.hexdigest()
 
 
@@ -67,6 +69,8 @@ def record_settings(nuisance, owner, data, random_state):
         "survival_model": model_key(owner.survival_model),
         "outcome_model": model_key(getattr(owner, "outcome_model", None)) if uses_outcome
         else None,
+        "response_model": model_key(getattr(owner, "response_model", None))
+        if nuisance.missingness is not None else None,
         "n_folds": getattr(owner, "n_folds", None),
         "random_state": _state_key(random_state),
         "monotonicity": owner.monotonicity,
@@ -137,6 +141,11 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
                 _differs("outcome_model", settings["outcome_model"],
                          model_key(owner.outcome_model))  # fmt: skip
             )
+    if nuisance.missingness is not None and settings["response_model"] != model_key(
+        getattr(owner, "response_model", None)
+    ):
+        problems.append(_differs("response_model", settings["response_model"],
+                                 model_key(getattr(owner, "response_model", None))))  # fmt: skip
     n_folds = getattr(owner, "n_folds", None)
     if settings["n_folds"] != n_folds:
         problems.append(_differs("n_folds", settings["n_folds"], n_folds))
@@ -158,6 +167,7 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
         if outcome_model is not None:
             binary = is_classifier(outcome_model)
         treatment_model = owner.treatment_model
+        coarsened = getattr(data, "status_known", None) is not None
         parametric = build_parametric(
             data, nuisance,
             {"treatment": treatment_model, "survival": owner.survival_model,
@@ -166,7 +176,31 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
             known_probability=isinstance(treatment_model, numbers.Real)
             and not isinstance(treatment_model, bool),
             treatment_enters_estimate=treatment_enters,
+            known=data.status_known == 1 if coarsened else None,
+            observed=data.outcome_observed == 1 if coarsened else None,
         )  # fmt: skip
+        if parametric is not None and nuisance.missingness is not None:
+            missing = _missing_pieces(data, nuisance, getattr(owner, "response_model", None))
+            parametric = None if missing is None else {**parametric, **missing}
     shared = replace(nuisance, parametric=parametric)
     shared.settings = settings
     return shared
+
+
+def _missing_pieces(data, nuisance, response_model):
+    """Sandwich pieces of the follow-up and response models, as ``fit_missingness`` builds them."""
+    if not response_glm(response_model):
+        return None
+    from ._missing import _cells
+
+    design = None if data.X is None else np.asarray(data.X, dtype=float)
+    pieces = {}
+    for key in nuisance.models:
+        if not (isinstance(key, tuple) and key[0] in ("follow_up", "response")):
+            continue
+        kind, arm = key
+        mask, target = _cells(data, arm)[kind]
+        values = nuisance.missingness[kind][arm]
+        pieces[key] = parametric_piece(design, mask, target, values, values * (1 - values),
+                                       data.sample_weight)  # fmt: skip
+    return pieces

@@ -53,6 +53,7 @@ class AnalysisOptions:
     level: float = 0.95
     monotonicity: str = "increasing"
     seed: int = 0
+    missing: str = "error"
 
 
 def model_settings(options, n_rows=None):
@@ -73,7 +74,7 @@ def build_estimator(method, options, n_rows=None):
     """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed)  # fmt: skip
+                  random_state=options.seed, missing=options.missing)  # fmt: skip
     if method != "weighting" and models:
         from sklearn.ensemble import HistGradientBoostingRegressor
 
