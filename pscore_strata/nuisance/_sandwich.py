@@ -117,6 +117,13 @@ def sandwich_reason(estimator):
     roles.append(("survival_model", estimator.survival_model))
     if getattr(estimator, "_uses_outcome_model", False):
         roles.append(("outcome_model", estimator.outcome_model))
+    if getattr(estimator, "missing", "error") == "at_random":
+        response = getattr(estimator, "response_model", None)
+        if not response_glm(response):
+            return (
+                f"`response_model` is {_describe(response)}, not an unpenalized "
+                "LogisticRegression on the covariates as given"
+            )
     for role, model in roles:
         if model is None or isinstance(model, int | float):
             continue
