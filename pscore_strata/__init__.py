@@ -12,7 +12,7 @@ from .diagnostics import (
     overlap_summary,
     weight_summary,
 )
-from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
 from .inference import BootstrapResult, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning
 
@@ -22,6 +22,7 @@ __all__ = [
     "PrincipalScoreWeighting",
     "OutcomeRegression",
     "MultiplyRobust",
+    "fit_estimators",
     "OverlapWarning",
     "MonotonicityWarning",
     "TrimmingBounds",

@@ -252,7 +252,8 @@ def build_parser():
         type=int,
         default=None,
         metavar="K",
-        help="cross-fitting folds (default: none for linear, 5 for boosting)",
+        help="cross-fitting folds (default: none for linear, 5 for boosting; 2 for boosting "
+        "above 200,000 rows)",
     )
     analyze.add_argument(
         "--bootstrap",

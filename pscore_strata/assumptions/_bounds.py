@@ -25,6 +25,7 @@ from .._validation import check_choice, check_level, check_truncation_data
 from ..estimators import _formulas
 from ..inference._influence import influence_std_error
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
+from ..nuisance._share import shared_nuisance
 
 __all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
 
@@ -178,7 +179,8 @@ class TrimmingBounds(BaseEstimator):
         self.missing = missing
         self.response_model = response_model
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None):
+    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None,
+            nuisance=None):  # fmt: skip
         """Estimate the bounds.
 
         Parameters
@@ -191,6 +193,10 @@ class TrimmingBounds(BaseEstimator):
         cells : array-like of shape (n_samples,), optional
             Covariate cell labels (functions of pre-treatment covariates only). Bounds are
             computed within each cell and averaged.
+        nuisance : NuisanceFit, optional
+            The ``nuisance_`` of an estimator fitted on the same rows with the same treatment
+            and survival models and monotonicity, without cross-fitting: its models are reused
+            (same numbers as a separate fit).
 
         Returns
         -------
@@ -220,10 +226,13 @@ class TrimmingBounds(BaseEstimator):
                 raise TypeError(f"`n_strata` must be an integer >= 1; got {n_strata!r}.")
             if n_strata < 1:
                 raise ValueError(f"`n_strata` must be an integer >= 1; got {n_strata}.")
-        nuisance = fit_nuisance(
-            data, self.treatment_model, self.survival_model, random_state=None,
-            response_model=self.response_model,
-        )  # fmt: skip
+        if nuisance is None:
+            nuisance = fit_nuisance(
+                data, self.treatment_model, self.survival_model, random_state=None,
+                response_model=self.response_model,
+            )  # fmt: skip
+        else:
+            nuisance = shared_bounds_nuisance(self, nuisance, data)
         o = _formulas.orient(data, nuisance, self.monotonicity)
         labels = self._cell_labels(cells, data, o)
         self._compute(o, labels, data)
@@ -430,3 +439,27 @@ class TrimmingBounds(BaseEstimator):
             "statistician.",
         ]
         return table
+
+
+def shared_bounds_nuisance(bounds, nuisance, data):
+    """A shared nuisance for the bounds: fitted on all rows (the bounds never cross-fit)."""
+    if getattr(nuisance, "cross_fitted", False):
+        raise ValueError(
+            "`nuisance` is cross-fitted, but TrimmingBounds fits its models on all rows; drop "
+            "`nuisance` (the bounds then fit their own models) or share a fit without n_folds."
+        )
+    view = _BoundsSettings(bounds)
+    return shared_nuisance(view, nuisance, data, uses_outcome=False, sandwich=True)
+
+
+class _BoundsSettings:
+    """The bounds' model settings as the sharing check reads them (never cross-fitted)."""
+
+    n_folds = None
+    random_state = None
+
+    def __init__(self, bounds):
+        self.treatment_model = bounds.treatment_model
+        self.survival_model = bounds.survival_model
+        self.monotonicity = bounds.monotonicity
+        self.response_model = bounds.response_model

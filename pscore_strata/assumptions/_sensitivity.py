@@ -32,9 +32,9 @@ from sklearn.utils.validation import check_is_fitted
 from .._validation import check_level
 from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
-from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import influence_std_error, normal_interval
+from ..inference._influence import normal_interval
+from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
 
@@ -152,27 +152,45 @@ def _regression(o, st, parametric):
     return mu_m, mu_p, if_m, if_p
 
 
-def _robust(o, st, parametric):
+def _robust_pieces(o):
+    """The parameter-free arrays of :func:`_robust` (kept by a sensitivity path)."""
+    S, Y, pi = o.survival, o.outcome, o.pi
+    # Missing data: each residual over its observation probability (docs/missing-data.md).
+    return {
+        "resid_pure": o.known_pure * (S - o.p_pure) / (1 - pi),
+        "resid_mixed": o.known_mixed * (S - o.p_mixed) / pi,
+        "gap_mixed": Y - o.m_mixed,
+        "gap_pure": Y - o.m_pure,
+        "denominator_mixed": pi * o.p_mixed,
+        "denominator_pure": (1 - pi) * o.p_pure,
+    }
+
+
+def _robust(o, st, parametric, cache=None):
     """Efficient-influence-function estimator of the adjusted means (docs/sensitivity.md).
 
     For a functional ``E[G(p_p, p_m, m)]`` the efficient influence function adds to ``G`` each
     partial derivative times the residual of that regression, inverse-weighted by the chance of
     being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022, Theorem 1).
+    ``cache`` (a dict) keeps the parameter-free arrays between calls; the arithmetic is the
+    same with or without it.
     """
-    S, Y, pi = o.survival, o.outcome, o.pi
-    # Missing data: each residual over its observation probability (docs/missing-data.md).
-    resid_pure = o.known_pure * (S - o.p_pure) / (1 - pi)
-    resid_mixed = o.known_mixed * (S - o.p_mixed) / pi
+    if cache is None:
+        cache = {}
+    if "robust" not in cache:
+        cache["robust"] = _robust_pieces(o)
+    pieces = cache["robust"]
+    resid_pure, resid_mixed = pieces["resid_pure"], pieces["resid_mixed"]
     g, g_pp, g_pm, g_m = st.g(o.m_mixed)
     phi_mixed = (
         g + g_pp * resid_pure + g_pm * resid_mixed
-        + g_m * o.observed_mixed * (Y - o.m_mixed) / (pi * o.p_mixed)
+        + g_m * o.observed_mixed * pieces["gap_mixed"] / pieces["denominator_mixed"]
     )  # fmt: skip
     score_resid = st.a_pure * resid_pure + st.a_mixed * resid_mixed
     phi_e = st.e_always + score_resid
     phi_pure = (
         st.e_always * o.m_pure + o.m_pure * score_resid
-        + st.e_always * o.observed_pure * (Y - o.m_pure) / ((1 - pi) * o.p_pure)
+        + st.e_always * o.observed_pure * pieces["gap_pure"] / pieces["denominator_pure"]
     )  # fmt: skip
     share = o.weighted_mean(phi_e)
     mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
@@ -239,37 +257,40 @@ def _check_one_scale(pi_ratio, pi_difference):
 def _adjusted(formula, estimator, nuisance, delta, eps, xi):
     data = estimator.training_data_
     o = _formulas.orient(data, nuisance, estimator.monotonicity)
+    parts, clipped = _adjust_view(formula, estimator, o, nuisance.parametric, delta, eps, xi)
+    effect, influence = _formulas.scale_effect(parts, estimator.scale)
+    return float(effect), influence, clipped
+
+
+def _adjust_view(formula, estimator, o, parametric, delta, eps, xi, cache=None):
+    """Adjusted always-survivor means on an oriented view: ``(MeanParts, n_clipped)``."""
     st = _Stratum(o, delta, eps, xi)
     # Robust influence values need no corrections (orthogonal); the others get them exactly
     # when the fitted estimator used them (default GLMs, no cross-fitting).
-    parametric = formula is not _robust and nuisance.parametric is not None
-    mu_m, mu_p, if_m, if_p = formula(o, st, parametric)
-    parts = _formulas._unorient(o, mu_m, mu_p, if_m, if_p)
-    effect, influence = _formulas.scale_effect(parts, estimator.scale)
-    return float(effect), influence, int(st.clipped.sum())
+    if formula is _robust:
+        mu_m, mu_p, if_m, if_p = _robust(o, st, False, cache)
+    else:
+        mu_m, mu_p, if_m, if_p = formula(o, st, parametric is not None)
+    return _formulas._unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
 
 
-def _effect_and_error(estimator, setting):
+def sensitivity_path(estimator):
+    """A :class:`._paths.SensitivityPath` over the estimator's stored predictions."""
+    formula = _check_estimator(estimator)
+    return SensitivityPath(estimator, formula, _adjust_view)
+
+
+def _effect_and_error(estimator, setting, path=None):
     """Effect and standard error at one setting, combined over cross-fitting repeats.
 
     Each repeat's nuisance fit gives its own adjusted effect; they are combined as the estimator
     combines its repeats (median, variance adding the spread between repeats), so the null
     setting reproduces ``effect_`` and ``std_error_``. Returns ``(effect, std_error, clipped)``.
     """
-    formula = _check_estimator(estimator)
+    _check_estimator(estimator)
     _check_one_scale(setting.get("pi_ratio"), setting.get("pi_difference"))
-    eps = setting.get("pi_ratio")
-    delta = setting.get("pi_difference", 0.0)
-    xi = setting.get("harmed_ratio", 0.0)
-    data = estimator.training_data_
-    effects, errors, clipped = [], [], 0
-    for nuisance in getattr(estimator, "_repeat_fits", [estimator.nuisance_]):
-        effect, influence, n_clipped = _adjusted(formula, estimator, nuisance, delta, eps, xi)
-        effects.append(effect)
-        errors.append(influence_std_error(influence, data.sample_weight, data.groups))
-        clipped = max(clipped, n_clipped)
-    effect, std_error = median_aggregate(effects, errors)
-    return float(effect), float(std_error), clipped
+    path = path or sensitivity_path(estimator)
+    return path.evaluate(setting)
 
 
 def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
@@ -363,11 +384,12 @@ def sensitivity_grid(
         return outcome_shift_grid(estimator, outcome_shift, check_level(level))
     axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
     _check_estimator(estimator)
+    path = sensitivity_path(estimator)
     log_scale = estimator.scale != "difference"
     rows = []
     for values in itertools.product(*axes.values()):
         setting = dict(zip(axes, values, strict=True))
-        effect, se, clipped = _effect_and_error(estimator, setting)
+        effect, se, clipped = _effect_and_error(estimator, setting, path)
         low, high = normal_interval(effect, se, level, log_scale)
         rows.append({**setting, "effect": effect, "std_error": se, "ci_low": low,
                      "ci_high": high, "n_rows_clipped": clipped})  # fmt: skip

@@ -13,7 +13,13 @@ import numpy as np
 from scipy import optimize
 
 from ..inference._influence import normal_interval
-from ._sensitivity import _NULL, _check_estimator, _check_value, _effect_and_error
+from ._sensitivity import (
+    _NULL,
+    _check_estimator,
+    _check_value,
+    _effect_and_error,
+    sensitivity_path,
+)
 
 __all__ = ["tipping_point"]
 
@@ -63,13 +69,18 @@ def tipping_point(
     null_effect = 0.0 if estimator.scale == "difference" else 1.0
     log_scale = estimator.scale != "difference"
     sign = np.sign(estimator.effect_ - null_effect)
+    # Built once: the oriented predictions, and for pi_difference the affine path (_paths.py).
+    path = sensitivity_path(estimator)
 
-    def distance(value):
-        effect, se, _ = _effect_and_error(estimator, {parameter: _check_value(parameter, value)})
+    def criterion_gap(effect, se):
         if criterion == "estimate":
             return sign * (effect - null_effect)
         low, high = normal_interval(effect, se, level, log_scale)
         return low - null_effect if sign > 0 else null_effect - high
+
+    def distance(value):
+        setting = {parameter: _check_value(parameter, value)}
+        return criterion_gap(*_effect_and_error(estimator, setting, path)[:2])
 
     null = _NULL[parameter]
     if distance(null) <= 0:
@@ -86,6 +97,16 @@ def tipping_point(
         if end == null:
             continue
         points = _path(null, end, parameter)
+        if parameter == "pi_difference":
+            # The whole coarse path at once; the first crossing brackets the root.
+            effects, errors, _ = path.along_delta(points)
+            gaps = np.array([criterion_gap(e, s) for e, s in zip(effects, errors, strict=True)])
+            crossed = np.flatnonzero(gaps <= 0)
+            if crossed.size:
+                first = crossed[0]
+                previous = null if first == 0 else points[first - 1]
+                found.append(optimize.brentq(distance, previous, points[first], xtol=1e-10))
+            continue
         previous = null
         for point in points:
             if distance(point) <= 0:

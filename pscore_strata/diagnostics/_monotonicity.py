@@ -13,12 +13,13 @@ from ._arrays import (
     oriented_predictions,
     treated_indicator,
 )
+from ._cache import cached_diagnostic, without_strata
 
 __all__ = ["monotonicity_check"]
 
 
 def _strata_labels(o, X, strata):
-    """One string label per row, the labels in display order, and a description."""
+    """Row masks per stratum label, the labels in display order, and a description."""
     n = o.weight.shape[0]
     if strata is None:
         # Quintiles of the fitted always-survivor score: rows alike in the latent stratum share.
@@ -45,13 +46,24 @@ def _strata_labels(o, X, strata):
         raise ValueError(
             f"`strata` must hold one label per fitted row ({n}); got shape {np.shape(strata)}."
         )
-    missing = int(pd.isna(np.asarray(strata, dtype=object)).sum())
+    if isinstance(strata, pd.Categorical):
+        missing = int((strata.codes < 0).sum())  # no per-row object array at a million rows
+    else:
+        missing = int(pd.isna(np.asarray(strata, dtype=object)).sum())
     if missing:
         raise ValueError(f"`strata` has {missing} missing label(s); give every row one.")
     categories = pd.Categorical(strata)
-    labels = np.asarray(categories.categories.astype(str))[categories.codes]
-    order = [str(c) for c in categories.categories if (categories == c).any()]
-    return labels, order, description
+    names = np.asarray(categories.categories.astype(str))
+    codes = categories.codes
+    present = np.bincount(codes, minlength=names.size) > 0
+    order = list(dict.fromkeys(str(name) for name, seen in zip(names, present, strict=True)
+                               if seen))  # fmt: skip
+    # Row masks per label (categories whose text coincides share one label, as before).
+    masks = {}
+    for label in order:
+        which = np.flatnonzero(names == label)
+        masks[label] = codes == which[0] if which.size == 1 else np.isin(codes, which)
+    return masks, order, description
 
 
 def _two_proportions(S, T, w, z_crit):
@@ -85,6 +97,7 @@ def _two_proportions(S, T, w, z_crit):
     }
 
 
+@cached_diagnostic(without_strata)
 def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.95):
     """Compare survival between arms overall and within covariate strata.
 
@@ -119,7 +132,7 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
     z_crit = stats.norm.ppf(0.5 + check_level(level) / 2)
     if not isinstance(adjust, bool):
         raise TypeError(f"`adjust` must be True or False; got {adjust!r}.")
-    labels, order, description = _strata_labels(o, X, strata)
+    masks, order, description = _strata_labels(o, X, strata)
     T = treated_indicator(o)
     w = o.weight
     if adjust:
@@ -129,8 +142,8 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
         # Unknown survival status (missing at random): known rows carry 1 / c of their arm.
         w = w * (o.coarsening.known_mixed + o.coarsening.known_pure)
     violations = o.p_mixed < o.p_pure
-    rows = {"overall": (np.ones(labels.shape[0], bool))}
-    rows.update({label: labels == label for label in order})
+    rows = {"overall": (np.ones(o.weight.shape[0], bool))}
+    rows.update(masks)
     table = pd.DataFrame.from_dict(
         {
             name: {

@@ -28,6 +28,7 @@ from ._arrays import (
     survivor_weights,
     treated_indicator,
 )
+from ._cache import always, cached_diagnostic
 from ._monotonicity import monotonicity_check
 
 __all__ = [
@@ -121,6 +122,7 @@ def _moments(Z, observed, weights):
     return mean, np.maximum(variance, 0.0)
 
 
+@cached_diagnostic(always)
 def balance_table(estimator, X):
     """Covariate balance of the always-survivor reconstructions (the balancing property).
 
@@ -199,6 +201,7 @@ def balance_table(estimator, X):
     return table
 
 
+@cached_diagnostic(always, takes_x=False)
 def weight_summary(estimator):
     """Distribution of the balancing weights of each reconstruction.
 
@@ -233,6 +236,7 @@ def weight_summary(estimator):
     return pd.DataFrame.from_dict(rows, orient="index").rename_axis("weights")
 
 
+@cached_diagnostic(always, takes_x=False)
 def overlap_summary(estimator):
     """Distribution of the treatment probability and the principal scores in each arm.
 
@@ -270,6 +274,7 @@ def overlap_summary(estimator):
     return table
 
 
+@cached_diagnostic(always)
 def diagnostic_warnings(estimator, X=None):
     """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
 

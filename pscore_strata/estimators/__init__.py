@@ -6,5 +6,6 @@ weighting, outcome regression and the multiply robust estimator.
 """
 
 from ._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from ._together import fit_estimators
 
-__all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
+__all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust", "fit_estimators"]

@@ -20,6 +20,7 @@ from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ..inference._influence import influence_std_error, normal_interval, resample_rows, spawn_seeds
 from ..inference._refits import _seed_models
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
+from ..nuisance._share import record_settings, shared_nuisance
 from . import _formulas
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -52,8 +53,8 @@ class SurvivorEffectEstimator(BaseEstimator):
             raise ValueError(f"`n_bootstrap` must be a non-negative integer; got {n_bootstrap!r}.")
         return check_repeats(getattr(self, "n_repeats", 1), self.n_folds)
 
-    def _fit_nuisance(self, data, random_state):
-        return fit_nuisance(
+    def _fit_nuisance(self, data, random_state, sandwich=True):
+        fitted = fit_nuisance(
             data,
             self.treatment_model,
             self.survival_model,
@@ -63,14 +64,17 @@ class SurvivorEffectEstimator(BaseEstimator):
             random_state=random_state,
             treatment_enters_estimate=self._treatment_enters_estimate,
             response_model=self.response_model,
+            # The multiply robust influence values never use the sandwich pieces.
+            sandwich=sandwich and self._formula is not _formulas.robust_means,
         )
+        return record_settings(fitted, self, data, random_state)
 
     def _means(self, data, nuisance):
         oriented = _formulas.orient(data, nuisance, self.monotonicity)
         with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
             return type(self)._formula(oriented), oriented
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None):
+    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, nuisance=None):
         """Estimate the survivor average causal effect.
 
         Parameters
@@ -91,6 +95,12 @@ class SurvivorEffectEstimator(BaseEstimator):
             for frequency weights (repeat the rows to get the frequency-weight error).
         groups : array-like of shape (n_samples,), optional
             Cluster labels: standard errors add influence values within clusters.
+        nuisance : NuisanceFit, optional
+            The ``nuisance_`` of another estimator fitted on the same rows with the same
+            models, folds and monotonicity (outcome regression and multiply robust share five
+            models; weighting needs the first three). Its models are reused instead of
+            refitted, giving the numbers a separate fit would; a fit on other data or with
+            other settings is refused.
 
         Returns
         -------
@@ -105,9 +115,21 @@ class SurvivorEffectEstimator(BaseEstimator):
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
             raise ValueError("`scale='ratio'` needs a non-negative outcome; `y` has negatives.")
-        fits = [
-            self._fit_nuisance(data, seed) for seed in repeat_seeds(self.random_state, n_repeats)
-        ]
+        if getattr(self, "_statistic_only", False) and nuisance is None:
+            return self._fit_statistic(data, n_repeats)
+        if nuisance is not None:
+            fits = [
+                shared_nuisance(
+                    self, nuisance, data, uses_outcome=self._uses_outcome_model,
+                    sandwich=self._formula is not _formulas.robust_means,
+                    treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
+                )
+            ]  # fmt: skip
+        else:
+            fits = [
+                self._fit_nuisance(data, seed)
+                for seed in repeat_seeds(self.random_state, n_repeats)
+            ]
         self._store(data, fits)
         if self.std_error_method_ == "bootstrap":
             self._bootstrap_std_errors(data)
@@ -142,13 +164,16 @@ class SurvivorEffectEstimator(BaseEstimator):
         # The repeat closest to the median supplies the per-row quantities (one split's values).
         chosen = int(np.argmin(np.abs(table["effect"].to_numpy() - effect)))
         _, influence, parts, oriented = evaluated[chosen]
+        # Only the nuisance arrays are needed from here: drop the oriented copies before the
+        # principal scores are built (peak memory at a million rows).
+        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)
+        del evaluated
         self.effect_ = float(effect)
         self.std_error_ = float(std_error)
         self.mean_treated_ = float(np.median(table["mean_treated"]))
         self.mean_control_ = float(np.median(table["mean_control"]))
         self.repeat_estimates_ = table
         self.influence_ = influence
-        self._mean_influence = (parts.influence_treated, parts.influence_control)
         self.nuisance_ = fits[chosen]
         self._repeat_fits = fits
         self.training_data_ = replace(data, X=None)
@@ -158,7 +183,6 @@ class SurvivorEffectEstimator(BaseEstimator):
         self.classes_ = np.array(
             ["always_survivor", "protected" if oriented.increasing else "harmed", "doomed"]
         )
-        self.principal_scores_ = _principal_scores(oriented.p_mixed, oriented.p_pure)
         violations = int(np.sum(oriented.p_mixed < oriented.p_pure))
         self.n_monotonicity_violations_ = violations
         # Small reversals are estimation noise where the arms' survival is close; warn when
@@ -180,6 +204,19 @@ class SurvivorEffectEstimator(BaseEstimator):
         self.std_error_method_ = self._std_error_method(self.nuisance_)
         self.bootstrap_replicates_ = None
 
+    @property
+    def principal_scores_(self):
+        """Principal scores of the training rows, shape (n_samples, 3), ``classes_`` order.
+
+        Computed from the stored survival predictions on each access (not kept, so three
+        estimators sharing one nuisance fit do not hold three n x 3 copies).
+        """
+        if "nuisance_" not in self.__dict__:
+            raise AttributeError("principal_scores_ is set by fit")
+        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
+        survival = self.nuisance_.survival
+        return _principal_scores(survival[mixed], survival[pure])
+
     def _std_error_method(self, nuisance):
         if self._formula is _formulas.robust_means:
             return "influence function"
@@ -188,11 +225,25 @@ class SurvivorEffectEstimator(BaseEstimator):
         return "bootstrap" if self.n_bootstrap > 0 else "influence function (nuisance ignored)"
 
     # -- bootstrap fallback ------------------------------------------------------------------
-    def _refit_means(self, data):
-        nuisance = self._fit_nuisance(data, self.random_state)
+    def _refit_means(self, data, random_state=None):
+        """The statistic of one refit: no standard errors, sandwich pieces or diagnostics."""
+        seed = self.random_state if random_state is None else random_state
+        nuisance = self._fit_nuisance(data, seed, sandwich=False)
         parts, _ = self._means(data, nuisance)
         effect, _ = _formulas.scale_effect(parts, self.scale)
         return effect, parts.mean_treated, parts.mean_control
+
+    def _fit_statistic(self, data, n_repeats):
+        """A bootstrap replicate's fit (``ps.bootstrap`` sets ``_statistic_only``): the effect
+        and the always-survivor means (medians over cross-fitting repeats), nothing else."""
+        values = np.array([
+            self._refit_means(data, seed) for seed in repeat_seeds(self.random_state, n_repeats)
+        ], dtype=float)  # fmt: skip
+        self.effect_, self.mean_treated_, self.mean_control_ = map(
+            float, np.median(values, axis=0)
+        )
+        self.n_samples_ = data.n_samples
+        return self
 
     def _bootstrap_std_errors(self, data):
         """Resample rows within arms (clusters, if given) and refit every model."""
@@ -329,6 +380,19 @@ def _one_replicate(estimator, data, seed):
 
 
 def _principal_scores(p_mixed, p_pure):
-    always = np.minimum(p_pure, p_mixed)
-    helped = np.clip(p_mixed - p_pure, 0.0, None)
-    return np.column_stack([always, helped, 1.0 - always - helped])
+    # Written into one array (three n-vectors at the peak, not six).
+    scores = np.empty((p_mixed.shape[0], 3))
+    always, helped, doomed = scores[:, 0], scores[:, 1], scores[:, 2]
+    np.minimum(p_pure, p_mixed, out=always)
+    np.subtract(p_mixed, p_pure, out=helped)
+    np.clip(helped, 0.0, None, out=helped)
+    np.subtract(1.0, always, out=doomed)
+    doomed -= helped
+    return scores
+
+
+class _Roles:
+    """The two survival predictions by role, and the monotonicity direction."""
+
+    def __init__(self, p_mixed, p_pure, increasing):
+        self.p_mixed, self.p_pure, self.increasing = p_mixed, p_pure, increasing

@@ -233,8 +233,10 @@ def robust_means(o, subset=None):
     parametric models that are all correct, their estimation does not change the first-order
     variance.
     """
-    g = _indicator(o, subset)
-    phi_e, phi_mixed, phi_pure = (g * phi for phi in robust_terms(o))
+    phi_e, phi_mixed, phi_pure = robust_terms(o)
+    if subset is not None:
+        g = _indicator(o, subset)
+        phi_e, phi_mixed, phi_pure = g * phi_e, g * phi_mixed, g * phi_pure
     share = o.weighted_mean(phi_e)
     mu_mixed = o.weighted_mean(phi_mixed) / share
     mu_pure = o.weighted_mean(phi_pure) / share

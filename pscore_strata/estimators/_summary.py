@@ -124,11 +124,13 @@ def _notes(estimator):
             "equations (M-estimation sandwich), so they account for the fitted models."
         )
     elif method == "bootstrap":
+        from ..nuisance._sandwich import sandwich_reason
+
         notes.append(
             f"Standard errors of the SACE and the always-survivor means come from "
             f"{len(estimator.bootstrap_replicates_)} bootstrap resamples (within arms) that refit "
-            "every model, because the sandwich formula is available only for the default "
-            "logistic/linear models."
+            "every model, because the sandwich formula needs unpenalized logistic/linear models "
+            f"fitted on all rows and here {sandwich_reason(estimator)}."
         )
     elif method == "influence function":
         notes.append("Standard errors come from the efficient influence function.")

@@ -100,6 +100,9 @@ def _seed_models(estimator, seed):
 
 def _refit(template, arrays, rows, seed):
     estimator = _seed_models(clone(template), seed)
+    if hasattr(estimator, "_fit_statistic"):
+        # A replicate needs only its statistic: no standard errors, sandwich or diagnostics.
+        estimator._statistic_only = True
     try:
         fitted = _fit_rows(estimator, *arrays, rows)
     except REFIT_ERRORS as exc:

@@ -14,12 +14,13 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 from sklearn.base import clone, is_classifier
-from sklearn.linear_model import LinearRegression, LogisticRegression
 from sklearn.model_selection import StratifiedKFold
 from sklearn.pipeline import Pipeline
 from sklearn.utils.validation import has_fit_parameter
 
 from .._validation import EXTREME_PROBABILITY
+from ._conditioned import StandardizedLinearRegression, StandardizedLogisticRegression
+from ._sandwich import build_parametric, response_glm
 
 __all__ = [
     "NuisanceFit",
@@ -42,12 +43,18 @@ class MonotonicityWarning(UserWarning):
 
 
 def default_binary_model():
-    """Unpenalized logistic regression (``C=inf``; exact Newton steps, tight tolerance)."""
-    return LogisticRegression(C=np.inf, solver="newton-cholesky", tol=1e-10, max_iter=200)
+    """Unpenalized logistic regression (``C=inf``; exact Newton steps, tight tolerance).
+
+    Fitted on standardized columns and mapped back, so the units of the covariates do not
+    change the fit (:mod:`._conditioned`).
+    """
+    return StandardizedLogisticRegression(
+        C=np.inf, solver="newton-cholesky", tol=1e-10, max_iter=200
+    )
 
 
 def _default_outcome_model(binary):
-    return default_binary_model() if binary else LinearRegression()
+    return default_binary_model() if binary else StandardizedLinearRegression()
 
 
 @dataclass(frozen=True)
@@ -110,15 +117,9 @@ def _information(X, a):
 
 
 def _parametric(design, mask, target, prediction, slope, weights):
-    residual = np.where(mask, np.nan_to_num(target) - prediction, 0.0)
-    info = _information(design, weights * mask * slope) / weights.sum()
-    return ParametricFit(
-        design=design,
-        mask=mask.astype(float),
-        residual=residual,
-        slope=slope,
-        h_inverse=np.linalg.pinv(info),
-    )
+    from ._sandwich import parametric_piece
+
+    return parametric_piece(design, mask, target, prediction, slope, weights)
 
 
 @dataclass
@@ -140,6 +141,9 @@ class NuisanceFit:
     models : dict
         Fitted models (a list per arm: one per fold when cross-fitted), for predictions on new
         rows.
+    settings : dict or None
+        The rows and model settings of the fit, so that another estimator can reuse it
+        (``fit(..., nuisance=est.nuisance_)``) and refuse it when they differ.
     """
 
     treatment_probability: np.ndarray
@@ -151,6 +155,7 @@ class NuisanceFit:
     # missing="at_random" (nuisance/_missing.py): {"follow_up": {0: c0, 1: c1}, "response":
     # {0: r0, 1: r1}} per row; None when nothing is missing.
     missingness: dict | None = None
+    settings: dict | None = None  # what it was fitted with, for sharing (see _share.py)
 
 
 def _fit(model, X, target, weights):
@@ -200,8 +205,9 @@ def _fit_predict(model, X, target, fit_rows, predict_rows, weights, weighted, bi
         fitted = _ConstantModel(np.sum(w * target[fit_rows]) / w.sum())
         return fitted, _predict(fitted, None, binary).repeat(predict_rows.size)
     fitted = _fit(
-        clone(model), _rows(X, fit_rows), target[fit_rows], weights[fit_rows] if weighted else None
-    )
+        clone(model), _rows(X, fit_rows), _rows(target, fit_rows),
+        _rows(weights, fit_rows) if weighted else None,
+    )  # fmt: skip
     return fitted, _predict(fitted, _rows(X, predict_rows), binary)
 
 
@@ -222,6 +228,7 @@ def fit_nuisance(
     random_state=None,
     treatment_enters_estimate=True,
     response_model=None,
+    sandwich=True,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -245,6 +252,9 @@ def fit_nuisance(
         Follow-up and response models when ``data`` has missing status or outcomes
         (``None``: the default logistic model); survival models are then fitted on rows with
         known status and outcome models on rows with an observed outcome.
+    sandwich : bool, default=True
+        Build the M-estimation sandwich pieces (``parametric``) when the models allow it;
+        ``False`` skips them (the multiply robust estimator never uses them).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -315,55 +325,42 @@ def fit_nuisance(
                 )
                 fitted[("outcome", arm)].append(model)
 
-    parametric = None
-    # The sandwich needs every model that enters the estimate to be a default GLM fitted on all
-    # rows; a treatment model that only feeds reported shares (outcome regression) may be any.
-    defaults = (
-        n_folds is None
-        and (treatment_model is None or known_probability or not treatment_enters_estimate)
-        and survival_model is None
-        and (outcome_model is None or not fit_outcome)
-        and (response_model is None or not coarsened)
+    result = NuisanceFit(
+        treatment_probability=pi,
+        survival=survival,
+        outcome=outcome,
+        parametric=None,
+        models=fitted,
+        cross_fitted=n_folds is not None,
     )
-    if defaults:
-        design = _numeric_design(X)
-        parametric = {}
-        if treatment_model is None:
-            parametric["treatment"] = _parametric(design, np.ones(n, bool), T, pi, pi * (1 - pi), w)
-        for arm in (0, 1):
-            p = survival[arm]
-            mask = (T == arm) & known
-            parametric[("survival", arm)] = _parametric(design, mask, S, p, p * (1 - p), w)
-            if fit_outcome:
-                m = outcome[arm]
-                slope = m * (1 - m) if binary_outcome else np.ones(n)
-                mask = (T == arm) & observed
-                parametric[("outcome", arm)] = _parametric(design, mask, Y, m, slope, w)
-
-    missingness = None
+    if sandwich:
+        # Every model that enters the estimate must be an unpenalized GLM fitted on all rows
+        # (the defaults, or a user's model that _sandwich recognizes).
+        result.parametric = build_parametric(
+            data, result,
+            {"treatment": treatment_model, "survival": survival_model, "outcome": outcome_model},
+            fit_outcome=fit_outcome, binary_outcome=binary_outcome,
+            known_probability=known_probability,
+            treatment_enters_estimate=treatment_enters_estimate,
+            known=known, observed=observed,
+        )  # fmt: skip
     if coarsened:
         from ._missing import fit_missingness
 
+        # The response model's pieces share the raw design, so it must be a bare GLM.
+        pieces = result.parametric is not None and response_glm(response_model)
         missingness, missing_models, missing_parametric = fit_missingness(
             data,
             default_binary_model() if response_model is None else response_model,
             splits,
-            _numeric_design(X) if defaults else None,
-            _parametric if defaults else None,
+            _numeric_design(X) if pieces else None,
+            _parametric if pieces else None,
         )
         fitted.update(missing_models)
-        if parametric is not None:
-            parametric.update(missing_parametric)
+        result.missingness = missingness
+        result.parametric = {**result.parametric, **missing_parametric} if pieces else None
     _warn_extremes(pi, survival, known_probability)
-    return NuisanceFit(
-        treatment_probability=pi,
-        survival=survival,
-        outcome=outcome,
-        parametric=parametric,
-        models=fitted,
-        cross_fitted=n_folds is not None,
-        missingness=missingness,
-    )
+    return result
 
 
 def _warn_extremes(pi, survival, known_probability):

@@ -176,16 +176,23 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     """
     collector = _Collector(progress)
     estimators = {}
-    for method in (options.method, *[m for m in METHODS if m != options.method]):
-        estimator = build_estimator(method, options)
+    n_rows = int(len(data.treatment))
+    order = (options.method, *[m for m in METHODS if m != options.method])
+    shared = None
+    # One fit of the five models serves every estimator: those with the outcome model first.
+    for method in sorted(order, key=lambda m: not METHODS[m]._uses_outcome_model):
+        estimator = build_estimator(method, options, n_rows)
         collector.run(
             f"{METHOD_LABELS[method].lower()} estimator",
             estimator.fit,
             data.design,
             data.outcome,
             **fit_arguments(data),
+            nuisance=shared,
         )
+        shared = shared or estimator.nuisance_
         estimators[method] = estimator
+    estimators = {method: estimators[method] for method in order}
     primary = estimators[options.method]
     shares, naive = _summary_rows(primary, options.level)
     results = {
@@ -197,7 +204,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         "settings": {
             "method": options.method,
             "learner": options.learner,
-            "folds": model_settings(options)[1],
+            "folds": model_settings(options, n_rows)[1],
             "bootstrap_resamples": options.bootstrap,
             "level": options.level,
             "monotonicity": options.monotonicity,
@@ -223,7 +230,9 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     except ImportError as error:
         results["diagnostics"] = _unavailable("Diagnostics", error)
     try:
-        results["bounds"], analysis.bounds = bounds_section(collector, options, data)
+        results["bounds"], analysis.bounds = bounds_section(
+            collector, options, data, None if shared.cross_fitted else shared
+        )
     except (ImportError, ValueError) as error:
         results["bounds"] = _unavailable("Bounds", error)
     try:

@@ -16,7 +16,7 @@ __all__ = ["bootstrap_section", "diagnostics_section", "bounds_section", "sensit
 def bootstrap_section(collector, options, data):
     from ..inference import bootstrap
 
-    template = build_estimator(options.method, options)
+    template = build_estimator(options.method, options, len(data.treatment))
     result = collector.run(
         f"bootstrap: {options.bootstrap} resamples refitting every model",
         bootstrap,
@@ -81,10 +81,10 @@ def diagnostics_section(collector, primary, covariates):
     return out
 
 
-def bounds_section(collector, options, data):
+def bounds_section(collector, options, data, nuisance=None):
     from ..assumptions import TrimmingBounds
 
-    models, _ = model_settings(options)
+    models, _ = model_settings(options, len(data.treatment))
     bounds = TrimmingBounds(monotonicity=options.monotonicity, missing=options.missing, **models)
     collector.run(
         "bounds without principal ignorability",
@@ -92,6 +92,7 @@ def bounds_section(collector, options, data):
         data.design,
         data.outcome,
         **fit_arguments(data),
+        nuisance=nuisance,
     )
     low, high = bounds.conf_int(options.level)
     record = {

@@ -1,0 +1,60 @@
+"""The three SACE estimators from one fit of the nuisance models."""
+
+from __future__ import annotations
+
+from ._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+
+__all__ = ["fit_estimators"]
+
+
+def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None,
+                   treatment_model=None, survival_model=None, outcome_model=None,
+                   monotonicity="increasing", scale="difference", n_folds=None,
+                   n_bootstrap=200, random_state=None):  # fmt: skip
+    """Fit the weighting, outcome regression and multiply robust estimators on one model fit.
+
+    The five nuisance models (treatment, survival per arm, outcome per arm) are fitted once,
+    by the multiply robust estimator, and handed to the other two with ``nuisance=``; the
+    results are identical to three separate fits.
+
+    Parameters
+    ----------
+    X, y, treatment, survival, sample_weight, groups
+        As in :meth:`PrincipalScoreWeighting.fit`.
+    treatment_model, survival_model, outcome_model, monotonicity, scale, n_folds, random_state
+        As in :class:`MultiplyRobust`, shared by all three.
+    n_bootstrap : int, default=200
+        Refitting bootstrap of the weighting and regression estimators when their models do
+        not admit the sandwich standard error (it refits the models in each resample).
+
+    Returns
+    -------
+    dict
+        ``{"weighting": PrincipalScoreWeighting, "regression": OutcomeRegression,
+        "robust": MultiplyRobust}``, fitted.
+
+    Examples
+    --------
+    >>> import pscore_strata as ps
+    >>> data = ps.datasets.make_truncation(2000, random_state=0)
+    >>> fits = ps.fit_estimators(data.X, data.y, treatment=data.treatment,
+    ...                          survival=data.survival)
+    >>> sorted(fits)
+    ['regression', 'robust', 'weighting']
+    >>> fits["weighting"].std_error_method_
+    'sandwich'
+    """
+    common = dict(treatment_model=treatment_model, survival_model=survival_model,
+                  monotonicity=monotonicity, scale=scale, n_folds=n_folds,
+                  random_state=random_state)  # fmt: skip
+    arguments = dict(treatment=treatment, survival=survival, sample_weight=sample_weight,
+                     groups=groups)  # fmt: skip
+    robust = MultiplyRobust(outcome_model=outcome_model, **common).fit(X, y, **arguments)
+    shared = robust.nuisance_
+    regression = OutcomeRegression(
+        outcome_model=outcome_model, n_bootstrap=n_bootstrap, **common
+    ).fit(X, y, nuisance=shared, **arguments)
+    weighting = PrincipalScoreWeighting(n_bootstrap=n_bootstrap, **common).fit(
+        X, y, nuisance=shared, **arguments
+    )
+    return {"weighting": weighting, "regression": regression, "robust": robust}

@@ -1,0 +1,49 @@
+"""Diagnostics are computed once per fitted estimator and reused (issue 12)."""
+
+from unittest import mock
+
+import numpy as np
+import pandas as pd
+
+import pscore_strata as ps
+from pscore_strata.datasets import make_truncation
+from pscore_strata.diagnostics import _monotonicity, _tables
+
+
+def _fitted(data):
+    return ps.MultiplyRobust().fit(data.X, data.y, treatment=data.treatment,
+                                   survival=data.survival)  # fmt: skip
+
+
+def test_warnings_and_checks_computed_once_and_dropped_on_refit():
+    data = make_truncation(800, random_state=2)
+    est = _fitted(data)
+    with mock.patch.object(_monotonicity, "_strata_labels", wraps=_monotonicity._strata_labels) \
+            as labels:  # fmt: skip
+        first = ps.diagnostics.diagnostic_warnings(est)
+        for _ in range(3):
+            est.summary()
+            assert ps.diagnostics.diagnostic_warnings(est) == first
+        # diagnostic_warnings runs two monotonicity checks (two levels); each once.
+        assert labels.call_count == 2
+        _fitted_again = est.fit(data.X, data.y, treatment=data.treatment, survival=data.survival)
+        ps.diagnostics.diagnostic_warnings(_fitted_again)
+        assert labels.call_count == 4
+
+
+def test_cached_tables_are_copies_and_follow_the_covariates():
+    data = make_truncation(800, random_state=2)
+    est = _fitted(data)
+    X = pd.DataFrame(data.X, columns=[f"x{j}" for j in range(data.X.shape[1])])
+    table = ps.diagnostics.balance_table(est, X)
+    table.iloc[:, :] = np.nan
+    again = ps.diagnostics.balance_table(est, X)
+    assert np.isfinite(again["smd_treated_vs_control"]).all()
+    pd.testing.assert_frame_equal(again, ps.diagnostics.balance_table(est, X.copy()))
+    X.iloc[:, 0] += 1.0  # changed in place: a fresh table
+    moved = ps.diagnostics.balance_table(est, X)
+    assert not np.allclose(moved["mean_everyone"], again["mean_everyone"])
+    with mock.patch.object(_tables, "balancing_weights", wraps=_tables.balancing_weights) as w:
+        ps.diagnostics.weight_summary(est)
+        ps.diagnostics.weight_summary(est)
+        assert w.call_count == 1
