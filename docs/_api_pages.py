@@ -50,8 +50,9 @@ def _body(module):
 
 
 def _table(names):
+    # Relative to ``.. currentmodule:: pscore_strata`` (autosummary prefixes the current module).
     lines = [".. autosummary::", "   :toctree: .", "   :nosignatures:", ""]
-    lines += [f"   {n}" for n in names]
+    lines += [f"   {n.removeprefix('pscore_strata.')}" for n in names]
     return "\n".join(lines) + "\n"
 
 
@@ -68,7 +69,8 @@ def _family_page(family, top, documented):
         documented.add(id(obj))
         (callables if inspect.isclass(obj) or callable(obj) else data).append((qualified, obj))
     title = f"``pscore_strata.{family}``"
-    text = [title, "=" * len(title), "", _summary_line(module), ""]
+    text = [title, "=" * len(title), "", f".. module:: pscore_strata.{family}", "",
+            ".. currentmodule:: pscore_strata", "", _summary_line(module), ""]
     body = _body(module)
     if body:
         text += [body, ""]
@@ -124,7 +126,8 @@ def write_api_pages(out_dir):
     if leftovers:
         title = "``pscore_strata`` (top level)"
         (out_dir / "toplevel.rst").write_text(
-            "\n".join([title, "=" * len(title), "", _table(leftovers)])
+            "\n".join([title, "=" * len(title), "", ".. currentmodule:: pscore_strata", "",
+                       _table(leftovers)])
         )
         pages.insert(0, "toplevel")
     (out_dir / "cli.rst").write_text(_cli_page())
