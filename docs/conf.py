@@ -9,6 +9,7 @@ The API pages are generated at build time from the docstrings (autosummary stubs
 with the fast setting (``PSCORE_STRATA_FAST=1``) into ``docs/auto_examples/``.
 """
 
+import importlib.util
 import os
 import sys
 from pathlib import Path
@@ -36,17 +37,19 @@ extensions = [
     "sphinx.ext.autodoc",
     "sphinx.ext.autosummary",
     "sphinx.ext.mathjax",
-    "sphinx.ext.viewcode",
     "numpydoc",
     "sphinx_gallery.gen_gallery",
     "myst_parser",
 ]
+# MathJax copied into the site (the `docs` extra installs it), so formulas render offline too;
+# without the package, Sphinx's default MathJax from its CDN.
+if importlib.util.find_spec("sphinx-mathjax-offline") is not None:
+    extensions.append("sphinx-mathjax-offline")
 
 source_suffix = {".rst": "restructuredtext", ".md": "markdown"}
 root_doc = "index"
 templates_path = ["_templates"]
 exclude_patterns = ["_build", "_templates", "README.md", "**/README.txt"]
-# MathJax is loaded from its CDN in a browser; the build itself never touches the network.
 
 # MyST Markdown pages (the derivations) write math as $...$ and $$...$$.
 myst_enable_extensions = ["dollarmath", "amsmath", "colon_fence", "deflist"]
