@@ -25,6 +25,7 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 os.environ.setdefault("MPLBACKEND", "agg")
 
 from _api_pages import write_api_pages  # noqa: E402
+from _gallery import TightFigures  # noqa: E402
 
 import pscore_strata  # noqa: E402
 
@@ -81,7 +82,7 @@ sphinx_gallery_conf = {
     "min_reported_time": 1_000_000,
     "abort_on_example_error": True,
     "matplotlib_animations": False,
-    "image_scrapers": ("matplotlib",),
+    "image_scrapers": (TightFigures(),),
     "capture_repr": (),
     "reference_url": {},
 }

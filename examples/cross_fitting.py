@@ -61,7 +61,8 @@ for row, (_, est) in enumerate(fits):
 ax.axvline(data.true_effect, color="grey", ls=":", label="true SACE (simulated)")
 ax.set_yticks(range(len(fits)), [name for name, _ in fits])
 ax.set_xlabel("SACE (95% CI)")
-ax.legend(loc="lower right", fontsize=8)
+ax.invert_yaxis()
+ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), fontsize=8, frameon=False)
 
 # %%
 # Flexible learners can push fitted probabilities towards 0 or 1; the overlap of the

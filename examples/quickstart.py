@@ -62,7 +62,8 @@ for row, est in enumerate(estimators.values()):
 ax.axvline(ps.datasets.DEMO_TRUE_EFFECT, color="grey", ls=":", label="true SACE (simulated)")
 ax.set_yticks(range(len(estimators)), list(estimators))
 ax.set_xlabel("SACE, functional score points (95% CI)")
-ax.legend(loc="lower right", fontsize=8)
+ax.invert_yaxis()
+ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), fontsize=8, frameon=False)
 fig.tight_layout()
 
 # %%
