@@ -4,7 +4,8 @@ The site is built once per test session from a copy of ``docs/``, ``examples/`` 
 (so the checkout is left untouched and nothing cached from an earlier build is reused), exactly
 as CI builds it: ``python -m sphinx -W -b html``. External references: Chromium's rendering of
 the pages (headless screenshot) and the HTML itself (every internal href/src must name an
-existing file and, with a fragment, an existing id).
+existing file and, with a fragment, an existing id). With ``PSCORE_STRATA_DOCS_HTML=<dir>`` the
+tests check a site already built there instead of building one.
 """
 
 import importlib
@@ -57,6 +58,12 @@ def site(tmp_path_factory):
     if missing:
         pytest.skip(f"documentation tools not installed ({', '.join(missing)}): "
                     "pip install '.[docs]'")  # fmt: skip
+    built = os.environ.get("PSCORE_STRATA_DOCS_HTML")
+    if built:
+        # A site CI has just built with ``sphinx -W`` (see .ci/run): check it, do not rebuild.
+        if not (Path(built) / "index.html").is_file():
+            pytest.fail(f"PSCORE_STRATA_DOCS_HTML={built} holds no built site (index.html)")
+        return {"returncode": 0, "stderr": "", "out": str(Path(built).resolve()), "seconds": 0.0}
     # Under pytest-xdist every worker has this fixture; the first one builds, the others wait
     # for its record in the shared temporary directory.
     worker = os.environ.get("PYTEST_XDIST_WORKER")
