@@ -74,7 +74,7 @@ sphinx_gallery_conf = {
     "filename_pattern": r"(^|/)[^_/][^/]*\.py$",
     "ignore_pattern": r"(^|/)_[^/]*\.py$",
     "write_computation_times": False,
-    "within_subsection_order": "FileNameSortKey",
+    "within_subsection_order": "_gallery.ReadingOrder",
     "download_all_examples": False,
     "remove_config_comments": True,
     "show_memory": False,

@@ -80,6 +80,7 @@ for name, part in results["sensitivity"].items():
         tip = part["tipping_point"]
         print(f"tipping point for {name}: {'not reached' if tip is None else f'{tip:.3g}'}")
 ps.plotting.plot_sensitivity_contour(primary)
+# sphinx_gallery_thumbnail_number = 4
 
 # %%
 # The shareable report
