@@ -8,6 +8,7 @@ others under their subpackage. Nothing written here is committed (see .gitignore
 
 from __future__ import annotations
 
+import importlib
 import inspect
 import pkgutil
 import shutil
@@ -57,8 +58,6 @@ def _table(names):
 
 
 def _family_page(family, top, documented):
-    import importlib
-
     module = importlib.import_module(f"pscore_strata.{family}")
     callables, data = [], []
     for name in getattr(module, "__all__", []):
@@ -133,6 +132,14 @@ def write_api_pages(out_dir):
     (out_dir / "cli.rst").write_text(_cli_page())
     pages.append("cli")
     # Included by api/index.rst (".inc" is not a source suffix, so it is not a page itself).
-    index = [".. toctree::", "   :maxdepth: 1", ""] + [f"   generated/{p}" for p in pages]
+    index = [".. toctree::", "   :maxdepth: 1", "   :hidden:", ""]
+    index += [f"   generated/{p}" for p in pages] + [""]
+    for page in pages:
+        if page in ("toplevel", "cli"):
+            summary = {"toplevel": "names exported at the top level only",
+                       "cli": "the ``pscore-strata`` command and its options"}[page]  # fmt: skip
+        else:
+            summary = _summary_line(importlib.import_module(f"pscore_strata.{page}"))
+        index.append(f"- :doc:`generated/{page}` — {summary}")
     (out_dir / "families.inc").write_text("\n".join(index) + "\n")
     return pages
