@@ -31,7 +31,7 @@ def run_example(name):
 def test_every_example_is_tested():
     # Each script (helpers start with "_") has a test named after it in this file.
     scripts = {p.stem for p in EXAMPLES.glob("*.py") if not p.name.startswith("_")}
-    assert {"quickstart", "demo_analysis", "bounds_sensitivity"} <= scripts
+    assert {"quickstart", "demo_analysis", "bounds_sensitivity", "missing_data"} <= scripts
     untested = sorted(s for s in scripts if f"test_{s}" not in globals())
     assert not untested, f"examples without a test in tests/test_examples.py: {untested}"
 
@@ -112,3 +112,12 @@ def test_bounds_sensitivity():
     row = next(r for r in out.splitlines() if r.split()[:1] == ["0.8"])
     effect, _, ci_low, ci_high = map(float, row.split()[1:5])
     assert ci_low < 1.0 < ci_high and abs(effect - 1.0) < 0.2
+
+
+def test_missing_data():
+    out = run_example("missing_data.py")
+    # Simulated truth of the "missing_outcomes" scenario (printed by the example).
+    truth = float(re.search(r"true SACE ([-\d.]+)", out).group(1))
+    effect, se = map(float, re.search(r"MultiplyRobust\s+([-\d.]+) \(SE ([\d.]+)\)", out).groups())
+    assert abs(effect - truth) < 4 * se
+    assert 'missing="at_random"' in out and "Outcome shift" in out
