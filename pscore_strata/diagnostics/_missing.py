@@ -79,7 +79,7 @@ def missing_data_balance(estimator, X):
         ``response``: responders against all known survivors of the arm) and arm:
         ``raw_smd_<check>_<arm>`` (unweighted) and ``smd_<check>_<arm>`` (observed rows
         weighted by the inverse of the fitted probability). SMDs use the standard deviation of
-        the reference group; |SMD| above 0.1 is the common-practice signal of imbalance.
+        the reference group; ``|SMD|`` above 0.1 is the common-practice signal of imbalance.
     """
     from ._tables import _covariate_matrix, _moments
 

@@ -153,7 +153,7 @@ def balance_table(estimator, X):
     Every SMD is divided by the same pooled standard deviation ``sqrt((s1^2 + s0^2) / 2)`` of
     the *unweighted* treated and control survivors (common practice for weighted comparisons:
     the yardstick must not move with the weights). Where it is zero the whole-sample standard
-    deviation is used. Sample weights of the fit multiply every weight. A weighted |SMD| above
+    deviation is used. Sample weights of the fit multiply every weight. A weighted ``|SMD|`` above
     0.1 is the common-practice signal of imbalance.
     """
     o = oriented_predictions(estimator)
@@ -278,7 +278,7 @@ def overlap_summary(estimator):
 def diagnostic_warnings(estimator, X=None):
     """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
 
-    Thresholds are common practice, not theory: weighted |SMD| above 0.1; treatment
+    Thresholds are common practice, not theory: weighted ``|SMD|`` above 0.1; treatment
     probabilities outside [0.05, 0.95], or always-survivor scores below 0.05, for more than 5%
     of rows; fitted survival probabilities reversed by more than 0.05 against the assumed
     monotonicity direction for more than 5% of rows, or an

@@ -145,8 +145,8 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
 
     Attributes
     ----------
-    effect_, std_error_, mean_treated_, mean_control_, influence_ : see
-        :class:`PrincipalScoreWeighting`; likewise every other attribute.
+    effect_, std_error_, mean_treated_, mean_control_, influence_
+        As in :class:`PrincipalScoreWeighting`; likewise every other attribute.
 
     Examples
     --------
@@ -209,8 +209,8 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
 
     Attributes
     ----------
-    effect_, std_error_, mean_treated_, mean_control_, influence_ : see
-        :class:`PrincipalScoreWeighting`; likewise every other attribute. With
+    effect_, std_error_, mean_treated_, mean_control_, influence_
+        As in :class:`PrincipalScoreWeighting`; likewise every other attribute. With
         ``n_repeats > 1``, ``influence_`` and ``nuisance_`` are those of the repeat whose effect
         is closest to the median, and ``repeat_estimates_`` holds every repeat.
 

@@ -62,7 +62,7 @@ def plot_balance(
     threshold : float, default=0.1
         Reference line; 0.1 is the common-practice limit for a negligible imbalance.
     max_covariates : int, default=40
-        Show at most this many covariates, those with the largest raw or weighted |SMD| (the
+        Show at most this many covariates, those with the largest raw or weighted ``|SMD|`` (the
         title then says how many were left out; the full list is in the balance table).
     ax : matplotlib Axes, optional
 
