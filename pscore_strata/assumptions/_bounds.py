@@ -25,6 +25,7 @@ from .._validation import check_choice, check_level, check_truncation_data
 from ..estimators import _formulas
 from ..inference._influence import influence_std_error
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
+from ._quantile_bounds import add_quantile_bounds
 
 __all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
 
@@ -103,6 +104,9 @@ class TrimmingBounds(BaseEstimator):
         Covariate cells of your own go to ``fit(cells=...)``.
     n_strata : int, default=5
         Number of score strata.
+    quantiles : sequence of float in (0, 1) or None, default=None
+        Also bound the always-survivor quantile effects at these probabilities
+        (``quantile_bounds_``; construction in :mod:`pscore_strata.assumptions._quantile_bounds`).
 
     Attributes
     ----------
@@ -118,6 +122,9 @@ class TrimmingBounds(BaseEstimator):
         mixed-arm always-survivor mean and the pure-arm mean.
     n_clipped_cells_ : int
         Cells where the data gave ``q > 1`` (contradicting monotonicity); ``q`` was set to 1.
+    quantile_bounds_ : DataFrame or None
+        With ``quantiles``: per quantile, bounds on the effect, their standard errors and 95%
+        Imbens-Manski intervals (``quantile_intervals`` gives other levels).
 
     Notes
     -----
@@ -159,12 +166,14 @@ class TrimmingBounds(BaseEstimator):
         monotonicity="increasing",
         strata="none",
         n_strata=5,
+        quantiles=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.monotonicity = monotonicity
         self.strata = strata
         self.n_strata = n_strata
+        self.quantiles = quantiles
 
     def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None):
         """Estimate the bounds.
@@ -210,6 +219,7 @@ class TrimmingBounds(BaseEstimator):
         o = _formulas.orient(data, nuisance, self.monotonicity)
         labels = self._cell_labels(cells, data, o)
         self._compute(o, labels, data)
+        add_quantile_bounds(self, o, labels, data)
         return self
 
     def _cell_labels(self, cells, data, o):

@@ -29,7 +29,8 @@ from ._paths import cdf_path, prepare
 
 __all__ = ["quantile_effects", "quantiles_of", "silverman_bandwidth", "kernel_density"]
 
-# Quantiles invert the CDF evaluated at every distinct survivor outcome, up to this many.
+# Outcome-model estimators invert their rearranged CDF at the distinct survivor outcomes, at
+# most this many (evenly spaced ranks beyond); weighting inverts its exact weighted ECDF.
 MAX_PATH_VALUES = 1000
 
 
@@ -82,14 +83,44 @@ def effective_sizes(oriented):
     return {mixed: sizes["mixed"], pure: sizes["pure"]}
 
 
-def _path_values(data):
-    return default_values(data, limit=MAX_PATH_VALUES)
+def _survivor_values(data):
+    return np.unique(data.outcome[data.survival == 1])
+
+
+def _bisect(prepared, values, quantiles):
+    """Exact inverse of a CDF that is monotone by construction (weighting), by bisection."""
+    out = {"treated": [], "control": []}
+    cache = {}
+
+    def cdf(j):
+        if j not in cache:
+            path = cdf_path(prepared, values[j : j + 1], with_influence=False)
+            cache[j] = {"treated": path.treated[0], "control": path.control[0]}
+        return cache[j]
+
+    for arm in out:
+        for u in quantiles:
+            low, high = 0, values.size - 1
+            while low < high:
+                middle = (low + high) // 2
+                if cdf(middle)[arm] >= u - 1e-12:
+                    high = middle
+                else:
+                    low = middle + 1
+            out[arm].append(values[low])
+    return {arm: np.asarray(v) for arm, v in out.items()}
 
 
 def _point_quantiles(prepared, quantiles):
-    path = cdf_path(prepared, _path_values(prepared.data), with_influence=False)
-    return path, {arm: quantiles_of(path.values, getattr(path, arm), quantiles)
-                  for arm in ("treated", "control")}  # fmt: skip
+    """Quantiles of the two always-survivor distributions (no influence values)."""
+    values = _survivor_values(prepared.data)
+    if prepared.method == "weighting":
+        return _bisect(prepared, values, quantiles)
+    if values.size > MAX_PATH_VALUES:
+        values = default_values(prepared.data, limit=MAX_PATH_VALUES)
+    path = cdf_path(prepared, values, with_influence=False)
+    return {arm: quantiles_of(path.values, getattr(path, arm), quantiles)
+            for arm in ("treated", "control")}  # fmt: skip
 
 
 def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=None,
@@ -146,7 +177,9 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
             "quantiles sit on point masses and have no density-based standard error. Use "
             "ps.ordinal_comparison for binary or ordinal outcomes, or ps.survivor_distribution."
         )
-    path, point = _point_quantiles(prepared, quantiles)
+    point = _point_quantiles(prepared, quantiles)
+    # The density is a binned kernel estimate (Wand 1994, JCGS 3): CDF masses at <= 200 values.
+    path = cdf_path(prepared, default_values(data), with_influence=False)
     sizes = effective_sizes(prepared.oriented)
     w, groups = data.sample_weight, data.groups
     z = stats.norm.ppf(0.5 + level / 2)
@@ -218,7 +251,7 @@ def _bootstrap(estimator, X, cdf_model, quantiles, n_resamples, random_state):
                            survival=data.survival[rows],
                            sample_weight=data.sample_weight[rows] if data.weighted else None,
                            groups=None if data.groups is None else data.groups[rows])
-                _, point = _point_quantiles(prepare(fitted, X_b, cdf_model), quantiles)
+                point = _point_quantiles(prepare(fitted, X_b, cdf_model), quantiles)
         except (ValueError, np.linalg.LinAlgError):
             continue
         out.append(point["treated"] - point["control"])

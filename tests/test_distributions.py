@@ -1,0 +1,212 @@
+"""Always-survivor distributions, quantile effects and ordinal comparisons.
+
+External references: simulated truth (quantiles and CDF values of the always-survivors'
+potential outcomes in a large simulation of the same setting), an independent weighted ECDF and
+weighted quantile (statsmodels DescrStatsW), the Mann-Whitney statistic (scipy) and a brute-force
+weighted pair count, and the refitting bootstrap.
+"""
+
+import warnings
+
+import numpy as np
+import pytest
+from scipy import stats
+from statsmodels.stats.weightstats import DescrStatsW
+
+import pscore_strata as ps
+from pscore_strata.datasets import make_truncation
+
+
+def skewed(y):
+    # A monotone transform of the simulated outcome: log-normal given X, right-skewed. Principal
+    # ignorability holds in distribution in make_truncation (pi_difference=0), so it holds for
+    # any transform of the outcome too.
+    return np.exp(0.5 * y)
+
+
+@pytest.fixture(scope="module")
+def truth():
+    """Always-survivor quantiles and CDF values of Y(1), Y(0) from 1,000,000 simulated units."""
+    big = make_truncation(1_000_000, n_features=3, random_state=12345)
+    always = big.stratum == "always_survivor"
+    y1, y0 = skewed(big.y1[always]), skewed(big.y0[always])
+    u = np.array([0.25, 0.5, 0.75])
+    values = np.array([1.0, 1.5, 2.5])
+    return {
+        "quantiles": u,
+        "treated": np.quantile(y1, u),
+        "control": np.quantile(y0, u),
+        "values": values,
+        "cdf_treated": np.array([np.mean(y1 <= v) for v in values]),
+        "cdf_control": np.array([np.mean(y0 <= v) for v in values]),
+    }
+
+
+def fit(cls, data, y=None, **params):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return cls(**params).fit(data.X, skewed(data.y) if y is None else y,
+                                 treatment=data.treatment, survival=data.survival)  # fmt: skip
+
+
+@pytest.fixture(scope="module")
+def sample():
+    return make_truncation(3000, n_features=3, random_state=7)
+
+
+def principal_score_weights(est):
+    """The weighting estimator's weights, rebuilt from its stored nuisance predictions."""
+    n = est.nuisance_
+    pi, p1, p0 = n.treatment_probability, n.survival[1], n.survival[0]
+    return p0 / (pi * p1), 1 / (1 - pi)
+
+
+def test_weighted_cdf_equals_independent_weighted_ecdf(sample):
+    est = fit(ps.PrincipalScoreWeighting, sample)
+    y = skewed(sample.y)
+    dist = ps.survivor_distribution(est, values=[0.5, 1.0, 2.0, 4.0])
+    w1, w0 = principal_score_weights(est)
+    treated = (sample.treatment == 1) & (sample.survival == 1)
+    control = (sample.treatment == 0) & (sample.survival == 1)
+    for rows, weights, estimate in ((treated, w1, dist.treated), (control, w0, dist.control)):
+        # Source: hand-written weighted ECDF with numpy.
+        expected = [np.sum(weights[rows] * (y[rows] <= v)) / weights[rows].sum()
+                    for v in dist.values]  # fmt: skip
+        np.testing.assert_allclose(estimate, expected, rtol=1e-12)
+    # Source: statsmodels DescrStatsW weighted quantiles (inverse-CDF definition).
+    table = ps.quantile_effects(est, quantiles=(0.3, 0.5, 0.8))
+    for rows, weights, arm in ((treated, w1, "treated"), (control, w0, "control")):
+        reference = DescrStatsW(y[rows], weights=weights[rows]).quantile(
+            [0.3, 0.5, 0.8], return_pandas=False
+        )
+        np.testing.assert_allclose(table[arm], reference, rtol=1e-12)
+
+
+def test_naive_cdf_is_the_unweighted_survivor_ecdf(sample):
+    est = fit(ps.PrincipalScoreWeighting, sample)
+    dist = ps.survivor_distribution(est, values=[1.0, 2.0])
+    y = skewed(sample.y)
+    rows = (sample.treatment == 1) & (sample.survival == 1)
+    # Source: numpy ECDF of the treated survivors.
+    np.testing.assert_allclose(dist.naive_treated, [np.mean(y[rows] <= 1), np.mean(y[rows] <= 2)])
+
+
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.OutcomeRegression,
+                                 ps.MultiplyRobust])  # fmt: skip
+def test_cdf_and_quantile_effects_recover_simulated_truth(cls, sample, truth):
+    # Source: simulated truth from the potential outcomes of 10^6 units; within 4 SE.
+    est = fit(cls, sample)
+    dist = ps.survivor_distribution(est, values=truth["values"], X=sample.X)
+    for arm in ("treated", "control"):
+        error = getattr(dist, arm) - truth[f"cdf_{arm}"]
+        assert np.all(np.abs(error) < 4 * getattr(dist, f"std_error_{arm}")), (arm, error)
+    table = ps.quantile_effects(est, X=sample.X)
+    true_effect = truth["treated"] - truth["control"]
+    assert np.all(np.abs(table["effect"] - true_effect) < 4 * table["std_error"])
+    for arm in ("treated", "control"):
+        assert np.all(np.abs(table[arm] - truth[arm]) < 4 * table[f"std_error_{arm}"])
+
+
+def test_simultaneous_band_is_wider_than_pointwise(sample):
+    est = fit(ps.PrincipalScoreWeighting, sample)
+    dist = ps.survivor_distribution(est)
+    frame = dist.to_frame()
+    z = stats.norm.ppf(0.975)
+    # A sup-t critical value over many correlated points lies between the pointwise z and the
+    # Bonferroni value for that many points (union bound).
+    bonferroni = stats.norm.ppf(1 - 0.025 / dist.values.size)
+    assert z < dist.band_critical_treated < bonferroni
+    assert np.all(frame["treated_band_low"] <= frame["treated_ci_low"] + 1e-12)
+    assert np.all(np.diff(dist.treated) >= 0) and np.all(np.diff(dist.control) >= 0)
+
+
+def test_influence_se_agrees_with_bootstrap(sample):
+    # Source: the refitting bootstrap (every model refitted on 300 resamples); within 15%.
+    est = fit(ps.PrincipalScoreWeighting, sample)
+    table = ps.quantile_effects(est, X=sample.X, n_bootstrap=300, random_state=1)
+    ratio = table["std_error"] / table["bootstrap_std_error"]
+    print(table[["quantile", "std_error", "bootstrap_std_error"]])
+    assert np.all(np.abs(ratio - 1) < 0.15), ratio.tolist()
+
+
+def test_ordinal_probability_matches_independent_computations(sample):
+    y = np.clip(np.round(sample.y), -1, 3)
+    est = fit(ps.PrincipalScoreWeighting, sample, y=y)
+    result = ps.ordinal_comparison(est)
+    w1, w0 = principal_score_weights(est)
+    treated = (sample.treatment == 1) & (sample.survival == 1)
+    control = (sample.treatment == 0) & (sample.survival == 1)
+    # Source: brute-force weighted count over every (treated, control) survivor pair.
+    a, b = y[treated][:, None], y[control][None, :]
+    score = (a > b) + 0.5 * (a == b)
+    pair_weights = w1[treated][:, None] * w0[control][None, :]
+    expected = np.sum(pair_weights * score) / pair_weights.sum()
+    assert result.probability == pytest.approx(expected, rel=1e-12)
+    # Level probabilities: weighted shares of each level (hand computation).
+    share = np.sum(w1[treated] * (y[treated] == 1)) / w1[treated].sum()
+    assert result.levels.set_index("level").loc[1.0, "treated"] == pytest.approx(share)
+    lower = ps.ordinal_comparison(est, better="lower")
+    assert lower.probability == pytest.approx(1 - result.probability)
+
+
+def test_ordinal_probability_is_mann_whitney_in_a_randomized_trial():
+    # Source: scipy.stats.mannwhitneyu; without covariates and with a constant randomization
+    # probability the principal score weights are constant within each arm, so the probability
+    # is U / (n1 n0) of the treated and control survivors (ties counted half by scipy too).
+    data = make_truncation(1500, design="randomized", random_state=3)
+    y = np.clip(np.round(data.y), -1, 3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = ps.PrincipalScoreWeighting(treatment_model=0.5).fit(
+            None, y, treatment=data.treatment, survival=data.survival
+        )
+    result = ps.ordinal_comparison(est)
+    a = y[(data.treatment == 1) & (data.survival == 1)]
+    b = y[(data.treatment == 0) & (data.survival == 1)]
+    u = stats.mannwhitneyu(a, b, alternative="two-sided").statistic
+    assert result.probability == pytest.approx(u / (a.size * b.size), rel=1e-12)
+    assert 0 < result.std_error < 0.05
+
+
+def test_ordinal_with_multiply_robust_is_close_to_weighting(sample):
+    y = np.clip(np.round(sample.y), -1, 3)
+    robust = ps.ordinal_comparison(fit(ps.MultiplyRobust, sample, y=y), X=sample.X)
+    weighting = ps.ordinal_comparison(fit(ps.PrincipalScoreWeighting, sample, y=y))
+    assert abs(robust.probability - weighting.probability) < 2 * weighting.std_error
+    np.testing.assert_allclose(robust.levels[["treated", "control"]].sum(), 1.0)
+
+
+def test_errors_name_the_argument(sample):
+    robust = fit(ps.MultiplyRobust, sample)
+    with pytest.raises(ValueError, match="pass `X`"):
+        ps.survivor_distribution(robust)
+    with pytest.raises(ValueError, match="features"):
+        ps.survivor_distribution(robust, X=sample.X[:, :2])
+    weighting = fit(ps.PrincipalScoreWeighting, sample)
+    with pytest.raises(ValueError, match="`quantiles`"):
+        ps.quantile_effects(weighting, quantiles=(0.5, 1.0))
+    with pytest.raises(ValueError, match="`values`"):
+        ps.survivor_distribution(weighting, values=[np.nan])
+    with pytest.raises(ValueError, match="integer levels"):
+        ps.ordinal_comparison(weighting)
+    with pytest.raises(ValueError, match="`n_bootstrap`"):
+        ps.quantile_effects(weighting, n_bootstrap=1)
+    with pytest.raises(ValueError, match="pass the"):
+        ps.quantile_effects(weighting, n_bootstrap=5)
+    with pytest.raises(TypeError, match="`estimator`"):
+        ps.survivor_distribution(ps.TrimmingBounds())
+    binary = fit(ps.PrincipalScoreWeighting, sample, y=(sample.y > 1).astype(float))
+    with pytest.raises(ValueError, match="ordinal_comparison"):
+        ps.quantile_effects(binary)
+
+
+def test_estimator_and_inputs_are_not_mutated(sample):
+    est = fit(ps.OutcomeRegression, sample)
+    X = sample.X.copy()
+    before = (est.effect_, est.nuisance_.survival[1].copy(), est.training_data_.outcome.copy())
+    ps.quantile_effects(est, X=X)
+    ps.survivor_distribution(est, X=X)
+    np.testing.assert_array_equal(X, sample.X)
+    assert est.effect_ == before[0]
+    np.testing.assert_array_equal(est.nuisance_.survival[1], before[1])
+    np.testing.assert_array_equal(est.training_data_.outcome, before[2])
