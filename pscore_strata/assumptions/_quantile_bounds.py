@@ -98,7 +98,7 @@ def _cells(o, labels):
             if_q = q * (C * pure_weight * (S - p_p) / (n_p * p_p)
                         - C * mixed_weight * (S - p_m) / (n_m * p_m))  # fmt: skip
         share = np.sum(w * C) / total
-        cells.append(dict(C=C, s_m=s_m, q=q, if_q=if_q, alpha=share * p_p,
+        cells.append(dict(C=C, s_m=s_m, s_p=s_p, q=q, if_q=if_q, alpha=share * p_p,
                           alpha_free=C * p_p,
                           alpha_weighted=share * C * pure_weight * (S - p_p) / n_p))  # fmt: skip
     alpha_total = sum(c["alpha"] for c in cells)
@@ -123,8 +123,25 @@ def trimmed_mixtures(o, labels):
             kept = _kept(Y[rows], cell_weight, c["q"], highest)
             masses[key][rows] += c["omega"] * kept / (c["q"] * cell_weight.sum())
     pure = o.weight * pure_weight * o.survival
-    masses["pure"] = pure / pure.sum()
+    masses["pure"] = np.zeros(Y.size)
+    for c in cells:
+        masses["pure"] += c["omega"] * c["C"] * pure / np.sum(c["C"] * pure)
     return masses
+
+
+def _cell_cdf(key, c, below, o, mixed_weight, pure_weight, total):
+    """A cell's trimmed (or pure-arm) CDF at one value and its influence values."""
+    w, S = o.weight, o.survival
+    if key == "pure":
+        F = np.sum(w * c["C"] * pure_weight * S * below) / total / c["s_p"]
+        return F, c["C"] * pure_weight * S * (below - F) / c["s_p"]
+    F = np.sum(w * c["C"] * mixed_weight * S * below) / total / c["s_m"]
+    if_F = c["C"] * mixed_weight * S * (below - F) / c["s_m"]
+    q, if_q = c["q"], c["if_q"]
+    if key == "lower":  # L_c = min(F / q, 1)
+        return min(F / q, 1.0), (if_F / q - F * if_q / q**2) if F < q else 0.0
+    # U_c = max((F - 1 + q) / q, 0)
+    return max((F - 1 + q) / q, 0.0), (if_F / q + (1 - F) * if_q / q**2) if F > 1 - q else 0.0
 
 
 def _effective_size(mass):
@@ -137,9 +154,8 @@ def quantile_bounds(o, labels, quantiles):
     Returns
     -------
     table : DataFrame
-        ``quantile``, ``lower``, ``upper``, ``std_error_lower``, ``std_error_upper`` and the
-        bounds on each arm's always-survivor quantile (``mixed_lower``, ``mixed_upper``,
-        ``pure``), oriented back to treated minus control.
+        ``quantile``, ``lower``, ``upper`` (treated minus control) and the arms' quantiles:
+        ``mixed_arm_lower``, ``mixed_arm_upper`` (quantiles of ``G_L``, ``G_U``), ``pure_arm``.
     influence : dict
         ``"lower"``, ``"upper"``: arrays of shape (n_rows, n_quantiles).
     """
@@ -159,39 +175,22 @@ def quantile_bounds(o, labels, quantiles):
     weighted_alpha = sum(c["alpha_weighted"] for c in cells)
     free_alpha = sum(c["alpha_free"] for c in cells)
     pieces = {}
-    for key in ("lower", "upper"):
+    for key in ("lower", "upper", "pure"):
         weighted = np.zeros((Y.size, quantiles.size))
         free = np.zeros((Y.size, quantiles.size))
         for j, v in enumerate(point[key]):
             below = (Y <= v).astype(float)
             for c in cells:
-                cell_rows = c["C"] * o.mixed * S
-                F = np.sum(w * cell_rows * mixed_weight * below) / total / c["s_m"]
-                q = c["q"]
-                if_F = c["C"] * mixed_weight * S * (below - F) / c["s_m"]
-                if key == "lower":
-                    trimmed = min(F / q, 1.0)
-                    active = F < q
-                    if_trimmed = (if_F / q - F * c["if_q"] / q**2) if active else 0.0
-                else:
-                    trimmed = max((F - 1 + q) / q, 0.0)
-                    active = F > 1 - q
-                    if_trimmed = (if_F / q + (1 - F) * c["if_q"] / q**2) if active else 0.0
+                value, if_value = _cell_cdf(key, c, below, o, mixed_weight, pure_weight, total)
                 om = c["omega"]
-                weighted[:, j] += om * if_trimmed + trimmed / alpha_total * (
+                weighted[:, j] += om * if_value + value / alpha_total * (
                     c["alpha_weighted"] - om * weighted_alpha)
-                free[:, j] += trimmed / alpha_total * (c["alpha_free"] - om * free_alpha)
+                free[:, j] += value / alpha_total * (c["alpha_free"] - om * free_alpha)
         pieces[key] = (-weighted / density[key], -free / density[key])
-    weighted = np.zeros((Y.size, quantiles.size))
-    for j, v in enumerate(point["pure"]):
-        F = np.sum(masses["pure"] * (Y <= v))
-        s_p = np.sum(w * pure_weight * S) / total
-        weighted[:, j] = pure_weight * S * ((Y <= v) - F) / s_p
-    pieces["pure"] = (-weighted / density["pure"], np.zeros_like(weighted))
     influence = {}
     for key in ("lower", "upper"):
         raw_w = pieces[key][0] - pieces["pure"][0]
-        raw = raw_w + pieces[key][1]
+        raw = raw_w + pieces[key][1] - pieces["pure"][1]
         derivative = np.where((o.mixed == 1)[:, None], -raw_w / o.pi[:, None],
                               raw_w / (1 - o.pi)[:, None])  # fmt: skip
         centered = raw - (w @ raw) / total
