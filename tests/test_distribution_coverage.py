@@ -59,9 +59,14 @@ def test_influence_standard_errors_agree_with_the_bootstrap():
     # Source: the refitting bootstrap (every model refitted, 100 resamples per sample). The
     # bootstrap variance of a sample quantile converges slowly (relative error of order
     # n^(-1/4); Hall & Martin 1988, Probability Theory and Related Fields 80): with about 650
-    # survivors per arm one sample's bootstrap SE of a quartile wanders by about 20% (0.054 to
-    # 0.074 over four samples where the Monte Carlo SD is 0.068), so the check averages the
-    # ratio over eight samples and asks for agreement within 15%.
+    # survivors per arm one sample's bootstrap SE wanders by about 20%, so the ratio is
+    # averaged over eight samples and must lie within 15% of 1 at the median and the upper
+    # quartile. At the lower quartile (where this log-normal outcome's density is steepest) the
+    # bootstrap SE falls about 25% below both the influence-function SE and the Monte Carlo SD
+    # of the estimates (the coverage test above: mean SE 0.103 against SD 0.097 at n = 1500),
+    # and even the plain bootstrap of the unweighted treated-survivor quartile is about 10%
+    # below its Monte Carlo SD here; there the check is that the influence-function SE is the
+    # larger one and within 40%.
     ratios = []
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -72,7 +77,9 @@ def test_influence_standard_errors_agree_with_the_bootstrap():
             ratios.append(table["std_error"] / table["bootstrap_std_error"])
     mean_ratio = np.mean(ratios, axis=0)
     print("IF SE / bootstrap SE per sample:", np.round(ratios, 3).tolist())
-    assert np.all(np.abs(mean_ratio - 1) < 0.15), mean_ratio
+    print("mean ratio per quantile:", np.round(mean_ratio, 3).tolist())
+    assert np.all(np.abs(mean_ratio[1:] - 1) < 0.15), mean_ratio
+    assert 1.0 < mean_ratio[0] < 1.4, mean_ratio
 
 
 @pytest.mark.slow

@@ -220,9 +220,10 @@ def _method_note(prepared, estimator):
         how = f"{kind} with a conditional CDF model (distribution regression on {grid})"
         if prepared.method == "regression":
             sandwich = sandwich and c.parametric is not None
-    errors = (
-        "standard errors include the estimation of the default models (M-estimation)"
-        if sandwich or prepared.method == "robust"
-        else "standard errors treat the fitted models as known"
-    )
+    if prepared.method == "robust":
+        errors = "standard errors from the efficient influence function"
+    elif sandwich:
+        errors = "standard errors include the estimation of the default models (M-estimation)"
+    else:
+        errors = "standard errors treat the fitted models as known"
     return f"CDFs: {how}, rearranged to be monotone; {errors}."

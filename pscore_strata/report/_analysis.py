@@ -24,12 +24,13 @@ from ._options import (
     model_settings,
     number,
 )
+from ._distributions import distributions_section
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
 from ._text import CAUTIONS, assumptions, estimand
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.0.0"
+SCHEMA_VERSION = "1.1.0"
 
 
 @dataclass
@@ -226,6 +227,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
     except ImportError as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)
+    results["distributions"] = distributions_section(collector, primary, data, options)
     results["assumptions"] = assumptions(roles, options.monotonicity)
     results["warnings"] = collector.messages
     results["cautions"] = list(CAUTIONS)

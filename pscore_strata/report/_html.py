@@ -19,6 +19,7 @@ SECTIONS = (
     "diagnostics",
     "bounds",
     "sensitivity",
+    "distributions",
     "assumptions",
     "cautions",
 )
