@@ -15,6 +15,7 @@ from datetime import datetime, timezone
 import numpy as np
 
 from .. import __version__
+from ._distributions import distributions_section
 from ._options import (
     METHOD_LABELS,
     METHODS,
@@ -24,7 +25,6 @@ from ._options import (
     model_settings,
     number,
 )
-from ._distributions import distributions_section
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
 from ._text import CAUTIONS, assumptions, estimand
 
