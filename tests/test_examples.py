@@ -31,7 +31,8 @@ def run_example(name):
 def test_every_example_is_tested():
     scripts = {p.name for p in EXAMPLES.glob("*.py") if not p.name.startswith("_")}
     assert scripts == {
-        "quickstart.py", "nsw_job_training.py", "cross_fitting.py", "simulation_study.py"
+        "quickstart.py", "nsw_job_training.py", "cross_fitting.py", "simulation_study.py",
+        "distributions.py",
     }  # fmt: skip
 
 
@@ -62,3 +63,15 @@ def test_cross_fitting():
 def test_simulation_study():
     out = run_example("simulation_study.py")
     assert "pi_violated" in out and "coverage" in out
+
+
+def test_distributions():
+    out = run_example("distributions.py")
+    # Simulated truth: the script prints the true quantile effects beside the estimates.
+    listed = re.search(r"true quantile effects: \[(.*)\]", out).group(1)
+    truth = [float(v) for v in listed.split(",")]
+    table = out.split("Quantile effects (weighting):")[1].splitlines()[2:5]
+    for line, true in zip(table, truth, strict=True):
+        low, high = map(float, line.split()[5:7])
+        assert low < true < high
+    assert "P(better level)" in out and "latent" in out

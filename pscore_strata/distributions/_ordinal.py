@@ -103,7 +103,7 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
     level = check_level(level)
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    levels = np.unique(data.outcome[data.survival == 1])
+    levels = np.unique(data.outcome[data.survival == 1]) + 0.0  # no -0.0 level
     if levels.size > MAX_LEVELS or not np.all(levels == np.round(levels)):
         raise ValueError(
             f"`ordinal_comparison` needs an outcome with integer levels (at most {MAX_LEVELS}); "
