@@ -104,3 +104,58 @@ def test_quantile_bound_standard_errors_match_their_spread(strata):
         ratio = np.mean(ses, axis=0) / np.std(values, axis=0, ddof=1)
         print(strata, "mean SE / MC SD:", np.round(ratio, 3).tolist())
         assert np.all(np.abs(ratio - 1) < 0.25), ratio
+
+
+@pytest.mark.slow
+def test_simultaneous_band_and_pointwise_errors_in_simulation():
+    # Source: simulated truth (always-survivor CDF of Y(1), Y(0) over 10^6 units). 200
+    # replicates of n = 1500, weighting: the 95% simultaneous band over 25 values should cover
+    # the whole true curve 92-98% of the time; the pointwise intervals are narrower, so the
+    # whole curve falls inside them less often. Multiplier bands: Chernozhukov, Fernandez-Val &
+    # Melly (2013).
+    big = make_truncation(1_000_000, n_features=3, random_state=12345)
+    always = big.stratum == "always_survivor"
+    y1, y0 = np.exp(0.5 * big.y1[always]), np.exp(0.5 * big.y0[always])
+    values = np.quantile(np.concatenate([y1, y0]), np.linspace(0.05, 0.95, 25))
+    truth = {"treated": [np.mean(y1 <= v) for v in values],
+             "control": [np.mean(y0 <= v) for v in values]}  # fmt: skip
+    band_hits, pointwise_hits = [], []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for seed in range(200):
+            data = make_truncation(1500, n_features=3, random_state=seed)
+            frame = ps.survivor_distribution(weighting_fit(data), values=values,
+                                             n_draws=500, random_state=seed).to_frame()
+            for arm in ("treated", "control"):
+                t = np.asarray(truth[arm])
+                band_hits.append(np.all((frame[f"{arm}_band_low"] <= t)
+                                        & (t <= frame[f"{arm}_band_high"])))  # fmt: skip
+                pointwise_hits.append(np.all((frame[f"{arm}_ci_low"] <= t)
+                                             & (t <= frame[f"{arm}_ci_high"])))  # fmt: skip
+    print(f"band covers the whole curve: {np.mean(band_hits):.3f}; "
+          f"pointwise intervals all cover: {np.mean(pointwise_hits):.3f}")
+    assert 0.92 <= np.mean(band_hits) <= 0.98
+    assert np.mean(pointwise_hits) < 0.85
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("cls", [ps.OutcomeRegression, ps.MultiplyRobust])
+def test_outcome_model_cdf_errors_match_their_spread(cls):
+    # Source: simulated sampling distribution (100 replicates of n = 1500): the mean standard
+    # error of the always-survivor CDF at three values within 20% of its Monte Carlo SD
+    # (outcome regression: sandwich with the distribution-regression logistic fits; multiply
+    # robust: efficient influence function).
+    values = [1.0, 2.0, 3.5]
+    estimates, errors = [], []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for seed in range(100):
+            data = make_truncation(1500, n_features=3, random_state=seed)
+            est = cls().fit(data.X, np.exp(0.5 * data.y), treatment=data.treatment,
+                            survival=data.survival)  # fmt: skip
+            dist = ps.survivor_distribution(est, values=values, X=data.X, n_draws=100)
+            estimates.append(np.concatenate([dist.treated, dist.control]))
+            errors.append(np.concatenate([dist.std_error_treated, dist.std_error_control]))
+    ratio = np.mean(errors, axis=0) / np.std(estimates, axis=0, ddof=1)
+    print(cls.__name__, "mean SE / MC SD:", np.round(ratio, 3).tolist())
+    assert np.all(np.abs(ratio - 1) < 0.2), ratio
