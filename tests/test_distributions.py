@@ -108,6 +108,25 @@ def test_cdf_and_quantile_effects_recover_simulated_truth(cls, sample, truth):
         assert np.all(np.abs(table[arm] - truth[arm]) < 4 * table[f"std_error_{arm}"])
 
 
+@pytest.fixture(scope="module")
+def decreasing():
+    """Treatment that can only harm survival: a sample and the truth from 500,000 units."""
+    big = make_truncation(500_000, n_features=3, monotonicity="decreasing", random_state=8)
+    always = big.stratum == "always_survivor"
+    u = np.array([0.25, 0.5, 0.75])
+    true = np.quantile(skewed(big.y1[always]), u) - np.quantile(skewed(big.y0[always]), u)
+    return make_truncation(3000, n_features=3, monotonicity="decreasing", random_state=9), u, true
+
+
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.MultiplyRobust])
+def test_decreasing_monotonicity_recovers_the_truth(cls, decreasing):
+    # Source: simulated truth (potential outcomes of the always-survivors); within 4 SE.
+    data, u, true = decreasing
+    est = fit(cls, data, monotonicity="decreasing")
+    table = ps.quantile_effects(est, u, X=data.X)
+    assert np.all(np.abs(table["effect"] - true) < 4 * table["std_error"]), (table, true)
+
+
 def test_simultaneous_band_is_wider_than_pointwise(sample):
     est = fit(ps.PrincipalScoreWeighting, sample)
     dist = ps.survivor_distribution(est)
@@ -179,6 +198,10 @@ def test_errors_name_the_argument(sample):
         ps.quantile_effects(weighting, quantiles=(0.5, 1.0))
     with pytest.raises(ValueError, match="`values`"):
         ps.survivor_distribution(weighting, values=[np.nan])
+    with pytest.raises(ValueError, match="`values`"):
+        ps.survivor_distribution(weighting, values=["low"])
+    with pytest.raises(ValueError, match="`n_draws`"):
+        ps.survivor_distribution(weighting, n_draws=10)
     with pytest.raises(ValueError, match="integer levels"):
         ps.ordinal_comparison(weighting)
     with pytest.raises(ValueError, match="`n_bootstrap`"):

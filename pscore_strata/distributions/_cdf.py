@@ -42,7 +42,10 @@ def default_values(data, limit=MAX_DEFAULT_VALUES):
 
 
 def check_values(values, name="values"):
-    array = np.asarray(values, dtype=float).ravel()
+    try:
+        array = np.asarray(values, dtype=float).ravel()
+    except (TypeError, ValueError):
+        raise ValueError(f"`{name}` must be outcome values (numbers); got {values!r}.") from None
     if array.size == 0:
         raise ValueError(f"`{name}` is empty; give at least one outcome value.")
     if not np.all(np.isfinite(array)):
@@ -138,7 +141,8 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
     threshold of a grid (see :mod:`pscore_strata.distributions._conditional`), fitted on ``X``
     with the estimator's cross-fitting folds setting. Every estimate is monotonized by
     rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010). The treatment and survival
-    predictions are the estimator's own; no such model is refitted.
+    predictions are the estimator's own (with ``n_repeats > 1``, those of the repeat closest to
+    the median); no such model is refitted. Methods and checks: ``docs/distributions.md``.
 
     Parameters
     ----------
