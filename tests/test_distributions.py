@@ -160,6 +160,18 @@ def test_ordinal_probability_matches_independent_computations(sample):
     assert lower.probability == pytest.approx(1 - result.probability)
 
 
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.MultiplyRobust])
+def test_binary_probability_is_half_plus_half_the_risk_difference(cls):
+    # Source: a closed form. For 0/1 levels, p1 (1 - p0) + (p1 p0 + (1 - p1)(1 - p0)) / 2 =
+    # 1/2 + (p1 - p0)/2, so the probability and its standard error follow from the estimator's
+    # own SACE (risk difference) and standard error.
+    data = make_truncation(3000, n_features=3, outcome="binary", random_state=2)
+    est = fit(cls, data, y=data.y)
+    result = ps.ordinal_comparison(est, X=data.X)
+    assert result.probability == pytest.approx(0.5 + est.effect_ / 2, rel=1e-9)
+    assert result.std_error == pytest.approx(est.std_error_ / 2, rel=1e-6)
+
+
 def test_ordinal_probability_is_mann_whitney_in_a_randomized_trial():
     # Source: scipy.stats.mannwhitneyu; without covariates and with a constant randomization
     # probability the principal score weights are constant within each arm, so the probability
