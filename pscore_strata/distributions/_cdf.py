@@ -221,7 +221,8 @@ def _method_note(prepared, estimator):
         grid = (f"{c.thresholds.size} observed levels" if c.discrete
                 else f"{c.thresholds.size} thresholds at survivor-outcome quantiles")  # fmt: skip
         kind = "outcome regression" if prepared.method == "regression" else "multiply robust"
-        how = f"{kind} with a conditional CDF model (distribution regression on {grid})"
+        how = (f"{kind} with a conditional CDF model (distribution regression, "
+               f"{prepared.cdf_model_name}, on {grid})")  # fmt: skip
         if prepared.method == "regression":
             sandwich = sandwich and c.parametric is not None
     if prepared.method == "robust":

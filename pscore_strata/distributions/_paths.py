@@ -56,6 +56,7 @@ class Prepared:
     oriented: _formulas.Oriented
     data: object
     conditional: object  # ConditionalCDF or None (weighting)
+    cdf_model_name: str = "unpenalized logistic regression"
 
 
 def prepare(estimator, X=None, cdf_model=None):
@@ -82,7 +83,8 @@ def prepare(estimator, X=None, cdf_model=None):
                 X = None
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
         conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed)
-    return Prepared(method, oriented, data, conditional)
+    name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
+    return Prepared(method, oriented, data, conditional, name)
 
 
 @dataclass
