@@ -146,15 +146,16 @@ def test_simultaneous_band_covers_the_whole_curve():
 @pytest.mark.slow
 @pytest.mark.parametrize("cls", [ps.OutcomeRegression, ps.MultiplyRobust])
 def test_outcome_model_cdf_errors_match_their_spread(cls):
-    # Source: simulated sampling distribution (100 replicates of n = 1500): the mean standard
-    # error of the always-survivor CDF at three values within 20% of its Monte Carlo SD
+    # Source: simulated sampling distribution (60 replicates of n = 1500): the mean standard
+    # error of the always-survivor CDF at three values within 25% of its Monte Carlo SD
+    # (measured over 100 replicates: 0.99-1.04 for regression, 0.97-1.04 for multiply robust)
     # (outcome regression: sandwich with the distribution-regression logistic fits; multiply
     # robust: efficient influence function).
     values = [1.0, 2.0, 3.5]
     estimates, errors = [], []
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        for seed in range(100):
+        for seed in range(60):
             data = make_truncation(1500, n_features=3, random_state=seed)
             est = cls().fit(data.X, np.exp(0.5 * data.y), treatment=data.treatment,
                             survival=data.survival)  # fmt: skip
@@ -163,4 +164,4 @@ def test_outcome_model_cdf_errors_match_their_spread(cls):
             errors.append(np.concatenate([dist.std_error_treated, dist.std_error_control]))
     ratio = np.mean(errors, axis=0) / np.std(estimates, axis=0, ddof=1)
     print(cls.__name__, "mean SE / MC SD:", np.round(ratio, 3).tolist())
-    assert np.all(np.abs(ratio - 1) < 0.2), ratio
+    assert np.all(np.abs(ratio - 1) < 0.25), ratio
