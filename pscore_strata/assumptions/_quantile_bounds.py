@@ -46,6 +46,11 @@ def add_quantile_bounds(bounds, o, labels, data):
     if bounds.quantiles is None:
         return
     quantiles = check_quantiles(bounds.quantiles)
+    if getattr(bounds, "missing", "error") != "error":
+        raise ValueError(
+            "`quantiles` is not yet supported with `missing='at_random'`; use quantiles=None "
+            "(the mean bounds) or complete cases."
+        )
     if np.unique(data.outcome[data.survival == 1]).size <= MAX_LEVELS:
         raise ValueError(
             f"`quantiles` needs a continuous outcome; the survivors' outcome takes at most "

@@ -62,6 +62,12 @@ class Prepared:
 def prepare(estimator, X=None, cdf_model=None):
     """The oriented nuisance view and, for outcome-model estimators, the conditional CDF model."""
     method = method_of(estimator)
+    if getattr(estimator, "missing", "error") != "error":
+        raise ValueError(
+            "The distribution functions do not yet support estimators fitted with "
+            "`missing='at_random'` (their formulas have not been checked under coarsening); "
+            "refit with complete cases, or use the estimator's mean effect."
+        )
     data = estimator.training_data_
     oriented = _formulas.orient(data, estimator.nuisance_, estimator.monotonicity)
     conditional = None

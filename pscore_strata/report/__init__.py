@@ -54,7 +54,7 @@ def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=F
         ``results`` (the contents of results.json) and the fitted estimators.
     """
     options = options or AnalysisOptions()
-    data = prepare_data(frame, roles, drop_incomplete=drop_incomplete)
+    data = prepare_data(frame, roles, drop_incomplete=drop_incomplete, missing=options.missing)
     analysis = run_analysis(data, roles, options, source=source, progress=progress)
     if out_dir is not None:
         if progress:

@@ -28,6 +28,9 @@ def distributions_section(collector, primary, data, options):
     from ..distributions._conditional import MAX_LEVELS
 
     label = "outcome distributions"
+    if getattr(primary, "missing", "error") != "error":
+        return {"available": False, "reason": "Distributions are not yet computed with "
+                "missing data handled as missing at random."}
     survivors = data.outcome[data.survival == 1]
     levels = np.unique(survivors)
     X = data.design

@@ -15,6 +15,7 @@ SCHEMA = "results.schema.json"
 SECTIONS = (
     "estimand",
     "data",
+    "missing",
     "estimates",
     "diagnostics",
     "bounds",

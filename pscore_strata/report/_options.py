@@ -36,6 +36,7 @@ class AnalysisOptions:
     level: float = 0.95
     monotonicity: str = "increasing"
     seed: int = 0
+    missing: str = "error"
 
 
 def model_settings(options):
@@ -53,7 +54,7 @@ def build_estimator(method, options):
     """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
     models, folds = model_settings(options)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed)  # fmt: skip
+                  random_state=options.seed, missing=options.missing)  # fmt: skip
     if method != "weighting" and models:
         from sklearn.ensemble import HistGradientBoostingRegressor
 
