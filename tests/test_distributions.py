@@ -316,3 +316,12 @@ def test_quantile_bounds_refuse_a_discrete_outcome(sample):
     with pytest.raises(ValueError, match="`quantiles`"):
         fit(ps.TrimmingBounds, sample, y=np.round(sample.y).clip(0, 3), quantiles=[0.5])
     assert fit(ps.TrimmingBounds, sample).quantile_bounds_ is None
+
+
+def test_missing_at_random_is_refused_clearly(sample):
+    # Not yet checked under coarsening: a clear refusal rather than unchecked numbers.
+    est = fit(ps.PrincipalScoreWeighting, sample, missing="at_random")
+    with pytest.raises(ValueError, match="missing='at_random'"):
+        ps.survivor_distribution(est)
+    with pytest.raises(ValueError, match="missing='at_random'"):
+        fit(ps.TrimmingBounds, sample, missing="at_random", quantiles=[0.5])
