@@ -3,7 +3,16 @@
 The public names are re-exported here; each subpackage holds one family (see DEVELOPERS.md).
 """
 
-from . import assumptions, datasets, diagnostics, inference, nuisance, plotting, simulation
+from . import (
+    assumptions,
+    datasets,
+    diagnostics,
+    distributions,
+    inference,
+    nuisance,
+    plotting,
+    simulation,
+)
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
     balance_table,
@@ -11,6 +20,13 @@ from .diagnostics import (
     monotonicity_check,
     overlap_summary,
     weight_summary,
+)
+from .distributions import (
+    OrdinalComparison,
+    SurvivorDistribution,
+    ordinal_comparison,
+    quantile_effects,
+    survivor_distribution,
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
 from .inference import BootstrapResult, bootstrap
@@ -30,6 +46,12 @@ __all__ = [
     "BootstrapResult",
     "sensitivity_grid",
     "tipping_point",
+    "survivor_distribution",
+    "SurvivorDistribution",
+    "quantile_effects",
+    "ordinal_comparison",
+    "OrdinalComparison",
+    "distributions",
     "datasets",
     "simulation",
     "diagnostics",

@@ -121,3 +121,15 @@ def test_missing_data():
     effect, se = map(float, re.search(r"MultiplyRobust\s+([-\d.]+) \(SE ([\d.]+)\)", out).groups())
     assert abs(effect - truth) < 4 * se
     assert 'missing="at_random"' in out and "Outcome shift" in out
+
+
+def test_distributions():
+    out = run_example("distributions.py")
+    # Simulated truth: the script prints the true quantile effects beside the estimates.
+    listed = re.search(r"true quantile effects: \[(.*)\]", out).group(1)
+    truth = [float(v) for v in listed.split(",")]
+    table = out.split("Quantile effects (weighting):")[1].splitlines()[2:5]
+    for line, true in zip(table, truth, strict=True):
+        low, high = map(float, line.split()[5:7])
+        assert low < true < high
+    assert "P(better level)" in out and "latent" in out

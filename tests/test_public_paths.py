@@ -22,6 +22,9 @@ TOP_LEVEL = [
     "diagnostic_warnings",
     "OverlapWarning",
     "MonotonicityWarning",
+    "survivor_distribution",
+    "quantile_effects",
+    "ordinal_comparison",
 ]
 
 SUBPACKAGE_NAMES = {
@@ -43,6 +46,15 @@ SUBPACKAGE_NAMES = {
         "plot_weights",
         "plot_sensitivity",
         "plot_sensitivity_contour",
+        "plot_survivor_distribution",
+        "plot_quantile_effects",
+    ],
+    "pscore_strata.distributions": [
+        "survivor_distribution",
+        "SurvivorDistribution",
+        "quantile_effects",
+        "ordinal_comparison",
+        "OrdinalComparison",
     ],
     "pscore_strata.simulation": ["run_study", "summarize", "plot_summary"],
     "pscore_strata.datasets": ["make_truncation", "make_scenario", "list_scenarios", "load_demo"],

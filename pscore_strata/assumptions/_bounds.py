@@ -26,6 +26,7 @@ from ..estimators import _formulas
 from ..inference._influence import influence_std_error
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import shared_nuisance
+from ._quantile_bounds import add_quantile_bounds
 
 __all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
 
@@ -112,6 +113,9 @@ class TrimmingBounds(BaseEstimator):
         arm survival shares use the rows with known status weighted by ``1 / c_t(X)``.
     response_model : classifier or None, default=None
         Model for ``c_t`` and ``r_t``; ``None`` is unpenalized logistic regression.
+    quantiles : sequence of float in (0, 1) or None, default=None
+        Also bound the always-survivor quantile effects at these probabilities
+        (``quantile_bounds_``; construction in :mod:`pscore_strata.assumptions._quantile_bounds`).
 
     Attributes
     ----------
@@ -127,6 +131,9 @@ class TrimmingBounds(BaseEstimator):
         mixed-arm always-survivor mean and the pure-arm mean.
     n_clipped_cells_ : int
         Cells where the data gave ``q > 1`` (contradicting monotonicity); ``q`` was set to 1.
+    quantile_bounds_ : DataFrame or None
+        With ``quantiles``: per quantile, bounds on the effect, their standard errors and 95%
+        Imbens-Manski intervals (``quantile_intervals`` gives other levels).
 
     Notes
     -----
@@ -170,6 +177,7 @@ class TrimmingBounds(BaseEstimator):
         n_strata=5,
         missing="error",
         response_model=None,
+        quantiles=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -178,6 +186,7 @@ class TrimmingBounds(BaseEstimator):
         self.n_strata = n_strata
         self.missing = missing
         self.response_model = response_model
+        self.quantiles = quantiles
 
     def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None,
             nuisance=None):  # fmt: skip
@@ -236,6 +245,7 @@ class TrimmingBounds(BaseEstimator):
         o = _formulas.orient(data, nuisance, self.monotonicity)
         labels = self._cell_labels(cells, data, o)
         self._compute(o, labels, data)
+        add_quantile_bounds(self, o, labels, data)
         return self
 
     def _cell_labels(self, cells, data, o):

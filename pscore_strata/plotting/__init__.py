@@ -1,9 +1,10 @@
-"""matplotlib figures of the diagnostics and of the sensitivity analysis (the ``plot`` extra).
+"""matplotlib figures: diagnostics, sensitivity analysis, distributions (the ``plot`` extra).
 
 matplotlib is imported inside each function, so ``import pscore_strata`` never loads it.
 """
 
 from ._diagnostics import plot_balance, plot_overlap, plot_weights
+from ._distributions import plot_quantile_effects, plot_survivor_distribution
 from ._sensitivity import plot_sensitivity, plot_sensitivity_contour
 
 __all__ = [
@@ -12,4 +13,6 @@ __all__ = [
     "plot_weights",
     "plot_sensitivity",
     "plot_sensitivity_contour",
+    "plot_survivor_distribution",
+    "plot_quantile_effects",
 ]

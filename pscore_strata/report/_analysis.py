@@ -15,6 +15,7 @@ from datetime import datetime, timezone
 import numpy as np
 
 from .. import __version__
+from ._distributions import distributions_section
 from ._missing import missing_section
 from ._options import (
     METHOD_LABELS,
@@ -30,7 +31,7 @@ from ._text import CAUTIONS, assumptions, estimand
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.1.0"
+SCHEMA_VERSION = "1.2.0"
 
 
 @dataclass
@@ -243,6 +244,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["missing_data"] = missing_section(collector, primary, data, options.level)
     except ImportError as error:
         results["missing_data"] = _unavailable("Missing-data checks", error)
+    results["distributions"] = distributions_section(collector, primary, data, options)
     results["assumptions"] = assumptions(roles, options.monotonicity)
     if results["missing_data"]:
         from ._missing import MISSING_ASSUMPTION_TEXT

@@ -6,6 +6,8 @@ import io
 
 import numpy as np
 
+from ._distributions import distribution_figures
+
 __all__ = ["draw_figures"]
 
 _PRIMARY, _OTHER, _GREY = "#1f5f8b", "#7a9cb8", "#8c8c8c"
@@ -138,6 +140,7 @@ def draw_figures(analysis):
              "band: its confidence interval. The tipping point is where the interval first "
              "covers zero.")
         )  # fmt: skip
+    figures.extend(distribution_figures(results))
     drawn = []
     for name, title, draw, args, caption in figures:
         figure = draw(*args)

@@ -20,6 +20,7 @@ SECTIONS = (
     "diagnostics",
     "bounds",
     "sensitivity",
+    "distributions",
     "assumptions",
     "cautions",
 )

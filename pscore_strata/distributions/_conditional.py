@@ -1,0 +1,179 @@
+"""Conditional CDF models of the survivors' outcome: distribution regression on a threshold grid.
+
+``F_t(v | X) = P(Y <= v | T=t, S=1, X)`` is modelled by one binary classifier per threshold
+``g_j`` on a grid (distribution regression; Foresi & Peracchi 1995, JASA 90; Chernozhukov,
+Fernandez-Val & Melly 2013, Econometrica 81), fitted per arm among survivors. The grid:
+
+- an outcome with at most ``MAX_LEVELS`` distinct survivor values (binary, ordinal, counts) uses
+  every value but the largest, and ``F(v | X)`` is the step function between them (exact);
+- otherwise ``n_thresholds`` weighted quantiles of the survivors' outcomes (both arms pooled) at
+  levels ``j / (n_thresholds + 1)``; between thresholds ``F(v | X)`` is interpolated linearly, and
+  from 0 at the smallest to 1 at the largest observed survivor outcome beyond them.
+
+Separately fitted classifiers can cross; each row's predictions over the grid are sorted
+(monotone rearrangement; Chernozhukov, Fernandez-Val & Galichon 2010, Econometrica 78, which
+shows the sorted curve is never farther from a monotone truth than the original).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from sklearn.base import clone
+from sklearn.model_selection import StratifiedKFold
+
+from ..nuisance._fit import _fit, _parametric, _rows, default_binary_model
+
+__all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "MAX_LEVELS"]
+
+MAX_LEVELS = 20
+N_THRESHOLDS = 19
+
+
+def threshold_grid(outcome, survival, weights, n_thresholds=N_THRESHOLDS):
+    """Thresholds of the conditional CDF models and whether the outcome is discrete.
+
+    Returns
+    -------
+    thresholds : ndarray
+    discrete : bool
+    low, high : float
+        Smallest and largest observed survivor outcome.
+    """
+    y, w = outcome[survival == 1], weights[survival == 1]
+    levels = np.unique(y)
+    if levels.size <= MAX_LEVELS:
+        return levels[:-1], True, float(levels[0]), float(levels[-1])
+    order = np.argsort(y, kind="stable")
+    cumulative = np.cumsum(w[order]) / w.sum()
+    probabilities = np.arange(1, n_thresholds + 1) / (n_thresholds + 1)
+    thresholds = np.unique(y[order][np.searchsorted(cumulative, probabilities)])
+    return thresholds, False, float(levels[0]), float(levels[-1])
+
+
+class _Blend:
+    """Duck-typed :class:`ParametricFit` for an interpolated prediction ``sum_j c_j F_j``.
+
+    The M-estimation term of a linear combination of fits is the same combination of their
+    terms, each with the derivative scaled by its coefficient.
+    """
+
+    def __init__(self, fits, coefficients):
+        self.fits, self.coefficients = fits, coefficients
+
+    def correction(self, derivative, weights):
+        total = 0.0
+        for fit, c in zip(self.fits, self.coefficients, strict=True):
+            if fit is not None and c != 0:
+                total = total + fit.correction(c * derivative, weights)
+        return total
+
+
+@dataclass
+class ConditionalCDF:
+    """Per-row conditional CDF predictions on the grid, per arm.
+
+    ``grid[t]`` has shape ``(n_rows, n_thresholds)`` (rearranged); ``parametric[t]`` holds one
+    :class:`ParametricFit` per threshold when every classifier is the default logistic model
+    fitted on all rows (the outcome regression's sandwich needs them), else ``None``.
+    """
+
+    thresholds: np.ndarray
+    discrete: bool
+    low: float
+    high: float
+    grid: dict
+    parametric: dict | None
+    n_constant: int = 0
+
+    def _position(self, value):
+        """Grid columns and coefficients whose combination gives ``F(value | X)``."""
+        g = self.thresholds
+        if self.discrete:
+            j = int(np.searchsorted(g, value, side="right")) - 1
+            if value >= self.high:
+                return [], [], 1.0
+            return ([j], [1.0], 0.0) if j >= 0 else ([], [], 0.0)
+        if value < self.low:
+            return [], [], 0.0
+        if value >= self.high:
+            return [], [], 1.0
+        knots = np.concatenate([[self.low], g, [self.high]])
+        k = int(np.searchsorted(knots, value, side="right")) - 1
+        k = min(k, knots.size - 2)
+        lam = (value - knots[k]) / (knots[k + 1] - knots[k])
+        columns, coefficients, constant = [], [], 0.0
+        for knot, c in ((k, 1 - lam), (k + 1, lam)):
+            if knot == 0:
+                continue  # F = 0 at the smallest observed outcome (continuous approximation)
+            if knot == knots.size - 1:
+                constant += c
+            else:
+                columns.append(knot - 1)
+                coefficients.append(c)
+        return columns, coefficients, constant
+
+    def at(self, value, arm):
+        """``F_arm(value | X)`` per row, and a sandwich helper (or ``None``)."""
+        columns, coefficients, constant = self._position(value)
+        prediction = np.full(self.grid[arm].shape[0], constant)
+        for j, c in zip(columns, coefficients, strict=True):
+            prediction = prediction + c * self.grid[arm][:, j]
+        fits = None
+        if self.parametric is not None:
+            fits = _Blend([self.parametric[arm][j] for j in columns], coefficients)
+        return prediction, fits
+
+
+def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None,
+                        n_thresholds=N_THRESHOLDS):  # fmt: skip
+    """Fit the conditional CDF models of each arm's survivors (see the module docstring).
+
+    Parameters
+    ----------
+    data : TruncationData
+        The estimator's training data (``X`` is passed separately).
+    X : array-like or None
+        The covariates the estimator was fitted with; ``None`` gives arm-wise empirical CDFs.
+    cdf_model : classifier or None
+        Cloned once per threshold and arm; ``None`` is unpenalized logistic regression.
+    n_folds : int or None
+        Cross-fitting folds (stratified by treatment x survival), as the estimator used.
+    """
+    T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
+    thresholds, discrete, low, high = threshold_grid(Y, S, w, n_thresholds)
+    n = data.n_samples
+    all_rows = np.arange(n)
+    if n_folds is None:
+        splits = [(all_rows, all_rows)]
+    else:
+        splitter = StratifiedKFold(n_splits=int(n_folds), shuffle=True, random_state=random_state)
+        splits = list(splitter.split(np.zeros(n), 2 * T + S))
+    model = default_binary_model() if cdf_model is None else cdf_model
+    grid = {arm: np.empty((n, thresholds.size)) for arm in (0, 1)}
+    use_sandwich = cdf_model is None and n_folds is None
+    parametric = {0: [], 1: []} if use_sandwich else None
+    design = None if X is None else np.asarray(X, dtype=float) if use_sandwich else None
+    n_constant = 0
+    for arm in (0, 1):
+        for j, threshold in enumerate(thresholds):
+            target = np.where(S == 1, (np.nan_to_num(Y) <= threshold).astype(float), 0.0)
+            for train, test in splits:
+                rows = train[(T[train] == arm) & (S[train] == 1)]
+                labels = target[rows]
+                share = np.sum(w[rows] * labels) / np.sum(w[rows])
+                if X is None or share in (0.0, 1.0):
+                    # No covariates, or one class only among these survivors: the weighted share.
+                    grid[arm][test, j] = share
+                    n_constant += X is not None
+                    continue
+                fitted = _fit(clone(model), _rows(X, rows), labels,
+                              w[rows] if data.weighted else None)  # fmt: skip
+                grid[arm][test, j] = fitted.predict_proba(_rows(X, test))[:, 1]
+            if use_sandwich:
+                p = grid[arm][:, j]
+                mask = (T == arm) & (S == 1)
+                parametric[arm].append(_parametric(design, mask, target, p, p * (1 - p), w))
+        grid[arm] = np.sort(grid[arm], axis=1)  # rearrangement over the thresholds
+    return ConditionalCDF(thresholds, discrete, low, high, grid, parametric, n_constant)

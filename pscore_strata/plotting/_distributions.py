@@ -1,0 +1,93 @@
+"""Figures of the always-survivor distributions and quantile effects (matplotlib, lazily)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ._sensitivity import _CAUTION, _pyplot
+
+__all__ = ["plot_survivor_distribution", "plot_quantile_effects"]
+
+_ARMS = (("treated", "#1f5f8b"), ("control", "#b5651d"))
+
+
+def plot_survivor_distribution(distribution, *, axes=None, outcome="outcome"):
+    """Always-survivor CDFs with pointwise intervals and simultaneous bands, naive CDFs beside.
+
+    Parameters
+    ----------
+    distribution : SurvivorDistribution
+        From :func:`pscore_strata.survivor_distribution`.
+    axes : pair of matplotlib Axes, optional
+        Left: the always-survivor CDFs; right: the survivors' empirical CDFs per arm.
+    outcome : str, default="outcome"
+        Name of the outcome for the axis label.
+
+    Returns
+    -------
+    ndarray of two matplotlib Axes
+    """
+    plt = _pyplot()
+    if axes is None:
+        _, axes = plt.subplots(1, 2, figsize=(10, 4), sharey=True, layout="constrained")
+    frame = distribution.to_frame()
+    x = frame["value"].to_numpy()
+    left, right = axes
+    level = f"{distribution.level:.0%}"
+    for arm, color in _ARMS:
+        left.fill_between(x, frame[f"{arm}_band_low"], frame[f"{arm}_band_high"], step="post",
+                          color=color, alpha=0.15, linewidth=0)  # fmt: skip
+        left.fill_between(x, frame[f"{arm}_ci_low"], frame[f"{arm}_ci_high"], step="post",
+                          color=color, alpha=0.3, linewidth=0)  # fmt: skip
+        left.step(x, frame[arm], where="post", color=color, linewidth=2, label=f"under {arm}")
+        right.step(x, frame[f"naive_{arm}"], where="post", color=color, linewidth=2,
+                   linestyle="--", label=f"{arm} survivors")  # fmt: skip
+    left.set_title(f"Always-survivors (bands: {level} pointwise, darker; simultaneous, lighter)",
+                   fontsize=9)  # fmt: skip
+    right.set_title("All survivors of each arm (naive; biased when treatment changes who "
+                    "survives)", fontsize=9)  # fmt: skip
+    for ax in axes:
+        ax.set_xlabel(outcome)
+        ax.set_ylim(-0.02, 1.02)
+        ax.grid(color="0.92")
+        ax.legend(fontsize=8, loc="lower right")
+    left.set_ylabel(f"P({outcome} <= value)")
+    left.annotate(_CAUTION, (0, 0), (0, -48), xycoords="axes fraction",
+                  textcoords="offset points", fontsize=7, color="dimgrey")  # fmt: skip
+    return np.asarray(axes)
+
+
+def plot_quantile_effects(table, *, ax=None, outcome="outcome", bounds=None):
+    """Quantile effects with intervals, and trimming bounds when given.
+
+    Parameters
+    ----------
+    table : DataFrame
+        From :func:`pscore_strata.quantile_effects`.
+    ax : matplotlib Axes, optional
+    outcome : str, default="outcome"
+    bounds : DataFrame, optional
+        ``TrimmingBounds(quantiles=...).quantile_bounds_``, drawn as shaded bars.
+
+    Returns
+    -------
+    matplotlib Axes
+    """
+    plt = _pyplot()
+    if ax is None:
+        _, ax = plt.subplots(figsize=(7, 4), layout="constrained")
+    u = table["quantile"].to_numpy()
+    ax.errorbar(u, table["effect"], yerr=[table["effect"] - table["ci_low"],
+                                          table["ci_high"] - table["effect"]],
+                fmt="o", color="#1f5f8b", capsize=4, label="quantile effect (CI)")  # fmt: skip
+    if bounds is not None:
+        ax.vlines(bounds["quantile"] + 0.012, bounds["lower"], bounds["upper"], color="#b5651d",
+                  linewidth=6, alpha=0.5, label="bounds without principal ignorability")
+    ax.axhline(0, color="0.3", linewidth=1, linestyle="--")
+    ax.set_xticks(u, [f"{q:g}" for q in u])
+    ax.set_xlabel("quantile of the always-survivor distribution")
+    ax.set_ylabel(f"difference in {outcome} (treated - control)")
+    ax.set_title("Quantile effects among always-survivors", fontsize=10)
+    ax.grid(color="0.92")
+    ax.legend(fontsize=8)
+    return ax

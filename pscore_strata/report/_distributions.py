@@ -1,0 +1,153 @@
+"""The report's "Distributions" section: always-survivor CDFs, quantile effects, ordinal levels.
+
+The record is computed from the primary estimator (its stored nuisance predictions; the
+conditional CDF models of outcome regression and the multiply robust estimator are fitted on the
+same design matrix). Continuous outcomes get the CDFs, quantile effects and their trimming bounds;
+outcomes with at most 20 integer levels get the level distributions and the probability of a
+better level.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ._options import fit_arguments, model_settings, number
+
+__all__ = ["distributions_section", "distribution_figures", "QUANTILES"]
+
+QUANTILES = (0.1, 0.25, 0.5, 0.75, 0.9)
+
+
+def _numbers(values):
+    return [number(v) for v in np.asarray(values, dtype=float)]
+
+
+def distributions_section(collector, primary, data, options):
+    """JSON-ready record of the section (``available: False`` with a reason when impossible)."""
+    from ..distributions import ordinal_comparison, quantile_effects, survivor_distribution
+    from ..distributions._conditional import MAX_LEVELS
+
+    label = "outcome distributions"
+    if getattr(primary, "missing", "error") != "error":
+        return {"available": False, "reason": "Distributions are not yet computed with "
+                "missing data handled as missing at random."}
+    survivors = data.outcome[data.survival == 1]
+    levels = np.unique(survivors)
+    X = data.design
+    try:
+        if levels.size <= MAX_LEVELS:
+            if not np.all(levels == np.round(levels)):
+                return {"available": False, "reason": "The outcome has few distinct values that "
+                        "are not integer levels; code them as integers for the level analysis."}
+            result = collector.run(label, ordinal_comparison, primary, X=X, level=options.level)
+            return {
+                "available": True,
+                "kind": "levels",
+                "levels": [{key: number(row[key]) for key in
+                            ("level", "treated", "control", "std_error_treated",
+                             "std_error_control")}
+                           for _, row in result.levels.iterrows()],
+                "better_level_probability": {
+                    "estimate": number(result.probability),
+                    "std_error": number(result.std_error),
+                    "ci_low": number(result.ci_low),
+                    "ci_high": number(result.ci_high),
+                    "better": "higher",
+                },
+                "notes": list(result.notes),
+            }  # fmt: skip
+        distribution = collector.run(label, survivor_distribution, primary, X=X,
+                                     level=options.level, random_state=options.seed)
+        table = collector.run(label, quantile_effects, primary, QUANTILES, options.level, X=X)
+    except ValueError as error:
+        return {"available": False, "reason": f"Distributions could not be computed: {error}"}
+    frame = distribution.to_frame()
+    record = {
+        "available": True,
+        "kind": "continuous",
+        "cdf": {column: _numbers(frame[column]) for column in frame.columns},
+        "band_critical_value": {"treated": number(distribution.band_critical_treated),
+                                "control": number(distribution.band_critical_control)},
+        "quantile_effects": [
+            {key: number(row[key]) for key in
+             ("quantile", "treated", "control", "effect", "std_error", "ci_low", "ci_high")}
+            for _, row in table.iterrows()
+        ],
+        "quantile_bounds": _quantile_bounds(collector, options, data),
+        "notes": list(distribution.notes[:1]) + list(table.attrs["notes"]),
+    }  # fmt: skip
+    return record
+
+
+def _quantile_bounds(collector, options, data):
+    from ..assumptions import TrimmingBounds
+    from ..assumptions._quantile_bounds import quantile_intervals
+
+    models, _ = model_settings(options)
+    models.pop("survival_model", None)  # unused without score strata
+    bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=QUANTILES, **models)
+    try:
+        collector.run("outcome distributions", bounds.fit, data.design, data.outcome,
+                      **fit_arguments(data))  # fmt: skip
+    except ValueError:
+        return None
+    table = quantile_intervals(bounds.quantile_bounds_, options.level)
+    return [{key: number(row[key]) for key in
+             ("quantile", "lower", "upper", "std_error_lower", "std_error_upper", "ci_low",
+              "ci_high")}
+            for _, row in table.iterrows()]  # fmt: skip
+
+
+def _cdf_figure(results):
+    import pandas as pd
+
+    from ..distributions import SurvivorDistribution
+    from ..plotting import plot_survivor_distribution
+
+    record = results["distributions"]
+    frame = pd.DataFrame(record["cdf"]).astype(float)
+    level = results["settings"]["level"]
+    # Rebuilt from the JSON record: the figure shows exactly the numbers in results.json.
+    distribution = SurvivorDistribution(
+        values=frame["value"].to_numpy(), treated=frame["treated"].to_numpy(),
+        control=frame["control"].to_numpy(),
+        std_error_treated=frame["treated_std_error"].to_numpy(),
+        std_error_control=frame["control_std_error"].to_numpy(),
+        band_critical_treated=float(record["band_critical_value"]["treated"] or np.nan),
+        band_critical_control=float(record["band_critical_value"]["control"] or np.nan),
+        naive_treated=frame["naive_treated"].to_numpy(),
+        naive_control=frame["naive_control"].to_numpy(),
+        influence_treated=None, influence_control=None, level=level,
+    )  # fmt: skip
+    axes = plot_survivor_distribution(distribution, outcome=results["columns"]["outcome"])
+    return axes[0].figure
+
+
+def _quantile_figure(results):
+    import pandas as pd
+
+    from ..plotting import plot_quantile_effects
+
+    record = results["distributions"]
+    table = pd.DataFrame(record["quantile_effects"]).astype(float)
+    bounds = record.get("quantile_bounds")
+    bounds = None if not bounds else pd.DataFrame(bounds).astype(float)
+    ax = plot_quantile_effects(table, outcome=results["columns"]["outcome"], bounds=bounds)
+    return ax.figure
+
+
+def distribution_figures(results):
+    """``(name, title, draw, args, caption)`` entries for :func:`._figures.draw_figures`."""
+    record = results.get("distributions") or {}
+    if record.get("kind") != "continuous":
+        return []
+    return [
+        ("distributions.png", "Always-survivor outcome distributions", _cdf_figure, (results,),
+         "Left: estimated outcome distributions (CDFs) of the always-survivors under each arm, "
+         "with pointwise intervals (darker) and simultaneous bands (lighter). Right: the "
+         "survivors of each arm as observed, which mix in the units whose survival the "
+         "treatment changed."),
+        ("quantile_effects.png", "Quantile effects", _quantile_figure, (results,),
+         "Differences between the always-survivor quantiles under treatment and under control, "
+         "with confidence intervals; shaded bars: bounds without principal ignorability."),
+    ]  # fmt: skip
