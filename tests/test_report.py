@@ -80,7 +80,7 @@ def test_report_states_estimand_and_cautions(written):
     out, _ = written
     html = (out / "report.html").read_text()
     for text in ("ICH E9(R1)", "Population", "Intercurrent event", "principal stratum strategy",
-                 "Population-level summary", "latent", "cannot be tested", "individual patient",
+                 "Population-level summary", "latent", "cannot be tested", "individual unit",
                  "qualified statistician", "Bounds that drop principal ignorability",
                  "Sensitivity analysis", "Diagnostics"):  # fmt: skip
         assert text in html, text

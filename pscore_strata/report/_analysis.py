@@ -15,6 +15,7 @@ from datetime import datetime, timezone
 import numpy as np
 
 from .. import __version__
+from ._honesty import bootstrap_warning, honest_bounds, honest_estimates, honest_sensitivity
 from ._options import (
     METHOD_LABELS,
     METHODS,
@@ -25,11 +26,12 @@ from ._options import (
     number,
 )
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
-from ._text import CAUTIONS, assumptions, estimand
+from ._text import assumptions, cautions, estimand
+from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.0.0"
+SCHEMA_VERSION = "1.1.0"
 
 
 @dataclass
@@ -185,6 +187,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         estimators[method] = estimator
     primary = estimators[options.method]
     shares, naive = _summary_rows(primary, options.level)
+    words = study_wording(options, data, roles)
     results = {
         "schema_version": SCHEMA_VERSION,
         "software": {"name": "pscore_strata", "version": __version__},
@@ -200,7 +203,8 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "monotonicity": options.monotonicity,
             "seed": options.seed,
         },
-        "estimand": estimand(roles, options.monotonicity),
+        "wording": words,
+        "estimand": estimand(roles, options.monotonicity, words),
         "data_overview": _overview(data, roles),
         "estimates": [
             _estimate_record(m, est, options.level, m == options.method)
@@ -213,6 +217,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["bootstrap"] = bootstrap_section(collector, options, data)
     else:
         results["bootstrap"] = None
+    honest_estimates(results["estimates"], collector, options, data, results["bootstrap"])
     analysis = Analysis(results, estimators, primary, data.covariates)
     try:
         results["diagnostics"] = diagnostics_section(collector, primary, data.covariates)
@@ -220,13 +225,18 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["diagnostics"] = _unavailable("Diagnostics", error)
     try:
         results["bounds"], analysis.bounds = bounds_section(collector, options, data)
+        honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
     except (ImportError, ValueError) as error:
         results["bounds"] = _unavailable("Bounds", error)
     try:
         results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
+        honest_sensitivity(results["sensitivity"], primary)
     except ImportError as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)
-    results["assumptions"] = assumptions(roles, options.monotonicity)
-    results["warnings"] = collector.messages
-    results["cautions"] = list(CAUTIONS)
+    results["assumptions"] = assumptions(roles, options.monotonicity, words)
+    results["warnings"] = [f"data: {message}" for message in data.messages]
+    results["warnings"] += collector.messages
+    if bootstrap_warning(options.bootstrap):
+        results["warnings"].append(bootstrap_warning(options.bootstrap))
+    results["cautions"] = list(cautions(words))
     return analysis

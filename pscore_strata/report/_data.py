@@ -8,14 +8,14 @@ says what to do.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from . import _coding, _readers
+
 __all__ = ["InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data"]
 
-_READERS = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}
 
 
 class InputError(ValueError):
@@ -71,30 +71,16 @@ class PreparedData:
     n_rows_read: int
     n_rows_dropped: int
     missing_counts: dict = field(default_factory=dict)
+    # Level names as read: {"treatment": (treated, control), "survival": (survived, event)}.
+    levels: dict = field(default_factory=dict)
+    messages: tuple = ()  # data warnings, also shown in the report
 
 
 def read_table(path):
-    """Read a CSV or Parquet file into a DataFrame."""
-    path = Path(path)
-    kind = _READERS.get(path.suffix.lower())
-    if kind is None:
-        raise InputError(
-            f"DATA file '{path.name}' has type '{path.suffix or '(none)'}'; give a .csv or "
-            ".parquet file."
-        )
-    if not path.is_file():
-        raise InputError(f"DATA file '{path}' does not exist; check the path.")
-    try:
-        if kind == "csv":
-            return pd.read_csv(path)
-        return pd.read_parquet(path)
-    except ImportError as error:
-        raise InputError(f"Reading Parquet needs pyarrow ({error}); pip install pyarrow.") from None
-    except Exception as error:  # the readers raise many types; all mean "not a readable table"
-        first_line = str(error).splitlines()[0] if str(error) else type(error).__name__
-        raise InputError(
-            f"DATA file '{path.name}' could not be read as {kind}: {first_line}"
-        ) from None
+    """Read a data file into a DataFrame: CSV (comma- or semicolon-separated), Parquet, Stata
+    ``.dta``, SAS ``.sas7bdat`` / ``.xpt`` or SPSS ``.sav`` (pandas' readers; SPSS needs
+    pyreadstat)."""
+    return _readers.read_table(path, InputError)
 
 
 def _check_columns(frame, roles):
@@ -129,24 +115,12 @@ def _check_columns(frame, roles):
         )
 
 
-def _indicator(frame, column, option):
-    values = frame[column]
-    if values.dtype == bool:
-        return values.to_numpy(dtype=np.int8)
-    numeric = pd.to_numeric(values, errors="coerce")
-    found = sorted(pd.unique(values.dropna()).tolist(), key=str)
-    if numeric.isna().any() or not numeric.isin([0, 1]).all():
-        shown = ", ".join(map(str, found[:6])) + (" ..." if len(found) > 6 else "")
-        raise InputError(
-            f"{option} column '{column}' must hold 0/1 values (1 = treated / survived); found "
-            f"{shown}. Recode it first."
-        )
-    return numeric.to_numpy(dtype=np.int8)
-
-
-def _missing_rows(frame, roles):
+def _missing_rows(frame, roles, survived_value=None):
     """Per column, the rows that make a unit incomplete (outcome counts only for survivors)."""
-    survived = pd.to_numeric(frame[roles.survival], errors="coerce") == 1
+    if survived_value is None:
+        survived = pd.to_numeric(frame[roles.survival], errors="coerce") == 1
+    else:
+        survived = _coding.matches_level(frame[roles.survival], survived_value).fillna(False)
     counts, incomplete = {}, np.zeros(len(frame), dtype=bool)
     for column in roles.used_columns():
         missing = frame[column].isna().to_numpy()
@@ -159,7 +133,7 @@ def _missing_rows(frame, roles):
     return counts, incomplete
 
 
-def prepare_data(frame, roles, *, drop_incomplete=False):
+def prepare_data(frame, roles, *, drop_incomplete=False, treated_value=None, survived_value=None):
     """Check the columns and build the analysis arrays; the caller's frame is not modified.
 
     Parameters
@@ -169,6 +143,12 @@ def prepare_data(frame, roles, *, drop_incomplete=False):
     drop_incomplete : bool, default=False
         Drop rows with a missing value in a used column (an outcome is missing only for a
         survivor). Otherwise such rows raise :class:`InputError` with the counts per column.
+    treated_value, survived_value : scalar or str, optional
+        The level of a text-coded (or otherwise coded) treatment / survival column that means
+        1 (treated / survived); the column must then hold exactly two levels, and the other
+        one is recorded in ``levels`` for the report. ``None``: the column holds 0/1. These
+        live here, in the report's preparation step, because the estimators take 0/1 arrays
+        (recode there with ``(column == "program").astype(int)``).
 
     Returns
     -------
@@ -176,7 +156,7 @@ def prepare_data(frame, roles, *, drop_incomplete=False):
     """
     _check_columns(frame, roles)
     n_read = len(frame)
-    counts, incomplete = _missing_rows(frame, roles)
+    counts, incomplete = _missing_rows(frame, roles, survived_value)
     if counts and not drop_incomplete:
         listed = ", ".join(
             f"'{c}' {n}" + (" (survivors only)" if c == roles.outcome else "")
@@ -190,8 +170,13 @@ def prepare_data(frame, roles, *, drop_incomplete=False):
     used = used.reset_index(drop=True)
     if len(used) == 0:
         raise InputError("No complete rows are left to analyse; check the missing values.")
-    treatment = _indicator(used, roles.treatment, "--treatment")
-    survival = _indicator(used, roles.survival, "--survival")
+    treatment, treatment_levels = _coding.indicator(
+        used, roles.treatment, "--treatment", treated_value, InputError
+    )
+    survival, survival_levels = _coding.indicator(
+        used, roles.survival, "--survival", survived_value, InputError
+    )
+    messages = ()
     outcome = pd.to_numeric(used[roles.outcome], errors="coerce")
     bad = outcome.isna() & used[roles.outcome].notna()
     if bad.any():
@@ -203,6 +188,8 @@ def prepare_data(frame, roles, *, drop_incomplete=False):
     names = roles.all_covariates()
     if names:
         covariates = used[list(names)]
+        _coding.check_dates(covariates, InputError)
+        messages = tuple(_coding.many_levels_messages(covariates, roles.categorical))
         text = [
             c
             for c in names
@@ -239,4 +226,6 @@ def prepare_data(frame, roles, *, drop_incomplete=False):
         n_rows_read=n_read,
         n_rows_dropped=int(incomplete.sum()),
         missing_counts=counts,
+        levels={"treatment": treatment_levels, "survival": survival_levels},
+        messages=messages,
     )

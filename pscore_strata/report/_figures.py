@@ -6,6 +6,8 @@ import io
 
 import numpy as np
 
+from ._format import number
+
 __all__ = ["draw_figures"]
 
 _PRIMARY, _OTHER, _GREY = "#1f5f8b", "#7a9cb8", "#8c8c8c"
@@ -25,8 +27,12 @@ def _estimates_figure(results):
 
     rows = []
     for record in results["estimates"]:
-        rows.append((record["label"] + (" (primary)" if record["primary"] else ""),
-                     record["effect"], record["ci_low"], record["ci_high"],
+        # An estimate without an honest interval is drawn as a point only.
+        low, high = record["ci_low"], record["ci_high"]
+        rows.append((record["label"] + (" (primary)" if record["primary"] else "")
+                     + ("" if low is not None else ": no interval"),
+                     record["effect"], record["effect"] if low is None else low,
+                     record["effect"] if high is None else high,
                      _PRIMARY if record["primary"] else _OTHER))  # fmt: skip
     boot = results.get("bootstrap")
     if boot:
@@ -62,10 +68,14 @@ def _sensitivity_figure(results):
 
     sens = results["sensitivity"]
     figure, axes = plt.subplots(1, 2, figsize=(9.6, 3.6), layout="constrained")
+    mixed, other = (("protected", "harmed") if results["settings"]["monotonicity"] == "increasing"
+                    else ("harmed", "protected"))  # fmt: skip
     panels = (
-        ("pi_difference", "helped minus always-survivor mean\n(0 = principal ignorability)"),
-        ("harmed_ratio", "harmed / helped stratum size\n(0 = monotonicity)"),
-    )
+        ("pi_difference", f"{mixed} minus always-survivor mean of "
+         f"'{results['columns']['outcome']}'\n(0 = principal ignorability)"),
+        ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
+         "informative)"),
+    )  # fmt: skip
     for ax, (key, label) in zip(axes, panels, strict=True):
         grid = sens[key]["grid"]
         x = np.array([g["value"] for g in grid])
@@ -78,8 +88,10 @@ def _sensitivity_figure(results):
         tip = sens[key]["tipping_point"]
         if tip is not None and x.min() <= tip <= x.max():
             ax.axvline(tip, color="#b5651d", linewidth=1)
-            ax.text(tip, 0.98, f" tipping point {tip:.3g}", transform=ax.get_xaxis_transform(),
-                    va="top", fontsize=8, color="#b5651d")  # fmt: skip
+            ax.text(tip, 0.98, f" tipping point {number(tip)}",
+                    transform=ax.get_xaxis_transform(), va="top", fontsize=8,
+                    color="#b5651d", ha="right" if tip > x.mean() else "left")  # fmt: skip
+        ax.set_xlim(x.min(), x.max())
         ax.set_xlabel(label, fontsize=9)
         ax.set_ylabel("SACE")
         ax.grid(color="0.92")

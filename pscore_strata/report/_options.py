@@ -36,6 +36,12 @@ class AnalysisOptions:
     level: float = 0.95
     monotonicity: str = "increasing"
     seed: int = 0
+    # Words of the study (report/_wording.py): the event that truncates the outcome, what one
+    # row is ("SINGULAR" or "SINGULAR/PLURAL"), and (treated, control) arm names.
+    event_name: str = "death"
+    unit_name: str = "unit"
+    arm_names: tuple | None = None
+    by: str | None = None  # column for subgroup effects (report/_subgroups.py)
 
 
 def model_settings(options):
