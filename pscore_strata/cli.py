@@ -66,7 +66,6 @@ def _options(args):
         event_name=args.event_name,
         unit_name=args.unit_name,
         arm_names=tuple(args.arm_names) if args.arm_names else None,
-        by=args.by,
     )
 
 
@@ -135,11 +134,6 @@ def _analyze(args):
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
-    if args.by is not None and args.by not in frame.columns:
-        raise ValueError(
-            f"--by column '{args.by}' is not in {Path(args.data).name}; available columns: "
-            f"{', '.join(map(str, frame.columns))}."
-        )
     roles = ColumnRoles(
         outcome=args.outcome,
         treatment=args.treatment,
@@ -148,6 +142,7 @@ def _analyze(args):
         categorical=tuple(args.categorical),
         cluster=args.cluster,
         weights=args.weights,
+        by=args.by,
     )
     analysis = analyze_frame(
         frame, roles, options, args.out, drop_incomplete=args.drop_incomplete,

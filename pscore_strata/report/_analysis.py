@@ -233,6 +233,20 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         honest_sensitivity(results["sensitivity"], primary)
     except ImportError as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)
+    try:
+        from ._model_checks import model_checks_section
+
+        results["model_checks"] = model_checks_section(primary)
+    except (ImportError, ValueError) as error:
+        results["model_checks"] = _unavailable("Model checks", error)
+    results["subgroups"] = None
+    if roles.by is not None:
+        from ._data import InputError
+        from ._subgroups import subgroups_section
+
+        results["subgroups"] = subgroups_section(
+            collector, primary, data, roles, options.level, InputError
+        )
     results["assumptions"] = assumptions(roles, options.monotonicity, words)
     results["warnings"] = [f"data: {message}" for message in data.messages]
     results["warnings"] += collector.messages

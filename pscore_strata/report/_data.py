@@ -33,6 +33,7 @@ class ColumnRoles:
     categorical: tuple = ()
     cluster: str | None = None
     weights: str | None = None
+    by: str | None = None  # subgroup column (--by): effects within each of its values
 
     def all_covariates(self):
         """Covariates in the order given, categorical columns included (added if unlisted)."""
@@ -41,7 +42,7 @@ class ColumnRoles:
 
     def used_columns(self):
         named = [self.outcome, self.treatment, self.survival, *self.all_covariates()]
-        named += [c for c in (self.cluster, self.weights) if c is not None]
+        named += [c for c in (self.cluster, self.weights, self.by) if c is not None]
         return list(dict.fromkeys(named))
 
     def as_dict(self):
@@ -53,6 +54,7 @@ class ColumnRoles:
             "categorical": list(self.categorical),
             "cluster": self.cluster,
             "weights": self.weights,
+            "by": self.by,
         }
 
 
@@ -93,6 +95,7 @@ def _check_columns(frame, roles):
         "--categorical": list(roles.categorical),
         "--cluster": [roles.cluster] if roles.cluster else [],
         "--weights": [roles.weights] if roles.weights else [],
+        "--by": [roles.by] if roles.by else [],
     }
     unknown = [
         f"{option} '{name}'"

@@ -150,6 +150,10 @@ def draw_figures(analysis):
              "band: its confidence interval. The tipping point is where the interval first "
              "covers zero.")
         )  # fmt: skip
+    from ._model_checks import model_check_figures
+    from ._subgroups import subgroup_figures
+
+    figures += subgroup_figures(results) + model_check_figures(analysis)
     drawn = []
     for name, title, draw, args, caption in figures:
         figure = draw(*args)

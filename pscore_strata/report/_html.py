@@ -18,7 +18,9 @@ SECTIONS = (
     "estimand",
     "data",
     "estimates",
+    "subgroups",
     "diagnostics",
+    "model_checks",
     "bounds",
     "sensitivity",
     "assumptions",
@@ -33,7 +35,7 @@ def schema():
 
 
 _DEFAULT_WORDING = {
-    "event": "death", "unit": "unit", "units": "units", "treated_arm": "treated",
+    "event": "death", "unit": "unit", "units": "units", "treated_arm": "treatment",
     "control_arm": "control", "treated_condition": "treatment = 1",
     "control_condition": "treatment = 0", "survived_condition": "survival = 1",
     "event_condition": "survival = 0",

@@ -41,7 +41,6 @@ class AnalysisOptions:
     event_name: str = "death"
     unit_name: str = "unit"
     arm_names: tuple | None = None
-    by: str | None = None  # column for subgroup effects (report/_subgroups.py)
 
 
 def model_settings(options):

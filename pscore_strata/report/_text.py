@@ -9,7 +9,7 @@ __all__ = ["CAUTIONS", "cautions", "estimand", "assumptions"]
 
 _DEFAULT_WORDS = {
     "event": "death", "unit": "unit", "units": "units",
-    "treated_arm": "treated", "control_arm": "control",
+    "treated_arm": "treatment", "control_arm": "control",
     "treated_condition": "treatment = 1", "control_condition": "treatment = 0",
     "survived_condition": "survival = 1", "event_condition": "survival = 0",
 }  # fmt: skip

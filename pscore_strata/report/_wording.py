@@ -38,7 +38,7 @@ def study_wording(options, data, roles):
     elif coded:
         treated_arm, control_arm = treated_level, control_level
     else:
-        treated_arm, control_arm = "treated", "control"
+        treated_arm, control_arm = "treatment", "control"
     return {
         "event": options.event_name or "death",
         "unit": unit,
