@@ -231,8 +231,8 @@ def build_parser():
     )  # fmt: skip
     analyze.add_argument(
         "data", metavar="DATA",
-        help="a .csv (comma or semicolon), .parquet, .dta, .sas7bdat, .xpt or .sav file, one row "
-        "per unit",
+        help="a .csv (comma or semicolon), .parquet, .dta, .sas7bdat or .sav file, one row per "
+        "unit",
     )  # fmt: skip
     analyze.add_argument(
         "--outcome",

@@ -80,7 +80,7 @@ class PreparedData:
 
 def read_table(path):
     """Read a data file into a DataFrame: CSV (comma- or semicolon-separated), Parquet, Stata
-    ``.dta``, SAS ``.sas7bdat`` / ``.xpt`` or SPSS ``.sav`` (pandas' readers; SPSS needs
+    ``.dta``, SAS ``.sas7bdat`` or SPSS ``.sav`` (pandas' readers; SPSS needs
     pyreadstat)."""
     return _readers.read_table(path, InputError)
 

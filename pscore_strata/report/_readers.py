@@ -22,11 +22,10 @@ READERS = {
     ".pq": "parquet",
     ".dta": "stata",
     ".sas7bdat": "sas",
-    ".xpt": "sas",
     ".sav": "spss",
     ".zsav": "spss",
 }
-_SUFFIXES = ".csv, .parquet, .dta (Stata), .sas7bdat or .xpt (SAS), .sav (SPSS)"
+_SUFFIXES = ".csv, .parquet, .dta (Stata), .sas7bdat (SAS) or .sav (SPSS)"
 _SAMPLE_BYTES = 64 * 1024
 
 
@@ -67,7 +66,8 @@ def _read(kind, path):
         # Value labels become categories, as the analyst sees them in Stata.
         return pd.read_stata(path, convert_categoricals=True)
     if kind == "sas":
-        frame = pd.read_sas(path, format="xport" if path.suffix.lower() == ".xpt" else "sas7bdat")
+        # The encoding recorded in the file decodes its text (older files: bytes, decoded below).
+        frame = pd.read_sas(path, format="sas7bdat", encoding="infer")
         return _decode_bytes(frame)
     return pd.read_spss(path, convert_categoricals=True)
 
