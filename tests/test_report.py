@@ -69,7 +69,9 @@ def test_report_is_self_contained(written):
     html = (out / "report.html").read_text()
     assert not re.search(r"(src|href)=\"(https?:|//)", html)
     images = re.findall(r'src="data:image/png;base64,([^"]+)"', html)
-    assert len(images) == len(analysis.results["figures"]) == 5
+    # Estimates, balance, overlap, weights, principal scores, survivor outcomes, calibration and
+    # sensitivity.
+    assert len(images) == len(analysis.results["figures"]) == 8
     for encoded, name in zip(images, analysis.results["figures"], strict=True):
         png = base64.b64decode(encoded)
         assert png[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG specification)

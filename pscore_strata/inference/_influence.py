@@ -358,7 +358,9 @@ def _progress_bar(progress, total, label):
     if progress is False or (progress is None and not (notebook or _stderr_is_terminal())):
         return None
     try:
-        # tqdm.auto draws a notebook widget in Jupyter and a text bar elsewhere.
+        # tqdm.auto draws a notebook widget in Jupyter and a text bar elsewhere; the package
+        # itself is imported first so that its absence is always noticed.
+        import tqdm as _tqdm_package  # noqa: F401
         from tqdm.auto import tqdm
     except ImportError:
         if progress:

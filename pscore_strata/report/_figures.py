@@ -143,6 +143,12 @@ def draw_figures(analysis):
             ("weights.png", "Balancing weights", plotting.plot_weights, (analysis.primary,),
              "A long right tail means a few rows carry much of the weight.")
         )  # fmt: skip
+    from ._model_checks import model_check_figures
+    from ._subgroups import subgroup_figures
+
+    # In report order: subgroups follow the estimates, the model checks the diagnostics.
+    figures[1:1] = subgroup_figures(results)
+    figures += model_check_figures(analysis)
     if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
         figures.append(
             ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),
@@ -150,10 +156,6 @@ def draw_figures(analysis):
              "band: its confidence interval. The tipping point is where the interval first "
              "covers zero.")
         )  # fmt: skip
-    from ._model_checks import model_check_figures
-    from ._subgroups import subgroup_figures
-
-    figures += subgroup_figures(results) + model_check_figures(analysis)
     drawn = []
     for name, title, draw, args, caption in figures:
         figure = draw(*args)
