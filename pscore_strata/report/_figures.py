@@ -99,6 +99,36 @@ def _sensitivity_figure(results):
     return figure
 
 
+def _in_study_words(figure, words):
+    """Arm names of the study in a library figure's legends, labels and titles.
+
+    The library's diagnostic plots say "treated" and "control"; the report uses the study's
+    arm names (``--arm-names`` or the treatment levels).
+    """
+    if not words:
+        return figure
+    import re
+
+    from matplotlib.text import Text
+
+    names = {"treated": words["treated_arm"], "control": words["control_arm"]}
+    pattern = re.compile(r"\b(treated|control)\b")
+    for text in figure.findobj(Text):
+        content = text.get_text()
+        if pattern.search(content):
+            text.set_text(pattern.sub(lambda m: names[m.group(1)], content))
+    return figure
+
+
+def _in_study_words_text(text, words):
+    import re
+
+    if not words:
+        return text
+    names = {"treated": words["treated_arm"], "control": words["control_arm"]}
+    return re.sub(r"\b(treated|control)\b", lambda m: names[m.group(1)], text)
+
+
 def draw_figures(analysis):
     """Draw every figure the results allow.
 
@@ -157,7 +187,11 @@ def draw_figures(analysis):
              "covers zero.")
         )  # fmt: skip
     drawn = []
+    words = results.get("wording")
     for name, title, draw, args, caption in figures:
         figure = draw(*args)
+        if name in ("balance.png", "overlap.png", "weights.png"):
+            figure = _in_study_words(figure, words)
+            caption = _in_study_words_text(caption, words)
         drawn.append({"name": name, "title": title, "caption": caption, "png": _png(figure)})
     return drawn
