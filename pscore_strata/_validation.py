@@ -46,6 +46,10 @@ class TruncationData:
         Whether the caller supplied ``sample_weight``.
     binary_outcome : bool
         Whether every observed outcome is 0 or 1.
+    status_known, outcome_observed : ndarray of int8 or None
+        With ``missing="at_random"`` and something missing: ``C`` (survival status known) and
+        ``R`` (outcome observed: a survivor with known status and a value); ``survival`` is 0
+        where the status is unknown. ``None`` when nothing is missing.
     """
 
     X: object
@@ -58,6 +62,8 @@ class TruncationData:
     weighted: bool
     binary_outcome: bool
     feature_names: tuple = field(default=())
+    status_known: np.ndarray | None = None
+    outcome_observed: np.ndarray | None = None
 
     @property
     def n_samples(self):
@@ -79,6 +85,8 @@ class TruncationData:
             weighted=self.weighted,
             binary_outcome=self.binary_outcome,
             feature_names=self.feature_names,
+            status_known=None if self.status_known is None else self.status_known[rows],
+            outcome_observed=None if self.outcome_observed is None else self.outcome_observed[rows],
         )
 
     def with_weights(self, sample_weight):
@@ -94,6 +102,8 @@ class TruncationData:
             weighted=True,
             binary_outcome=self.binary_outcome,
             feature_names=self.feature_names,
+            status_known=self.status_known,
+            outcome_observed=self.outcome_observed,
         )
 
 
@@ -117,7 +127,14 @@ def _one_dimensional(values, name):
     return array
 
 
-def _binary_indicator(values, name):
+MISSING_AT_RANDOM_ASSUMPTION = (
+    "missing at random given X within each arm: whether the survival status is known does not "
+    "depend on survival or the outcome, and whether a survivor's outcome is observed does not "
+    "depend on the outcome, once X and the arm are fixed"
+)
+
+
+def _binary_indicator(values, name, allow_missing=False):
     array = _one_dimensional(values, name)
     if array.dtype.kind in "OUS" or isinstance(array.dtype, pd.CategoricalDtype):
         found = pd.unique(array)[:10]
@@ -127,6 +144,21 @@ def _binary_indicator(values, name):
         )
     if array.dtype.kind == "f" and np.isnan(array).any():
         count = int(np.isnan(array).sum())
+        if allow_missing:
+            found = np.unique(array[~np.isnan(array)])
+            if not np.all(np.isin(found, [0, 1])):
+                raise ValueError(
+                    f"`{name}` must contain only 0, 1 and NaN (unknown); found values "
+                    f"{found[:10].tolist()}. Recode it as 1/0."
+                )
+            return array
+        if name == "survival":
+            raise ValueError(
+                f"`survival` has {count} missing value(s) (NaN): survival status unknown "
+                "(lost to follow-up). Pass missing=\"at_random\" to the estimator to model "
+                f"follow-up, which assumes {MISSING_AT_RANDOM_ASSUMPTION}; otherwise resolve "
+                "those rows first."
+            )
         raise ValueError(
             f"`{name}` has {count} missing value(s) (NaN). Every row needs a known 0/1 {name}; "
             "drop or resolve those rows first."
@@ -229,11 +261,21 @@ def check_features(X, models, n_rows=None):
 
 
 def check_truncation_data(
-    X, y, treatment, survival, sample_weight=None, groups=None, models=(None, None, None)
-):
-    """Validate the inputs of every ``fit`` and return a :class:`TruncationData`."""
+    X, y, treatment, survival, sample_weight=None, groups=None, models=(None, None, None),
+    missing="error",
+):  # fmt: skip
+    """Validate the inputs of every ``fit`` and return a :class:`TruncationData`.
+
+    ``missing="at_random"`` accepts NaN survival (status unknown) and NaN outcomes of survivors
+    (not observed); ``"error"`` refuses them with a message naming the option.
+    """
+    check_choice(missing, "missing", ("error", "at_random"))
     treatment = _binary_indicator(treatment, "treatment")
-    survival = _binary_indicator(survival, "survival")
+    survival = _binary_indicator(survival, "survival", allow_missing=missing == "at_random")
+    status_known = None
+    if survival.dtype.kind == "f":
+        status_known = (~np.isnan(survival)).astype(np.int8)
+        survival = np.nan_to_num(survival).astype(np.int8)
     n = treatment.shape[0]
     if survival.shape[0] != n:
         raise ValueError(
@@ -255,13 +297,22 @@ def check_truncation_data(
                 f"{list(pd.unique(outcome[survival == 1])[:5])}. Convert the outcome to numbers."
             ) from None
     outcome = np.where(survival == 1, outcome.astype(float), np.nan)
-    missing = np.flatnonzero(np.isnan(outcome) & (survival == 1))
-    if missing.size:
+    unobserved = np.flatnonzero(np.isnan(outcome) & (survival == 1))
+    outcome_observed = None
+    if unobserved.size and missing == "at_random":
+        outcome_observed = ((survival == 1) & ~np.isnan(outcome)).astype(np.int8)
+    elif unobserved.size:
         raise ValueError(
-            f"`y` is missing (NaN) for {missing.size} survivor(s) (survival == 1), at row "
-            f"positions {missing[:5].tolist()}{' ...' if missing.size > 5 else ''}. The outcome "
-            "must be observed for every survivor; impute it or remove those rows deliberately."
+            f"`y` is missing (NaN) for {unobserved.size} survivor(s) (survival == 1), at row "
+            f"positions {unobserved[:5].tolist()}{' ...' if unobserved.size > 5 else ''}. Pass "
+            "missing=\"at_random\" to the estimator to model response, which assumes "
+            f"{MISSING_AT_RANDOM_ASSUMPTION}; otherwise impute the outcome or remove those rows "
+            "deliberately."
         )
+    if status_known is not None and outcome_observed is None:
+        outcome_observed = (survival == 1).astype(np.int8)
+    if outcome_observed is not None and status_known is None:
+        status_known = np.ones(n, dtype=np.int8)
     if np.isinf(outcome).any():
         raise ValueError("`y` contains infinite values among survivors; fix them before fitting.")
 
@@ -298,12 +349,16 @@ def check_truncation_data(
                 "row a cluster."
             )
 
+    known = np.ones(n, dtype=bool) if status_known is None else status_known == 1
     for arm, label in ((1, "treated"), (0, "control")):
         in_arm = (treatment == arm) & (weights > 0)
         if not in_arm.any():
             raise ValueError(
                 f"The {label} arm (treatment == {arm}) has no units; the effect needs both arms."
             )
+        if outcome_observed is not None:
+            _check_observed_arm(in_arm, known, survival, outcome_observed, label)
+        in_arm = in_arm & known
         survivors = int(survival[in_arm].sum())
         if survivors == 0:
             raise ValueError(
@@ -317,7 +372,7 @@ def check_truncation_data(
                 "instead."
             )
 
-    observed = outcome[survival == 1]
+    observed = outcome[(survival == 1) & ~np.isnan(outcome)]
     binary = bool(np.all((observed == 0) | (observed == 1)))
     return TruncationData(
         X=X,
@@ -330,7 +385,22 @@ def check_truncation_data(
         weighted=weighted,
         binary_outcome=binary,
         feature_names=names,
+        status_known=status_known,
+        outcome_observed=outcome_observed,
     )
+
+
+def _check_observed_arm(in_arm, known, survival, outcome_observed, label):
+    if not (in_arm & known).any():
+        raise ValueError(
+            f"No unit of the {label} arm has a known survival status; survival cannot be "
+            "modelled in that arm."
+        )
+    if not (in_arm & (outcome_observed == 1)).any():
+        raise ValueError(
+            f"No survivor of the {label} arm has an observed outcome; the outcome cannot be "
+            "modelled in that arm."
+        )
 
 
 def check_level(level):

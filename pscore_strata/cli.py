@@ -66,6 +66,7 @@ def _options(args):
         event_name=args.event_name,
         unit_name=args.unit_name,
         arm_names=tuple(args.arm_names) if args.arm_names else None,
+        missing=args.missing,
     )
 
 
@@ -95,6 +96,12 @@ def _print_key_results(results, out_dir):
     if "lower" in bounds:
         print(f"  {'Bounds (no princ. ignor.)':<27} {number(bounds['lower']):>10} to "
               f"{number(bounds['upper'])}")  # fmt: skip
+    missing = results.get("missing_data") or {}
+    for arm in missing.get("by_arm", []):
+        print(f"  Missing data, {arm['arm']}: status unknown {arm['n_status_unknown']} "
+              f"({arm['share_status_unknown']:.1%}), outcome missing {arm['n_outcome_missing']} "
+              f"of {arm['n_known_survivors']} known survivors "
+              f"({arm['share_outcome_missing']:.1%}); assumed missing at random")  # fmt: skip
     naive = results["naive_survivor_contrast"]
     print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
           "(biased; comparison)")  # fmt: skip
@@ -199,7 +206,9 @@ def _simulate(args):
     data = make_scenario(args.scenario, args.n, random_state=args.seed)
     frame = pd.DataFrame(data.X, columns=[f"x{j + 1}" for j in range(data.X.shape[1])])
     frame["treatment"] = np.asarray(data.treatment, dtype=int)
-    frame["survival"] = np.asarray(data.survival, dtype=int)
+    # Scenarios with missing data leave survival blank where the status is unknown.
+    survival = np.asarray(data.survival, dtype=float)
+    frame["survival"] = survival if np.isnan(survival).any() else survival.astype(int)
     frame["outcome"] = data.y
     if data.get("groups") is not None:
         frame["cluster"] = data.groups
@@ -213,7 +222,9 @@ def _simulate(args):
           f"{data.true_effect:.4f}.")  # fmt: skip
     print(f"Analyse it with: pscore-strata analyze {out} --outcome outcome --treatment treatment "
           f"--survival survival --covariates {covariates}"
-          + (" --cluster cluster" if "cluster" in frame else ""))  # fmt: skip
+          + (" --cluster cluster" if "cluster" in frame else "")
+          + (" --missing at_random" if frame[["survival", "outcome"]].isna().any().any()
+             and "status_known" in data else ""))  # fmt: skip
     return 0
 
 
@@ -319,6 +330,14 @@ def build_parser():
         choices=("increasing", "decreasing"),
         default="increasing",
         help="increasing: treatment can only help survival (default)",
+    )
+    analyze.add_argument(
+        "--missing",
+        choices=("error", "at_random"),
+        default="error",
+        help="at_random: blank survival = status unknown (lost to follow-up), blank outcome of "
+        "a survivor = not observed; both assumed missing at random given the covariates within "
+        "each arm (default: error)",
     )
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")

@@ -274,7 +274,9 @@ def test_every_scenario_runs(name):
     data = make_scenario(name, 400, random_state=0)
     assert data.scenario == name
     assert data.y.shape == (400,)
-    np.testing.assert_array_equal(np.isnan(data.y), data.survival == 0)
+    # Scenarios with missing data keep the full values beside the blanked ones.
+    full_y, full_survival = data.get("y_full", data.y), data.get("survival_full", data.survival)
+    np.testing.assert_array_equal(np.isnan(full_y), full_survival == 0)
     assert np.isfinite(data.true_effect)
 
 

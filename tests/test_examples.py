@@ -31,7 +31,8 @@ def run_example(name):
 def test_every_example_is_tested():
     scripts = {p.name for p in EXAMPLES.glob("*.py") if not p.name.startswith("_")}
     assert scripts == {
-        "quickstart.py", "nsw_job_training.py", "cross_fitting.py", "simulation_study.py"
+        "quickstart.py", "nsw_job_training.py", "cross_fitting.py", "simulation_study.py",
+        "missing_data.py",
     }  # fmt: skip
 
 
@@ -62,3 +63,12 @@ def test_cross_fitting():
 def test_simulation_study():
     out = run_example("simulation_study.py")
     assert "pi_violated" in out and "coverage" in out
+
+
+def test_missing_data():
+    out = run_example("missing_data.py")
+    # Simulated truth of the "missing_outcomes" scenario (printed by the example).
+    truth = float(re.search(r"true SACE ([-\d.]+)", out).group(1))
+    effect, se = map(float, re.search(r"MultiplyRobust\s+([-\d.]+) \(SE ([\d.]+)\)", out).groups())
+    assert abs(effect - truth) < 4 * se
+    assert 'missing="at_random"' in out and "Outcome shift" in out

@@ -103,6 +103,14 @@ class TrimmingBounds(BaseEstimator):
         Covariate cells of your own go to ``fit(cells=...)``.
     n_strata : int, default=5
         Number of score strata.
+    missing : {"error", "at_random"}, default="error"
+        As in :class:`PrincipalScoreWeighting`: ``"at_random"`` accepts unknown survival status
+        and missing outcomes of survivors, assumed missing at random given X within each arm;
+        the trimming is then done on the observed survivors weighted by the inverse
+        probability of being observed (follow-up ``c_t(X)`` times response ``r_t(X)``), and
+        arm survival shares use the rows with known status weighted by ``1 / c_t(X)``.
+    response_model : classifier or None, default=None
+        Model for ``c_t`` and ``r_t``; ``None`` is unpenalized logistic regression.
 
     Attributes
     ----------
@@ -159,12 +167,16 @@ class TrimmingBounds(BaseEstimator):
         monotonicity="increasing",
         strata="none",
         n_strata=5,
+        missing="error",
+        response_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.monotonicity = monotonicity
         self.strata = strata
         self.n_strata = n_strata
+        self.missing = missing
+        self.response_model = response_model
 
     def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None):
         """Estimate the bounds.
@@ -186,9 +198,11 @@ class TrimmingBounds(BaseEstimator):
         """
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
         check_choice(self.strata, "strata", ("none", "score"))
+        check_choice(self.missing, "missing", ("error", "at_random"))
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups,
-            models=(self.treatment_model, self.survival_model, None),
+            models=(self.treatment_model, self.survival_model, self.response_model),
+            missing=self.missing,
         )  # fmt: skip
         if self.strata == "score":
             if data.X is None:
@@ -206,7 +220,10 @@ class TrimmingBounds(BaseEstimator):
                 raise TypeError(f"`n_strata` must be an integer >= 1; got {n_strata!r}.")
             if n_strata < 1:
                 raise ValueError(f"`n_strata` must be an integer >= 1; got {n_strata}.")
-        nuisance = fit_nuisance(data, self.treatment_model, self.survival_model, random_state=None)
+        nuisance = fit_nuisance(
+            data, self.treatment_model, self.survival_model, random_state=None,
+            response_model=self.response_model,
+        )  # fmt: skip
         o = _formulas.orient(data, nuisance, self.monotonicity)
         labels = self._cell_labels(cells, data, o)
         self._compute(o, labels, data)
@@ -236,7 +253,11 @@ class TrimmingBounds(BaseEstimator):
 
     def _compute(self, o, labels, data):
         w, A, S, Y = o.weight, o.mixed, o.survival, o.outcome
-        mixed_weight, pure_weight = A / o.pi, (1 - A) / (1 - o.pi)
+        # Survival shares use rows of known status (weights A C / (pi c)), outcome distributions
+        # the observed survivors (A C S R / (pi c r)); without missing data both are A / pi.
+        mixed_weight, pure_weight = o.known_mixed / o.pi, o.known_pure / (1 - o.pi)
+        mixed_observed, pure_observed = o.observed_mixed / o.pi, o.observed_pure / (1 - o.pi)
+        response_parts = []
         total = w.sum()
         # Each influence piece is either proportional to a row's inverse-probability weight
         # (``weighted``: its derivative in pi is known) or free of pi (``free``).
@@ -265,21 +286,22 @@ class TrimmingBounds(BaseEstimator):
             else:
                 if_q = q * (C * pure_weight * (S - p_p) / (n_p * p_p)
                             - C * mixed_weight * (S - p_m) / (n_m * p_m))  # fmt: skip
-            survivors = (C * A * S) > 0
-            y_cell, w_cell = Y[survivors], (w * mixed_weight)[survivors]
+            survivors = (C * mixed_observed) > 0
+            y_cell, w_cell = Y[survivors], (w * mixed_observed)[survivors]
             if data.binary_outcome:
                 success = float(np.sum(w_cell * y_cell) / w_cell.sum())
                 low, high = binary_trimmed_means(success, q)
                 _, _, cut_low, cut_high = trimmed_means(y_cell, w_cell, q)
             else:
                 low, high, cut_low, cut_high = trimmed_means(y_cell, w_cell, q)
-            base = C * mixed_weight * S / s_m
-            if_low = base * (((Y - cut_low) * (Y <= cut_low) + q * cut_low) / q - low)
-            if_low += (cut_low - low) / q * if_q
-            if_high = base * (((Y - cut_high) * (Y >= cut_high) + q * cut_high) / q - high)
-            if_high += (cut_high - high) / q * if_q
-            pure_mean = np.sum(w * C * pure_weight * S * Y) / total / s_p
-            if_pure = C * pure_weight * S * (Y - pure_mean) / s_p
+            base = C * mixed_observed / (np.sum(w * C * mixed_observed) / total)
+            outcome_low = base * (((Y - cut_low) * (Y <= cut_low) + q * cut_low) / q - low)
+            if_low = outcome_low + (cut_low - low) / q * if_q
+            outcome_high = base * (((Y - cut_high) * (Y >= cut_high) + q * cut_high) / q - high)
+            if_high = outcome_high + (cut_high - high) / q * if_q
+            s_observed = np.sum(w * C * pure_observed) / total
+            pure_mean = np.sum(w * C * pure_observed * Y) / total / s_observed
+            if_pure = C * pure_observed * (Y - pure_mean) / s_observed
             share = np.sum(w * C) / total
             alphas.append(share * p_p)
             # alpha = share * p_p: a pi-free part (C) and a weighted part (the influence of p_p).
@@ -287,6 +309,8 @@ class TrimmingBounds(BaseEstimator):
             cell_values.append((low - pure_mean, high - pure_mean, if_low - if_pure,
                                 if_high - if_pure))  # fmt: skip
             rows.append((code, C.sum(), q, low, high, pure_mean))
+            # The parts proportional to 1 / r (outcome distributions), for the response terms.
+            response_parts.append((outcome_low - if_pure, outcome_high - if_pure))
         alpha_total = sum(alphas)
         omegas = [a / alpha_total for a in alphas]
         weighted_alpha = sum(part for _, part in alpha_influence)
@@ -299,11 +323,24 @@ class TrimmingBounds(BaseEstimator):
             pieces["lf"] += v[0] / alpha_total * (free - om * free_alpha)
             pieces["uf"] += v[1] / alpha_total * (free - om * free_alpha)
         influence = {}
-        for bound in ("l", "u"):
+        for index, bound in enumerate(("l", "u")):
             weighted, free = pieces[bound + "w"], pieces[bound + "f"]
             raw = weighted + free
             derivative = np.where(A == 1, -weighted / o.pi, weighted / (1 - o.pi))
-            influence[bound] = raw - o.weighted_mean(raw) + o.corrections({"pi": derivative})
+            derivatives = {"pi": derivative}
+            if o.coarsening is not None:
+                # Every weighted piece is proportional to 1 / c of its arm; the outcome pieces
+                # also to 1 / r, so the estimated follow-up and response models enter like pi.
+                co = o.coarsening
+                outcome_part = sum(om * parts[index]
+                                   for om, parts in zip(omegas, response_parts, strict=True))
+                derivatives.update({
+                    "c_mixed": -_formulas._ratio(A * weighted, co.c_mixed),
+                    "c_pure": -_formulas._ratio((1 - A) * weighted, co.c_pure),
+                    "r_mixed": -_formulas._ratio(A * outcome_part, co.r_mixed),
+                    "r_pure": -_formulas._ratio((1 - A) * outcome_part, co.r_pure),
+                })  # fmt: skip
+            influence[bound] = raw - o.weighted_mean(raw) + o.corrections(derivatives)
         if not o.increasing:
             # SACE = pure-arm mean - mixed-arm mean: the bounds swap and change sign.
             lower, upper = -upper, -lower

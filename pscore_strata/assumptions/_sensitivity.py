@@ -29,7 +29,8 @@ import numpy as np
 import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
-from ..estimators import _formulas
+from .._validation import check_level
+from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
@@ -101,8 +102,9 @@ def _ratio(o, numerator, denominator, derivatives, parametric):
 
 
 def _weighting(o, st, parametric):
-    A, S, Y, pi = o.mixed, o.survival, o.outcome, o.pi
-    base = A * S / (pi * o.p_mixed)
+    Y, pi = o.outcome, o.pi
+    # Observed survivors; with missing data they also carry 1 / (c r) (docs/missing-data.md).
+    base = o.observed_mixed / (pi * o.p_mixed)
     g, g_pp, g_pm, _ = st.g(Y)
 
     def mixed_derivatives(mu, f):
@@ -110,16 +112,18 @@ def _weighting(o, st, parametric):
             "pi": -f / pi,
             "p_pure": base * (g_pp - mu * st.a_pure),
             "p_mixed": -f / o.p_mixed + base * (g_pm - mu * st.a_mixed),
+            **_coarsening.weight_derivatives(o, f, "mixed"),
         }
 
     mu_m, if_m = _ratio(o, base * g, base * st.e_always, mixed_derivatives, parametric)
-    base = (1 - A) * S / ((1 - pi) * o.p_pure)
+    base = o.observed_pure / ((1 - pi) * o.p_pure)
 
     def pure_derivatives(mu, f):
         return {
             "pi": f / (1 - pi),
             "p_pure": -f / o.p_pure + base * st.a_pure * (Y - mu),
             "p_mixed": base * st.a_mixed * (Y - mu),
+            **_coarsening.weight_derivatives(o, f, "pure"),
         }
 
     mu_p, if_p = _ratio(o, base * st.e_always * Y, base * st.e_always, pure_derivatives, parametric)
@@ -155,19 +159,20 @@ def _robust(o, st, parametric):
     partial derivative times the residual of that regression, inverse-weighted by the chance of
     being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022, Theorem 1).
     """
-    A, S, Y, pi = o.mixed, o.survival, o.outcome, o.pi
-    resid_pure = (1 - A) * (S - o.p_pure) / (1 - pi)
-    resid_mixed = A * (S - o.p_mixed) / pi
+    S, Y, pi = o.survival, o.outcome, o.pi
+    # Missing data: each residual over its observation probability (docs/missing-data.md).
+    resid_pure = o.known_pure * (S - o.p_pure) / (1 - pi)
+    resid_mixed = o.known_mixed * (S - o.p_mixed) / pi
     g, g_pp, g_pm, g_m = st.g(o.m_mixed)
     phi_mixed = (
         g + g_pp * resid_pure + g_pm * resid_mixed
-        + g_m * A * S * (Y - o.m_mixed) / (pi * o.p_mixed)
+        + g_m * o.observed_mixed * (Y - o.m_mixed) / (pi * o.p_mixed)
     )  # fmt: skip
     score_resid = st.a_pure * resid_pure + st.a_mixed * resid_mixed
     phi_e = st.e_always + score_resid
     phi_pure = (
         st.e_always * o.m_pure + o.m_pure * score_resid
-        + st.e_always * (1 - A) * S * (Y - o.m_pure) / ((1 - pi) * o.p_pure)
+        + st.e_always * o.observed_pure * (Y - o.m_pure) / ((1 - pi) * o.p_pure)
     )  # fmt: skip
     share = o.weighted_mean(phi_e)
     mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
@@ -279,8 +284,8 @@ def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
     }
     if not given:
         raise ValueError(
-            "Give at least one of `pi_ratio`, `pi_difference` or `harmed_ratio` (a number or a "
-            "list of values)."
+            "Give at least one of `pi_ratio`, `pi_difference`, `harmed_ratio` or "
+            "`outcome_shift` (a number or a list of values)."
         )
     axes = {}
     for name, values in given.items():
@@ -292,8 +297,9 @@ def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
 
 
 def sensitivity_grid(
-    estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None, level=0.95
-):
+    estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None, level=0.95,
+    outcome_shift=None,
+):  # fmt: skip
     """SACE over a grid of sensitivity parameters, from a fitted estimator without refitting.
 
     Parameters
@@ -306,6 +312,14 @@ def sensitivity_grid(
     harmed_ratio : float or sequence of float in [0, 1), optional
         Size of the stratum monotonicity rules out relative to the helped one (``0`` = none).
     level : float, default=0.95
+    outcome_shift : float, sequence of float or dict, optional
+        Outcomes missing not at random (estimators fitted with ``missing="at_random"``): the
+        mean outcome of survivors without an observed outcome is that of responders with the
+        same X and arm plus ``outcome_shift`` (the delta adjustment; ``0`` = missing at
+        random). A number or list applies to both arms (column ``outcome_shift``); a dict
+        ``{"treated": [...], "control": [...]}`` sets each arm (columns
+        ``outcome_shift_treated``, ``outcome_shift_control``, every combination). Give it
+        alone, not with the other parameters.
 
     Returns
     -------
@@ -337,6 +351,16 @@ def sensitivity_grid(
     >>> bool(grid["effect"].iloc[0] == est.effect_)
     True
     """
+    if outcome_shift is not None:
+        _check_estimator(estimator)
+        if any(v is not None for v in (pi_ratio, pi_difference, harmed_ratio)):
+            raise ValueError(
+                "Give `outcome_shift` on its own: combining it with `pi_ratio`, `pi_difference` "
+                "or `harmed_ratio` is not supported; run two grids."
+            )
+        from ._outcome_shift import outcome_shift_grid
+
+        return outcome_shift_grid(estimator, outcome_shift, check_level(level))
     axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
     _check_estimator(estimator)
     log_scale = estimator.scale != "difference"

@@ -3,6 +3,7 @@
 import pandas as pd
 
 from ._checks import check_choice, check_positive_int, resolve_rng
+from ._missing import apply_missingness, check_missingness
 from ._simulate import _simulate, describe
 
 _BASE = dict(
@@ -51,6 +52,22 @@ SCENARIOS = {
         settings={"n_features": 100}, knobs={},
         description="100 covariates of which 3 matter.",
     ),
+    # Missing at random given X: complete-case analysis is biased in both (the effect varies
+    # with x2, and losses depend on x2).
+    "lost_to_follow_up": dict(
+        settings={"effect_heterogeneity": 0.5}, knobs={},
+        missing={"follow_up": {"treated": (0.7, -1.5), "control": (0.8, -1.5)}},
+        description="Survival status unknown for about a quarter of units, mostly at high x2, "
+                    "where the effect is largest: complete cases understate the SACE.",
+    ),
+    "missing_outcomes": dict(
+        settings={"effect_heterogeneity": 0.5}, knobs={},
+        missing={"follow_up": (0.9, 0.5),
+                 "response": {"treated": (0.7, -1.5), "control": (0.7, 1.5)}},
+        description="A tenth of units lost to follow-up and 30% of survivors without an "
+                    "outcome, both depending on x2 (which drives the effect), in opposite "
+                    "directions in the two arms.",
+    ),
 }
 
 
@@ -96,7 +113,10 @@ def make_scenario(name, n_samples=2000, random_state=None):
         - ``"clustered"``: about ``n_samples / 20`` clusters, each with a normal random
           effect (sd 1) added to both Y(0) and Y(1); the effect cancels in Y(1) - Y(0)
           and has mean zero, so the truth is that of ``"linear"``. Adds ``groups``;
-        - ``"high_dimensional"``: 100 covariates of which 3 matter.
+        - ``"high_dimensional"``: 100 covariates of which 3 matter;
+        - ``"lost_to_follow_up"``, ``"missing_outcomes"``: survival status (and outcomes)
+          missing at random given x2, differently by arm, with ``effect_heterogeneity=0.5``;
+          fit with ``missing="at_random"``. Complete-case analysis is biased there.
     n_samples : int, default=2000
         Number of units.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState
@@ -129,7 +149,15 @@ def make_scenario(name, n_samples=2000, random_state=None):
     if cluster_size is not None:
         knobs["n_clusters"] = max(1, round(n_samples / cluster_size))
     data = _simulate(**params, rng=rng, **knobs)
-    data.params = {**params, **knobs}
+    missing = spec.get("missing", {})
+    if missing:
+        data = apply_missingness(
+            data,
+            check_missingness(missing.get("follow_up"), "follow_up"),
+            check_missingness(missing.get("response"), "response"),
+            rng,
+        )
+    data.params = {**params, **knobs, **missing}
     data.scenario = name
     data.treatment_probability = 0.5 if params["design"] == "randomized" else None
     data.DESCR = f"Scenario {name!r}: {spec['description']}\n" + describe(

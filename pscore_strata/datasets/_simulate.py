@@ -7,6 +7,7 @@ from scipy.special import expit
 from sklearn.utils import Bunch
 
 from ._checks import check_choice, check_positive_int, check_real, resolve_rng
+from ._missing import apply_missingness, check_missingness
 
 STRATUM_LABELS = ("always_survivor", "protected", "harmed", "doomed")
 DESIGNS = ("observational", "randomized")
@@ -176,7 +177,8 @@ def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogenei
 
 def make_truncation(n_samples=2000, *, n_features=5, design="observational", outcome="linear",
                     effect=1.0, effect_heterogeneity=0.0, pi_difference=0.0, harmed_ratio=0.0,
-                    monotonicity="increasing", noise=1.0, random_state=None):
+                    monotonicity="increasing", noise=1.0, follow_up=None, response=None,
+                    random_state=None):
     """Simulate outcomes truncated by death with a known survivor average causal effect.
 
     Units are drawn stratum first: covariates ``X ~ N(0, I)``, then the principal stratum
@@ -212,6 +214,16 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
         stratum is ``"protected"``, under ``"decreasing"`` it is ``"harmed"``.
     noise : float, default=1.0
         Standard deviation of the outcome noise; ignored for binary outcomes.
+    follow_up, response : None, float, (float, float) or dict, default=None
+        Loss to follow-up and outcome non-response, missing at random given X within each arm.
+        A probability ``p`` in (0, 1] is a constant chance that the survival status is known
+        (``follow_up``) or that a survivor's outcome is observed (``response``); a pair
+        ``(p, strength)`` makes it ``expit(logit(p) + strength * x2)``; a dict with keys
+        ``"treated"`` and ``"control"`` sets each arm. ``None`` loses nothing. Unknown status
+        is NaN in ``survival``, an unobserved outcome NaN in ``y``; the full values are kept in
+        ``survival_full`` and ``y_full``, the indicators in ``status_known`` and
+        ``outcome_observed``, the probabilities in ``follow_up_probability`` and
+        ``response_probability``. The truth is unchanged.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState
         Seed or generator. A passed generator is advanced, never copied.
 
@@ -253,6 +265,8 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
     pi_difference = check_real(pi_difference, "pi_difference")
     harmed_ratio = check_real(harmed_ratio, "harmed_ratio", low=0.0, high=1.0, high_open=True)
     noise = check_real(noise, "noise", low=0.0)
+    follow_up_spec = check_missingness(follow_up, "follow_up")
+    response_spec = check_missingness(response, "response")
     rng = resolve_rng(random_state)
     params = dict(
         n_samples=n_samples, n_features=n_features, design=design, outcome=outcome,
@@ -260,6 +274,9 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
         harmed_ratio=harmed_ratio, monotonicity=monotonicity, noise=noise,
     )
     data = _simulate(**params, rng=rng)
+    data = apply_missingness(data, follow_up_spec, response_spec, rng)
+    if follow_up is not None or response is not None:
+        params = dict(params, follow_up=follow_up, response=response)
     data.params = params
     data.treatment_probability = 0.5 if design == "randomized" else None
     data.DESCR = describe(params, data.true_effect, data.true_effect_mc_error)

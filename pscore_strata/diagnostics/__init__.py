@@ -5,6 +5,7 @@ model is refitted.
 """
 
 from ._arrays import effective_sample_size
+from ._missing import missing_data_balance, missing_data_summary
 from ._monotonicity import monotonicity_check
 from ._tables import balance_table, diagnostic_warnings, overlap_summary, weight_summary
 
@@ -15,4 +16,6 @@ __all__ = [
     "monotonicity_check",
     "diagnostic_warnings",
     "effective_sample_size",
+    "missing_data_balance",
+    "missing_data_summary",
 ]

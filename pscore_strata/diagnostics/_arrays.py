@@ -42,11 +42,11 @@ def treated_indicator(o):
 
 def balancing_weights(o):
     """Row weights of the three reconstructions, times the sample weights, keyed by group."""
-    A, S = o.mixed, o.survival
-    in_mixed = A * S > 0
+    # Observed survivors; with missing data they carry 1 / (c r) (equal to A S otherwise).
+    observed_mixed, observed_pure = o.observed_mixed, o.observed_pure
     with np.errstate(divide="ignore", invalid="ignore"):
-        mixed = np.where(in_mixed, o.p_pure / (o.pi * o.p_mixed), 0.0)
-    pure = np.where((1 - A) * S > 0, 1.0 / (1.0 - o.pi), 0.0)
+        mixed = np.where(observed_mixed > 0, observed_mixed * o.p_pure / (o.pi * o.p_mixed), 0.0)
+        pure = np.where(observed_pure > 0, observed_pure / (1.0 - o.pi), 0.0)
     treated, control = (mixed, pure) if o.increasing else (pure, mixed)
     return {
         "treated_survivors": o.weight * treated,
@@ -57,9 +57,10 @@ def balancing_weights(o):
 
 def survivor_weights(o):
     T = treated_indicator(o)
+    observed = o.survival if o.coarsening is None else o.survival * o.coarsening.responded
     return {
-        "treated_survivors": o.weight * T * o.survival,
-        "control_survivors": o.weight * (1 - T) * o.survival,
+        "treated_survivors": o.weight * T * observed,
+        "control_survivors": o.weight * (1 - T) * observed,
     }
 
 

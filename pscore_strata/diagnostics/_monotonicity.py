@@ -125,6 +125,9 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
     if adjust:
         pi = fitted_scores(o)["treatment"]
         w = w * np.where(T == 1, 1 / pi, 1 / (1 - pi))
+    if o.coarsening is not None:
+        # Unknown survival status (missing at random): known rows carry 1 / c of their arm.
+        w = w * (o.coarsening.known_mixed + o.coarsening.known_pure)
     violations = o.p_mixed < o.p_pure
     rows = {"overall": (np.ones(labels.shape[0], bool))}
     rows.update({label: labels == label for label in order})

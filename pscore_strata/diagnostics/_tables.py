@@ -336,4 +336,6 @@ def diagnostic_warnings(estimator, X=None):
             f"forbids in {', '.join(map(str, wrong))} (95% intervals, Bonferroni-adjusted). "
             "Reconsider the monotonicity direction or use the sensitivity analysis."
         )
-    return messages
+    from ._missing import missing_data_warnings
+
+    return messages + missing_data_warnings(estimator, o, X)

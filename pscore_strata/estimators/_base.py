@@ -40,11 +40,13 @@ class SurvivorEffectEstimator(BaseEstimator):
     def _models(self):
         """The models that will see X (for input checks that depend on them)."""
         used = (self.treatment_model, self.survival_model)
-        return used + ((self.outcome_model,) if self._uses_outcome_model else ())
+        used += (self.outcome_model,) if self._uses_outcome_model else ()
+        return used + ((self.response_model,) if self.missing == "at_random" else ())
 
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
         check_choice(self.scale, "scale", _SCALES)
+        check_choice(self.missing, "missing", ("error", "at_random"))
         n_bootstrap = getattr(self, "n_bootstrap", 0)
         if not isinstance(n_bootstrap, int | np.integer) or n_bootstrap < 0:
             raise ValueError(f"`n_bootstrap` must be a non-negative integer; got {n_bootstrap!r}.")
@@ -60,6 +62,7 @@ class SurvivorEffectEstimator(BaseEstimator):
             n_folds=self.n_folds,
             random_state=random_state,
             treatment_enters_estimate=self._treatment_enters_estimate,
+            response_model=self.response_model,
         )
 
     def _means(self, data, nuisance):
@@ -95,7 +98,8 @@ class SurvivorEffectEstimator(BaseEstimator):
         """
         n_repeats = self._check_params()
         data = check_truncation_data(
-            X, y, treatment, survival, sample_weight, groups, models=self._models()
+            X, y, treatment, survival, sample_weight, groups, models=self._models(),
+            missing=self.missing,
         )
         if self.scale == "odds_ratio" and not data.binary_outcome:
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")

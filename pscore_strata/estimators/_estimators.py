@@ -30,6 +30,17 @@ _COMMON_PARAMETERS = """
         survival); ``None`` fits on all rows.
     random_state : int, RandomState or None, default=None
         Seeds the folds and the bootstrap.
+    missing : {"error", "at_random"}, default="error"
+        ``"error"`` refuses NaN survival (status unknown: lost to follow-up) and NaN outcomes of
+        survivors. ``"at_random"`` assumes both are missing at random given X within each arm
+        (follow-up independent of survival and outcome given X and arm; response among
+        survivors independent of the outcome given X and arm), fits a follow-up model
+        ``c_t(X)`` on each arm's rows and a response model ``r_t(X)`` among each arm's known
+        survivors, and weights every observed residual by the inverse probability of being
+        observed (docs/missing-data.md). An arm with nothing missing gets no such model.
+    response_model : classifier or None, default=None
+        Model for ``c_t`` and ``r_t`` (cloned per model and arm); ``None`` is unpenalized
+        logistic regression. Used only when something is missing.
 """
 
 
@@ -102,6 +113,8 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         n_bootstrap=200,
         random_state=None,
         n_jobs=None,
+        missing="error",
+        response_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -111,6 +124,8 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         self.n_bootstrap = n_bootstrap
         self.random_state = random_state
         self.n_jobs = n_jobs
+        self.missing = missing
+        self.response_model = response_model
 
 
 class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
@@ -159,6 +174,8 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         n_bootstrap=200,
         random_state=None,
         n_jobs=None,
+        missing="error",
+        response_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -169,6 +186,8 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.n_bootstrap = n_bootstrap
         self.random_state = random_state
         self.n_jobs = n_jobs
+        self.missing = missing
+        self.response_model = response_model
 
 
 class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
@@ -229,6 +248,8 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         n_folds=None,
         n_repeats=1,
         random_state=None,
+        missing="error",
+        response_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -238,3 +259,5 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.n_folds = n_folds
         self.n_repeats = n_repeats
         self.random_state = random_state
+        self.missing = missing
+        self.response_model = response_model

@@ -19,6 +19,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import _coarsening
+
 __all__ = [
     "Oriented",
     "orient",
@@ -45,6 +47,32 @@ class Oriented:
     weight: np.ndarray
     parametric: dict | None  # keys: "pi", "p_mixed", "p_pure", "m_mixed", "m_pure"
     increasing: bool
+    # missing="at_random": inverse-probability-of-observation factors (estimators/_coarsening.py)
+    coarsening: object = None
+
+    # Monotone coarsening replaces each full-data indicator by the observed one over its
+    # probability (docs/missing-data.md): A -> A C / c_mixed for the survival residuals and
+    # A S -> A C S R / (c_mixed r_mixed) for the outcome terms. Without coarsening they are the
+    # full-data indicators, so every formula is unchanged bit for bit.
+    @property
+    def known_mixed(self):
+        return self.mixed if self.coarsening is None else self.coarsening.known_mixed
+
+    @property
+    def known_pure(self):
+        return 1 - self.mixed if self.coarsening is None else self.coarsening.known_pure
+
+    @property
+    def observed_mixed(self):
+        if self.coarsening is None:
+            return self.mixed * self.survival
+        return self.coarsening.observed_mixed
+
+    @property
+    def observed_pure(self):
+        if self.coarsening is None:
+            return (1 - self.mixed) * self.survival
+        return self.coarsening.observed_pure
 
     def weighted_mean(self, values):
         # A numpy scalar, not a float: a zero normalizer (no always-survivor weight left) then
@@ -81,6 +109,7 @@ def orient(data, nuisance, monotonicity):
         if "treatment" in source:
             # A logistic model of 1 - T is the same fit with every residual negated.
             parametric["pi"] = source["treatment"] if increasing else source["treatment"].negated()
+        parametric.update(_coarsening.parametric_view(source, mixed_arm, pure_arm))
     return Oriented(
         mixed=(data.treatment == mixed_arm).astype(float),
         pi=pi if increasing else 1.0 - pi,
@@ -89,10 +118,11 @@ def orient(data, nuisance, monotonicity):
         m_mixed=None if outcome is None else outcome[mixed_arm],
         m_pure=None if outcome is None else outcome[pure_arm],
         survival=data.survival.astype(float),
-        outcome=np.where(data.survival == 1, data.outcome, 0.0),
+        outcome=np.where(data.survival == 1, np.nan_to_num(data.outcome), 0.0),
         weight=data.sample_weight,
         parametric=parametric,
         increasing=increasing,
+        coarsening=_coarsening.coarsening(data, nuisance, mixed_arm, pure_arm),
     )
 
 
@@ -134,22 +164,27 @@ def weighting_means(o, subset=None):
     always-survivors over their chance of being observed); pure-arm survivors get ``1/(1-pi)``.
     Within a subgroup the weights are normalized over the subgroup's survivors.
     """
-    A, S, Y = o.mixed, o.survival, o.outcome
+    Y = o.outcome
     g = _indicator(o, subset)
-    w_mixed = _ratio(g * A * S * o.p_pure, o.pi * o.p_mixed)
+    # With missing data the observed survivors also carry 1 / (c r) (docs/missing-data.md).
+    w_mixed = _ratio(g * o.observed_mixed * o.p_pure, o.pi * o.p_mixed)
     normalizer = o.weighted_mean(w_mixed)
     mu_mixed = o.weighted_mean(w_mixed * Y) / normalizer
     f = w_mixed * (Y - mu_mixed)
     correction = o.corrections(
-        {"pi": -_ratio(f, o.pi), "p_mixed": -_ratio(f, o.p_mixed), "p_pure": _ratio(f, o.p_pure)}
-    )
+        {"pi": -_ratio(f, o.pi), "p_mixed": -_ratio(f, o.p_mixed), "p_pure": _ratio(f, o.p_pure),
+         **_coarsening.weight_derivatives(o, f, "mixed")}
+    )  # fmt: skip
     if_mixed = (f + correction) / normalizer
 
-    w_pure = _ratio(g * (1 - A) * S, 1 - o.pi)
+    w_pure = _ratio(g * o.observed_pure, 1 - o.pi)
     normalizer = o.weighted_mean(w_pure)
     mu_pure = o.weighted_mean(w_pure * Y) / normalizer
     f = w_pure * (Y - mu_pure)
-    if_pure = (f + o.corrections({"pi": _ratio(f, 1 - o.pi)})) / normalizer
+    correction = o.corrections(
+        {"pi": _ratio(f, 1 - o.pi), **_coarsening.weight_derivatives(o, f, "pure")}
+    )
+    if_pure = (f + correction) / normalizer
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
@@ -173,15 +208,20 @@ def robust_terms(o):
 
     Returns ``(phi_e, phi_mixed, phi_pure)``; the means are ``mean(phi_t) / mean(phi_e)``.
     """
-    A, S, Y = o.mixed, o.survival, o.outcome
-    pure_residual = _ratio((1 - A) * (S - o.p_pure), 1 - o.pi)
+    S, Y = o.survival, o.outcome
+    pure_residual = _ratio(o.known_pure * (S - o.p_pure), 1 - o.pi)
     phi_e = pure_residual + o.p_pure
     phi_mixed = (
         pure_residual * o.m_mixed
-        + _ratio(o.p_pure * A * S * (Y - o.m_mixed), o.pi * o.p_mixed)
+        + _ratio(o.p_pure * o.observed_mixed * (Y - o.m_mixed), o.pi * o.p_mixed)
         + o.p_pure * o.m_mixed
     )
-    phi_pure = _ratio((1 - A) * (S * Y - o.p_pure * o.m_pure), 1 - o.pi) + o.p_pure * o.m_pure
+    if o.coarsening is None:
+        phi_pure = _ratio((1 - o.mixed) * (S * Y - o.p_pure * o.m_pure), 1 - o.pi)
+    else:
+        # a0 (S R (Y - m0) / r0 + (S - p0) m0): each residual over its observation probability.
+        phi_pure = _ratio(o.observed_pure * (Y - o.m_pure), 1 - o.pi) + pure_residual * o.m_pure
+    phi_pure = phi_pure + o.p_pure * o.m_pure
     return phi_e, phi_mixed, phi_pure
 
 

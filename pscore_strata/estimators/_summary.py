@@ -85,6 +85,9 @@ def _stratum_shares(estimator):
     for arm, arm_prob in ((1, pi), (0, 1 - pi)):
         p = nuisance.survival[arm]
         in_arm = (T == arm).astype(float)
+        if nuisance.missingness is not None:
+            # Rows of unknown status drop out, the known ones carry 1 / c_t (missing at random).
+            in_arm = in_arm * data.status_known / nuisance.missingness["follow_up"][arm]
         terms = np.divide(in_arm * (S - p), arm_prob, out=np.zeros_like(p), where=in_arm > 0) + p
         shares[arm] = float(np.sum(w * terms) / w.sum())
         influence[arm] = terms - shares[arm]
@@ -100,11 +103,12 @@ def _stratum_shares(estimator):
 def _naive_contrast(data):
     """Difference of survivor means between arms, with its influence values."""
     w, T, S = data.sample_weight, data.treatment, data.survival
-    Y = np.where(S == 1, data.outcome, 0.0)
+    Y = np.where(S == 1, np.nan_to_num(data.outcome), 0.0)
     influence = np.zeros(data.n_samples)
     means = {}
+    observed = S == 1 if data.outcome_observed is None else data.outcome_observed == 1
     for arm, sign in ((1, 1.0), (0, -1.0)):
-        cell = (T == arm) & (S == 1)
+        cell = (T == arm) & observed
         share = np.sum(w * cell) / w.sum()
         means[arm] = np.sum(w * cell * Y) / np.sum(w * cell)
         influence += sign * cell * (Y - means[arm]) / share
@@ -147,6 +151,10 @@ def _notes(estimator):
         )
     if estimator.training_data_.groups is not None:
         notes.append("Standard errors are cluster-robust (influence values summed per cluster).")
+    if estimator.nuisance_.missingness is not None:
+        from ._coarsening import missing_data_note
+
+        notes.append(missing_data_note(estimator))
     if estimator.n_monotonicity_violations_:
         notes.append(
             f"{estimator.n_monotonicity_violations_} rows contradict monotonicity in the fitted "

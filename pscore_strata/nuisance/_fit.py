@@ -148,6 +148,9 @@ class NuisanceFit:
     parametric: dict | None
     models: dict = field(default_factory=dict)
     cross_fitted: bool = False
+    # missing="at_random" (nuisance/_missing.py): {"follow_up": {0: c0, 1: c1}, "response":
+    # {0: r0, 1: r1}} per row; None when nothing is missing.
+    missingness: dict | None = None
 
 
 def _fit(model, X, target, weights):
@@ -218,6 +221,7 @@ def fit_nuisance(
     n_folds=None,
     random_state=None,
     treatment_enters_estimate=True,
+    response_model=None,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -237,11 +241,18 @@ def fit_nuisance(
     treatment_enters_estimate : bool, default=True
         ``False`` when the estimator's formula does not use ``pi`` (outcome regression), so a
         non-default treatment model does not rule out the sandwich standard error.
+    response_model : classifier or None
+        Follow-up and response models when ``data`` has missing status or outcomes
+        (``None``: the default logistic model); survival models are then fitted on rows with
+        known status and outcome models on rows with an observed outcome.
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
     weighted = data.weighted
     X = data.X
+    coarsened = data.status_known is not None
+    known = data.status_known == 1 if coarsened else np.ones(n, bool)
+    observed = data.outcome_observed == 1 if coarsened else S == 1
     known_probability = isinstance(treatment_model, int | float) and not isinstance(
         treatment_model, bool
     )
@@ -293,11 +304,12 @@ def fit_nuisance(
         for arm in (0, 1):
             arm_rows = train[T[train] == arm]
             model, survival[arm][test] = _fit_predict(
-                models["survival"], X, S.astype(float), arm_rows, test, w, weighted, True
+                models["survival"], X, S.astype(float), arm_rows[known[arm_rows]], test, w,
+                weighted, True,
             )
             fitted[("survival", arm)].append(model)
             if fit_outcome:
-                rows = arm_rows[S[arm_rows] == 1]
+                rows = arm_rows[observed[arm_rows]]
                 model, outcome[arm][test] = _fit_predict(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
@@ -311,6 +323,7 @@ def fit_nuisance(
         and (treatment_model is None or known_probability or not treatment_enters_estimate)
         and survival_model is None
         and (outcome_model is None or not fit_outcome)
+        and (response_model is None or not coarsened)
     )
     if defaults:
         design = _numeric_design(X)
@@ -319,13 +332,28 @@ def fit_nuisance(
             parametric["treatment"] = _parametric(design, np.ones(n, bool), T, pi, pi * (1 - pi), w)
         for arm in (0, 1):
             p = survival[arm]
-            parametric[("survival", arm)] = _parametric(design, T == arm, S, p, p * (1 - p), w)
+            mask = (T == arm) & known
+            parametric[("survival", arm)] = _parametric(design, mask, S, p, p * (1 - p), w)
             if fit_outcome:
                 m = outcome[arm]
                 slope = m * (1 - m) if binary_outcome else np.ones(n)
-                mask = (T == arm) & (S == 1)
+                mask = (T == arm) & observed
                 parametric[("outcome", arm)] = _parametric(design, mask, Y, m, slope, w)
 
+    missingness = None
+    if coarsened:
+        from ._missing import fit_missingness
+
+        missingness, missing_models, missing_parametric = fit_missingness(
+            data,
+            default_binary_model() if response_model is None else response_model,
+            splits,
+            _numeric_design(X) if defaults else None,
+            _parametric if defaults else None,
+        )
+        fitted.update(missing_models)
+        if parametric is not None:
+            parametric.update(missing_parametric)
     _warn_extremes(pi, survival, known_probability)
     return NuisanceFit(
         treatment_probability=pi,
@@ -334,6 +362,7 @@ def fit_nuisance(
         parametric=parametric,
         models=fitted,
         cross_fitted=n_folds is not None,
+        missingness=missingness,
     )
 
 

@@ -58,7 +58,7 @@ def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=F
         ``results`` (the contents of results.json) and the fitted estimators.
     """
     options = options or AnalysisOptions()
-    data = prepare_data(frame, roles, drop_incomplete=drop_incomplete,
+    data = prepare_data(frame, roles, drop_incomplete=drop_incomplete, missing=options.missing,
                         treated_value=treated_value, survived_value=survived_value)  # fmt: skip
     analysis = run_analysis(data, roles, options, source=source, progress=progress)
     if out_dir is not None:

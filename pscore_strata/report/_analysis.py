@@ -16,6 +16,7 @@ import numpy as np
 
 from .. import __version__
 from ._honesty import bootstrap_warning, honest_bounds, honest_estimates, honest_sensitivity
+from ._missing import missing_section
 from ._options import (
     METHOD_LABELS,
     METHODS,
@@ -31,7 +32,7 @@ from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.1.0"
+SCHEMA_VERSION = "1.2.0"
 
 
 @dataclass
@@ -75,13 +76,15 @@ def _overview(data, roles):
     arms = []
     w = np.ones(len(data.treatment)) if data.sample_weight is None else data.sample_weight
     for arm, label in ((1, "treated"), (0, "control")):
-        rows = data.treatment == arm
-        survivors = rows & (data.survival == 1)
+        # Under --missing at_random: shares among rows of known status, means among observed
+        # outcomes (the "Missing data" section gives the counts).
+        rows = (data.treatment == arm) & ~np.isnan(data.survival.astype(float))
+        survivors = rows & (data.survival == 1) & ~np.isnan(data.outcome)
         y = data.outcome[survivors]
         arms.append({
             "arm": label,
-            "n": int(rows.sum()),
-            "n_survivors": int(survivors.sum()),
+            "n": int(np.sum(data.treatment == arm)),
+            "n_survivors": int(np.sum(rows & (data.survival == 1))),
             "survival_share": number(np.sum(w[rows] * data.survival[rows]) / np.sum(w[rows])),
             "outcome_mean_survivors": number(np.average(y, weights=w[survivors]))
             if y.size else None,
@@ -202,6 +205,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "level": options.level,
             "monotonicity": options.monotonicity,
             "seed": options.seed,
+            "missing": options.missing,
         },
         "wording": words,
         "estimand": estimand(roles, options.monotonicity, words),
@@ -234,6 +238,10 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     except ImportError as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)
     try:
+        results["missing_data"] = missing_section(collector, primary, data, options.level)
+    except ImportError as error:
+        results["missing_data"] = _unavailable("Missing-data checks", error)
+    try:
         from ._model_checks import model_checks_section
 
         results["model_checks"] = model_checks_section(primary)
@@ -248,6 +256,15 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             collector, primary, data, roles, options.level, InputError
         )
     results["assumptions"] = assumptions(roles, options.monotonicity, words)
+    if results["missing_data"]:
+        from ._missing import MISSING_ASSUMPTION_TEXT
+
+        results["assumptions"].append({
+            "name": "Missing at random (--missing at_random)",
+            "statement": MISSING_ASSUMPTION_TEXT,
+            "checked_by": "Untestable; the missing-data balance table checks only the models, "
+            "and the outcome-shift table shows the sensitivity to non-responders differing.",
+        })  # fmt: skip
     results["warnings"] = [f"data: {message}" for message in data.messages]
     results["warnings"] += collector.messages
     if bootstrap_warning(options.bootstrap):

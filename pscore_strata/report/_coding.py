@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["MANY_LEVELS", "DataWarning", "indicator", "check_dates", "many_levels_messages",
-           "matches_level"]  # fmt: skip
+           "matches_level", "level_hint"]  # fmt: skip
 
 #: More levels than this make one-hot coding costly and unstable (common practice).
 MANY_LEVELS = 50
@@ -45,30 +45,30 @@ def matches_level(values, level):
     return values.astype("string").str.strip() == str(level).strip()
 
 
-def indicator(frame, column, option, value, input_error):
-    """A 0/1 indicator and its two level names ``(level of 1, level of 0)``.
+_VALUE_OPTIONS = {"--treatment": ("--treated-value", "treated_value"),
+                  "--survival": ("--survived-value", "survived_value")}
 
-    Without ``value`` the column must hold 0/1 (or booleans); with it, exactly two distinct
-    values, one of which is ``value``.
+
+def level_hint(message, values, option):
+    """``message`` plus, for a two-level column, how to name the level that means 1."""
+    _, found = _shown(values)
+    if len(found) != 2:
+        return message
+    value_option, python = _VALUE_OPTIONS[option]
+    return (f"{message.rstrip('.')}; or, to keep its two levels, name the one that means 1 "
+            f"with {value_option} {found[0]} (Python: {python}=).")  # fmt: skip
+
+
+def indicator(frame, column, option, value, input_error, allow_blank=False):
+    """A 0/1 indicator from a column with two levels, ``value`` meaning 1.
+
+    Returns the indicator (float with NaN for blanks when ``allow_blank``, the status-unknown
+    rows of ``--missing at_random``) and the level names ``(value, other level)``.
     """
-    python = {"--treatment": "treated_value", "--survival": "survived_value"}[option]
-    value_option = {"--treatment": "--treated-value", "--survival": "--survived-value"}[option]
+    value_option, _ = _VALUE_OPTIONS[option]
     values = frame[column]
-    if value is None:
-        if values.dtype == bool:
-            return values.to_numpy(dtype=np.int8), ("True", "False")
-        numeric = pd.to_numeric(values, errors="coerce")
-        if numeric.isna().any() or not numeric.isin([0, 1]).all():
-            shown, found = _shown(values)
-            hint = (f"; name the level that means 1 with {value_option} {found[0]} "
-                    f"(Python: {python}=)") if len(found) == 2 else ". Recode it first"  # fmt: skip
-            raise input_error(
-                f"{option} column '{column}' must hold 0/1 values (1 = treated / survived) or "
-                f"two levels; found {shown}{hint}."
-            )
-        return numeric.to_numpy(dtype=np.int8), ("1", "0")
     shown, found = _shown(values)
-    one = matches_level(values, value)
+    one = matches_level(values, value).fillna(False)
     if not one.any():
         raise input_error(
             f"{value_option} '{value}' does not occur in {option} column '{column}'; its values "
@@ -80,6 +80,9 @@ def indicator(frame, column, option, value, input_error):
             f"given; found {len(found)}: {shown}."
         )
     other = next(str(level) for level in found if not matches_level(pd.Series([level]), value)[0])
+    blank = values.isna().to_numpy()
+    if blank.any() and allow_blank:
+        return np.where(blank, np.nan, one.to_numpy(dtype=float)), (str(value), other)
     return one.to_numpy(dtype=np.int8), (str(value), other)
 
 

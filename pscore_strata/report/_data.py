@@ -118,14 +118,60 @@ def _check_columns(frame, roles):
         )
 
 
-def _missing_rows(frame, roles, survived_value=None):
-    """Per column, the rows that make a unit incomplete (outcome counts only for survivors)."""
+def _indicator(frame, column, option, allow_blank=False):
+    values = frame[column]
+    if values.dtype == bool:
+        return values.to_numpy(dtype=np.int8)
+    numeric = pd.to_numeric(values, errors="coerce")
+    found = sorted(pd.unique(values.dropna()).tolist(), key=str)
+    if allow_blank and values.isna().any():
+        # Blank = status unknown (--missing at_random); anything else must still be 0/1.
+        known = numeric[values.notna()]
+        if not (known.notna().all() and known.isin([0, 1]).all()):
+            shown = ", ".join(map(str, found[:6])) + (" ..." if len(found) > 6 else "")
+            raise InputError(
+                f"{option} column '{column}' must hold 0/1 values or blanks (unknown); found "
+                f"{shown}. Recode it first."
+            )
+        return numeric.to_numpy(dtype=float)
+    if numeric.isna().any() or not numeric.isin([0, 1]).all():
+        shown = ", ".join(map(str, found[:6])) + (" ..." if len(found) > 6 else "")
+        raise InputError(
+            f"{option} column '{column}' must hold 0/1 values (1 = treated / survived); found "
+            f"{shown}. Recode it first."
+        )
+    return numeric.to_numpy(dtype=np.int8)
+
+
+def _coded_indicator(frame, column, option, value, allow_blank=False):
+    """A 0/1 indicator and its level names ``(level of 1, level of 0)``.
+
+    ``value`` names the level that means 1 in a column coded otherwise (text, for example);
+    without it the column must hold 0/1 (:func:`_indicator`).
+    """
+    if value is not None:
+        return _coding.indicator(frame, column, option, value, InputError, allow_blank)
+    try:
+        indicator = _indicator(frame, column, option, allow_blank)
+    except InputError as error:
+        raise InputError(_coding.level_hint(str(error), frame[column], option)) from None
+    return indicator, ("True", "False") if frame[column].dtype == bool else ("1", "0")
+
+
+def _missing_rows(frame, roles, modelled=(), survived_value=None):
+    """Per column, the rows that make a unit incomplete (outcome counts only for survivors).
+
+    Columns in ``modelled`` (survival and outcome under ``--missing at_random``) are counted
+    apart: their blanks are analysed, not dropped.
+    """
     if survived_value is None:
         survived = pd.to_numeric(frame[roles.survival], errors="coerce") == 1
     else:
         survived = _coding.matches_level(frame[roles.survival], survived_value).fillna(False)
     counts, incomplete = {}, np.zeros(len(frame), dtype=bool)
     for column in roles.used_columns():
+        if column in modelled:
+            continue
         missing = frame[column].isna().to_numpy()
         if column == roles.outcome:
             # A non-survivor has no outcome by definition: that is truncation, not missingness.
@@ -136,7 +182,8 @@ def _missing_rows(frame, roles, survived_value=None):
     return counts, incomplete
 
 
-def prepare_data(frame, roles, *, drop_incomplete=False, treated_value=None, survived_value=None):
+def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treated_value=None,
+                 survived_value=None):
     """Check the columns and build the analysis arrays; the caller's frame is not modified.
 
     Parameters
@@ -146,6 +193,10 @@ def prepare_data(frame, roles, *, drop_incomplete=False, treated_value=None, sur
     drop_incomplete : bool, default=False
         Drop rows with a missing value in a used column (an outcome is missing only for a
         survivor). Otherwise such rows raise :class:`InputError` with the counts per column.
+    missing : {"error", "at_random"}, default="error"
+        ``"at_random"`` keeps blank survival (status unknown) and blank outcomes of survivors
+        (not observed) for the estimators' ``missing="at_random"``; other blanks are treated as
+        above.
     treated_value, survived_value : scalar or str, optional
         The level of a text-coded (or otherwise coded) treatment / survival column that means
         1 (treated / survived); the column must then hold exactly two levels, and the other
@@ -159,25 +210,33 @@ def prepare_data(frame, roles, *, drop_incomplete=False, treated_value=None, sur
     """
     _check_columns(frame, roles)
     n_read = len(frame)
-    counts, incomplete = _missing_rows(frame, roles, survived_value)
+    modelled = (roles.survival, roles.outcome) if missing == "at_random" else ()
+    counts, incomplete = _missing_rows(frame, roles, modelled, survived_value)
     if counts and not drop_incomplete:
         listed = ", ".join(
             f"'{c}' {n}" + (" (survivors only)" if c == roles.outcome else "")
             for c, n in counts.items()
         )
+        modelable = [c for c in counts if c in (roles.survival, roles.outcome)]
+        hint = (
+            f" Blank {' and '.join(modelable)} values can instead be analysed with --missing "
+            "at_random (blank survival = status unknown, blank outcome of a survivor = not "
+            "observed), which assumes they are missing at random given the covariates within "
+            "each arm."
+        ) if modelable else ""
         raise InputError(
             f"Missing values in {int(incomplete.sum())} of {n_read} rows: {listed}. Impute them "
-            "first, or pass --drop-incomplete to analyse complete rows only."
+            f"first, or pass --drop-incomplete to analyse complete rows only.{hint}"
         )
     used = frame.loc[~incomplete, roles.used_columns()].copy()
     used = used.reset_index(drop=True)
     if len(used) == 0:
         raise InputError("No complete rows are left to analyse; check the missing values.")
-    treatment, treatment_levels = _coding.indicator(
-        used, roles.treatment, "--treatment", treated_value, InputError
+    treatment, treatment_levels = _coded_indicator(
+        used, roles.treatment, "--treatment", treated_value
     )
-    survival, survival_levels = _coding.indicator(
-        used, roles.survival, "--survival", survived_value, InputError
+    survival, survival_levels = _coded_indicator(
+        used, roles.survival, "--survival", survived_value, allow_blank=bool(modelled)
     )
     messages = ()
     outcome = pd.to_numeric(used[roles.outcome], errors="coerce")

@@ -17,6 +17,7 @@ SCHEMA = "results.schema.json"
 SECTIONS = (
     "estimand",
     "data",
+    "missing",
     "estimates",
     "subgroups",
     "diagnostics",

@@ -41,6 +41,7 @@ class AnalysisOptions:
     event_name: str = "death"
     unit_name: str = "unit"
     arm_names: tuple | None = None
+    missing: str = "error"
 
 
 def model_settings(options):
@@ -58,7 +59,7 @@ def build_estimator(method, options):
     """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
     models, folds = model_settings(options)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed)  # fmt: skip
+                  random_state=options.seed, missing=options.missing)  # fmt: skip
     if method != "weighting" and models:
         from sklearn.ensemble import HistGradientBoostingRegressor
 

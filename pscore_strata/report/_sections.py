@@ -94,7 +94,7 @@ def bounds_section(collector, options, data):
     from ..assumptions import TrimmingBounds
 
     models, _ = model_settings(options)
-    bounds = TrimmingBounds(monotonicity=options.monotonicity, **models)
+    bounds = TrimmingBounds(monotonicity=options.monotonicity, missing=options.missing, **models)
     collector.run(
         "bounds without principal ignorability",
         bounds.fit,

@@ -1,0 +1,153 @@
+"""Follow-up and response models for data missing at random (``missing="at_random"``).
+
+Monotone coarsening of the full data ``(X, T, S, Y)``: the survival status is known (``C = 1``)
+or not, and a survivor with known status has an observed outcome (``R = 1``) or not. Under
+missingness at random given X within each arm, two more nuisance functions identify everything:
+
+- follow-up ``c_t(X) = P(C=1 | T=t, X)``, fitted on every row of arm t;
+- response ``r_t(X) = P(R=1 | T=t, S=1, C=1, X)``, fitted among the arm's known survivors.
+
+An arm in which nothing is missing gets no model: its probability is exactly 1 (a logistic fit
+on a constant target would separate perfectly). The derivation of the estimators that use these
+models is in docs/missing-data.md.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+
+from .._validation import EXTREME_PROBABILITY
+
+__all__ = ["fit_missingness", "missingness_counts"]
+
+_LABELS = {"follow_up": "follow-up (status known)", "response": "response (outcome observed)"}
+
+
+def _cells(data, arm):
+    """Fitting rows and 0/1 targets of the two models in one arm (full-sample masks)."""
+    in_arm = data.treatment == arm
+    known = data.status_known == 1
+    survivors = in_arm & known & (data.survival == 1)
+    return {
+        "follow_up": (in_arm, data.status_known.astype(float)),
+        "response": (survivors, data.outcome_observed.astype(float)),
+    }
+
+
+def fit_missingness(data, model, splits, design, parametric_builder):
+    """Fit the follow-up and response models per arm (per fold when cross-fitted).
+
+    Parameters
+    ----------
+    data : TruncationData
+        With ``status_known`` and ``outcome_observed`` set.
+    model : classifier
+        Cloned for each model, arm and fold.
+    splits : list of (train, test) row-position arrays
+    design : ndarray or None
+        Numeric design for the sandwich; ``parametric_builder`` is called only when it is used.
+    parametric_builder : callable or None
+        ``(design, mask, target, prediction, slope, weights) -> ParametricFit``; ``None`` skips
+        the sandwich pieces.
+
+    Returns
+    -------
+    predictions : dict
+        ``{"follow_up": {0: c0, 1: c1}, "response": {0: r0, 1: r1}}``, per row.
+    fitted : dict
+        Fitted models keyed ``("follow_up", t)``, ``("response", t)`` (a list per fold); absent
+        where the model was not fitted.
+    parametric : dict
+        :class:`ParametricFit` per fitted model (empty when ``parametric_builder`` is None).
+    """
+    from ._fit import _ConstantModel, _fit_predict
+
+    n, w = data.n_samples, data.sample_weight
+    predictions = {"follow_up": {}, "response": {}}
+    fitted, parametric = {}, {}
+    for arm in (0, 1):
+        for kind, (mask, target) in _cells(data, arm).items():
+            rows = mask & (w > 0)
+            if np.all(target[rows] == 1):
+                predictions[kind][arm] = np.ones(n)
+                continue
+            values = np.empty(n)
+            fitted[(kind, arm)] = []
+            for train, test in splits:
+                fit_rows = train[mask[train]]
+                if np.unique(target[fit_rows]).size < 2:
+                    # A fold whose rows are all observed: the share is 1 there, not a separated fit.
+                    model_fit = _ConstantModel(target[fit_rows].mean())
+                    values[test] = model_fit.predict(np.empty(test.size))
+                else:
+                    model_fit, values[test] = _fit_predict(
+                        model, data.X, target, fit_rows, test, w, data.weighted, True
+                    )
+                fitted[(kind, arm)].append(model_fit)
+            predictions[kind][arm] = values
+            if parametric_builder is not None:
+                parametric[(kind, arm)] = parametric_builder(
+                    design, mask, target, values, values * (1 - values), w
+                )
+    _warn_small(predictions, data)
+    return predictions, fitted, parametric
+
+
+def _warn_small(predictions, data):
+    messages = []
+    for kind, per_arm in predictions.items():
+        for arm in (1, 0):
+            mask, _ = _cells(data, arm)[kind]
+            count = int(np.sum(per_arm[arm][mask] < EXTREME_PROBABILITY))
+            if count:
+                messages.append(
+                    f"{count} row(s) have a fitted {_LABELS[kind]} probability under "
+                    f"{'treatment' if arm else 'control'} below {EXTREME_PROBABILITY}"
+                )
+    if messages:
+        from ._fit import OverlapWarning
+
+        warnings.warn(
+            "; ".join(messages)
+            + ". Inverse-probability-of-observation weights built from them are unstable: check "
+            "which units are lost or do not respond, simplify the response model, or restrict "
+            "the population.",
+            OverlapWarning,
+            stacklevel=4,
+        )
+
+
+def missingness_counts(data):
+    """Counts and weighted shares of unknown status and missing outcomes, by arm.
+
+    Returns
+    -------
+    list of dict
+        One record per arm: ``arm``, ``n``, ``n_status_unknown``, ``share_status_unknown``
+        (of the arm), ``n_known_survivors``, ``n_outcome_missing`` and
+        ``share_outcome_missing`` (of the known survivors).
+    """
+    w = data.sample_weight
+    known = np.ones(data.n_samples, bool) if data.status_known is None else data.status_known == 1
+    observed = (
+        data.survival == 1 if data.outcome_observed is None else data.outcome_observed == 1
+    )
+    records = []
+    for arm, label in ((1, "treated"), (0, "control")):
+        in_arm = data.treatment == arm
+        survivors = in_arm & known & (data.survival == 1)
+        missing_outcome = survivors & ~observed
+        records.append({
+            "arm": label,
+            "n": int(in_arm.sum()),
+            "n_status_unknown": int(np.sum(in_arm & ~known)),
+            "share_status_unknown": float(np.sum(w * (in_arm & ~known)) / np.sum(w * in_arm)),
+            "n_known_survivors": int(survivors.sum()),
+            "n_outcome_missing": int(missing_outcome.sum()),
+            "share_outcome_missing": float(
+                np.sum(w * missing_outcome) / max(np.sum(w * survivors), np.finfo(float).tiny)
+            ),
+        })  # fmt: skip
+    return records

@@ -1,0 +1,66 @@
+"""The report's "Missing data" section: counts, the assumption in plain words, checks, shifts.
+
+Built from the primary estimator only (the counts and the response models are the same for
+every estimator); nothing is refitted.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ._options import SENSITIVITY_POINTS, number
+
+__all__ = ["missing_section", "MISSING_ASSUMPTION_TEXT"]
+
+MISSING_ASSUMPTION_TEXT = (
+    "Within each arm, units whose survival status is unknown (lost to follow-up) are, given "
+    "their covariates, like units of known status: losing track of a unit had nothing to do "
+    "with whether it survived or with its outcome. Likewise, survivors without an observed "
+    "outcome would, given their covariates and arm, have had the same mean outcome as "
+    "survivors with one. The analysis reweights the observed units by the inverse of their "
+    "fitted chance of being observed. This cannot be checked from the data: the table of "
+    "outcome shifts shows how the result moves if non-responders differ."
+)
+
+
+def missing_section(collector, primary, data, level):
+    """JSON-ready record of the section; ``None`` when no status or outcome was missing."""
+    from ..assumptions import sensitivity_grid
+    from ..diagnostics import missing_data_balance
+    from ..nuisance._missing import missingness_counts
+
+    fitted = primary.training_data_
+    if fitted.status_known is None:
+        return None
+    record = {
+        "assumption": MISSING_ASSUMPTION_TEXT,
+        "by_arm": missingness_counts(fitted),
+        "balance": [],
+        "outcome_shift": None,
+    }
+    if data.design is not None:
+        table = collector.run("missing-data checks", missing_data_balance, primary, data.design)
+        for name, row in table.iterrows():
+            record["balance"].append(
+                {"covariate": str(name), **{k: number(v) for k, v in row.items()}}
+            )
+    if fitted.outcome_observed is not None and np.any(
+        (fitted.survival == 1) & (fitted.status_known == 1) & (fitted.outcome_observed == 0)
+    ):
+        spread = float(np.nanstd(fitted.outcome[fitted.outcome_observed == 1], ddof=1)) or 1.0
+        shifts = np.round(np.linspace(-spread, spread, SENSITIVITY_POINTS // 2 + 1), 10)
+        grid = collector.run(
+            "missing-data checks", sensitivity_grid, primary, outcome_shift=shifts, level=level
+        )
+        record["outcome_shift"] = {
+            "description": "Mean outcome of survivors without an observed outcome minus that of "
+            "responders with the same covariates and arm, in both arms (0 = missing at random).",
+            "outcome_sd_responders": spread,
+            "grid": [
+                {"value": float(r["outcome_shift"]), "effect": float(r["effect"]),
+                 "std_error": number(r["std_error"]), "ci_low": number(r["ci_low"]),
+                 "ci_high": number(r["ci_high"])}
+                for _, r in grid.iterrows()
+            ],  # fmt: skip
+        }
+    return record
