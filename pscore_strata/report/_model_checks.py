@@ -32,7 +32,8 @@ def model_checks_section(primary):
     data = primary.training_data_
     rows = []
     for arm in (1, 0):
-        in_arm = data.treatment == arm
+        # Rows of the arm with a known survival status (all rows unless --missing at_random).
+        in_arm = (data.treatment == arm) & np.isfinite(data.survival)
         survived = data.survival[in_arm]
         predicted = np.clip(primary.nuisance_.survival[arm][in_arm], 0.0, 1.0)
         observed_share, mean_predicted = calibration_curve(
@@ -76,7 +77,8 @@ def _outcome_figure(primary, results):
     names = _arm_names(results)
     data = primary.training_data_
     figure, ax = plt.subplots(figsize=(7.2, 3.4), layout="constrained")
-    survivors = data.survival == 1
+    # Survivors whose outcome was observed (all survivors unless --missing at_random).
+    survivors = (data.survival == 1) & np.isfinite(data.outcome)
     values = data.outcome[survivors]
     bins = np.histogram_bin_edges(values, bins=30)
     for arm in (1, 0):
@@ -99,7 +101,7 @@ def _calibration_figure(primary, results):
     data = primary.training_data_
     figure, axes = plt.subplots(1, 2, figsize=(8.4, 3.8), layout="constrained")
     for ax, arm in zip(axes, (1, 0), strict=True):
-        in_arm = data.treatment == arm
+        in_arm = (data.treatment == arm) & np.isfinite(data.survival)
         predicted = np.clip(primary.nuisance_.survival[arm][in_arm], 0.0, 1.0)
         observed, mean_predicted = calibration_curve(
             data.survival[in_arm], predicted, n_bins=10, strategy="quantile"
