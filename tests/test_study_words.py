@@ -194,3 +194,29 @@ def test_harmed_ratio_plot_stops_where_the_data_stop_informing():
     clipped = full.set_index("harmed_ratio")["n_rows_clipped"]
     assert (clipped.loc[clipped.index <= shown.max() + 1e-9] <= 0.05 * est.n_samples_).all()
     assert shown.max() < 0.9 or (clipped <= 0.05 * est.n_samples_).all()
+
+
+def test_unit_plurals_arm_names_and_demo_defaults(tmp_path):
+    from pscore_strata.report._wording import plural
+
+    assert [plural(w) for w in ("patient", "county", "day", "box")] == [
+        "patients", "counties", "days", "boxes"
+    ]  # fmt: skip
+    frame = workplace_frame(400)
+    frame["arm"] = (frame["arm"] == "program").astype(int)
+    frame["employed_12mo"] = (frame["employed_12mo"] == "yes").astype(int)
+    path = tmp_path / "w.csv"
+    frame.to_csv(path, index=False)
+    code = main(["analyze", str(path), "--outcome", "productivity", "--treatment", "arm",
+                 "--survival", "employed_12mo", "--covariates", "age", "--unit-name",
+                 "person/people", "--arm-names", "coaching", "no coaching", "--quiet",
+                 "--out", str(tmp_path / "o")])  # fmt: skip
+    assert code == 0
+    results = json.loads((tmp_path / "o" / "results.json").read_text())
+    words = results["wording"]
+    assert (words["unit"], words["units"]) == ("person", "people")
+    assert (words["treated_arm"], words["control_arm"]) == ("coaching", "no coaching")
+    assert words["treated_condition"] == "arm = 1" and words["event"] == "death"
+    assert main(["demo", "--out", str(tmp_path / "demo"), "--quiet"]) == 0
+    demo = json.loads((tmp_path / "demo" / "results.json").read_text())["wording"]
+    assert demo["unit"] == "patient" and demo["treated_arm"] == "protective ventilation"
