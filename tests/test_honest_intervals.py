@@ -126,3 +126,30 @@ def test_few_bootstrap_resamples_warn(tmp_path, capsys):
     results = json.loads((tmp_path / "o" / "results.json").read_text())
     assert any("percentile intervals need more resamples" in w for w in results["warnings"])
     assert np.isfinite(results["bootstrap"]["ci_low"])
+
+
+def test_bounds_interval_from_the_refitting_bootstrap_when_the_models_are_not_glms():
+    from dataclasses import replace
+
+    from pscore_strata.assumptions import imbens_manski_interval
+    from pscore_strata.report._analysis import _Collector
+    from pscore_strata.report._honesty import honest_bounds
+    from pscore_strata.report._sections import bounds_section
+
+    data = ps.datasets.make_truncation(500, random_state=6)
+    prepared = report.prepare_data(frame_of(data), ROLES)
+    options = report.AnalysisOptions(bootstrap=12, seed=2)
+    record, bounds = bounds_section(_Collector(None), options, prepared)
+    # As with --learner boosting (the default models keep the rerun cheap):
+    as_boosting = replace(options, learner="boosting")
+    withheld = honest_bounds(dict(record), bounds, _Collector(None), replace(as_boosting,
+                             bootstrap=0), prepared)  # fmt: skip
+    assert withheld["ci_low"] is None and withheld["interval_note"].startswith("interval not")
+    booted = honest_bounds(dict(record), bounds, _Collector(None), as_boosting, prepared)
+    direct = ps.bootstrap(bounds, prepared.design, prepared.outcome,
+                          treatment=prepared.treatment, survival=prepared.survival,
+                          n_resamples=12, random_state=2)  # fmt: skip
+    se = direct.std_error
+    assert booted["std_error_lower"] == pytest.approx(se["lower"], rel=1e-12)
+    expected = imbens_manski_interval(bounds.lower_, bounds.upper_, se["lower"], se["upper"], 0.95)
+    assert (booted["ci_low"], booted["ci_high"]) == pytest.approx(expected)
