@@ -357,7 +357,7 @@ def build_parser():
     )  # fmt: skip
     analyze.add_argument(
         "--arm-names", nargs=2, default=None, metavar=("TREATED", "CONTROL"),
-        help="names of the two arms (default: the treatment levels, or treated / control)",
+        help="names of the two arms (default: the treatment levels, or treatment / control)",
     )  # fmt: skip
     analyze.add_argument(
         "--by", default=None, metavar="COL",
