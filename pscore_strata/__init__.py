@@ -34,6 +34,16 @@ from .nuisance import MonotonicityWarning, OverlapWarning
 
 __version__ = "0.1.0"
 
+
+def __getattr__(name):
+    # ``ps.report`` (the HTML / JSON report) loads on first use, so ``import pscore_strata``
+    # stays light and the report's module can read ``__version__``.
+    if name == "report":
+        import importlib
+
+        return importlib.import_module(".report", __name__)
+    raise AttributeError(f"module 'pscore_strata' has no attribute {name!r}")
+
 __all__ = [
     "PrincipalScoreWeighting",
     "OutcomeRegression",

@@ -1,9 +1,9 @@
 """Command line: ``pscore-strata analyze | demo | simulate``.
 
-``analyze`` runs a complete SACE analysis of a CSV or Parquet file and writes a shareable report
-(the work is done by :mod:`pscore_strata.report`); ``demo`` does the same on the bundled,
-invented critical-care registry; ``simulate`` writes data with a known SACE. A user error prints
-one line and exits with status 2; progress goes to standard error.
+``analyze`` runs a complete SACE analysis of a data file (CSV, Parquet, Stata, SAS, SPSS) and
+writes a shareable report (the work is done by :mod:`pscore_strata.report`); ``demo`` does the
+same on the bundled, invented critical-care registry; ``simulate`` writes data with a known
+SACE. A user error prints one line and exits with status 2; progress goes to standard error.
 """
 
 from __future__ import annotations
@@ -41,6 +41,10 @@ def _check_bootstrap(n_resamples):
         raise ValueError(
             f"--bootstrap must be 0 (no bootstrap) or at least 2 resamples; got {n_resamples}."
         )
+    from .report._honesty import bootstrap_warning
+
+    if bootstrap_warning(n_resamples):
+        print(f"warning: {bootstrap_warning(n_resamples)}", file=sys.stderr)
 
 
 def _options(args):
@@ -59,27 +63,39 @@ def _options(args):
         level=args.level,
         monotonicity=args.monotonicity,
         seed=args.seed,
+        event_name=args.event_name,
+        unit_name=args.unit_name,
+        arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
     )
 
 
 def _print_key_results(results, out_dir):
+    from .report._format import interval, number
+
     level = f"{results['settings']['level']:.0%}"
-    print(f"Survivor average causal effect of '{results['columns']['treatment']}' on "
-          f"'{results['columns']['outcome']}' ({results['data_overview']['n_rows_analyzed']} "
-          "rows analysed):")  # fmt: skip
+    words = results["wording"]
+    print(f"Survivor average causal effect of {words['treated_arm']} "
+          f"('{words['treated_condition']}') against {words['control_arm']} "
+          f"('{words['control_condition']}') on '{results['columns']['outcome']}' "
+          f"({results['data_overview']['n_rows_analyzed']} {words['units']} "
+          "analysed):")  # fmt: skip
     for record in results["estimates"]:
         tag = "  <- primary" if record["primary"] else ""
-        print(f"  {record['label']:<27} {record['effect']:>10.3f}   {level} CI "
-              f"{record['ci_low']:.3f} to {record['ci_high']:.3f}{tag}")  # fmt: skip
+        if record["ci_low"] is None:
+            print(f"  {record['label']:<27} {number(record['effect']):>10}   "
+                  f"interval not available (see below){tag}")  # fmt: skip
+        else:
+            print(f"  {record['label']:<27} {number(record['effect']):>10}   {level} CI "
+                  f"{interval(record['ci_low'], record['ci_high'])}{tag}")  # fmt: skip
     boot = results.get("bootstrap")
     if boot:
-        print(f"  {'Bootstrap (percentile)':<27} {boot['estimate']:>10.3f}   {level} CI "
-              f"{boot['ci_low']:.3f} to {boot['ci_high']:.3f}")  # fmt: skip
+        print(f"  {'Bootstrap (percentile)':<27} {number(boot['estimate']):>10}   {level} CI "
+              f"{interval(boot['ci_low'], boot['ci_high'])}")  # fmt: skip
     bounds = results.get("bounds", {})
     if "lower" in bounds:
-        print(f"  {'Bounds (no princ. ignor.)':<27} {bounds['lower']:>10.3f} to "
-              f"{bounds['upper']:.3f}")  # fmt: skip
+        print(f"  {'Bounds (no princ. ignor.)':<27} {number(bounds['lower']):>10} to "
+              f"{number(bounds['upper'])}")  # fmt: skip
     missing = results.get("missing_data") or {}
     for arm in missing.get("by_arm", []):
         print(f"  Missing data, {arm['arm']}: status unknown {arm['n_status_unknown']} "
@@ -92,14 +108,31 @@ def _print_key_results(results, out_dir):
         shown = "not within the grid" if value is None else f"{value:.3g}"
         print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
     naive = results["naive_survivor_contrast"]
-    print(f"  {'Naive survivor contrast':<27} {naive['estimate']:>10.3f}   (biased; comparison)")
+    print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
+          "(biased; comparison)")  # fmt: skip
+    for record in results["estimates"]:
+        if record["ci_low"] is None:
+            print(f"  {record['label']}: {record['interval_note']}")
     sens = results.get("sensitivity", {})
     if "pi_difference" in sens:
         tip = sens["pi_difference"]["tipping_point"]
-        shown = "not reached" if tip is None else f"{tip:.3g}"
+        sd = sens["pi_difference"]["outcome_sd_survivors"]
+        shown = ("not reached" if tip is None else
+                 f"{number(tip)} {results['columns']['outcome']} units "
+                 f"({number(tip / sd)} outcome SDs)")  # fmt: skip
+        if tip is None and sens.get("interval_note"):
+            shown = "not available"
         print(f"  Tipping point for principal ignorability (difference): {shown}")
+    for subgroup in (results.get("subgroups") or {}).get("rows", []):
+        shown = (f"{level} CI {interval(subgroup['ci_low'], subgroup['ci_high'])}"
+                 if subgroup["ci_low"] is not None else "interval not available")  # fmt: skip
+        print(f"  {results['subgroups']['column']} = {subgroup['label']!s:<16} "
+              f"{number(subgroup['effect']):>10}   {shown} ({subgroup['n']} rows)")  # fmt: skip
     for message in results.get("diagnostics", {}).get("warnings", []):
         print(f"  warning: {message}")
+    for message in results.get("warnings", []):
+        if message.startswith("data: "):
+            print(f"  warning: {message[6:]}")
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
     print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "
@@ -121,10 +154,12 @@ def _analyze(args):
         categorical=tuple(args.categorical),
         cluster=args.cluster,
         weights=args.weights,
+        by=args.by,
     )
     analysis = analyze_frame(
         frame, roles, options, args.out, drop_incomplete=args.drop_incomplete,
-        source=Path(args.data).name, progress=progress,
+        source=Path(args.data).name, progress=progress, treated_value=args.treated_value,
+        survived_value=args.survived_value,
     )  # fmt: skip
     dropped = analysis.results["data_overview"]["n_rows_dropped"]
     if dropped:
@@ -146,8 +181,12 @@ def _demo(args):
     )
     _check_bootstrap(args.bootstrap)
     print("Invented critical-care registry (simulated patients, not real people).")
+    options = AnalysisOptions(
+        bootstrap=args.bootstrap, unit_name="patient",
+        arm_names=("protective ventilation", "conventional ventilation"),
+    )  # fmt: skip
     analysis = analyze_frame(
-        load_demo(), roles, AnalysisOptions(bootstrap=args.bootstrap), args.out,
+        load_demo(), roles, options, args.out,
         source="bundled demo registry (invented)", progress=_Progress(args.quiet),
     )  # fmt: skip
     _print_key_results(analysis.results, args.out)
@@ -206,20 +245,36 @@ def build_parser():
         description="Estimate the survivor average causal effect and write report.html, "
         "results.json and the figures into --out.",
     )  # fmt: skip
-    analyze.add_argument("data", metavar="DATA", help="a .csv or .parquet file, one row per unit")
+    analyze.add_argument(
+        "data", metavar="DATA",
+        help="a .csv (comma or semicolon), .parquet, .dta, .sas7bdat or .sav file, one row per "
+        "unit",
+    )  # fmt: skip
     analyze.add_argument(
         "--outcome",
         required=True,
         metavar="COL",
         help="outcome column (may be empty for non-survivors)",
     )
-    analyze.add_argument("--treatment", required=True, metavar="COL", help="0/1 treatment column")
+    analyze.add_argument(
+        "--treatment", required=True, metavar="COL",
+        help="treatment column: 0/1, or two levels with --treated-value",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--treated-value", default=None, metavar="VALUE",
+        help="level of --treatment that means treated (for text-coded arms, e.g. program)",
+    )  # fmt: skip
     analyze.add_argument(
         "--survival",
         required=True,
         metavar="COL",
-        help="0/1 column: 1 if the unit survived (its outcome exists)",
+        help="0/1 column: 1 if the unit survived (its outcome exists); or two levels with "
+        "--survived-value",
     )
+    analyze.add_argument(
+        "--survived-value", default=None, metavar="VALUE",
+        help="level of --survival that means survived / no event (e.g. yes)",
+    )  # fmt: skip
     analyze.add_argument(
         "--covariates",
         nargs="*",
@@ -298,6 +353,22 @@ def build_parser():
         metavar="DIR",
         help="output directory (default: pscore_report)",
     )
+    analyze.add_argument(
+        "--event-name", default="death", metavar="TEXT",
+        help="what the event that truncates the outcome is called (default: death)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--unit-name", default="unit", metavar="TEXT",
+        help="what one row is, e.g. worker or person/people (default: unit)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--arm-names", nargs=2, default=None, metavar=("TREATED", "CONTROL"),
+        help="names of the two arms (default: the treatment levels, or treatment / control)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--by", default=None, metavar="COL",
+        help="subgroup effects by this column (from the fitted models, no refit)",
+    )  # fmt: skip
     analyze.add_argument("--quiet", action="store_true", help="no progress messages")
     analyze.set_defaults(handler=_analyze)  # fmt: skip
 

@@ -249,7 +249,7 @@ def test_missing_outcome_of_non_survivors_is_not_incomplete(tmp_path):
 
 @pytest.mark.parametrize(
     "name, message",
-    [("data.xlsx", "type '.xlsx'; give a .csv or .parquet file"),
+    [("data.xlsx", "type '.xlsx'; give a .csv, .parquet, .dta (Stata)"),
      ("absent.csv", "does not exist")],
 )  # fmt: skip
 def test_bad_file(tmp_path, name, message):

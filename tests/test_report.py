@@ -69,7 +69,9 @@ def test_report_is_self_contained(written):
     html = (out / "report.html").read_text()
     assert not re.search(r"(src|href)=\"(https?:|//)", html)
     images = re.findall(r'src="data:image/png;base64,([^"]+)"', html)
-    assert len(images) == len(analysis.results["figures"]) == 7
+    # Estimates, balance, overlap, weights, principal scores, survivor outcomes, calibration,
+    # sensitivity and the two distribution figures.
+    assert len(images) == len(analysis.results["figures"]) == 10
     for encoded, name in zip(images, analysis.results["figures"], strict=True):
         png = base64.b64decode(encoded)
         assert png[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG specification)
@@ -80,7 +82,7 @@ def test_report_states_estimand_and_cautions(written):
     out, _ = written
     html = (out / "report.html").read_text()
     for text in ("ICH E9(R1)", "Population", "Intercurrent event", "principal stratum strategy",
-                 "Population-level summary", "latent", "cannot be tested", "individual patient",
+                 "Population-level summary", "latent", "cannot be tested", "individual unit",
                  "qualified statistician", "Bounds that drop principal ignorability",
                  "Sensitivity analysis", "Diagnostics"):  # fmt: skip
         assert text in html, text

@@ -320,15 +320,18 @@ def diagnostic_warnings(estimator, X=None):
         )
     # Small fitted reversals arise from estimation noise where the arms' survival is close, so
     # only reversals larger than the probability floor count.
-    reversed_rows = float(np.mean(o.p_pure - o.p_mixed > SCORE_FLOOR))
+    marked = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))
+    n_rows = len(o.p_pure)
     check = monotonicity_check(estimator)
-    if reversed_rows > ROW_SHARE_TOLERANCE:
+    if marked > ROW_SHARE_TOLERANCE * n_rows:
         helped, other = ("treatment", "control") if o.increasing else ("control", "treatment")
+        # The same two counts as the estimator's MonotonicityWarning and the report.
         messages.append(
-            f"Monotonicity: for {reversed_rows:.1%} of rows the fitted survival probability "
-            f"under {helped} is more than {SCORE_FLOOR} below that under {other}, contradicting "
-            f"monotonicity ('{check.attrs['monotonicity']}'). Check the survival model and run "
-            "the sensitivity analysis for monotonicity."
+            f"Monotonicity: for {marked} of {n_rows} rows ({marked / n_rows:.1%}) the fitted "
+            f"survival probability under {helped} is more than {SCORE_FLOOR} below that under "
+            f"{other} ({int(np.sum(o.p_mixed < o.p_pure))} rows are reversed at all), "
+            f"contradicting monotonicity ('{check.attrs['monotonicity']}'). Check the survival "
+            "model and run the sensitivity analysis for monotonicity."
         )
     strict = monotonicity_check(estimator, level=1 - 0.05 / len(check))
     wrong = strict.index[strict["contradicts_monotonicity"]].tolist()

@@ -288,8 +288,16 @@ class SurvivorEffectEstimator(BaseEstimator):
         mixed arm below that in the pure arm) the helped score is 0 and the always-survivor
         score the smaller of the two survival probabilities. With
         cross-fitting, the predictions average every fold model (of every repeat).
+
+        Returns
+        -------
+        ndarray of shape (n_rows, 3), or DataFrame
+            A pandas DataFrame (columns ``classes_``, the index of ``X``) when ``X`` is a
+            DataFrame, as scikit-learn's ``set_output(transform="pandas")`` labels its output;
+            an ndarray otherwise.
         """
         check_is_fitted(self, "effect_")
+        index = X.index if isinstance(X, pd.DataFrame) else None
         X, n_features, _ = check_features(X, self._models())
         if n_features != self.n_features_in_:
             raise ValueError(
@@ -301,11 +309,14 @@ class SurvivorEffectEstimator(BaseEstimator):
         for arm in (mixed, pure):
             models = [m for fit in self._repeat_fits for m in fit.models[("survival", arm)]]
             scores[arm] = predict_models(models, X)
-        return _principal_scores(scores[mixed], scores[pure])
+        result = _principal_scores(scores[mixed], scores[pure])
+        if index is not None:
+            return pd.DataFrame(result, index=index, columns=list(self.classes_))
+        return result
 
     def predict(self, X):
         """The most probable principal stratum per row."""
-        return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+        return self.classes_[np.argmax(np.asarray(self.predict_proba(X)), axis=1)]
 
     def summary(self, level=0.95):
         """Estimates with standard errors and confidence intervals, one row per quantity.

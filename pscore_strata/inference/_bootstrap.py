@@ -297,10 +297,24 @@ class BootstrapResult:
         return table
 
     def __repr__(self):
+        # What an analyst wants at a glance: each statistic's estimate, SE and 95% percentile
+        # interval (the default of conf_int), then how the replicates were drawn.
+        if len(self.replicates) >= 2:
+            interval = self.conf_int(0.95, kind="percentile")
+            if isinstance(interval, tuple):
+                interval = pd.DataFrame([interval], columns=["low", "high"],
+                                        index=self._estimate.index)  # fmt: skip
+            se = self.replicates.std(ddof=1)
+            parts = [
+                f"{name}={self._estimate[name]:.4g} (SE {se[name]:.3g}, 95% percentile CI "
+                f"{interval.loc[name, 'low']:.4g} to {interval.loc[name, 'high']:.4g})"
+                for name in self._estimate.index
+            ]
+        else:
+            parts = [f"{name}={self._estimate[name]:.4g}" for name in self._estimate.index]
         return (
-            f"BootstrapResult(method={self.method!r}, statistics="
-            f"{list(self._estimate.index)}, n_resamples={self.n_resamples}, "
-            f"n_failed={self.n_failed})"
+            f"BootstrapResult({', '.join(parts)}; method={self.method!r}, "
+            f"n_resamples={self.n_resamples}, n_failed={self.n_failed})"
         )
 
 

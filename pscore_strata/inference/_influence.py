@@ -354,22 +354,36 @@ def run_tasks(tasks, sizes, n_jobs, progress, label):
 
 
 def _progress_bar(progress, total, label):
-    if progress is False or (progress is None and not _stderr_is_terminal()):
+    notebook = _in_notebook()
+    if progress is False or (progress is None and not (notebook or _stderr_is_terminal())):
         return None
     try:
-        from tqdm import tqdm
+        # tqdm.auto draws a notebook widget in Jupyter and a text bar elsewhere; the package
+        # itself is imported first so that its absence is always noticed.
+        import tqdm as _tqdm_package  # noqa: F401
+        from tqdm.auto import tqdm
     except ImportError:
         if progress:
             raise ImportError("`progress=True` needs tqdm: pip install tqdm.") from None
         return None
     # In automatic mode the bar appears only once the run has taken a few seconds.
-    return tqdm(
-        total=total,
-        desc=label,
-        unit="replicate",
-        file=sys.stderr,
-        delay=3.0 if progress is None else 0.0,
+    options = dict(
+        total=total, desc=label, unit="replicate", delay=3.0 if progress is None else 0.0
     )
+    if not notebook:
+        options["file"] = sys.stderr
+    return tqdm(**options)
+
+
+def _in_notebook():
+    """Whether the code runs in a Jupyter kernel (where standard error is not a terminal)."""
+    shell = sys.modules.get("IPython")
+    if shell is None or "ipykernel" not in sys.modules:
+        return False
+    try:
+        return shell.get_ipython() is not None and "IPKernelApp" in shell.get_ipython().config
+    except Exception:  # an unusual IPython setup: behave as outside a notebook
+        return False
 
 
 def _stderr_is_terminal():

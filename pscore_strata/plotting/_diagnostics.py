@@ -139,7 +139,7 @@ def plot_overlap(estimator, *, score="treatment", bins=40, ax=None):
     for arm, rows in (("treated", treated), ("control", ~treated)):
         ax.hist(
             values[rows], bins=edges, density=True, alpha=0.45, color=_ARM_COLORS[arm],
-            label=f"{arm} (n={int(rows.sum())})",
+            label=f"{arm} (n={int(rows.sum()):,})",
         )  # fmt: skip
     low, high = arrays.PROBABILITY_BOUNDS
     bounds = (low, high) if score == "treatment" else (low,)

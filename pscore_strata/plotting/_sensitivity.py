@@ -10,10 +10,25 @@ from ..assumptions._tipping import tipping_point
 __all__ = ["plot_sensitivity", "plot_sensitivity_contour"]
 
 _LABELS = {
-    "pi_difference": "principal ignorability: helped minus always-survivor mean (difference)",
-    "pi_ratio": "principal ignorability: helped / always-survivor mean (ratio)",
-    "harmed_ratio": "monotonicity: opposite / helped stratum size",
+    "pi_difference": "principal ignorability: {mixed} minus always-survivor mean (difference)",
+    "pi_ratio": "principal ignorability: {mixed} / always-survivor mean (ratio)",
+    "harmed_ratio": "monotonicity: {other} / {mixed} stratum size",
 }
+
+
+def _label(parameter, estimator):
+    # The stratum that mixes with the always-survivors is the protected one under
+    # "increasing" monotonicity and the harmed one under "decreasing".
+    increasing = getattr(estimator, "monotonicity", "increasing") == "increasing"
+    mixed, other = ("protected", "harmed") if increasing else ("harmed", "protected")
+    return _LABELS[parameter].format(mixed=mixed, other=other)
+
+
+def _footer(ax):
+    """The caution under the x-axis label, kept inside the saved figure."""
+    return ax.annotate(_CAUTION, (0, 0), xycoords=ax.xaxis.label, xytext=(0, -4),
+                       textcoords="offset points", va="top", fontsize=7, color="dimgrey",
+                       annotation_clip=False)  # fmt: skip
 
 _CAUTION = (
     "The always-survivor stratum is latent and the assumptions are untestable.\n"
@@ -50,10 +65,13 @@ def plot_sensitivity(estimator, parameter="pi_difference", values=None, *, level
     """
     plt = _pyplot()
     tip = tipping_point(estimator, parameter, level=level)
-    values = _default_values(parameter, tip) if values is None else values
+    default_grid = values is None
+    values = _default_values(parameter, tip) if default_grid else values
     grid = sensitivity_grid(estimator, level=level, **{parameter: values})
+    if default_grid and parameter == "harmed_ratio":
+        grid = _informative(grid, estimator.n_samples_)
     if ax is None:
-        _, ax = plt.subplots(figsize=(7, 4.5))
+        _, ax = plt.subplots(figsize=(7, 4.9), layout="constrained")
     x = grid[parameter].to_numpy()
     ax.fill_between(x, grid["ci_low"], grid["ci_high"], alpha=0.25, label=f"{level:.0%} interval")
     ax.plot(x, grid["effect"], lw=2, label="SACE")
@@ -61,16 +79,25 @@ def plot_sensitivity(estimator, parameter="pi_difference", values=None, *, level
     ax.axhline(null_effect, color="black", lw=0.8)
     ax.axvline(_NULL[parameter], color="grey", ls=":", lw=1, label="assumption holds")
     if np.isfinite(tip):
-        ax.axvline(tip, color="tab:red", ls="--", lw=1.2, label=f"tipping point {tip:.3g}")
+        ax.axvline(tip, color="tab:red", ls="--", lw=1.2, label=f"tipping point {tip:.3f}")
     if parameter == "pi_ratio":
         ax.set_xscale("log")
-    ax.set_xlabel(_LABELS[parameter])
+    ax.set_xlabel(_label(parameter, estimator))
     ax.set_ylabel(f"SACE ({estimator.scale})")
     ax.set_title(f"Sensitivity of the SACE ({type(estimator).__name__})", fontsize=11)
     ax.legend(fontsize=8, loc="best")
-    ax.annotate(_CAUTION, (0, 0), (0, -52), xycoords="axes fraction",
-                textcoords="offset points", fontsize=7, color="dimgrey")  # fmt: skip
+    _footer(ax)
     return ax
+
+
+def _informative(grid, n_samples):
+    """The harmed-ratio grid up to where the always-survivor score is clipped at zero for more
+    than 5% of rows (common practice, as in the diagnostics): beyond it the data say little."""
+    from ..diagnostics._arrays import ROW_SHARE_TOLERANCE
+
+    informative = (grid["n_rows_clipped"] <= ROW_SHARE_TOLERANCE * n_samples).to_numpy()
+    last = int(np.flatnonzero(informative)[-1]) if informative.any() else 0
+    return grid.iloc[: max(last + 1, 3)]
 
 
 def _default_values(parameter, tip):
@@ -127,7 +154,7 @@ def plot_sensitivity_contour(
     sign = np.sign(estimator.effect_ - null_effect) or 1.0
     near_end = (grid["ci_low"] if sign > 0 else grid["ci_high"]).to_numpy().reshape(shape)
     if ax is None:
-        _, ax = plt.subplots(figsize=(7, 5))
+        _, ax = plt.subplots(figsize=(7, 5.4), layout="constrained")
     spread = np.nanmax(np.abs(effect - null_effect))
     filled = ax.contourf(x, y, effect, levels=21, cmap="RdBu_r",
                          vmin=null_effect - spread, vmax=null_effect + spread)  # fmt: skip
@@ -137,13 +164,15 @@ def plot_sensitivity_contour(
             lines = ax.contour(x, y, surface, levels=[null_effect], colors="black",
                                linestyles=style, linewidths=1.5)  # fmt: skip
             ax.clabel(lines, fmt={null_effect: f"{name} = {null_effect:g}"}, fontsize=8)
-    ax.plot([_NULL[principal_ignorability]], [0.0], "k*", ms=10, label="both assumptions hold")
+    # The null point sits on the lower edge of the grid: drawn unclipped and above the
+    # contours, so the whole marker shows.
+    ax.plot([_NULL[principal_ignorability]], [0.0], "k*", ms=10, label="both assumptions hold",
+            clip_on=False, zorder=5)  # fmt: skip
     if principal_ignorability == "pi_ratio":
         ax.set_xscale("log")
-    ax.set_xlabel(_LABELS[principal_ignorability])
-    ax.set_ylabel(_LABELS["harmed_ratio"])
+    ax.set_xlabel(_label(principal_ignorability, estimator))
+    ax.set_ylabel(_label("harmed_ratio", estimator))
     ax.set_title(f"SACE under two departures ({type(estimator).__name__})", fontsize=11)
     ax.legend(fontsize=8, loc="upper right")
-    ax.annotate(_CAUTION, (0, 0), (0, -52), xycoords="axes fraction",
-                textcoords="offset points", fontsize=7, color="dimgrey")  # fmt: skip
+    _footer(ax)
     return ax

@@ -32,7 +32,8 @@ __all__ = [
 
 
 def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=False,
-                  source="data", progress=None):  # fmt: skip
+                  source="data", progress=None, treated_value=None,
+                  survived_value=None):  # fmt: skip
     """Check, analyse and (when ``out_dir`` is given) write the report for a DataFrame.
 
     Parameters
@@ -47,6 +48,9 @@ def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=F
         Name of the data recorded in the report.
     progress : callable, optional
         Called with a short message before each long step.
+    treated_value, survived_value : scalar or str, optional
+        Levels of a text-coded treatment / survival column that mean 1 (see
+        :func:`prepare_data`); the report names the other level.
 
     Returns
     -------
@@ -54,7 +58,8 @@ def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=F
         ``results`` (the contents of results.json) and the fitted estimators.
     """
     options = options or AnalysisOptions()
-    data = prepare_data(frame, roles, drop_incomplete=drop_incomplete, missing=options.missing)
+    data = prepare_data(frame, roles, drop_incomplete=drop_incomplete, missing=options.missing,
+                        treated_value=treated_value, survived_value=survived_value)  # fmt: skip
     analysis = run_analysis(data, roles, options, source=source, progress=progress)
     if out_dir is not None:
         if progress:

@@ -16,6 +16,7 @@ import numpy as np
 
 from .. import __version__
 from ._distributions import distributions_section
+from ._honesty import bootstrap_warning, honest_bounds, honest_estimates, honest_sensitivity
 from ._missing import missing_section
 from ._options import (
     METHOD_LABELS,
@@ -27,7 +28,8 @@ from ._options import (
     number,
 )
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
-from ._text import CAUTIONS, assumptions, estimand
+from ._text import assumptions, cautions, estimand
+from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
@@ -196,6 +198,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     estimators = {method: estimators[method] for method in order}
     primary = estimators[options.method]
     shares, naive = _summary_rows(primary, options.level)
+    words = study_wording(options, data, roles)
     results = {
         "schema_version": SCHEMA_VERSION,
         "software": {"name": "pscore_strata", "version": __version__},
@@ -212,7 +215,8 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "seed": options.seed,
             "missing": options.missing,
         },
-        "estimand": estimand(roles, options.monotonicity),
+        "wording": words,
+        "estimand": estimand(roles, options.monotonicity, words),
         "data_overview": _overview(data, roles),
         "estimates": [
             _estimate_record(m, est, options.level, m == options.method)
@@ -225,6 +229,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["bootstrap"] = bootstrap_section(collector, options, data)
     else:
         results["bootstrap"] = None
+    honest_estimates(results["estimates"], collector, options, data, results["bootstrap"])
     analysis = Analysis(results, estimators, primary, data.covariates)
     try:
         results["diagnostics"] = diagnostics_section(collector, primary, data.covariates)
@@ -234,10 +239,12 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["bounds"], analysis.bounds = bounds_section(
             collector, options, data, None if shared.cross_fitted else shared
         )
+        honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
     except (ImportError, ValueError) as error:
         results["bounds"] = _unavailable("Bounds", error)
     try:
         results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
+        honest_sensitivity(results["sensitivity"], primary)
     except ImportError as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)
     try:
@@ -245,7 +252,21 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     except ImportError as error:
         results["missing_data"] = _unavailable("Missing-data checks", error)
     results["distributions"] = distributions_section(collector, primary, data, options)
-    results["assumptions"] = assumptions(roles, options.monotonicity)
+    try:
+        from ._model_checks import model_checks_section
+
+        results["model_checks"] = model_checks_section(primary)
+    except (ImportError, ValueError) as error:
+        results["model_checks"] = _unavailable("Model checks", error)
+    results["subgroups"] = None
+    if roles.by is not None:
+        from ._data import InputError
+        from ._subgroups import subgroups_section
+
+        results["subgroups"] = subgroups_section(
+            collector, primary, data, roles, options.level, InputError
+        )
+    results["assumptions"] = assumptions(roles, options.monotonicity, words)
     if results["missing_data"]:
         from ._missing import MISSING_ASSUMPTION_TEXT
 
@@ -255,6 +276,9 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "checked_by": "Untestable; the missing-data balance table checks only the models, "
             "and the outcome-shift table shows the sensitivity to non-responders differing.",
         })  # fmt: skip
-    results["warnings"] = collector.messages
-    results["cautions"] = list(CAUTIONS)
+    results["warnings"] = [f"data: {message}" for message in data.messages]
+    results["warnings"] += collector.messages
+    if bootstrap_warning(options.bootstrap):
+        results["warnings"].append(bootstrap_warning(options.bootstrap))
+    results["cautions"] = list(cautions(words))
     return analysis

@@ -8,14 +8,14 @@ says what to do.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from . import _coding, _readers
+
 __all__ = ["InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data"]
 
-_READERS = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}
 
 
 class InputError(ValueError):
@@ -33,6 +33,7 @@ class ColumnRoles:
     categorical: tuple = ()
     cluster: str | None = None
     weights: str | None = None
+    by: str | None = None  # subgroup column (--by): effects within each of its values
 
     def all_covariates(self):
         """Covariates in the order given, categorical columns included (added if unlisted)."""
@@ -41,7 +42,7 @@ class ColumnRoles:
 
     def used_columns(self):
         named = [self.outcome, self.treatment, self.survival, *self.all_covariates()]
-        named += [c for c in (self.cluster, self.weights) if c is not None]
+        named += [c for c in (self.cluster, self.weights, self.by) if c is not None]
         return list(dict.fromkeys(named))
 
     def as_dict(self):
@@ -53,6 +54,7 @@ class ColumnRoles:
             "categorical": list(self.categorical),
             "cluster": self.cluster,
             "weights": self.weights,
+            "by": self.by,
         }
 
 
@@ -71,30 +73,16 @@ class PreparedData:
     n_rows_read: int
     n_rows_dropped: int
     missing_counts: dict = field(default_factory=dict)
+    # Level names as read: {"treatment": (treated, control), "survival": (survived, event)}.
+    levels: dict = field(default_factory=dict)
+    messages: tuple = ()  # data warnings, also shown in the report
 
 
 def read_table(path):
-    """Read a CSV or Parquet file into a DataFrame."""
-    path = Path(path)
-    kind = _READERS.get(path.suffix.lower())
-    if kind is None:
-        raise InputError(
-            f"DATA file '{path.name}' has type '{path.suffix or '(none)'}'; give a .csv or "
-            ".parquet file."
-        )
-    if not path.is_file():
-        raise InputError(f"DATA file '{path}' does not exist; check the path.")
-    try:
-        if kind == "csv":
-            return pd.read_csv(path)
-        return pd.read_parquet(path)
-    except ImportError as error:
-        raise InputError(f"Reading Parquet needs pyarrow ({error}); pip install pyarrow.") from None
-    except Exception as error:  # the readers raise many types; all mean "not a readable table"
-        first_line = str(error).splitlines()[0] if str(error) else type(error).__name__
-        raise InputError(
-            f"DATA file '{path.name}' could not be read as {kind}: {first_line}"
-        ) from None
+    """Read a data file into a DataFrame: CSV (comma- or semicolon-separated), Parquet, Stata
+    ``.dta``, SAS ``.sas7bdat`` or SPSS ``.sav`` (pandas' readers; SPSS needs
+    pyreadstat)."""
+    return _readers.read_table(path, InputError)
 
 
 def _check_columns(frame, roles):
@@ -107,6 +95,7 @@ def _check_columns(frame, roles):
         "--categorical": list(roles.categorical),
         "--cluster": [roles.cluster] if roles.cluster else [],
         "--weights": [roles.weights] if roles.weights else [],
+        "--by": [roles.by] if roles.by else [],
     }
     unknown = [
         f"{option} '{name}'"
@@ -154,13 +143,31 @@ def _indicator(frame, column, option, allow_blank=False):
     return numeric.to_numpy(dtype=np.int8)
 
 
-def _missing_rows(frame, roles, modelled=()):
+def _coded_indicator(frame, column, option, value, allow_blank=False):
+    """A 0/1 indicator and its level names ``(level of 1, level of 0)``.
+
+    ``value`` names the level that means 1 in a column coded otherwise (text, for example);
+    without it the column must hold 0/1 (:func:`_indicator`).
+    """
+    if value is not None:
+        return _coding.indicator(frame, column, option, value, InputError, allow_blank)
+    try:
+        indicator = _indicator(frame, column, option, allow_blank)
+    except InputError as error:
+        raise InputError(_coding.level_hint(str(error), frame[column], option)) from None
+    return indicator, ("True", "False") if frame[column].dtype == bool else ("1", "0")
+
+
+def _missing_rows(frame, roles, modelled=(), survived_value=None):
     """Per column, the rows that make a unit incomplete (outcome counts only for survivors).
 
     Columns in ``modelled`` (survival and outcome under ``--missing at_random``) are counted
     apart: their blanks are analysed, not dropped.
     """
-    survived = pd.to_numeric(frame[roles.survival], errors="coerce") == 1
+    if survived_value is None:
+        survived = pd.to_numeric(frame[roles.survival], errors="coerce") == 1
+    else:
+        survived = _coding.matches_level(frame[roles.survival], survived_value).fillna(False)
     counts, incomplete = {}, np.zeros(len(frame), dtype=bool)
     for column in roles.used_columns():
         if column in modelled:
@@ -175,7 +182,8 @@ def _missing_rows(frame, roles, modelled=()):
     return counts, incomplete
 
 
-def prepare_data(frame, roles, *, drop_incomplete=False, missing="error"):
+def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treated_value=None,
+                 survived_value=None):
     """Check the columns and build the analysis arrays; the caller's frame is not modified.
 
     Parameters
@@ -189,6 +197,12 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error"):
         ``"at_random"`` keeps blank survival (status unknown) and blank outcomes of survivors
         (not observed) for the estimators' ``missing="at_random"``; other blanks are treated as
         above.
+    treated_value, survived_value : scalar or str, optional
+        The level of a text-coded (or otherwise coded) treatment / survival column that means
+        1 (treated / survived); the column must then hold exactly two levels, and the other
+        one is recorded in ``levels`` for the report. ``None``: the column holds 0/1. These
+        live here, in the report's preparation step, because the estimators take 0/1 arrays
+        (recode there with ``(column == "program").astype(int)``).
 
     Returns
     -------
@@ -197,7 +211,7 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error"):
     _check_columns(frame, roles)
     n_read = len(frame)
     modelled = (roles.survival, roles.outcome) if missing == "at_random" else ()
-    counts, incomplete = _missing_rows(frame, roles, modelled)
+    counts, incomplete = _missing_rows(frame, roles, modelled, survived_value)
     if counts and not drop_incomplete:
         listed = ", ".join(
             f"'{c}' {n}" + (" (survivors only)" if c == roles.outcome else "")
@@ -218,8 +232,13 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error"):
     used = used.reset_index(drop=True)
     if len(used) == 0:
         raise InputError("No complete rows are left to analyse; check the missing values.")
-    treatment = _indicator(used, roles.treatment, "--treatment")
-    survival = _indicator(used, roles.survival, "--survival", allow_blank=bool(modelled))
+    treatment, treatment_levels = _coded_indicator(
+        used, roles.treatment, "--treatment", treated_value
+    )
+    survival, survival_levels = _coded_indicator(
+        used, roles.survival, "--survival", survived_value, allow_blank=bool(modelled)
+    )
+    messages = ()
     outcome = pd.to_numeric(used[roles.outcome], errors="coerce")
     bad = outcome.isna() & used[roles.outcome].notna()
     if bad.any():
@@ -231,6 +250,8 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error"):
     names = roles.all_covariates()
     if names:
         covariates = used[list(names)]
+        _coding.check_dates(covariates, InputError)
+        messages = tuple(_coding.many_levels_messages(covariates, roles.categorical))
         text = [
             c
             for c in names
@@ -267,4 +288,6 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error"):
         n_rows_read=n_read,
         n_rows_dropped=int(incomplete.sum()),
         missing_counts=counts,
+        levels={"treatment": treatment_levels, "survival": survival_levels},
+        messages=messages,
     )

@@ -7,6 +7,7 @@ import io
 import numpy as np
 
 from ._distributions import distribution_figures
+from ._format import number
 
 __all__ = ["draw_figures"]
 
@@ -27,8 +28,12 @@ def _estimates_figure(results):
 
     rows = []
     for record in results["estimates"]:
-        rows.append((record["label"] + (" (primary)" if record["primary"] else ""),
-                     record["effect"], record["ci_low"], record["ci_high"],
+        # An estimate without an honest interval is drawn as a point only.
+        low, high = record["ci_low"], record["ci_high"]
+        rows.append((record["label"] + (" (primary)" if record["primary"] else "")
+                     + ("" if low is not None else ": no interval"),
+                     record["effect"], record["effect"] if low is None else low,
+                     record["effect"] if high is None else high,
                      _PRIMARY if record["primary"] else _OTHER))  # fmt: skip
     boot = results.get("bootstrap")
     if boot:
@@ -64,10 +69,14 @@ def _sensitivity_figure(results):
 
     sens = results["sensitivity"]
     figure, axes = plt.subplots(1, 2, figsize=(9.6, 3.6), layout="constrained")
+    mixed, other = (("protected", "harmed") if results["settings"]["monotonicity"] == "increasing"
+                    else ("harmed", "protected"))  # fmt: skip
     panels = (
-        ("pi_difference", "helped minus always-survivor mean\n(0 = principal ignorability)"),
-        ("harmed_ratio", "harmed / helped stratum size\n(0 = monotonicity)"),
-    )
+        ("pi_difference", f"{mixed} minus always-survivor mean of "
+         f"'{results['columns']['outcome']}'\n(0 = principal ignorability)"),
+        ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
+         "informative)"),
+    )  # fmt: skip
     for ax, (key, label) in zip(axes, panels, strict=True):
         grid = sens[key]["grid"]
         x = np.array([g["value"] for g in grid])
@@ -80,13 +89,45 @@ def _sensitivity_figure(results):
         tip = sens[key]["tipping_point"]
         if tip is not None and x.min() <= tip <= x.max():
             ax.axvline(tip, color="#b5651d", linewidth=1)
-            ax.text(tip, 0.98, f" tipping point {tip:.3g}", transform=ax.get_xaxis_transform(),
-                    va="top", fontsize=8, color="#b5651d")  # fmt: skip
+            ax.text(tip, 0.98, f" tipping point {number(tip)}",
+                    transform=ax.get_xaxis_transform(), va="top", fontsize=8,
+                    color="#b5651d", ha="right" if tip > x.mean() else "left")  # fmt: skip
+        ax.set_xlim(x.min(), x.max())
         ax.set_xlabel(label, fontsize=9)
         ax.set_ylabel("SACE")
         ax.grid(color="0.92")
     figure.suptitle("How the estimate moves when an untestable assumption is relaxed", fontsize=10)
     return figure
+
+
+def _in_study_words(figure, words):
+    """Arm names of the study in a library figure's legends, labels and titles.
+
+    The library's diagnostic plots say "treated" and "control"; the report uses the study's
+    arm names (``--arm-names`` or the treatment levels).
+    """
+    if not words:
+        return figure
+    import re
+
+    from matplotlib.text import Text
+
+    names = {"treated": words["treated_arm"], "control": words["control_arm"]}
+    pattern = re.compile(r"\b(treated|control)\b")
+    for text in figure.findobj(Text):
+        content = text.get_text()
+        if pattern.search(content):
+            text.set_text(pattern.sub(lambda m: names[m.group(1)], content))
+    return figure
+
+
+def _in_study_words_text(text, words):
+    import re
+
+    if not words:
+        return text
+    names = {"treated": words["treated_arm"], "control": words["control_arm"]}
+    return re.sub(r"\b(treated|control)\b", lambda m: names[m.group(1)], text)
 
 
 def draw_figures(analysis):
@@ -133,6 +174,12 @@ def draw_figures(analysis):
             ("weights.png", "Balancing weights", plotting.plot_weights, (analysis.primary,),
              "A long right tail means a few rows carry much of the weight.")
         )  # fmt: skip
+    from ._model_checks import model_check_figures
+    from ._subgroups import subgroup_figures
+
+    # In report order: subgroups follow the estimates, the model checks the diagnostics.
+    figures[1:1] = subgroup_figures(results)
+    figures += model_check_figures(analysis)
     if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
         figures.append(
             ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),
@@ -142,7 +189,11 @@ def draw_figures(analysis):
         )  # fmt: skip
     figures.extend(distribution_figures(results))
     drawn = []
+    words = results.get("wording")
     for name, title, draw, args, caption in figures:
         figure = draw(*args)
+        if name in ("balance.png", "overlap.png", "weights.png"):
+            figure = _in_study_words(figure, words)
+            caption = _in_study_words_text(caption, words)
         drawn.append({"name": name, "title": title, "caption": caption, "png": _png(figure)})
     return drawn

@@ -7,6 +7,8 @@ import json
 from importlib import resources
 from pathlib import Path
 
+from ._format import count, interval, number, percent
+
 __all__ = ["write_report", "render_html", "schema"]
 
 TEMPLATE = "report.html"
@@ -17,7 +19,9 @@ SECTIONS = (
     "data",
     "missing",
     "estimates",
+    "subgroups",
     "diagnostics",
+    "model_checks",
     "bounds",
     "sensitivity",
     "distributions",
@@ -32,24 +36,20 @@ def schema():
     return json.loads(text)
 
 
-def number(value, digits=3):
-    """Readable fixed-point text: more digits for small values, thousands separators for big."""
-    if value is None:
-        return "n/a"
-    size = abs(value)
-    if size >= 1000:
-        return f"{value:,.0f}"
-    if size >= 100:
-        return f"{value:,.1f}"
-    return f"{value:.{digits}f}"
+_DEFAULT_WORDING = {
+    "event": "death", "unit": "unit", "units": "units", "treated_arm": "treatment",
+    "control_arm": "control", "treated_condition": "treatment = 1",
+    "control_condition": "treatment = 0", "survived_condition": "survival = 1",
+    "event_condition": "survival = 0",
+}  # fmt: skip
 
 
-def percent(value):
-    return "n/a" if value is None else f"{100 * value:.1f}%"
-
-
-def interval(low, high):
-    return f"{number(low)} to {number(high)}"
+def _every_few(grid, n_shown):
+    """About ``n_shown`` evenly spaced rows of a grid, its last row included."""
+    selected = grid[:: max(1, len(grid) // (n_shown - 1))]
+    if grid[-1] not in selected:
+        selected.append(grid[-1])
+    return selected
 
 
 def _view(results, figures):
@@ -61,12 +61,10 @@ def _view(results, figures):
         key=lambda r: -abs(r["raw_smd_treated_vs_control"] or 0),
     )
     sens = results.get("sensitivity", {})
-    selected = []
+    selected = selected_harmed = []
     if "pi_difference" in sens:
-        grid = sens["pi_difference"]["grid"]
-        selected = grid[:: max(1, len(grid) // 6)]
-        if grid[-1] not in selected:
-            selected.append(grid[-1])
+        selected = _every_few(sens["pi_difference"]["grid"], 7)
+        selected_harmed = _every_few(sens["harmed_ratio"]["grid"], 7)
     return {
         "r": results,
         "sections": SECTIONS,
@@ -74,10 +72,13 @@ def _view(results, figures):
         "primary": primary,
         "balance": balance,
         "selected_grid": selected,
+        "selected_harmed": selected_harmed,
+        "w": results.get("wording") or _DEFAULT_WORDING,
         "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
         "fmt": number,
         "pct": percent,
         "interval": interval,
+        "count": count,
     }
 
 

@@ -53,6 +53,11 @@ class AnalysisOptions:
     level: float = 0.95
     monotonicity: str = "increasing"
     seed: int = 0
+    # Words of the study (report/_wording.py): the event that truncates the outcome, what one
+    # row is ("SINGULAR" or "SINGULAR/PLURAL"), and (treated, control) arm names.
+    event_name: str = "death"
+    unit_name: str = "unit"
+    arm_names: tuple | None = None
     missing: str = "error"
 
 

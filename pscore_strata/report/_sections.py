@@ -8,9 +8,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._options import SENSITIVITY_POINTS, build_estimator, fit_arguments, model_settings, number
+from ._options import build_estimator, fit_arguments, model_settings, number
 
-__all__ = ["bootstrap_section", "diagnostics_section", "bounds_section", "sensitivity_section"]
+__all__ = [
+    "bootstrap_section", "diagnostics_section", "bounds_section", "sensitivity_section",
+    "readable_step",
+]  # fmt: skip
 
 
 def bootstrap_section(collector, options, data):
@@ -78,6 +81,12 @@ def diagnostics_section(collector, primary, covariates):
         overlap["share_always_survivor_below_floor"]
     )
     out["n_monotonicity_violations"] = int(primary.n_monotonicity_violations_)
+    # The same two counts as the estimator's MonotonicityWarning and diagnostic_warnings.
+    from ..diagnostics._arrays import SCORE_FLOOR
+    from ..estimators._formulas import orient
+
+    o = orient(primary.training_data_, primary.nuisance_, primary.monotonicity)
+    out["n_monotonicity_reversed_beyond_floor"] = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))
     return out
 
 
@@ -102,15 +111,24 @@ def bounds_section(collector, options, data, nuisance=None):
         "std_error_upper": number(bounds.std_error_upper_),
         "ci_low": number(low),
         "ci_high": number(high),
-        "interval": "Imbens-Manski (covers the true SACE)",
+        "interval": "Imbens-Manski interval (it covers the true SACE)",
         "trimming_share": float(bounds.trimming_share_),
-        "notes": list(bounds.summary(options.level).attrs["notes"][:3]),
+        # The first note restates the interval (already in the sentence), under its column name.
+        "notes": list(bounds.summary(options.level).attrs["notes"][1:3]),
     }
     return record, bounds
 
 
+def readable_step(spread):
+    """A readable grid step near a tenth of the outcome SD: 1, 2 or 5 times a power of ten."""
+    target = 0.1 * spread
+    power = 10.0 ** np.floor(np.log10(target))
+    return float(min((m * power for m in (1, 2, 5, 10)), key=lambda v: abs(v - target)))
+
+
 def sensitivity_section(collector, primary, data, level):
     from ..assumptions import sensitivity_grid, tipping_point
+    from ..diagnostics._arrays import ROW_SHARE_TOLERANCE
 
     spread = float(np.nanstd(data.outcome[data.survival == 1], ddof=1)) or 1.0
     label = "sensitivity analysis"
@@ -118,11 +136,13 @@ def sensitivity_section(collector, primary, data, level):
     for parameter in ("pi_difference", "harmed_ratio"):
         value = collector.run(label, tipping_point, primary, parameter, level=level)
         tips[parameter] = number(value)
-    # The grids reach a little past the tipping points so that the figure shows them.
+    # Readable values: multiples of a round step near a tenth of the outcome SD, reaching a
+    # little past the tipping point so that the figure shows it.
+    step = readable_step(spread)
     reach = max(0.5 * spread, 1.25 * abs(tips["pi_difference"] or 0.0))
-    deltas = np.round(np.linspace(-reach, reach, SENSITIVITY_POINTS), 10)
-    top = min(0.95, max(0.5, 1.1 * (tips["harmed_ratio"] or 0.0)))
-    harmed = np.round(np.linspace(0.0, top, 11), 4)
+    n_steps = int(min(40, max(5, np.ceil(reach / step))))
+    deltas = np.round(step * np.arange(-n_steps, n_steps + 1), 10)
+    harmed = np.round(np.arange(0.0, 0.951, 0.05), 2)
 
     def rows(table, parameter):
         return [
@@ -140,18 +160,28 @@ def sensitivity_section(collector, primary, data, level):
     grid_mono = collector.run(
         label, sensitivity_grid, primary, harmed_ratio=harmed.tolist(), level=level
     )
+    # Beyond the ratio at which the always-survivor score is clipped at zero for more than 5%
+    # of rows (common practice, as in the diagnostics), the data say little: the grid stops.
+    informative = grid_mono["n_rows_clipped"] <= ROW_SHARE_TOLERANCE * len(data.treatment)
+    last = int(np.flatnonzero(informative.to_numpy())[-1]) if informative.any() else 0
+    grid_mono = grid_mono.iloc[: max(last + 1, 3)]
+    mixed = "protected" if primary.monotonicity == "increasing" else "harmed"
+    other = "harmed" if mixed == "protected" else "protected"
     return {
         "pi_difference": {
-            "description": "Mean outcome under treatment of the helped stratum minus that of the "
-            "always-survivors with the same covariates (0 = principal ignorability).",
+            "description": f"Mean outcome under treatment of the {mixed} stratum minus that of "
+            "the always-survivors with the same covariates (0 = principal ignorability).",
             "outcome_sd_survivors": spread,
+            "grid_step": step,
+            "grid_digits": int(max(0, -np.floor(np.log10(step)))),
             "grid": rows(grid_pi, "pi_difference"),
             "tipping_point": tips["pi_difference"],
         },
         "harmed_ratio": {
-            "description": "Size of the stratum that monotonicity rules out relative to the "
-            "helped stratum (0 = monotonicity).",
+            "description": f"Size of the {other} stratum, which monotonicity rules out, relative "
+            f"to the {mixed} stratum (0 = monotonicity).",
             "grid": rows(grid_mono, "harmed_ratio"),
+            "informative_max": float(grid_mono["harmed_ratio"].iloc[-1]),
             "tipping_point": tips["harmed_ratio"],
         },
         "criterion": f"the {level:.0%} confidence interval first covers 0",

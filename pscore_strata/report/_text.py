@@ -1,70 +1,106 @@
-"""The report's fixed wording: estimand attributes, assumptions and cautions."""
+"""The report's fixed wording: estimand attributes, assumptions and cautions.
+
+Nouns come from the study's wording record (:mod:`._wording`): the event, the unit and the arms.
+"""
 
 from __future__ import annotations
 
-__all__ = ["CAUTIONS", "estimand", "assumptions"]
+__all__ = ["CAUTIONS", "cautions", "estimand", "assumptions"]
 
-CAUTIONS = (
-    "The always-survivor stratum is latent: nobody can be identified as an always-survivor, so "
-    "the effect describes a subpopulation that cannot be listed, not everyone in the data.",
-    "Monotonicity and principal ignorability cannot be tested with these data; the estimate is "
-    "only as good as they are. Read it together with the bounds and the sensitivity analysis.",
-    "These are population-level summaries. Do not use them to decide anything about an "
-    "individual patient or participant.",
-    "Interpret the results under the study's protocol and statistical analysis plan and local "
-    "regulation, and have a qualified statistician review the analysis before it informs "
-    "practice.",
-)
+_DEFAULT_WORDS = {
+    "event": "death", "unit": "unit", "units": "units",
+    "treated_arm": "treatment", "control_arm": "control",
+    "treated_condition": "treatment = 1", "control_condition": "treatment = 0",
+    "survived_condition": "survival = 1", "event_condition": "survival = 0",
+}  # fmt: skip
 
 
-def estimand(roles, monotonicity):
-    """The estimand described by the attributes of ICH E9(R1)."""
+def _cap(text):
+    return text[:1].upper() + text[1:]
+
+
+def cautions(words=None):
+    """The cautions that go with every SACE, in the study's words."""
+    w = {**_DEFAULT_WORDS, **(words or {})}
+    return (
+        "The always-survivor stratum is latent: nobody can be identified as an always-survivor, "
+        f"so the effect describes a subpopulation of {w['units']} that cannot be listed, not "
+        "everyone in the data.",
+        "Monotonicity and principal ignorability cannot be tested with these data; the estimate "
+        "is only as good as they are. Read it together with the bounds and the sensitivity "
+        "analysis.",
+        "These are population-level summaries. Do not use them to decide anything about an "
+        f"individual {w['unit']}.",
+        "Interpret the results under the study's protocol and statistical analysis plan and "
+        "local regulation, and have a qualified statistician review the analysis before it "
+        "informs practice.",
+    )
+
+
+CAUTIONS = cautions()
+
+
+def estimand(roles, monotonicity, words=None):
+    """The estimand, attribute by attribute (ICH E9(R1))."""
+    w = {**_DEFAULT_WORDS, **(words or {})}
+    event = w["event"]
     return {
-        "framework": "ICH E9(R1) estimand attributes",
+        "framework": "ICH E9(R1)",
         "population": (
-            "Always-survivors: the units who would have "
-            f"'{roles.survival}' = 1 whichever treatment they received (a latent principal "
-            "stratum of the population the data represent)."
+            f"Always-survivors: the {w['units']} who would have '{w['survived_condition']}' "
+            f"(no {event}) whichever arm they were in (a latent principal stratum of the "
+            "population the data represent)."
         ),
-        "treatment": f"'{roles.treatment}' = 1 compared with '{roles.treatment}' = 0.",
+        "treatment": (
+            f"{_cap(w['treated_arm'])} ('{w['treated_condition']}') compared with "
+            f"{w['control_arm']} ('{w['control_condition']}')."
+        ),
         "variable": (
-            f"'{roles.outcome}', which exists only for units with '{roles.survival}' = 1."
+            f"'{roles.outcome}', which exists only for {w['units']} with "
+            f"'{w['survived_condition']}'."
         ),
         "intercurrent_event": (
-            f"Death ('{roles.survival}' = 0), after which the outcome does not exist; handled "
-            "by the principal stratum strategy (the effect is defined within the stratum where "
-            "the event would not occur under either treatment)."
+            f"{_cap(event)} ('{w['event_condition']}'), after which the outcome "
+            "does not exist; handled by the principal stratum strategy (the effect is defined "
+            f"within the stratum where {event} would not occur under either arm)."
         ),
         "summary_measure": (
-            "Difference in mean outcome between treatment and control among always-survivors: "
-            "the survivor average causal effect (SACE)."
+            f"Difference in mean outcome between {w['treated_arm']} and {w['control_arm']} among "
+            "always-survivors: the survivor average causal effect (SACE)."
         ),
         "monotonicity": (
-            "treatment can only help survival (no unit dies because of it)"
+            f"{w['treated_arm']} can only prevent {event} (no {w['unit']} has {event} because "
+            "of it)"
             if monotonicity == "increasing"
-            else "treatment can only harm survival (no unit survives because of it)"
+            else f"{w['treated_arm']} can only cause {event} (no {w['unit']} avoids {event} "
+            "because of it)"
         ),
     }
 
 
-def assumptions(roles, monotonicity):
+def assumptions(roles, monotonicity, words=None):
     """The assumptions behind the estimate, in plain words, with what checks them."""
+    w = {**_DEFAULT_WORDS, **(words or {})}
+    event, unit = w["event"], w["unit"]
     direction = (
-        "Treatment never causes death in a unit that would survive without it."
+        f"{_cap(w['treated_arm'])} never causes {event} in a {unit} that would avoid it under "
+        f"{w['control_arm']} (no harmed stratum)."
         if monotonicity == "increasing"
-        else "Treatment never saves a unit that would die without it."
+        else f"{_cap(w['treated_arm'])} never prevents {event} in a {unit} that would have it "
+        f"under {w['control_arm']} (no protected stratum)."
     )
+    changed = "protected" if monotonicity == "increasing" else "harmed"
     return [
         {
             "name": "Consistency and no interference",
-            "statement": "A unit's outcome depends only on its own treatment.",
+            "statement": f"A {unit}'s outcome depends only on its own arm.",
             "checked_by": "Study design; use --cluster for clustered units.",
         },
         {
             "name": "Treatment ignorability and overlap",
             "statement": (
-                "Given the covariates, treatment is as good as random, and every kind of unit "
-                "could receive either treatment."
+                "Given the covariates, the arm is as good as random, and every kind of "
+                f"{unit} could be in either arm."
             ),
             "checked_by": "Overlap and balance diagnostics (overlap only; ignorability is "
             "untestable).",
@@ -78,8 +114,8 @@ def assumptions(roles, monotonicity):
         {
             "name": "Principal ignorability",
             "statement": (
-                "Given the covariates, units whose survival depends on treatment have the same "
-                "mean outcome as the always-survivors."
+                f"Given the covariates, the {changed} {w['units']} (whose {event} depends on "
+                "the arm) have the same mean outcome as the always-survivors."
             ),
             "checked_by": "Untestable; the bounds drop it and the sensitivity analysis relaxes it.",
         },
