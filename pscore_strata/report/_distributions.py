@@ -73,22 +73,25 @@ def distributions_section(collector, primary, data, options):
              ("quantile", "treated", "control", "effect", "std_error", "ci_low", "ci_high")}
             for _, row in table.iterrows()
         ],
-        "quantile_bounds": _quantile_bounds(collector, options, data),
+        "quantile_bounds": _quantile_bounds(collector, options, data, primary),
         "notes": list(distribution.notes[:1]) + list(table.attrs["notes"]),
     }  # fmt: skip
     return record
 
 
-def _quantile_bounds(collector, options, data):
+def _quantile_bounds(collector, options, data, primary):
     from ..assumptions import TrimmingBounds
     from ..assumptions._quantile_bounds import quantile_intervals
 
     models, _ = model_settings(options)
     models.pop("survival_model", None)  # unused without score strata
     bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=QUANTILES, **models)
+    # With the default models the bounds reuse the analysis' one fit (never a cross-fitted one).
+    shared = primary.nuisance_
+    nuisance = None if options.learner != "linear" or shared.cross_fitted else shared
     try:
         collector.run("outcome distributions", bounds.fit, data.design, data.outcome,
-                      **fit_arguments(data))  # fmt: skip
+                      **fit_arguments(data), nuisance=nuisance)  # fmt: skip
     except ValueError:
         return None
     table = quantile_intervals(bounds.quantile_bounds_, options.level)
