@@ -16,7 +16,7 @@ import os
 import warnings
 
 import numpy as np
-from _common import fast_mode
+from _common import fast_mode, show
 
 import pscore_strata as ps
 from pscore_strata.datasets import make_truncation
@@ -97,9 +97,9 @@ print(f"P(better level) = {comparison.probability:.3f} "
 print("\nThe always-survivor stratum is latent and the assumptions are untestable: these are "
       "group summaries, not guidance for individual patients.")  # fmt: skip
 
-if not FAST:
-    import matplotlib.pyplot as plt
-
-    ps.plotting.plot_survivor_distribution(distribution, outcome="cost")
-    ps.plotting.plot_quantile_effects(table, outcome="cost", bounds=bounds.quantile_bounds_)
-    plt.show()
+# %%
+# The two always-survivor CDFs with their bands beside the naive survivor CDFs, and the quantile
+# effects with the bounds that drop principal ignorability.
+ps.plotting.plot_survivor_distribution(distribution, outcome="cost")
+ps.plotting.plot_quantile_effects(table, outcome="cost", bounds=bounds.quantile_bounds_)
+show()
