@@ -12,7 +12,7 @@ outcome-regression SE of 0.047 against 0.27 from its own refitting bootstrap was
 
 from __future__ import annotations
 
-from ._options import build_estimator, fit_arguments, number
+from ._options import fit_arguments, number
 
 __all__ = [
     "HONEST_METHODS",
@@ -63,19 +63,9 @@ def unavailable_reason(std_error_method, learner):
 
 
 def _bootstrap_record(collector, method, options, data):
-    from ..inference import bootstrap
+    from ._sections import run_bootstrap
 
-    result = collector.run(
-        f"bootstrap: {options.bootstrap} resamples refitting every model",
-        bootstrap,
-        build_estimator(method, options),
-        data.design,
-        data.outcome,
-        n_resamples=options.bootstrap,
-        random_state=options.seed,
-        progress=None,
-        **fit_arguments(data),
-    )
+    result = run_bootstrap(collector, method, options, data)
     low, high = result.conf_int(options.level, kind="percentile")
     return float(result.std_error), float(low), float(high)
 

@@ -16,14 +16,14 @@ __all__ = [
 ]  # fmt: skip
 
 
-def bootstrap_section(collector, options, data):
+def run_bootstrap(collector, method, options, data):
+    """Refitting bootstrap of the estimator the analysis fits for ``method``."""
     from ..inference import bootstrap
 
-    template = build_estimator(options.method, options, len(data.treatment))
-    result = collector.run(
+    return collector.run(
         f"bootstrap: {options.bootstrap} resamples refitting every model",
         bootstrap,
-        template,
+        build_estimator(method, options, len(data.treatment)),
         data.design,
         data.outcome,
         n_resamples=options.bootstrap,
@@ -31,6 +31,10 @@ def bootstrap_section(collector, options, data):
         progress=None,
         **fit_arguments(data),
     )
+
+
+def bootstrap_section(collector, options, data):
+    result = run_bootstrap(collector, options.method, options, data)
     low, high = result.conf_int(options.level, kind="percentile")
     return {
         "n_resamples": int(result.n_resamples),
