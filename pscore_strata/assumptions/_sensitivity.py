@@ -408,4 +408,14 @@ def sensitivity_grid(
         "strong a departure from the assumptions would have to be to change the conclusion.",
         CAUTIONS,
     ]
+    most = int(table["n_rows_clipped"].max())
+    if most:
+        # Clipping makes the adjusted estimate jump (tipping_point refuses roots there).
+        table.attrs["notes"].insert(1, (
+            f"At {int((table['n_rows_clipped'] > 0).sum())} of {len(table)} settings some rows' "
+            f"implied always-survivor score was negative and was set to 0 (up to {most} of "
+            f"{estimator.training_data_.n_samples} rows; column n_rows_clipped): there the "
+            "harmed_ratio is too large for those rows and the estimate describes the clipping "
+            "as much as the data."
+        ))  # fmt: skip
     return table
