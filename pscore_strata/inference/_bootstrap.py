@@ -378,7 +378,8 @@ def _check_params(estimator, n_resamples, method, multiplier, stratify, progress
             f"{type(estimator).__name__}."
         )
     parameters = inspect.signature(estimator.fit).parameters
-    if not {"treatment", "survival"} <= set(parameters):
+    open_keywords = any(p.kind is inspect.Parameter.VAR_KEYWORD for p in parameters.values())
+    if not (open_keywords or {"treatment", "survival"} <= set(parameters)):
         raise TypeError(
             f"`estimator` must estimate a survivor average causal effect (or its bounds), with "
             f"fit(X, y, treatment=..., survival=...); {type(estimator).__name__}.fit takes no "
