@@ -29,7 +29,7 @@ from .distributions import (
     survivor_distribution,
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
-from .inference import BootstrapResult, bootstrap
+from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning
 
 __version__ = "0.1.0"
@@ -51,6 +51,7 @@ __all__ = [
     "fit_estimators",
     "OverlapWarning",
     "MonotonicityWarning",
+    "FewClustersWarning",
     "TrimmingBounds",
     "bootstrap",
     "BootstrapResult",

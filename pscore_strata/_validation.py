@@ -7,17 +7,13 @@ found and says what to do.
 
 from __future__ import annotations
 
+import numbers
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from sklearn.compose import ColumnTransformer
-from sklearn.pipeline import Pipeline
 
-try:
-    from sklearn.utils import get_tags
-except ImportError:  # scikit-learn < 1.6 (the declared minimum is 1.4): legacy tag dictionaries
-    get_tags = None
+from ._features import check_features, reject_sparse
 
 __all__ = ["TruncationData", "check_truncation_data", "check_level", "check_features"]
 
@@ -108,6 +104,51 @@ class TruncationData:
 
 
 def _one_dimensional(values, name):
+    array = _as_vector(values, name)
+    if array.dtype.kind == "c":
+        raise TypeError(
+            f"`{name}` has complex values (dtype {array.dtype}); pass real numbers. Taking the "
+            "real part silently would drop the imaginary part."
+        )
+    if array.dtype.kind in "mM" or _holds_dates(array):
+        raise TypeError(
+            f"`{name}` holds dates or durations (dtype {array.dtype}), which would be read as "
+            "nanoseconds. Convert them to numbers in the unit you mean, for example days: "
+            "(end - start) / pd.Timedelta(days=1)."
+        )
+    return array
+
+
+def _holds_dates(array):
+    if array.dtype.kind != "O" or array.size == 0:
+        return False
+    first = next((v for v in array if not _is_missing(v)), None)
+    return isinstance(first, pd.Timestamp | pd.Timedelta | np.datetime64 | np.timedelta64)
+
+
+def _is_missing(value):
+    return value is None or (not isinstance(value, str) and bool(pd.isna(value)))
+
+
+def _numbers_or_missing(array, name):
+    """An object array of real numbers (and missing markers) as floats; text is refused."""
+    if array.dtype.kind not in "OUS":
+        return array
+    bad = [i for i, v in enumerate(array) if not (_is_missing(v) or _is_real(v))]
+    if bad:
+        raise TypeError(
+            f"`{name}` must be numeric; found non-numeric value(s) such as "
+            f"{[array[i] for i in bad[:5]]} at row position(s) {bad[:5]}. Convert it to numbers "
+            "first (for example with pandas.to_numeric)."
+        )
+    return np.array([np.nan if _is_missing(v) else float(v) for v in array], dtype=float)
+
+
+def _is_real(value):
+    return isinstance(value, numbers.Real) and not isinstance(value, str)
+
+
+def _as_vector(values, name):
     if values is None:
         raise ValueError(f"`{name}` is required: pass one value per row of X.")
     if isinstance(values, pd.DataFrame):
@@ -136,11 +177,9 @@ MISSING_AT_RANDOM_ASSUMPTION = (
 
 def _binary_indicator(values, name, allow_missing=False):
     array = _one_dimensional(values, name)
-    if array.dtype.kind == "O" and pd.isna(array).any():
-        # pandas nullable integers (pd.NA) arrive as objects: numbers with NA are NaN floats.
-        numeric = pd.to_numeric(pd.Series(array), errors="coerce")
-        if numeric.notna().sum() == pd.notna(array).sum():
-            array = numeric.to_numpy(dtype=float)
+    if array.dtype.kind == "O" and all(_is_missing(v) or _is_real(v) for v in array):
+        # Python ints or bools, pandas nullable integers or booleans (pd.NA): NaN floats.
+        array = np.array([np.nan if _is_missing(v) else float(v) for v in array], dtype=float)
     if array.dtype.kind in "OUS" or isinstance(array.dtype, pd.CategoricalDtype):
         found = pd.unique(array)[:10]
         raise TypeError(
@@ -177,94 +216,6 @@ def _binary_indicator(values, name, allow_missing=False):
     return array.astype(np.int8)
 
 
-def _accepts_missing(model):
-    """Whether a model can take NaN in X (a pipeline may impute; some learners handle NaN)."""
-    if model is None or isinstance(model, int | float):
-        return False
-    if isinstance(model, Pipeline | ColumnTransformer):
-        return True
-    try:
-        if get_tags is None:
-            return bool(model._get_tags().get("allow_nan", False))
-        return bool(get_tags(model).input_tags.allow_nan)
-    except Exception:  # third-party estimators without tags: let the model itself decide
-        return True
-
-
-def _encodes_text(model):
-    return isinstance(model, Pipeline | ColumnTransformer)
-
-
-def check_features(X, models, n_rows=None):
-    """Validate covariates; return (X for the models, n_features, feature names)."""
-    if X is None:
-        return None, 0, ()
-    if isinstance(X, pd.Series):
-        X = X.to_frame()
-    if isinstance(X, pd.DataFrame):
-        names = tuple(str(c) for c in X.columns)
-        text_columns = [
-            str(c)
-            for c in X.columns
-            if not (pd.api.types.is_numeric_dtype(X[c]) or pd.api.types.is_bool_dtype(X[c]))
-        ]
-        if text_columns:
-            if any(not _encodes_text(m) for m in models if not isinstance(m, int | float)):
-                raise TypeError(
-                    f"`X` has non-numeric column(s) {text_columns}. Either encode them first "
-                    "(for example with pandas.get_dummies) or pass models that are scikit-learn "
-                    "pipelines whose first step encodes them (ColumnTransformer with "
-                    "OneHotEncoder)."
-                )
-        numeric = X.select_dtypes(include=["number", "bool"])
-        values = numeric.to_numpy(dtype=float) if numeric.shape[1] else np.empty((len(X), 0))
-    else:
-        values = np.asarray(X)
-        if values.ndim == 1:
-            raise ValueError(
-                f"`X` must be two-dimensional (rows x covariates); got a 1-d array of length "
-                f"{values.shape[0]}. Use X.reshape(-1, 1) for a single covariate."
-            )
-        if values.ndim != 2:
-            raise ValueError(f"`X` must be two-dimensional; got shape {values.shape}.")
-        if values.dtype.kind not in "biuf":
-            if any(not _encodes_text(m) for m in models if not isinstance(m, int | float)):
-                raise TypeError(
-                    f"`X` must be numeric; got an array of dtype {values.dtype}. Encode text "
-                    "columns first or use pipelines that encode them."
-                )
-            X = values
-            values = np.empty((len(values), 0))
-        else:
-            X = values
-        names = tuple(f"x{j}" for j in range(values.shape[1]))
-    if values.size:
-        if np.isinf(values).any():
-            count = int(np.isinf(values).sum())
-            raise ValueError(
-                f"`X` contains {count} infinite value(s). Replace them (they are usually a "
-                "division by zero upstream) before fitting."
-            )
-        missing = np.isnan(values)
-        if missing.any() and not all(_accepts_missing(m) for m in models):
-            per_column = missing.sum(axis=0)
-            numeric_names = (
-                [str(c) for c in X.select_dtypes(include=["number", "bool"]).columns]
-                if isinstance(X, pd.DataFrame)
-                else list(names)
-            )
-            listed = {numeric_names[j]: int(c) for j, c in enumerate(per_column) if c}
-            raise ValueError(
-                f"`X` has missing values (NaN) in {len(listed)} column(s): {listed}. Impute them "
-                "in a scikit-learn pipeline (for example SimpleImputer + the model) and pass the "
-                "pipeline as the model, or drop the incomplete rows yourself."
-            )
-    n_features = X.shape[1]
-    if n_rows is not None and X.shape[0] != n_rows:
-        raise ValueError(f"`X` has {X.shape[0]} rows but the model was fitted on {n_rows}.")
-    return (None if n_features == 0 else X), n_features, names
-
-
 def check_truncation_data(
     X, y, treatment, survival, sample_weight=None, groups=None, models=(None, None, None),
     missing="error",
@@ -291,16 +242,7 @@ def check_truncation_data(
         raise ValueError(
             f"`y` has {outcome.shape[0]} rows but `treatment` has {n}; they must match."
         )
-    if outcome.dtype.kind == "b":
-        outcome = outcome.astype(float)
-    if outcome.dtype.kind not in "iuf":
-        try:
-            outcome = outcome.astype(float)
-        except (TypeError, ValueError):
-            raise TypeError(
-                f"`y` must be numeric; got dtype {outcome.dtype} with values such as "
-                f"{list(pd.unique(outcome[survival == 1])[:5])}. Convert the outcome to numbers."
-            ) from None
+    outcome = _outcome_values(outcome, survival, status_known)
     if status_known is not None:
         contradicting = np.flatnonzero((status_known == 0) & ~np.isnan(outcome.astype(float)))
         if contradicting.size:
@@ -328,7 +270,10 @@ def check_truncation_data(
         status_known = np.ones(n, dtype=np.int8)
     if np.isinf(outcome).any():
         raise ValueError("`y` contains infinite values among survivors; fix them before fitting.")
+    _check_squares(outcome[~np.isnan(outcome)], "y", "rescale it (for example to thousands)")
 
+    if X is not None:
+        reject_sparse(X)
     if X is not None and len(X) != n:
         raise ValueError(f"`X` has {len(X)} rows but `treatment` has {n}; they must match.")
     X, n_features, names = check_features(X, models)
@@ -337,7 +282,8 @@ def check_truncation_data(
         weights = np.ones(n)
         weighted = False
     else:
-        weights = _one_dimensional(sample_weight, "sample_weight").astype(float)
+        weights = _numbers_or_missing(_one_dimensional(sample_weight, "sample_weight"),
+                                      "sample_weight").astype(float)  # fmt: skip
         if weights.shape[0] != n:
             raise ValueError(
                 f"`sample_weight` has {weights.shape[0]} rows but `treatment` has {n}."
@@ -348,8 +294,12 @@ def check_truncation_data(
                 f"`sample_weight` must be finite and non-negative; {bad.size} value(s) are not, "
                 f"at row positions {bad[:5].tolist()}."
             )
-        if weights.sum() <= 0:
+        if weights.max() <= 0:
             raise ValueError("`sample_weight` sums to zero; at least one row needs weight > 0.")
+        # Estimates do not depend on the weights' scale: mean one keeps sums and squares of
+        # 1e300 or 1e-300 weights finite and non-zero.
+        weights = weights / weights.max()
+        weights = weights / weights.mean()
         weighted = True
 
     if groups is not None:
@@ -361,14 +311,18 @@ def check_truncation_data(
                 f"`groups` has {int(pd.isna(groups).sum())} missing cluster label(s); give every "
                 "row a cluster."
             )
+        check_cluster_count(groups)
 
     known = np.ones(n, dtype=bool) if status_known is None else status_known == 1
     for arm, label in ((1, "treated"), (0, "control")):
         in_arm = (treatment == arm) & (weights > 0)
         if not in_arm.any():
+            emptied = " with `sample_weight` > 0" if (treatment == arm).any() else ""
             raise ValueError(
-                f"The {label} arm (treatment == {arm}) has no units; the effect needs both arms."
-            )
+                f"The {label} arm (treatment == {arm}) has no units{emptied}; the effect needs "
+                "both arms." + (" Every row of that arm has weight 0: give some of them a "
+                                "positive weight." if emptied else "")
+            )  # fmt: skip
         if outcome_observed is not None:
             _check_observed_arm(in_arm, known, survival, outcome_observed, label)
         in_arm = in_arm & known
@@ -414,6 +368,55 @@ def _check_observed_arm(in_arm, known, survival, outcome_observed, label):
             f"No survivor of the {label} arm has an observed outcome; the outcome cannot be "
             "modelled in that arm."
         )
+
+
+def _outcome_values(outcome, survival, status_known):
+    """``y`` as floats. Non-survivors' values are ignored: text, '' or missing markers there
+    become NaN; a survivor's value must be a number."""
+    if outcome.dtype.kind in "biuf":
+        return outcome.astype(float)
+    may_hold = (survival == 1) | (status_known == 0 if status_known is not None else False)
+    values = np.full(outcome.shape[0], np.nan)
+    bad = []
+    for i in np.flatnonzero(may_hold):
+        v = outcome[i]
+        if _is_real(v):
+            values[i] = float(v)
+        elif not _is_missing(v) and survival[i] == 1:
+            bad.append(i)
+    if bad:
+        raise TypeError(
+            f"`y` must be numeric for every survivor (survival == 1); {len(bad)} survivor(s) "
+            f"have non-numeric values such as {[outcome[i] for i in bad[:5]]} at row position(s) "
+            f"{[int(i) for i in bad[:5]]}. Non-survivors' values are ignored (they may be text, "
+            "'' or missing); convert the survivors' outcomes to numbers."
+        )
+    return values
+
+
+def _check_squares(values, name, remedy):
+    """Variances need squared sums: refuse values whose squares overflow double precision."""
+    if values.size:
+        with np.errstate(over="ignore"):
+            # Margin 100: influence values can be several times the values themselves.
+            total = 100.0 * np.sum(np.square(values))
+        if not np.isfinite(total):
+            raise ValueError(
+                f"`{name}` has values as large as {np.max(np.abs(values)):.3g}, whose squares "
+                f"overflow double precision (standard errors would be infinite); {remedy}."
+            )
+
+
+def check_cluster_count(groups):
+    """Cluster-robust errors need at least two clusters; returns the number of clusters."""
+    n_clusters = pd.unique(np.asarray(groups)).size
+    if n_clusters < 2:
+        raise ValueError(
+            f"`groups` has {n_clusters} cluster; cluster-robust standard errors need at least "
+            "two (with one, the variance between clusters cannot be estimated). Drop `groups` "
+            "or give the real cluster labels."
+        )
+    return n_clusters
 
 
 def check_level(level):

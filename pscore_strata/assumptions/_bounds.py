@@ -21,9 +21,11 @@ from scipy import optimize, stats
 from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
+from .._arguments import check_estimator_arguments, check_positive_integer
 from .._validation import check_choice, check_level, check_truncation_data
+from ..distributions._quantiles import check_quantiles
 from ..estimators import _formulas
-from ..inference._influence import influence_std_error
+from ..inference._influence import count_clusters, estimator_dof, influence_std_error
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import shared_nuisance
 from ._quantile_bounds import add_quantile_bounds
@@ -67,20 +69,22 @@ def binary_trimmed_means(success_share, share):
     return lower, upper
 
 
-def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95):
+def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95, dof=None):
     """Interval covering every point of the identified set with probability ``level``.
 
     Solves ``Phi(c + width / max(se)) - Phi(-c) = level`` for ``c`` (Imbens & Manski 2004,
-    Econometrica 72, section 4) and returns ``(lower - c se_lower, upper + c se_upper)``.
+    Econometrica 72, section 4) and returns ``(lower - c se_lower, upper + c se_upper)``. With
+    ``dof`` (few clusters) ``Phi`` is Student's t with ``dof`` degrees of freedom.
     """
+    reference = stats.norm if dof is None else stats.t(dof)
     width = max(upper - lower, 0.0)
     scale = max(se_lower, se_upper)
-    z_two_sided = stats.norm.ppf(0.5 + level / 2)
+    z_two_sided = reference.ppf(0.5 + level / 2)
     if not np.isfinite(scale) or scale <= 0:
         return float(lower - z_two_sided * se_lower), float(upper + z_two_sided * se_upper)
 
     def gap(c):
-        return stats.norm.cdf(c + width / scale) - stats.norm.cdf(-c) - level
+        return reference.cdf(c + width / scale) - reference.cdf(-c) - level
 
     c = 0.0 if gap(0.0) >= 0 else optimize.brentq(gap, 0.0, z_two_sided + 1.0, xtol=1e-12)
     return float(lower - c * se_lower), float(upper + c * se_upper)
@@ -129,6 +133,9 @@ class TrimmingBounds(BaseEstimator):
     cells_ : DataFrame
         Per cell: weight, always-survivor share among mixed-arm survivors ``q``, bounds on the
         mixed-arm always-survivor mean and the pure-arm mean.
+    n_clusters_ : int or None
+        Number of clusters in ``groups``; below 30 the intervals use Student's t with
+        ``n_clusters_ - 1`` degrees of freedom.
     n_clipped_cells_ : int
         Cells where the data gave ``q > 1`` (contradicting monotonicity); ``q`` was set to 1.
     quantile_bounds_ : DataFrame or None
@@ -214,11 +221,17 @@ class TrimmingBounds(BaseEstimator):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
         check_choice(self.strata, "strata", ("none", "score"))
         check_choice(self.missing, "missing", ("error", "at_random"))
+        # Every parameter is checked, also those the chosen options leave unused.
+        check_estimator_arguments(self)
+        check_positive_integer(self.n_strata, "n_strata")
+        if self.quantiles is not None:
+            check_quantiles(self.quantiles)
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups,
             models=(self.treatment_model, self.survival_model, self.response_model),
             missing=self.missing,
         )  # fmt: skip
+        self.n_clusters_ = count_clusters(data.groups)
         if self.strata == "score":
             if data.X is None:
                 raise ValueError(
@@ -230,11 +243,6 @@ class TrimmingBounds(BaseEstimator):
                     "Give either `cells` or `strata='score'`, not both: both define the cells "
                     "the trimming is done in."
                 )
-            n_strata = self.n_strata
-            if isinstance(n_strata, bool) or not isinstance(n_strata, int | np.integer):
-                raise TypeError(f"`n_strata` must be an integer >= 1; got {n_strata!r}.")
-            if n_strata < 1:
-                raise ValueError(f"`n_strata` must be an integer >= 1; got {n_strata}.")
         if nuisance is None:
             nuisance = fit_nuisance(
                 data, self.treatment_model, self.survival_model, random_state=None,
@@ -274,7 +282,17 @@ class TrimmingBounds(BaseEstimator):
         w, A, S, Y = o.weight, o.mixed, o.survival, o.outcome
         # Survival shares use rows of known status (weights A C / (pi c)), outcome distributions
         # the observed survivors (A C S R / (pi c r)); without missing data both are A / pi.
-        mixed_weight, pure_weight = o.known_mixed / o.pi, o.known_pure / (1 - o.pi)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            mixed_weight, pure_weight = o.known_mixed / o.pi, o.known_pure / (1 - o.pi)
+        degenerate = ~(np.isfinite(mixed_weight) & np.isfinite(pure_weight))
+        if degenerate.any():
+            raise ValueError(
+                f"The fitted treatment probability is 0 or 1 for {int(degenerate.sum())} of "
+                f"{o.pi.size} rows (perfect separation: too few rows for the treatment model, or "
+                "no overlap), so the inverse probability weights are infinite. Use more data, "
+                "X=None for a randomized trial, a known probability as `treatment_model`, or a "
+                "regularized model."
+            )
         mixed_observed, pure_observed = o.observed_mixed / o.pi, o.observed_pure / (1 - o.pi)
         response_parts = []
         total = w.sum()
@@ -404,7 +422,8 @@ class TrimmingBounds(BaseEstimator):
             ``"effect"`` covers the true SACE (every point of the identified set) with
             probability ``level`` (Imbens & Manski 2004); ``"identified_set"`` covers the whole
             set ``[lower, upper]`` at once, using ``z_{(1+level)/2}`` at each end (union
-            bound), and is wider.
+            bound), and is wider. With fewer than 30 clusters in ``groups`` both use Student's
+            t with ``n_clusters_ - 1`` degrees of freedom instead of the normal.
 
         Returns
         -------
@@ -413,14 +432,15 @@ class TrimmingBounds(BaseEstimator):
         check_is_fitted(self, "lower_")
         level = check_level(level)
         check_choice(coverage, "coverage", ("effect", "identified_set"))
+        dof = estimator_dof(self)
         if coverage == "identified_set":
-            z = stats.norm.ppf(0.5 + level / 2)
+            z = (stats.norm if dof is None else stats.t(dof)).ppf(0.5 + level / 2)
             return (
                 float(self.lower_ - z * self.std_error_lower_),
                 float(self.upper_ + z * self.std_error_upper_),
             )
         return imbens_manski_interval(
-            self.lower_, self.upper_, self.std_error_lower_, self.std_error_upper_, level
+            self.lower_, self.upper_, self.std_error_lower_, self.std_error_upper_, level, dof
         )
 
     def summary(self, level=0.95):

@@ -23,7 +23,7 @@ import pandas as pd
 from ..estimators import _formulas
 from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import influence_std_error, normal_interval
+from ..inference._influence import estimator_dof, influence_std_error, normal_interval
 
 __all__ = ["outcome_shift_grid", "shifted_effect"]
 
@@ -144,7 +144,7 @@ def outcome_shift_grid(estimator, outcome_shift, level):
             effects.append(float(effect))
             errors.append(influence_std_error(influence, data.sample_weight, data.groups))
         effect, se = median_aggregate(effects, errors)
-        low, high = normal_interval(effect, se, level, log_scale)
+        low, high = normal_interval(effect, se, level, log_scale, estimator_dof(estimator))
         rows.append({**columns, "effect": float(effect), "std_error": float(se), "ci_low": low,
                      "ci_high": high, "n_rows_clipped": 0})  # fmt: skip
     table = pd.DataFrame(rows)

@@ -33,7 +33,7 @@ from .._validation import check_level
 from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import normal_interval
+from ..inference._influence import estimator_dof, normal_interval
 from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
@@ -221,6 +221,15 @@ def _check_value(name, value):
     value = float(value)
     if not np.isfinite(value):
         raise ValueError(f"`{name}` values must be finite; got {value}.")
+    with np.errstate(over="ignore"):
+        # Standard errors sum n squared influence values proportional to the parameter; the
+        # margin 1e6 leaves room for a million rows.
+        overflows = not np.isfinite(value * value * 1e6)
+    if overflows:
+        raise ValueError(
+            f"`{name}` value {value:.3g} is too large: its square overflows double precision, "
+            "so the standard error would be infinite. Use values on the outcome's scale."
+        )
     if name == "pi_ratio" and value <= 0:
         raise ValueError(f"`pi_ratio` values must be positive; got {value}.")
     if name == "harmed_ratio" and not 0 <= value < 1:
@@ -390,7 +399,7 @@ def sensitivity_grid(
     for values in itertools.product(*axes.values()):
         setting = dict(zip(axes, values, strict=True))
         effect, se, clipped = _effect_and_error(estimator, setting, path)
-        low, high = normal_interval(effect, se, level, log_scale)
+        low, high = normal_interval(effect, se, level, log_scale, estimator_dof(estimator))
         rows.append({**setting, "effect": effect, "std_error": se, "ci_low": low,
                      "ci_high": high, "n_rows_clipped": clipped})  # fmt: skip
     table = pd.DataFrame(rows)
@@ -399,4 +408,14 @@ def sensitivity_grid(
         "strong a departure from the assumptions would have to be to change the conclusion.",
         CAUTIONS,
     ]
+    most = int(table["n_rows_clipped"].max())
+    if most:
+        # Clipping makes the adjusted estimate jump (tipping_point refuses roots there).
+        table.attrs["notes"].insert(1, (
+            f"At {int((table['n_rows_clipped'] > 0).sum())} of {len(table)} settings some rows' "
+            f"implied always-survivor score was negative and was set to 0 (up to {most} of "
+            f"{estimator.training_data_.n_samples} rows; column n_rows_clipped): there the "
+            "harmed_ratio is too large for those rows and the estimate describes the clipping "
+            "as much as the data."
+        ))  # fmt: skip
     return table

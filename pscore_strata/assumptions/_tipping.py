@@ -12,7 +12,7 @@ import warnings
 import numpy as np
 from scipy import optimize
 
-from ..inference._influence import normal_interval
+from ..inference._influence import estimator_dof, normal_interval
 from ._sensitivity import (
     _NULL,
     _check_estimator,
@@ -38,7 +38,8 @@ def tipping_point(
         on ratio scales); ``"estimate"``: where the estimate reaches it.
     level : float, default=0.95
     search : (float, float), optional
-        Range of the parameter to search; defaults to ``±20`` outcome standard deviations for
+        Range of the parameter to search, ``(low, high)`` around the null value and inside
+        the parameter's range; defaults to ``±20`` outcome standard deviations for
         ``pi_difference``, ``[1/50, 50]`` for ``pi_ratio`` and ``[0, 0.999]`` for
         ``harmed_ratio``.
 
@@ -47,7 +48,10 @@ def tipping_point(
     float
         The parameter value nearest the null value (on the log scale for ``pi_ratio``) at which
         the criterion is met, found by Brent's method on the no-refit formulas; ``0``/``1`` if
-        it is met at the null already; NaN (with a warning) if not met inside ``search``.
+        it is met at the null already; NaN with a warning giving the reason ("not reached")
+        if it is not met inside ``search``, if the criterion jumps across the null instead of
+        reaching it (where principal scores are clipped, ``harmed_ratio``), or if more than
+        half of the rows' principal scores are clipped at the crossing.
 
     Examples
     --------
@@ -71,11 +75,12 @@ def tipping_point(
     sign = np.sign(estimator.effect_ - null_effect)
     # Built once: the oriented predictions, and for pi_difference the affine path (_paths.py).
     path = sensitivity_path(estimator)
+    dof = estimator_dof(estimator)
 
     def criterion_gap(effect, se):
         if criterion == "estimate":
             return sign * (effect - null_effect)
-        low, high = normal_interval(effect, se, level, log_scale)
+        low, high = normal_interval(effect, se, level, log_scale, dof)
         return low - null_effect if sign > 0 else null_effect - high
 
     def distance(value):
@@ -83,6 +88,7 @@ def tipping_point(
         return criterion_gap(*_effect_and_error(estimator, setting, path)[:2])
 
     null = _NULL[parameter]
+    search = _check_search(search, parameter, null)
     if distance(null) <= 0:
         return null
     if search is None:
@@ -114,16 +120,59 @@ def tipping_point(
                 break
             previous = point
     if not found:
-        warnings.warn(
-            f"The {criterion} does not reach the null effect for {parameter} in {search}; "
-            "returning NaN.",
-            UserWarning,
-            stacklevel=2,
-        )
-        return float("nan")
+        return _not_reached(f"the {criterion} does not reach the null effect for {parameter} in "
+                            f"{tuple(search)}")  # fmt: skip
     if parameter == "pi_ratio":
-        return float(min(found, key=lambda v: abs(np.log(v))))
-    return float(min(found, key=lambda v: abs(v - null)))
+        root = float(min(found, key=lambda v: abs(np.log(v))))
+    else:
+        root = float(min(found, key=lambda v: abs(v - null)))
+    # The criterion is continuous except where principal scores are clipped (harmed_ratio:
+    # rows whose implied always-survivor score would be negative); there Brent's method
+    # converges to the jump. A root is returned only if the criterion is zero there.
+    effect, se, clipped = _effect_and_error(estimator, {parameter: root}, path)
+    gap = criterion_gap(effect, se)
+    tolerance = _ROOT_TOLERANCE * (abs(estimator.effect_) + estimator.std_error_)
+    n = data.n_samples
+    if clipped > _CLIPPED_SHARE * n:
+        return _not_reached(
+            f"at {parameter}={root:.4g} the {criterion} meets the null effect only where {clipped}"
+            f" of {n} rows have clipped principal scores (more than {_CLIPPED_SHARE:.0%}), so the"
+            " answer rests on rows the sensitivity model cannot describe"
+        )
+    if not abs(gap) <= tolerance:
+        return _not_reached(
+            f"the {criterion} jumps across the null effect at {parameter}={root:.4g} (it is "
+            f"{gap:.3g} away there, with {clipped} of {n} rows' principal scores clipped) "
+            "instead of reaching it continuously; see sensitivity_grid around that value"
+        )
+    return root
+
+
+# |criterion| at the returned root, relative to |effect| + SE (Brent's xtol is 1e-10).
+_ROOT_TOLERANCE = 1e-6
+# Beyond half the rows clipped, the adjusted estimate describes the clipping more than the data.
+_CLIPPED_SHARE = 0.5
+
+
+def _not_reached(reason):
+    warnings.warn(f"Tipping point not reached: {reason}; returning NaN.", UserWarning,
+                  stacklevel=3)  # fmt: skip
+    return float("nan")
+
+
+def _check_search(search, parameter, null):
+    if search is None:
+        return None
+    try:
+        ends = tuple(float(_check_value(parameter, v)) for v in search)
+    except (TypeError, ValueError):
+        ends = ()
+    if len(ends) != 2 or ends[0] == ends[1] or not min(ends) <= null <= max(ends):
+        raise ValueError(
+            f"`search` must be two different values of `{parameter}` around its null value "
+            f"{null}, as (low, high), inside the parameter's range; got {search!r}."
+        )
+    return ends
 
 
 def _path(null, end, parameter, n_points=40):

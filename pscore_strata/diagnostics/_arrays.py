@@ -23,6 +23,18 @@ ROW_SHARE_TOLERANCE = 0.05
 
 def oriented_predictions(estimator):
     if not (hasattr(estimator, "nuisance_") and hasattr(estimator, "training_data_")):
+        if hasattr(estimator, "lower_") and hasattr(estimator, "upper_"):
+            raise TypeError(
+                f"`estimator` is a fitted {type(estimator).__name__}: bounds keep no principal "
+                "score weights to diagnose. Pass a fitted PrincipalScoreWeighting, "
+                "OutcomeRegression or MultiplyRobust (with the same models) instead."
+            )
+        if isinstance(estimator, type):
+            raise TypeError(
+                f"`estimator` must be a fitted estimator; got the class {estimator.__name__}. "
+                f"Fit an instance first: {estimator.__name__}().fit(X, y, treatment=..., "
+                "survival=...)."
+            )
         if hasattr(estimator, "fit") and hasattr(estimator, "get_params"):
             raise NotFittedError(
                 f"This {type(estimator).__name__} is not fitted yet; call "

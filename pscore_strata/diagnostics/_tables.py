@@ -65,6 +65,12 @@ def _covariate_matrix(X, n_rows):
         )
     if isinstance(X, pd.Series):
         X = X.to_frame()
+    if isinstance(X, pd.DataFrame) and X.columns.duplicated().any():
+        raise ValueError(
+            f"`X` has duplicated column name(s) "
+            f"{sorted({str(c) for c in X.columns[X.columns.duplicated()]})}; each balance row "
+            "needs its own name. Rename or drop the copies."
+        )
     if not isinstance(X, pd.DataFrame):
         array = np.asarray(X)
         if array.ndim != 2:

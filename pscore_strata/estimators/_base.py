@@ -15,9 +15,24 @@ from joblib import Parallel, delayed
 from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
+try:
+    from sklearn.utils.validation import _check_feature_names
+except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
+
+    def _check_feature_names(estimator, X, *, reset):
+        return estimator._check_feature_names(X, reset=reset)
+
+from .._arguments import check_estimator_arguments, check_n_folds
 from .._validation import check_choice, check_features, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
-from ..inference._influence import influence_std_error, normal_interval, resample_rows, spawn_seeds
+from ..inference._influence import (
+    count_clusters,
+    influence_std_error,
+    normal_interval,
+    reference_dof,
+    resample_rows,
+    spawn_seeds,
+)
 from ..inference._refits import _seed_models
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
@@ -48,22 +63,25 @@ class SurvivorEffectEstimator(BaseEstimator):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
         check_choice(self.scale, "scale", _SCALES)
         check_choice(self.missing, "missing", ("error", "at_random"))
-        n_bootstrap = getattr(self, "n_bootstrap", 0)
-        if not isinstance(n_bootstrap, int | np.integer) or n_bootstrap < 0:
-            raise ValueError(f"`n_bootstrap` must be a non-negative integer; got {n_bootstrap!r}.")
+        check_estimator_arguments(self)
         return check_repeats(getattr(self, "n_repeats", 1), self.n_folds)
 
     def _fit_nuisance(self, data, random_state, sandwich=True):
+        # Learners left at random_state=None are seeded from `random_state` (as the bootstrap
+        # seeds them per replicate), so two fits with the same random_state agree.
+        models = self if random_state is None else _seed_models(
+            clone(self), spawn_seeds(random_state, 1)[0]
+        )  # fmt: skip
         fitted = fit_nuisance(
             data,
-            self.treatment_model,
-            self.survival_model,
-            getattr(self, "outcome_model", None),
+            models.treatment_model,
+            models.survival_model,
+            getattr(models, "outcome_model", None),
             fit_outcome=self._uses_outcome_model,
             n_folds=self.n_folds,
             random_state=random_state,
             treatment_enters_estimate=self._treatment_enters_estimate,
-            response_model=self.response_model,
+            response_model=models.response_model,
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=sandwich and self._formula is not _formulas.robust_means,
         )
@@ -89,12 +107,16 @@ class SurvivorEffectEstimator(BaseEstimator):
         sample_weight : array-like of shape (n_samples,), optional
             Survey (sampling) or frequency weights. Every model is fitted with them and every
             mean in the formulas is weighted, so an integer weight gives the same point
-            estimate as repeating the row that many times. Standard errors treat each row as
+            estimate as repeating the row that many times; only their relative sizes matter
+            (they are rescaled to mean one internally). Standard errors treat each row as
             one sampled unit carrying its weight (linearization variance
             ``sum_i (w_i IF_i)^2 / (sum_i w_i)^2``): right for survey weights, conservative
             for frequency weights (repeat the rows to get the frequency-weight error).
         groups : array-like of shape (n_samples,), optional
-            Cluster labels: standard errors add influence values within clusters.
+            Cluster labels: standard errors add influence values within clusters. At least two
+            clusters are needed; with fewer than 30 (common practice) a
+            :class:`FewClustersWarning` is raised and :meth:`conf_int` and :meth:`summary` use
+            Student's t with ``n_clusters_ - 1`` degrees of freedom instead of the normal.
         nuisance : NuisanceFit, optional
             The ``nuisance_`` of another estimator fitted on the same rows with the same
             models, folds and monotonicity (outcome regression and multiply robust share five
@@ -111,6 +133,12 @@ class SurvivorEffectEstimator(BaseEstimator):
             X, y, treatment, survival, sample_weight, groups, models=self._models(),
             missing=self.missing,
         )
+        check_n_folds(self.n_folds, data)
+        n_clusters = count_clusters(data.groups)
+        if X is not None:
+            # scikit-learn's convention: feature_names_in_ for DataFrames with string names,
+            # checked again by predict_proba.
+            _check_feature_names(self, data.X, reset=True)
         if self.scale == "odds_ratio" and not data.binary_outcome:
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
@@ -131,6 +159,7 @@ class SurvivorEffectEstimator(BaseEstimator):
                 for seed in repeat_seeds(self.random_state, n_repeats)
             ]
         self._store(data, fits)
+        self.n_clusters_ = n_clusters
         if self.std_error_method_ == "bootstrap":
             self._bootstrap_std_errors(data)
         return self
@@ -272,15 +301,25 @@ class SurvivorEffectEstimator(BaseEstimator):
     def conf_int(self, level=0.95):
         """Normal-approximation confidence interval for the SACE (log scale for ratios).
 
+        With fewer than 30 clusters in ``groups`` the reference is Student's t with
+        ``n_clusters_ - 1`` degrees of freedom (a :class:`FewClustersWarning` is raised at fit).
+
         Returns
         -------
         (low, high) : tuple of float
         """
         check_is_fitted(self, "effect_")
-        return normal_interval(self.effect_, self.std_error_, level, self.scale != "difference")
+        return normal_interval(
+            self.effect_, self.std_error_, level, self.scale != "difference",
+            dof=reference_dof(getattr(self, "n_clusters_", None)),
+        )  # fmt: skip
 
     def predict_proba(self, X):
         """Principal scores per row, columns in ``classes_`` order.
+
+        Columns are checked as scikit-learn checks them: a DataFrame must have the names and
+        order seen in ``fit`` (``feature_names_in_``; otherwise a ValueError), and mixing a
+        DataFrame with an array between ``fit`` and here warns and matches columns by position.
 
         Under monotonicity the always-survivor score is the survival probability in the pure arm,
         the helped stratum's score the difference of the arms' survival probabilities, and the
@@ -298,6 +337,7 @@ class SurvivorEffectEstimator(BaseEstimator):
         """
         check_is_fitted(self, "effect_")
         index = X.index if isinstance(X, pd.DataFrame) else None
+        X = _match_feature_names(self, X)
         X, n_features, _ = check_features(X, self._models())
         if n_features != self.n_features_in_:
             raise ValueError(
@@ -388,6 +428,22 @@ def _one_replicate(estimator, data, seed):
     # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
     # count it as a failed fit, as the full-sample fit would refuse it.
     return values if np.all(np.isfinite(values)) else None
+
+
+def _match_feature_names(estimator, X):
+    """scikit-learn's feature-name check; after its warning, ``X`` takes the fitted form so the
+    nuisance models do not warn again."""
+    if X is None:
+        return X
+    _check_feature_names(estimator, X, reset=False)
+    names = getattr(estimator, "feature_names_in_", None)
+    if isinstance(X, pd.DataFrame) and names is None:
+        return X.to_numpy()
+    if names is not None and not isinstance(X, pd.DataFrame):
+        values = np.asarray(X)
+        if values.ndim == 2 and values.shape[1] == len(names):
+            return pd.DataFrame(values, columns=names)
+    return X
 
 
 def _principal_scores(p_mixed, p_pure):

@@ -29,7 +29,9 @@ _COMMON_PARAMETERS = """
         K-fold cross-fitting of every nuisance model (folds stratified by treatment x
         survival); ``None`` fits on all rows.
     random_state : int, RandomState or None, default=None
-        Seeds the folds and the bootstrap.
+        Seeds the folds and the bootstrap, and every nuisance learner whose own
+        ``random_state`` is left at ``None`` (a random forest, say), so two fits with the same
+        value agree. Learners with a ``random_state`` of their own keep it.
     missing : {"error", "at_random"}, default="error"
         ``"error"`` refuses NaN survival (status unknown: lost to follow-up) and NaN outcomes of
         survivors. ``"at_random"`` assumes both are missing at random given X within each arm
@@ -81,6 +83,9 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     training_data_ : TruncationData
         The validated training data without ``X``.
     n_monotonicity_violations_ : int
+    n_clusters_ : int or None
+        Number of clusters in ``groups`` (``None`` without them); below 30 the intervals use
+        Student's t with ``n_clusters_ - 1`` degrees of freedom.
 
     See Also
     --------

@@ -14,7 +14,7 @@ import pandas as pd
 from sklearn.base import is_classifier
 
 from .._validation import _one_dimensional, check_features
-from ..inference._influence import influence_std_error, normal_interval
+from ..inference._influence import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._fit import predict_models
 from . import _formulas
 from ._repeats import median_aggregate
@@ -93,8 +93,9 @@ def subgroup_effects(estimator, labels, level):
             errors[r, code] = influence_std_error(influence, w, data.groups)
     effect, std_error = median_aggregate(effects, errors)
     log_scale = estimator.scale != "difference"
+    dof = estimator_dof(estimator)
     intervals = [
-        normal_interval(e, s, level, log_scale) for e, s in zip(effect, std_error, strict=True)
+        normal_interval(e, s, level, log_scale, dof) for e, s in zip(effect, std_error, strict=True)
     ]
     table = pd.DataFrame(
         {

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 
 from ..diagnostics._tables import diagnostic_warnings
-from ..inference._influence import influence_std_error, normal_interval
+from ..inference._influence import estimator_dof, influence_std_error, normal_interval
 from ._repeats import median_aggregate
 
 __all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
@@ -59,8 +59,9 @@ def summary_table(estimator, level):
     )
     table = pd.DataFrame(rows, columns=["quantity", "estimate", "std_error", "std_error_method"])
     log_first = estimator.scale != "difference"
+    dof = estimator_dof(estimator)
     intervals = [
-        normal_interval(est, se, level, i == 0 and log_first)
+        normal_interval(est, se, level, i == 0 and log_first, dof=dof)
         for i, (est, se) in enumerate(zip(table["estimate"], table["std_error"], strict=True))
     ]
     table.insert(3, "ci_low", [low for low, _ in intervals])

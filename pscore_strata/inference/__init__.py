@@ -7,6 +7,7 @@ units (or clusters) and refits, in parallel through joblib.
 
 from ._bootstrap import BootstrapResult, bootstrap
 from ._influence import (
+    FewClustersWarning,
     bca_interval,
     influence_std_error,
     jackknife_blocks,
@@ -21,6 +22,7 @@ from ._influence import (
 
 __all__ = [
     "bootstrap",
+    "FewClustersWarning",
     "BootstrapResult",
     "influence_std_error",
     "normal_interval",

@@ -7,6 +7,7 @@ given ``random_state`` gives the same replicates for any ``n_jobs`` and any jobl
 
 from __future__ import annotations
 
+import inspect
 import os
 import warnings
 
@@ -23,6 +24,7 @@ from ._influence import (
     multiplier_draws,
     normal_interval,
     percentile_interval,
+    reference_dof,
     run_tasks,
     spawn_seeds,
 )
@@ -77,7 +79,9 @@ def bootstrap(
         Resample within each arm, keeping the arm sizes fixed (a randomized design's sampling).
     groups : array-like of shape (n_samples,), optional
         Cluster labels: whole clusters are resampled (within arms if each cluster lies in one
-        arm), and the multiplier method draws one multiplier per cluster.
+        arm), and the multiplier method draws one multiplier per cluster. At least two
+        clusters are needed; with fewer than 30 the estimator warns (:class:`FewClustersWarning`)
+        and the ``"normal"`` interval uses Student's t with ``G - 1`` degrees of freedom.
     sample_weight : array-like of shape (n_samples,), optional
         Passed to every fit; resampled rows keep their weights.
     n_jackknife_groups : int, default=25
@@ -183,6 +187,7 @@ def bootstrap(
 
     return BootstrapResult(
         estimate=pd.Series(estimate, index=list(names)),
+        dof=reference_dof(None if inputs.groups is None else pd.unique(inputs.groups).size),
         replicates=replicates,
         n_resamples=n_resamples,
         n_failed=len(failures),
@@ -213,8 +218,10 @@ class BootstrapResult:
     notes : list of str
     """
 
-    def __init__(self, *, estimate, replicates, n_resamples, n_failed, method, acceleration, notes):
+    def __init__(self, *, estimate, replicates, n_resamples, n_failed, method, acceleration, notes,
+                 dof=None):  # fmt: skip
         self._estimate = estimate
+        self._dof = dof
         self.replicates = replicates
         self.n_resamples = n_resamples
         self.n_failed = n_failed
@@ -249,7 +256,8 @@ class BootstrapResult:
         kind : {"percentile", "bca", "normal"}, default="percentile"
             ``"bca"`` corrects the percentiles for bias and skewness (Efron 1987); for the
             resample method its acceleration needs one refit per jackknife block.
-            ``"normal"`` is ``estimate +/- z * std_error``.
+            ``"normal"`` is ``estimate +/- z * std_error``; with fewer than 30 clusters in
+            ``groups``, ``z`` is the quantile of Student's t with ``G - 1`` degrees of freedom.
         """
         level = check_level(level)
         check_choice(kind, "kind", ("percentile", "bca", "normal"))
@@ -264,7 +272,8 @@ class BootstrapResult:
         else:
             se = self.replicates.std(ddof=1)
             low, high = np.transpose(
-                [normal_interval(e, s, level) for e, s in zip(self._estimate, se, strict=True)]
+                [normal_interval(e, s, level, dof=self._dof)
+                 for e, s in zip(self._estimate, se, strict=True)]  # fmt: skip
             )
         if len(names) == 1:
             return float(low[0]), float(high[0])
@@ -358,10 +367,24 @@ def _describe(method, stratify, clustered, failures, extra):
 
 
 def _check_params(estimator, n_resamples, method, multiplier, stratify, progress, n_groups):
+    if isinstance(estimator, type):
+        raise TypeError(
+            f"`estimator` must be an estimator instance; got the class {estimator.__name__}. "
+            f"Pass {estimator.__name__}() (with its settings) instead."
+        )
     if not (hasattr(estimator, "fit") and hasattr(estimator, "get_params")):
         raise TypeError(
             f"`estimator` must be a scikit-learn style estimator with fit and get_params; got "
             f"{type(estimator).__name__}."
+        )
+    parameters = inspect.signature(estimator.fit).parameters
+    open_keywords = any(p.kind is inspect.Parameter.VAR_KEYWORD for p in parameters.values())
+    if not (open_keywords or {"treatment", "survival"} <= set(parameters)):
+        raise TypeError(
+            f"`estimator` must estimate a survivor average causal effect (or its bounds), with "
+            f"fit(X, y, treatment=..., survival=...); {type(estimator).__name__}.fit takes no "
+            "`treatment` and `survival`. Pass PrincipalScoreWeighting(), OutcomeRegression(), "
+            "MultiplyRobust() or TrimmingBounds()."
         )
     for value, name, low in ((n_resamples, "n_resamples", 2), (n_groups, "n_jackknife_groups", 2)):
         if isinstance(value, bool) or not isinstance(value, int | np.integer) or value < low:

@@ -10,6 +10,7 @@ used by :func:`pscore_strata.bootstrap` live here too.
 from __future__ import annotations
 
 import sys
+import warnings
 
 import numpy as np
 import pandas as pd
@@ -19,6 +20,11 @@ from scipy import stats
 from .._validation import check_level
 
 __all__ = [
+    "FewClustersWarning",
+    "FEW_CLUSTERS",
+    "count_clusters",
+    "reference_dof",
+    "estimator_dof",
     "influence_std_error",
     "normal_interval",
     "spawn_seeds",
@@ -33,6 +39,45 @@ __all__ = [
     "multiplier_draws",
     "run_tasks",
 ]
+
+
+# Below this many clusters a cluster-robust standard error is itself noisy and the normal
+# reference too narrow; a t reference with G - 1 degrees of freedom is common practice.
+FEW_CLUSTERS = 30
+
+
+class FewClustersWarning(UserWarning):
+    """Cluster-robust inference with fewer than 30 clusters (intervals use a t reference)."""
+
+
+def count_clusters(groups, stacklevel=3):
+    """Number of clusters (``None`` without ``groups``); warns when there are few."""
+    if groups is None:
+        return None
+    n_clusters = int(pd.unique(np.asarray(groups)).size)
+    if n_clusters < FEW_CLUSTERS:
+        warnings.warn(
+            f"Only {n_clusters} clusters in `groups` (fewer than {FEW_CLUSTERS}): the "
+            "cluster-robust standard error is imprecise, so confidence intervals use a t "
+            f"reference with {n_clusters - 1} degrees of freedom (G - 1) instead of the normal. "
+            "Even so they may undercover with very few clusters; treat them with caution.",
+            FewClustersWarning,
+            stacklevel=stacklevel,
+        )
+    return n_clusters
+
+
+def reference_dof(n_clusters):
+    """Degrees of freedom of the interval's t reference: ``G - 1`` with few clusters, else
+    ``None`` (normal reference)."""
+    if n_clusters is None or n_clusters >= FEW_CLUSTERS:
+        return None
+    return n_clusters - 1
+
+
+def estimator_dof(estimator):
+    """:func:`reference_dof` of a fitted estimator (its ``n_clusters_``)."""
+    return reference_dof(getattr(estimator, "n_clusters_", None))
 
 
 def influence_std_error(influence, sample_weight=None, groups=None):
@@ -73,10 +118,15 @@ def influence_std_error(influence, sample_weight=None, groups=None):
     return float(result) if influence.ndim == 1 else result
 
 
-def normal_interval(estimate, std_error, level=0.95, log_scale=False):
-    """Wald interval; on the log scale (then exponentiated) for ratio effects."""
+def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
+    """Wald interval; on the log scale (then exponentiated) for ratio effects.
+
+    With ``dof`` (few clusters: see :func:`reference_dof`) the quantile is Student's t with
+    ``dof`` degrees of freedom instead of the normal one.
+    """
     level = check_level(level)
-    z = stats.norm.ppf(0.5 + level / 2)
+    reference = stats.norm if dof is None else stats.t(dof)
+    z = reference.ppf(0.5 + level / 2)
     if log_scale:
         if estimate <= 0:
             return (float("nan"), float("nan"))
