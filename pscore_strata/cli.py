@@ -47,9 +47,24 @@ def _check_bootstrap(n_resamples):
         print(f"warning: {bootstrap_warning(n_resamples)}", file=sys.stderr)
 
 
+def _check_seed(seed):
+    # scikit-learn's random_state (folds, boosting, bootstrap) takes 0 .. 2**32 - 1.
+    if not 0 <= seed < 2**32:
+        raise ValueError(f"--seed must be an integer from 0 to {2**32 - 1}; got {seed}.")
+
+
+def _check_out_dir(out):
+    # Before the analysis: a wrong --out must not cost a whole analysis, nor leave figures.
+    from .report._data import InputError
+    from .report._file_checks import check_output_dir
+
+    check_output_dir(out, "--out", InputError)
+
+
 def _options(args):
     from .report import AnalysisOptions
 
+    _check_seed(args.seed)
     if args.folds is not None and args.folds < 2:
         raise ValueError(f"--folds must be at least 2; got {args.folds}.")
     _check_bootstrap(args.bootstrap)
@@ -143,6 +158,7 @@ def _analyze(args):
     from .report import ColumnRoles, analyze_frame, read_table
 
     options = _options(args)
+    _check_out_dir(args.out)
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
@@ -180,6 +196,7 @@ def _demo(args):
         categorical=tuple(DEMO_ROLES["categorical"]),
     )
     _check_bootstrap(args.bootstrap)
+    _check_out_dir(args.out)
     print("Invented critical-care registry (simulated patients, not real people).")
     options = AnalysisOptions(
         bootstrap=args.bootstrap, unit_name="patient",
@@ -194,6 +211,27 @@ def _demo(args):
     return 0
 
 
+def _simulation_out(args):
+    from .report._data import InputError
+    from .report._file_checks import check_output_file
+
+    _check_seed(args.seed)
+    out = Path(args.out)
+    if out.suffix.lower() not in (".csv", ".parquet"):
+        raise ValueError(f"--out '{out.name}' must end in .csv or .parquet.")
+    check_output_file(out, "--out", InputError)
+    return out
+
+
+def _write_simulated(frame, out):
+    """Write through a temporary file, so an interrupted write leaves no half-written data."""
+    from .report._file_checks import write_atomic
+
+    if out.suffix.lower() == ".csv":
+        return write_atomic(out, lambda path: frame.to_csv(path, index=False))
+    return write_atomic(out, lambda path: frame.to_parquet(path, index=False))
+
+
 def _simulate(args):
     import numpy as np
     import pandas as pd
@@ -205,9 +243,7 @@ def _simulate(args):
         raise ValueError(f"Unknown scenario '{args.scenario}'. Available: {', '.join(names)}.")
     if args.n < 10:
         raise ValueError(f"--n must be at least 10 rows; got {args.n}.")
-    out = Path(args.out)
-    if out.suffix.lower() not in (".csv", ".parquet"):
-        raise ValueError(f"--out '{out.name}' must end in .csv or .parquet.")
+    out = _simulation_out(args)
     data = make_scenario(args.scenario, args.n, random_state=args.seed)
     frame = pd.DataFrame(data.X, columns=[f"x{j + 1}" for j in range(data.X.shape[1])])
     frame["treatment"] = np.asarray(data.treatment, dtype=int)
@@ -217,13 +253,10 @@ def _simulate(args):
     frame["outcome"] = data.y
     if data.get("groups") is not None:
         frame["cluster"] = data.groups
-    out.parent.mkdir(parents=True, exist_ok=True)
-    if out.suffix.lower() == ".csv":
-        frame.to_csv(out, index=False)
-    else:
-        frame.to_parquet(out, index=False)
+    replaced = _write_simulated(frame, out)
     covariates = " ".join(c for c in frame.columns if c.startswith("x"))
-    print(f"Wrote {len(frame)} rows of scenario '{args.scenario}' to {out}; true SACE "
+    print(f"Wrote {len(frame)} rows of scenario '{args.scenario}' to {out}"
+          f"{' (replacing the file there)' if replaced else ''}; true SACE "
           f"{data.true_effect:.4f}.")  # fmt: skip
     print(f"Analyse it with: pscore-strata analyze {out} --outcome outcome --treatment treatment "
           f"--survival survival --covariates {covariates}"

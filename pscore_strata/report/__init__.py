@@ -10,7 +10,7 @@ written.
 from __future__ import annotations
 
 from ._analysis import SCHEMA_VERSION, Analysis, AnalysisOptions, build_estimator, run_analysis
-from ._data import ColumnRoles, InputError, PreparedData, prepare_data, read_table
+from ._data import ColumnRoles, InputError, PreparedData, check_folds, prepare_data, read_table
 from ._html import render_html, schema, write_report
 
 __all__ = [
@@ -60,6 +60,7 @@ def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=F
     options = options or AnalysisOptions()
     data = prepare_data(frame, roles, drop_incomplete=drop_incomplete, missing=options.missing,
                         treated_value=treated_value, survived_value=survived_value)  # fmt: skip
+    check_folds(data, options)
     analysis = run_analysis(data, roles, options, source=source, progress=progress)
     if out_dir is not None:
         if progress:

@@ -14,8 +14,9 @@ import pandas as pd
 
 from . import _coding, _readers
 
-__all__ = ["InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data"]
-
+__all__ = [
+    "InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data", "check_folds",
+]
 
 
 class InputError(ValueError):
@@ -97,6 +98,13 @@ def _check_columns(frame, roles):
         "--weights": [roles.weights] if roles.weights else [],
         "--by": [roles.by] if roles.by else [],
     }
+    for option in ("--covariates", "--categorical"):
+        twice = sorted({str(n) for n in options[option] if options[option].count(n) > 1})
+        if twice:
+            raise InputError(
+                f"{option} lists {', '.join(map(repr, twice))} more than once; list each column "
+                "once."
+            )
     unknown = [
         f"{option} '{name}'"
         for option, names in options.items()
@@ -141,6 +149,52 @@ def _indicator(frame, column, option, allow_blank=False):
             f"{shown}. Recode it first."
         )
     return numeric.to_numpy(dtype=np.int8)
+
+
+def _check_clusters(values, column):
+    # One cluster leaves a cluster-robust standard error nothing to vary over (0 / 0).
+    levels = pd.unique(values.dropna())
+    if len(levels) < 2:
+        shown = f"the single value {str(levels[0])!r}" if len(levels) else "no values"
+        raise InputError(
+            f"--cluster column '{column}' holds {shown} in the analysed rows; cluster-robust "
+            "standard errors need at least two clusters. Name the column that identifies the "
+            "clusters, or leave out --cluster."
+        )
+
+
+def check_folds(data, options):
+    """Refuse cross-fitting folds that outnumber the rows of a treatment x survival cell.
+
+    The folds are stratified on treatment x survival (``nuisance/_fit.py``), so every fold
+    holds each cell only when the cell has at least as many rows as there are folds.
+    """
+    from ._options import model_settings
+
+    _, folds = model_settings(options, len(data.treatment))
+    if folds is None:
+        return
+    treated, control = data.levels.get("treatment", ("1", "0"))
+    survived, event = data.levels.get("survival", ("1", "0"))
+    cells = pd.DataFrame({
+        "treatment": np.where(data.treatment == 1, treated, control),
+        "survival": np.where(np.isnan(data.survival.astype(float)), "unknown",
+                             np.where(data.survival == 1, survived, event)),
+    }).value_counts()  # fmt: skip
+    (arm, status), smallest = cells.idxmin(), int(cells.min())
+    if smallest >= folds:
+        return
+    if options.folds is None:
+        chosen = f"--learner {options.learner} cross-fits with {folds} folds by default,"
+    else:
+        chosen = f"--folds {folds} asks for"
+    fix = (f"pass --folds {smallest} or fewer" if smallest >= 2 else
+           "that is too few to cross-fit; use --learner linear without --folds")  # fmt: skip
+    raise InputError(
+        f"{chosen} more folds than the smallest treatment x survival cell has rows (--treatment "
+        f"'{arm}' with --survival '{status}': {smallest} row(s)); every fold needs rows of each "
+        f"cell: {fix}."
+    )
 
 
 def _coded_indicator(frame, column, option, value, allow_blank=False):
@@ -276,6 +330,8 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
                 "row needs a positive weight."
             )
     groups = None if roles.cluster is None else used[roles.cluster].to_numpy()
+    if groups is not None:
+        _check_clusters(used[roles.cluster], roles.cluster)
     return PreparedData(
         frame=used,
         covariates=covariates,

@@ -12,6 +12,8 @@ from pathlib import Path
 
 import pandas as pd
 
+from . import _file_checks
+
 __all__ = ["READERS", "read_table", "csv_dialect"]
 
 #: File suffix -> (kind shown in messages, reader name).
@@ -56,11 +58,33 @@ def csv_dialect(path):
     return separator, decimal
 
 
+def _read_csv(path, input_error=_file_checks.FileProblem):
+    _file_checks.check_not_binary(path, input_error)
+    separator, decimal = csv_dialect(path)
+    _file_checks.check_duplicated_names(
+        path, _file_checks.csv_header(path, separator), input_error
+    )
+    try:
+        frame = pd.read_csv(path, sep=separator, decimal=decimal)
+        if _file_checks.extra_fields(path, frame, input_error):
+            # Every row ends with empty fields (trailing separators): read them as the header says.
+            frame = pd.read_csv(path, sep=separator, decimal=decimal, index_col=False)
+    except UnicodeDecodeError as error:
+        raise input_error(_file_checks.not_utf8(path, error)) from None
+    return frame
+
+
 def _read(kind, path):
     if kind == "csv":
-        separator, decimal = csv_dialect(path)
-        return pd.read_csv(path, sep=separator, decimal=decimal)
+        return _read_csv(path)
     if kind == "parquet":
+        import pyarrow.parquet as pq
+
+        try:
+            names = pq.read_schema(path).names
+        except Exception:  # not readable as Parquet: the reader below says so
+            names = []
+        _file_checks.check_duplicated_names(path, names, _file_checks.FileProblem)
         return pd.read_parquet(path)
     if kind == "stata":
         # Value labels become categories, as the analyst sees them in Stata.
@@ -87,6 +111,7 @@ def _decode_bytes(frame):
 def read_table(path, input_error=ValueError):
     """Read a data file into a DataFrame (the readers above, chosen by suffix)."""
     path = Path(path)
+    _file_checks.check_data_path(path, input_error)
     kind = READERS.get(path.suffix.lower())
     if kind is None:
         raise input_error(
@@ -96,7 +121,9 @@ def read_table(path, input_error=ValueError):
     if not path.is_file():
         raise input_error(f"DATA file '{path}' does not exist; check the path.")
     try:
-        return _read(kind, path)
+        frame = _read(kind, path)
+    except _file_checks.FileProblem as error:
+        raise input_error(str(error)) from None
     except ImportError as error:
         need = {"parquet": "pyarrow", "spss": "pyreadstat"}.get(kind, "pandas' optional readers")
         raise input_error(
@@ -108,3 +135,6 @@ def read_table(path, input_error=ValueError):
         raise input_error(
             f"DATA file '{path.name}' could not be read as {kind}: {first_line}"
         ) from None
+    _file_checks.check_duplicated_names(path, list(frame.columns), input_error)
+    _file_checks.check_rows_read(path, frame, kind, input_error)
+    return frame

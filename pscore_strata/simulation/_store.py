@@ -1,7 +1,17 @@
-"""The tidy result table of a simulation study and its Parquet checkpoint directory."""
+"""The tidy result table of a simulation study and its verified Parquet checkpoint directory.
+
+A checkpoint directory holds ``study.json`` (the study's settings) and one Parquet part file per
+finished batch. Every part file carries, in its Parquet key-value metadata, the settings that
+produced it (seed entropy, level, estimators), the scenarios of its cells, the list of its cells
+and a SHA-256 checksum of its rows. A resume reads and checks all of them before it uses any
+row, so a part file from another seed, a part file missing rows, a changed or damaged file and
+a file that is not a part file at all are refused with a message naming the file and saying what
+to delete. The settings in the part files also stand in for a deleted ``study.json``.
+"""
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
 import uuid
@@ -25,9 +35,12 @@ COLUMNS = {
     "warnings": str,
     "fit_seconds": np.float64,
 }
+KEY = ["scenario", "n_samples", "replicate"]
 
 _MANIFEST = "study.json"
-_FORMAT = 1
+_FORMAT = 2
+_METADATA_KEY = b"pscore_strata.checkpoint"
+_DELETE_PART = "delete it and rerun: its replicates are recomputed"
 
 
 def tidy(rows):
@@ -36,8 +49,32 @@ def tidy(rows):
     return table.astype(COLUMNS).reset_index(drop=True)
 
 
+def checksum(table):
+    """SHA-256 of a tidy table's column names and values (pandas' stable row hashes)."""
+    table = tidy(table.to_dict("records"))
+    digest = hashlib.sha256("\x1f".join(table.columns).encode("utf-8"))
+    digest.update(pd.util.hash_pandas_object(table, index=False).to_numpy().tobytes())
+    return digest.hexdigest()
+
+
+def describe_scenario(spec):
+    """What a scenario name stands for, stored so a rerun cannot reuse the name for another."""
+    if isinstance(spec, str):
+        return f"scenario {spec}"
+    name = getattr(spec, "__qualname__", type(spec).__qualname__)
+    return f"callable {getattr(spec, '__module__', '?')}.{name}"
+
+
+def study_settings(entropy, level, estimators):
+    return {
+        "entropy": str(entropy),
+        "level": float(level),
+        "estimators": {name: repr(est) for name, est in estimators.items()},
+    }
+
+
 class CheckpointStore:
-    """A directory of Parquet part files plus a JSON manifest describing the study.
+    """A directory of verified Parquet part files plus a JSON manifest describing the study.
 
     Each part is written to a hidden temporary name and renamed into place, so a part file
     either holds a whole batch of replicates or does not exist (``os.replace`` is atomic
@@ -46,55 +83,213 @@ class CheckpointStore:
 
     def __init__(self, path):
         self.path = Path(path)
+        self.settings = None
+        self.scenarios = {}
 
-    def open(self, root, seed_unset, estimators, level):
-        """Create or check the manifest; return the SeedSequence the study must use."""
+    # -- opening: the settings --------------------------------------------------------------
+    def open(self, root, seed_unset, estimators, level, scenarios):
+        """Create or check the manifest and every part file's settings; return the study's seed.
+
+        ``scenarios`` maps names to specs (names or callables). Raises ``ValueError`` naming the
+        file and what to delete when the directory belongs to another study, mixes studies or
+        holds a file that is not a readable part file.
+        """
         if self.path.exists() and not self.path.is_dir():
             raise ValueError(
                 f"`checkpoint` must be a directory path; {str(self.path)!r} is a file."
             )
         self.path.mkdir(parents=True, exist_ok=True)
-        manifest_path = self.path / _MANIFEST
-        described = {name: repr(est) for name, est in estimators.items()}
-        if not manifest_path.exists():
-            manifest = {
-                "format": _FORMAT,
-                "entropy": str(root.entropy),
-                "level": level,
-                "estimators": described,
-            }
-            _write_atomic(manifest_path, json.dumps(manifest, indent=2).encode("utf-8"))
-            return root
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        stored = np.random.SeedSequence(int(manifest["entropy"]))
-        if not seed_unset and stored.entropy != root.entropy:
-            raise ValueError(
-                f"`checkpoint` directory {str(self.path)!r} belongs to a study with another "
-                "random_state; pass the same random_state (or None to reuse the stored one), or "
-                "choose a new checkpoint directory."
-            )
-        if manifest["estimators"] != described or manifest["level"] != level:
-            raise ValueError(
-                f"`checkpoint` directory {str(self.path)!r} belongs to a study with other "
-                f"estimators or level (stored: {sorted(manifest['estimators'])}, level "
-                f"{manifest['level']}); pass the same ones or choose a new checkpoint directory."
-            )
-        return stored
+        self.scenarios = {name: describe_scenario(spec) for name, spec in scenarios.items()}
+        parts = {path: self._metadata(path) for path in self._part_paths()}
+        manifest = self._read_manifest()
+        stored = self._stored_settings(manifest, parts)
+        wanted = study_settings(root.entropy, level, estimators)
+        if stored is None:
+            self.settings = wanted
+        else:
+            stored_root = np.random.SeedSequence(int(stored["entropy"]))
+            if not seed_unset and stored_root.entropy != root.entropy:
+                raise ValueError(
+                    f"`checkpoint` directory {str(self.path)!r} belongs to a study with another "
+                    "random_state; pass the same random_state (or None to reuse the stored "
+                    "one), or choose a new checkpoint directory (or delete this one's "
+                    "study.json and part-*.parquet files)."
+                )
+            if stored["estimators"] != wanted["estimators"] or stored["level"] != level:
+                raise ValueError(
+                    f"`checkpoint` directory {str(self.path)!r} belongs to a study with other "
+                    f"estimators or level (stored: {sorted(stored['estimators'])}, level "
+                    f"{stored['level']}); pass the same ones or choose a new checkpoint "
+                    "directory."
+                )
+            self.settings = stored
+            root = stored_root
+        self._check_scenarios(parts)
+        if manifest is None:
+            payload = dict(format=_FORMAT, **self.settings)
+            _write_atomic(self.path / _MANIFEST, json.dumps(payload, indent=2).encode("utf-8"))
+        return root
 
+    def _part_paths(self):
+        return sorted(self.path.glob("part-*.parquet"))
+
+    def _metadata(self, path):
+        import pyarrow.parquet as pq
+
+        try:
+            metadata = pq.read_schema(path).metadata or {}
+        except Exception as error:  # pyarrow raises several types; all mean "not a part file"
+            raise ValueError(_unreadable(path, error)) from None
+        raw = metadata.get(_METADATA_KEY)
+        try:
+            meta = json.loads(raw.decode("utf-8"))
+            meta["settings"]["entropy"], meta["cells"], meta["checksum"], meta["scenarios"]
+        except Exception:
+            raise ValueError(
+                f"`checkpoint` file {str(path)!r} is a Parquet file without run_study's "
+                "settings and checksum (written by another program, or by a version of "
+                f"pscore_strata that did not verify checkpoints); {_DELETE_PART}."
+            ) from None
+        return meta
+
+    def _read_manifest(self):
+        path = self.path / _MANIFEST
+        if not path.exists():
+            return None
+        try:
+            manifest = json.loads(path.read_text(encoding="utf-8"))
+            settings = {k: manifest[k] for k in ("entropy", "level", "estimators")}
+            int(settings["entropy"]), float(settings["level"]), dict(settings["estimators"])
+        except Exception as error:
+            reason = "empty" if path.stat().st_size == 0 else type(error).__name__
+            raise ValueError(
+                f"`checkpoint` file {str(path)!r} is not a readable study description "
+                f"({reason}: truncated, empty or not written by run_study); delete it and "
+                "rerun: the settings are recovered from the part files, and a new study starts "
+                "if there are none."
+            ) from None
+        return settings
+
+    def _stored_settings(self, manifest, parts):
+        """The directory's one set of settings, or None for a new study; refuse a mixture."""
+        groups = {}
+        for path, meta in parts.items():
+            groups.setdefault(json.dumps(meta["settings"], sort_keys=True), []).append(path)
+        if manifest is not None:
+            own = json.dumps(manifest, sort_keys=True)
+            others = [p for key, paths in groups.items() if key != own for p in paths]
+            if others:
+                raise ValueError(
+                    f"`checkpoint` directory {str(self.path)!r}: {_listed(others)} were written "
+                    "by another study (other random_state, estimators or level) than its "
+                    "study.json describes; delete those part files (their replicates are "
+                    "recomputed), or delete study.json if it is the stale one."
+                )
+            return manifest
+        if len(groups) > 1:
+            described = "; ".join(
+                f"study {i + 1} (seed entropy {json.loads(key)['entropy']}, estimators "
+                f"{sorted(json.loads(key)['estimators'])}): {_listed(paths)}"
+                for i, (key, paths) in enumerate(groups.items())
+            )
+            raise ValueError(
+                f"`checkpoint` directory {str(self.path)!r} mixes part files of {len(groups)} "
+                f"studies and has no study.json: {described}. Keep the part files of one study "
+                "and delete the others (or delete the whole directory), then rerun."
+            )
+        return json.loads(next(iter(groups))) if groups else None
+
+    def _check_scenarios(self, parts):
+        for path, meta in parts.items():
+            for name, described in meta["scenarios"].items():
+                if name in self.scenarios and self.scenarios[name] != described:
+                    raise ValueError(
+                        f"`checkpoint` file {str(path)!r} holds replicates of scenario "
+                        f"{name!r} as {described}, but this study names {self.scenarios[name]} "
+                        f"{name!r}; give the scenario another name or choose a new checkpoint "
+                        "directory."
+                    )
+
+    # -- the rows ----------------------------------------------------------------------------
     def load(self):
-        """All finished rows; a replicate saved twice (e.g. by two runs) is kept once."""
-        parts = sorted(self.path.glob("part-*.parquet"))
-        if not parts:
+        """All finished rows, each part checked; a replicate saved twice is kept once."""
+        import pyarrow.parquet as pq
+
+        tables = []
+        for path in self._part_paths():
+            meta = self._metadata(path)
+            try:
+                table = tidy(pq.read_table(path).to_pandas().to_dict("records"))
+            except Exception as error:
+                raise ValueError(_unreadable(path, error)) from None
+            self._check_rows(path, meta, table)
+            tables.append(table)
+        if not tables:
             return tidy([])
-        table = pd.concat([pd.read_parquet(p) for p in parts], ignore_index=True)
-        table = table.drop_duplicates(["scenario", "n_samples", "replicate", "estimator"])
+        table = pd.concat(tables, ignore_index=True)
+        table = table.drop_duplicates([*KEY, "estimator"])
         return tidy(table.to_dict("records"))
 
-    def save(self, part):
+    def _check_rows(self, path, meta, table):
+        names = list(self.settings["estimators"])
+        expected = pd.MultiIndex.from_tuples(
+            [(s, int(n), int(r), e) for s, n, r in meta["cells"] for e in names],
+            names=[*KEY, "estimator"],
+        )
+        found = pd.MultiIndex.from_frame(table[[*KEY, "estimator"]])
+        missing = expected.difference(found)
+        if len(missing):
+            by_estimator = pd.Series([m[3] for m in missing]).value_counts()
+            listed = ", ".join(f"{e!r} ({k} of {len(meta['cells'])} cells)"
+                               for e, k in by_estimator.items())  # fmt: skip
+            raise ValueError(
+                f"`checkpoint` file {str(path)!r} is incomplete: it lacks the rows of estimator "
+                f"{listed}; {_DELETE_PART}."
+            )
+        if found.has_duplicates or len(found.difference(expected)):
+            raise ValueError(
+                f"`checkpoint` file {str(path)!r} holds rows it does not list (duplicated or "
+                f"foreign replicates); {_DELETE_PART}."
+            )
+        if checksum(table) != meta["checksum"]:
+            raise ValueError(
+                f"`checkpoint` file {str(path)!r} does not match its checksum (its rows were "
+                f"changed after it was written, or it is damaged); {_DELETE_PART}."
+            )
+
+    def save(self, part, cells):
+        """Write one batch (``cells``: its (scenario, n, replicate) keys) as a verified part."""
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        meta = {
+            "format": _FORMAT,
+            "settings": self.settings,
+            "scenarios": {s: self.scenarios[s] for s in dict.fromkeys(c[0] for c in cells)},
+            "cells": [[s, int(n), int(r)] for s, n, r in cells],
+            "checksum": checksum(part),
+        }
+        table = pa.Table.from_pandas(part, preserve_index=False)
+        metadata = dict(table.schema.metadata or {})
+        metadata[_METADATA_KEY] = json.dumps(meta).encode("utf-8")
         name = f"part-{uuid.uuid4().hex}.parquet"
         temporary = self.path / f".{name}.tmp"
-        part.to_parquet(temporary, engine="pyarrow", index=False)
+        pq.write_table(table.replace_schema_metadata(metadata), temporary)
         os.replace(temporary, self.path / name)
+
+
+def _unreadable(path, error):
+    reason = "empty" if path.stat().st_size == 0 else type(error).__name__
+    return (
+        f"`checkpoint` file {str(path)!r} cannot be read as a run_study part file ({reason}: "
+        f"truncated, empty or not a Parquet file); {_DELETE_PART}."
+    )
+
+
+def _listed(paths, shown=3):
+    names = [p.name for p in paths]
+    more = f" and {len(names) - shown} more" if len(names) > shown else ""
+    return f"{len(names)} part file(s) ({', '.join(names[:shown])}{more})"
 
 
 def _write_atomic(path, payload):

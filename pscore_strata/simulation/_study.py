@@ -165,7 +165,11 @@ def run_study(
         Directory in which finished replicates are saved as Parquet part files (one per batch,
         written atomically). A rerun with the same directory skips those replicates and returns
         the same table as an uninterrupted run (timing columns aside). With ``random_state=None``
-        the seed stored in the directory is reused.
+        the seed stored in the directory is reused. Each part file records the study's settings,
+        its cells and a checksum of its rows; a rerun checks them all first and raises
+        ``ValueError``, naming the file to delete, for a part of another study (another seed,
+        estimators or level), a mixture of studies, a part missing rows, a changed checksum and
+        a truncated, empty or foreign file.
     level : float, default=0.95
         Confidence level of the intervals.
     batch_size : int, optional
@@ -208,7 +212,7 @@ def run_study(
     store = None
     if checkpoint is not None:
         store = CheckpointStore(checkpoint)
-        root = store.open(root, random_state is None, named_estimators, level)
+        root = store.open(root, random_state is None, named_estimators, level, named_scenarios)
     entropy = root.entropy
 
     cells = [(s, n, r) for s in named_scenarios for n in sizes for r in range(n_reps)]
@@ -231,7 +235,7 @@ def run_study(
             )
             part = tidy([row for cell_rows in rows for row in cell_rows])
             if store is not None:
-                store.save(part)
+                store.save(part, batch)
             new_parts.append(part)
             if bar is not None:
                 bar.update(len(batch))
