@@ -399,3 +399,18 @@ def test_bad_plot_arguments_are_rejected(small_fit, small):
         plotting.plot_balance(small_fit, small.X, max_covariates=0)
     with pytest.raises(ValueError, match="`score` must be one of"):
         plotting.plot_overlap(small_fit, score="harmed")
+
+
+def test_monotonicity_check_on_tiny_data_gives_numbers_or_nan_not_an_exception():
+    # Eight rows: an arm can be empty inside a score bin and bins can be narrow; the table must
+    # still be built (NaN where a share has no rows), with one distinct label per bin.
+    for seed in (1, 2, 3):
+        data = ps.datasets.make_truncation(8, random_state=seed)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            est = ps.PrincipalScoreWeighting().fit(
+                data.X, data.y, treatment=data.treatment, survival=data.survival
+            )
+            table = ps.monotonicity_check(est)
+        assert table.index.is_unique
+        assert len(table) >= 2

@@ -18,15 +18,24 @@ from ._cache import cached_diagnostic, without_strata
 __all__ = ["monotonicity_check"]
 
 
+def _score_bin_labels(bins):
+    """Labels of the score bins, with as many decimals as it takes to tell them apart."""
+    for decimals in range(2, 9):
+        labels = [
+            f"always-survivor score {b.left:.{decimals}f}-{b.right:.{decimals}f}" for b in bins
+        ]
+        if len(set(labels)) == len(labels):
+            return labels
+    return [f"always-survivor score bin {k + 1}" for k in range(len(bins))]
+
+
 def _strata_labels(o, X, strata):
     """Row masks per stratum label, the labels in display order, and a description."""
     n = o.weight.shape[0]
     if strata is None:
         # Quintiles of the fitted always-survivor score: rows alike in the latent stratum share.
         strata = pd.qcut(np.minimum(o.p_pure, o.p_mixed), 5, duplicates="drop")
-        strata = strata.rename_categories(
-            [f"always-survivor score {b.left:.2f}-{b.right:.2f}" for b in strata.categories]
-        )
+        strata = strata.rename_categories(_score_bin_labels(strata.categories))
         description = "quintiles of the fitted always-survivor score"
     elif isinstance(strata, str):
         if not isinstance(X, pd.DataFrame) or strata not in X.columns:
@@ -78,7 +87,8 @@ def _two_proportions(S, T, w, z_crit):
         w_arm = w[T == arm]
         rates.append(np.sum(w_arm * S[T == arm]) / w_arm.sum() if w_arm.sum() > 0 else np.nan)
         sizes.append(effective_sample_size(w_arm))
-    (r1, r0), (n1, n0) = rates, sizes
+    # numpy floats, so that an empty or weightless arm gives NaN rather than ZeroDivisionError.
+    (r1, r0), (n1, n0) = np.asarray(rates, float), np.asarray(sizes, float)
     diff = r1 - r0
     with np.errstate(divide="ignore", invalid="ignore"):
         se = np.sqrt(r1 * (1 - r1) / n1 + r0 * (1 - r0) / n0)
