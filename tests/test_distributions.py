@@ -14,6 +14,7 @@ from scipy import stats
 from statsmodels.stats.weightstats import DescrStatsW
 
 import pscore_strata as ps
+from pscore_strata.assumptions import imbens_manski_interval
 from pscore_strata.datasets import make_truncation
 
 
@@ -325,3 +326,52 @@ def test_missing_at_random_is_refused_clearly(sample):
         ps.survivor_distribution(est)
     with pytest.raises(ValueError, match="missing='at_random'"):
         fit(ps.TrimmingBounds, sample, missing="at_random", quantiles=[0.5])
+
+
+def test_few_clusters_give_t_intervals_with_g_minus_1_degrees_of_freedom():
+    # Reference: Student's t quantile with G - 1 degrees of freedom (scipy.stats.t), the rule
+    # the estimators' own intervals follow under fewer than 30 clusters (common practice).
+    data = make_truncation(600, random_state=0)
+    groups = np.arange(600) % 12
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = ps.PrincipalScoreWeighting().fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival, groups=groups
+        )
+        quantiles = ps.quantile_effects(est, quantiles=(0.5,))
+        cdf = ps.survivor_distribution(est, values=[0.0, 1.0]).to_frame()
+        ordinal = ps.ordinal_comparison(
+            ps.PrincipalScoreWeighting().fit(
+                data.X, (data.y > 1).astype(float), treatment=data.treatment,
+                survival=data.survival, groups=groups,
+            )
+        )
+    t = stats.t(11).ppf(0.975)
+    row = quantiles.iloc[0]
+    assert row["ci_high"] - row["effect"] == pytest.approx(t * row["std_error"], rel=1e-10)
+    half = (cdf["treated_ci_high"] - cdf["treated_ci_low"]) / 2
+    inside = (cdf["treated_ci_low"] > 0) & (cdf["treated_ci_high"] < 1)
+    np.testing.assert_allclose(half[inside], t * cdf["treated_std_error"][inside], rtol=1e-10)
+    assert 0 < ordinal.ci_low and ordinal.ci_high < 1
+    assert ordinal.ci_high - ordinal.probability == pytest.approx(t * ordinal.std_error, rel=1e-10)
+
+
+def test_quantile_bounds_with_few_clusters_use_the_t_reference():
+    # The same Imbens-Manski construction with Student's t (G - 1 = 11 degrees of freedom) in
+    # place of the normal: the interval must equal imbens_manski_interval called with dof=11.
+    data = make_truncation(600, random_state=1)
+    groups = np.arange(600) % 12
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        bounds = ps.TrimmingBounds(quantiles=(0.5,)).fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival, groups=groups
+        )
+    row = bounds.quantile_bounds_.iloc[0]
+    expected = imbens_manski_interval(
+        row["lower"], row["upper"], row["std_error_lower"], row["std_error_upper"], 0.95, dof=11
+    )
+    assert (row["ci_low"], row["ci_high"]) == pytest.approx(expected, rel=1e-12)
+    normal = imbens_manski_interval(
+        row["lower"], row["upper"], row["std_error_lower"], row["std_error_upper"], 0.95
+    )
+    assert row["ci_high"] - row["ci_low"] > normal[1] - normal[0]

@@ -35,7 +35,7 @@ from ..distributions._quantiles import (
     quantiles_of,
     silverman_bandwidth,
 )
-from ..inference._influence import influence_std_error
+from ..inference._influence import estimator_dof, influence_std_error
 
 __all__ = ["trimmed_mixtures", "quantile_bounds", "add_quantile_bounds", "quantile_intervals"]
 
@@ -60,16 +60,18 @@ def add_quantile_bounds(bounds, o, labels, data):
     for key in ("lower", "upper"):
         table[f"std_error_{key}"] = influence_std_error(influence[key], o.weight, data.groups)
     bounds.quantile_influence_ = influence
-    bounds.quantile_bounds_ = quantile_intervals(table, 0.95)
+    bounds.quantile_bounds_ = quantile_intervals(table, 0.95, estimator_dof(bounds))
 
 
-def quantile_intervals(table, level=0.95):
-    """Add Imbens-Manski intervals (``ci_low``, ``ci_high``) at ``level`` to a bounds table."""
+def quantile_intervals(table, level=0.95, dof=None):
+    """Add Imbens-Manski intervals (``ci_low``, ``ci_high``) at ``level`` to a bounds table
+    (t reference with ``dof`` degrees of freedom under few clusters)."""
     from ._bounds import imbens_manski_interval
 
     level = check_level(level)
     table = table.copy()
-    ends = [imbens_manski_interval(r.lower, r.upper, r.std_error_lower, r.std_error_upper, level)
+    ends = [imbens_manski_interval(r.lower, r.upper, r.std_error_lower, r.std_error_upper, level,
+                                   dof)
             for r in table.itertuples()]  # fmt: skip
     table["ci_low"], table["ci_high"] = np.array(ends).T
     return table

@@ -6,13 +6,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._validation import check_level
 from ..inference._influence import (
+    estimator_dof,
     influence_std_error,
     multiplier_contributions,
     multiplier_draws,
+    reference_quantile,
     spawn_seeds,
 )
 from ._paths import cdf_path, prepare
@@ -74,6 +75,9 @@ class SurvivorDistribution:
     level : float
     method : str
     notes : list of str
+    dof : int or None
+        Degrees of freedom of the pointwise intervals' t reference (fewer than 30 clusters:
+        ``G - 1``); ``None``: the normal reference.
     """
 
     values: np.ndarray
@@ -90,10 +94,11 @@ class SurvivorDistribution:
     level: float = 0.95
     method: str = ""
     notes: list = field(default_factory=list)
+    dof: int | None = None
 
     def to_frame(self):
         """One row per value: estimates, standard errors, pointwise intervals, bands, naive CDFs."""
-        z = stats.norm.ppf(0.5 + self.level / 2)
+        z = reference_quantile(self.level, self.dof)
         table = {"value": self.values}
         for arm in ("treated", "control"):
             estimate = getattr(self, arm)
@@ -208,7 +213,7 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
         band_critical_treated=critical["treated"], band_critical_control=critical["control"],
         naive_treated=naive_cdf(data, values, 1), naive_control=naive_cdf(data, values, 0),
         influence_treated=path.influence_treated, influence_control=path.influence_control,
-        level=level, method=prepared.method, notes=notes,
+        level=level, method=prepared.method, notes=notes, dof=estimator_dof(estimator),
     )  # fmt: skip
 
 

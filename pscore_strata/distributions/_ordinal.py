@@ -19,10 +19,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._validation import check_choice, check_level
-from ..inference._influence import influence_std_error
+from ..inference._influence import estimator_dof, influence_std_error, reference_quantile
 from ._cdf import CAUTION
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
@@ -128,7 +127,7 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
     influence = influences["treated"] @ gradient_treated + influences["control"] @ gradient_control
     w, groups = data.sample_weight, data.groups
     se = influence_std_error(influence, w, groups)
-    z = stats.norm.ppf(0.5 + level / 2)
+    z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
     table = pd.DataFrame({
         "level": levels,
         "treated": probabilities["treated"],

@@ -21,7 +21,13 @@ from scipy import stats
 from sklearn.base import clone
 
 from .._validation import check_level
-from ..inference._influence import influence_std_error, resample_rows, spawn_seeds
+from ..inference._influence import (
+    estimator_dof,
+    influence_std_error,
+    reference_quantile,
+    resample_rows,
+    spawn_seeds,
+)
 from ..inference._refits import _seed_models
 from ._cdf import CAUTION, default_values
 from ._conditional import MAX_LEVELS
@@ -148,7 +154,8 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     -------
     pandas.DataFrame
         Columns ``quantile``, ``treated``, ``control``, ``effect``, ``std_error``, ``ci_low``,
-        ``ci_high`` (influence function, normal interval), ``std_error_treated``,
+        ``ci_high`` (influence function; normal interval, t with G - 1 degrees of freedom under
+        fewer than 30 clusters), ``std_error_treated``,
         ``std_error_control``, ``density_treated``, ``density_control``; with ``n_bootstrap``
         also ``bootstrap_std_error``, ``bootstrap_ci_low``, ``bootstrap_ci_high``.
         ``attrs["notes"]`` states the method, the bandwidth and the cautions.
@@ -182,7 +189,7 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     path = cdf_path(prepared, default_values(data), with_influence=False)
     sizes = effective_sizes(prepared.oriented)
     w, groups = data.sample_weight, data.groups
-    z = stats.norm.ppf(0.5 + level / 2)
+    z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
     influence, density, bandwidth = {}, {}, {}
     for arm in ("treated", "control"):
         mass = masses(getattr(path, arm))

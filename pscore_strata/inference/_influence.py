@@ -118,6 +118,13 @@ def influence_std_error(influence, sample_weight=None, groups=None):
     return float(result) if influence.ndim == 1 else result
 
 
+def reference_quantile(level, dof=None):
+    """Two-sided quantile of the interval's reference: normal, or Student's t with ``dof``
+    degrees of freedom (few clusters: see :func:`reference_dof`)."""
+    reference = stats.norm if dof is None else stats.t(dof)
+    return float(reference.ppf(0.5 + level / 2))
+
+
 def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
     """Wald interval; on the log scale (then exponentiated) for ratio effects.
 
@@ -125,8 +132,7 @@ def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
     ``dof`` degrees of freedom instead of the normal one.
     """
     level = check_level(level)
-    reference = stats.norm if dof is None else stats.t(dof)
-    z = reference.ppf(0.5 + level / 2)
+    z = reference_quantile(level, dof)
     if log_scale:
         if estimate <= 0:
             return (float("nan"), float("nan"))

@@ -82,6 +82,7 @@ def distributions_section(collector, primary, data, options):
 def _quantile_bounds(collector, options, data, primary):
     from ..assumptions import TrimmingBounds
     from ..assumptions._quantile_bounds import quantile_intervals
+    from ..inference._influence import estimator_dof
 
     models, _ = model_settings(options)
     models.pop("survival_model", None)  # unused without score strata
@@ -94,7 +95,7 @@ def _quantile_bounds(collector, options, data, primary):
                       **fit_arguments(data), nuisance=nuisance)  # fmt: skip
     except ValueError:
         return None
-    table = quantile_intervals(bounds.quantile_bounds_, options.level)
+    table = quantile_intervals(bounds.quantile_bounds_, options.level, estimator_dof(bounds))
     return [{key: number(row[key]) for key in
              ("quantile", "lower", "upper", "std_error_lower", "std_error_upper", "ci_low",
               "ci_high")}
@@ -105,6 +106,7 @@ def _cdf_figure(results):
     import pandas as pd
 
     from ..distributions import SurvivorDistribution
+    from ..inference._influence import reference_dof
     from ..plotting import plot_survivor_distribution
 
     record = results["distributions"]
@@ -121,6 +123,7 @@ def _cdf_figure(results):
         naive_treated=frame["naive_treated"].to_numpy(),
         naive_control=frame["naive_control"].to_numpy(),
         influence_treated=None, influence_control=None, level=level,
+        dof=reference_dof(results["data_overview"]["n_clusters"]),
     )  # fmt: skip
     axes = plot_survivor_distribution(distribution, outcome=results["columns"]["outcome"])
     return axes[0].figure
