@@ -367,3 +367,26 @@ def test_make_truncation_default_is_unchanged_and_multinomial_strata_are_as_stat
     assert "multinomial" in data.DESCR
     with pytest.raises(ValueError, match="stratum_model"):
         make_truncation(10, stratum_model="probit")
+
+
+def test_observed_information_is_the_derivative_of_the_score(monkeypatch):
+    # Reference: central finite differences of the score; small row chunks exercise the
+    # chunked accumulation used at large n.
+    from pscore_strata.nuisance import _mixture
+
+    monkeypatch.setattr(_mixture, "_CHUNK", 250)
+    Xd = np.column_stack([np.ones(len(MULTI.X)), MULTI.X])
+    allowed = _cells(MULTI.treatment, MULTI.survival)
+    likelihood = _mixture.MixtureLikelihood(Xd, allowed, np.ones(len(Xd)))
+    theta = np.array([0.3, -0.5, 0.4, -0.2, 0.8, -0.3])
+    numerical = np.column_stack([
+        (likelihood.score(theta + 1e-6 * u) - likelihood.score(theta - 1e-6 * u)) / 2e-6
+        for u in np.eye(theta.size)
+    ])  # fmt: skip
+    np.testing.assert_allclose(likelihood.information(theta), -numerical, atol=1e-8)
+    gradient = np.array([
+        (likelihood.log_likelihood(theta + 1e-6 * u) - likelihood.log_likelihood(theta - 1e-6 * u))
+        / 2e-6
+        for u in np.eye(theta.size)
+    ])  # fmt: skip
+    np.testing.assert_allclose(likelihood.score(theta), gradient, atol=1e-8)

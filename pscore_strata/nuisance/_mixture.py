@@ -67,6 +67,24 @@ def posterior_strata(log_strata, allowed):
     return np.exp(masked - log_cell[:, None]), log_cell
 
 
+def fast_strata(eta, allowed):
+    """``(e, post, log L_i)`` from the linear predictors (n, 2), shifted by the row maximum.
+
+    The same quantities as :func:`strata_probabilities` and :func:`posterior_strata`, without
+    general log-sum-exp machinery (three columns; this is the inner loop of the fit).
+    """
+    shift = np.maximum(np.maximum(eta[:, 0], eta[:, 1]), 0.0)
+    raw = np.empty((eta.shape[0], 3))
+    np.exp(eta - shift[:, None], out=raw[:, :_N_FREE])
+    np.exp(-shift, out=raw[:, 2])
+    total = raw.sum(axis=1)
+    cell = np.where(allowed, raw, 0.0)
+    cell_total = np.maximum(cell.sum(axis=1), np.finfo(float).tiny)
+    e = raw / total[:, None]
+    post = cell / cell_total[:, None]
+    return e, post, np.log(cell_total) - np.log(total)
+
+
 def _with_intercept(Z):
     return np.column_stack([np.ones(Z.shape[0]), Z])
 
@@ -80,9 +98,14 @@ def _block_information(Zd, a):
         part = a[start : start + _CHUNK]
         for j in range(_N_FREE):
             for k in range(j, _N_FREE):
-                value = block.T @ (block * part[:, j, k, None])
-                info[j * p : (j + 1) * p, k * p : (k + 1) * p] = value
-                info[k * p : (k + 1) * p, j * p : (j + 1) * p] = value.T
+                info[j * p : (j + 1) * p, k * p : (k + 1) * p] += block.T @ (
+                    block * part[:, j, k, None]
+                )
+    for j in range(_N_FREE):
+        for k in range(j):
+            info[j * p : (j + 1) * p, k * p : (k + 1) * p] = info[
+                k * p : (k + 1) * p, j * p : (j + 1) * p
+            ].T
     return info
 
 
@@ -103,9 +126,7 @@ class MixtureLikelihood:
         key = theta.tobytes()
         if key != self._key:
             b = theta.reshape(_N_FREE, -1)
-            log_e = _log_strata(self.Zd @ b.T)
-            post, log_cell = posterior_strata(log_e, self.allowed)
-            self._key, self._state = key, (np.exp(log_e), post, log_cell)
+            self._key, self._state = key, fast_strata(self.Zd @ b.T, self.allowed)
         return self._state
 
     def log_likelihood(self, theta):
@@ -115,6 +136,10 @@ class MixtureLikelihood:
         e, post, _ = self._evaluate(theta)
         residual = (post - e)[:, :_N_FREE] * self.weights[:, None]
         return (self.Zd.T @ residual).T.ravel() / self.total
+
+    def evaluate(self, theta):
+        """Mean log-likelihood, its gradient and the observed information at ``theta``."""
+        return self.log_likelihood(theta), self.score(theta), self.information(theta)
 
     def information(self, theta):
         """Minus the Hessian of the mean log-likelihood (the observed information per unit)."""

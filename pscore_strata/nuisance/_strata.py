@@ -13,7 +13,6 @@ import warnings
 
 import numpy as np
 import pandas as pd
-from scipy.optimize import minimize
 from sklearn.base import BaseEstimator, clone
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.pipeline import Pipeline
@@ -51,13 +50,13 @@ class PrincipalScoreModel(BaseEstimator):
     ----------
     estimator : classifier or None, default=None
         ``None``: multinomial logistic model in X (linear predictors for the always-survivor
-        and helped strata, doomed the reference), fitted by direct maximum likelihood (a
-        trust-region Newton method on the exact gradient and Hessian, on standardized columns,
-        coefficients mapped back). Otherwise a scikit-learn classifier (or pipeline) that
-        accepts ``sample_weight`` and has ``predict_proba``, fitted by EM: the E-step gives
-        each unit its posterior stratum probabilities, the M-step fits a clone of the
-        classifier to the units duplicated once per compatible stratum (labels 0, 1, 2 in
-        ``classes_`` order), weighted by those posteriors times ``sample_weight``.
+        and helped strata, doomed the reference), fitted by direct maximum likelihood (Newton's
+        method on the exact gradient and observed information, with step halving, on
+        standardized columns, coefficients mapped back). Otherwise a scikit-learn classifier
+        (or pipeline) that accepts ``sample_weight`` and has ``predict_proba``, fitted by EM:
+        the E-step gives each unit its posterior stratum probabilities, the M-step fits a
+        clone of the classifier to the units duplicated once per compatible stratum (labels
+        0, 1, 2 in ``classes_`` order), weighted by those posteriors times ``sample_weight``.
     monotonicity : {"increasing", "decreasing"}, default="increasing"
         Must match the estimator the model is passed to.
     max_iter : int, default=200
@@ -273,18 +272,9 @@ class PrincipalScoreModel(BaseEstimator):
         start = np.zeros((2, Zd.shape[1]))
         shares = self._starting_strata(allowed, weights)
         start[:, 0] = np.log(shares[:2] / shares[2])
-        result = minimize(
-            lambda theta: -likelihood.log_likelihood(theta),
-            start.ravel(),
-            jac=lambda theta: -likelihood.score(theta),
-            hess=likelihood.information,
-            method="trust-exact",
-            options={"gtol": float(self.tol), "maxiter": int(self.max_iter)},
-        )
-        theta = result.x
+        theta, self.n_iter_ = _newton(likelihood, start.ravel(), self.max_iter, self.tol)
         self._coef_standardized = theta.reshape(2, -1)
         gradient = np.max(np.abs(likelihood.score(theta)))
-        self.n_iter_ = int(result.nit)
         self.converged_ = bool(gradient <= self.tol)
         self.log_likelihood_ = likelihood.log_likelihood(theta) * likelihood.total
         coef = self._coef_standardized[:, 1:] / self._scale
@@ -380,6 +370,40 @@ class PrincipalScoreModel(BaseEstimator):
         return (pure, mixed) if self._increasing else (mixed, pure)
 
 
+def _newton(likelihood, theta, max_iter, tol):
+    """Maximize the mean log-likelihood by Newton steps with step halving.
+
+    The observed information need not be positive definite away from the maximum (it is the
+    complete-data information minus the missing information), so a ridge is added until its
+    Cholesky factorization exists; each step is halved until the log-likelihood rises.
+    Returns the parameters and the number of Newton steps taken.
+    """
+    value, gradient, information = likelihood.evaluate(theta)
+    for iteration in range(int(max_iter)):
+        if np.max(np.abs(gradient)) <= tol:
+            return theta, iteration
+        ridge = 0.0
+        scale = max(float(np.max(np.abs(np.diag(information)))), 1e-12)
+        while True:
+            try:
+                factor = np.linalg.cholesky(information + ridge * np.eye(theta.size))
+                break
+            except np.linalg.LinAlgError:
+                ridge = max(ridge * 10, 1e-8 * scale)
+        step = np.linalg.solve(factor.T, np.linalg.solve(factor, gradient))
+        for _ in range(60):
+            candidate = theta + step
+            new_value = likelihood.log_likelihood(candidate)
+            if np.isfinite(new_value) and new_value >= value - 1e-14 * abs(value):
+                break
+            step = step / 2
+        else:
+            return theta, iteration + 1  # no ascent direction left: stop (not converged)
+        theta = candidate
+        value, gradient, information = likelihood.evaluate(theta)
+    return theta, int(max_iter)
+
+
 def _weighted_fit(model, X, labels, weights):
     if isinstance(model, Pipeline):
         return model.fit(X, labels, **{f"{model.steps[-1][0]}__sample_weight": weights})
@@ -408,6 +432,8 @@ def fit_strata_scores(model, X, treatment, survival, weights, fit_rows, predict_
     def take(values, rows):
         if values is None:
             return None
+        if rows.size == len(values) and np.array_equal(rows, np.arange(rows.size)):
+            return values  # all rows in order: no copy of X
         return values.iloc[rows] if isinstance(values, pd.DataFrame) else values[rows]
 
     fitted = clone(model).fit(
