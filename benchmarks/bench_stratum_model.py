@@ -13,7 +13,12 @@ Part 2 (demo): the same comparison on the bundled invented registry (true SACE 4
 error, standard error, whether the interval covers the truth, violations, and the observed-data
 log-likelihood of each survival model (both have 2 x (features + 1) coefficients).
 
-Run: ``python benchmarks/bench_stratum_model.py [--replicates 200] [--sizes 2000 5000]``.
+Part 3 (time): ``PrincipalScoreModel().fit`` against the two arm-wise default logistic fits it
+replaces, and ``PrincipalScoreWeighting().fit`` (estimate and sandwich) with either survival
+model, on ``make_truncation(n, n_features=10, stratum_model="multinomial")``; best of 2 runs.
+
+Run: ``python benchmarks/bench_stratum_model.py [--replicates 300] [--sizes 2000 5000]
+[--timing-sizes 100000 1000000]``.
 """
 
 from __future__ import annotations
@@ -105,10 +110,51 @@ def demo_table():
     return pd.DataFrame(table)
 
 
+def best_time(function, repeats=2):
+    best = float("inf")
+    for _ in range(repeats):
+        start = time.perf_counter()
+        result = function()
+        best = min(best, time.perf_counter() - start)
+    return best, result
+
+
+def time_one(n):
+    data = ps.datasets.make_truncation(n, n_features=10, stratum_model="multinomial",
+                                       random_state=0)  # fmt: skip
+    X, t, s, y = data.X, data.treatment, data.survival, data.y
+    fit = dict(treatment=t, survival=s)
+
+    def arm_fits():
+        for arm in (0, 1):
+            rows = t == arm
+            ps.nuisance.default_binary_model().fit(X[rows], s[rows])
+
+    def weighting(survival_model):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return ps.PrincipalScoreWeighting(survival_model=survival_model).fit(X, y, **fit)
+
+    joint, model = best_time(lambda: ps.PrincipalScoreModel().fit(X, t, s))
+    arms, _ = best_time(arm_fits)
+    plain, _ = best_time(lambda: weighting(None))
+    strata, _ = best_time(lambda: weighting(ps.PrincipalScoreModel()))
+    return {
+        "rows": n, "joint model fit (s)": joint, "Newton steps": model.n_iter_,
+        "two arm-wise fits (s)": arms, "joint / arm-wise": joint / arms,
+        "weighting, arm-wise (s)": plain, "weighting, joint (s)": strata,
+    }  # fmt: skip
+
+
+def timing_table(sizes):
+    return pd.DataFrame([time_one(n) for n in sizes])
+
+
 def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--replicates", type=int, default=200)
     parser.add_argument("--sizes", type=int, nargs="+", default=[2000, 5000])
+    parser.add_argument("--timing-sizes", type=int, nargs="*", default=[100_000, 1_000_000])
     args = parser.parse_args()
     start = time.perf_counter()
     table = []
@@ -118,10 +164,15 @@ def main():
     frame = pd.DataFrame(table)
     pd.set_option("display.width", 200)
     print(f"Part 1: {args.replicates} replicates per cell, 95% intervals")
-    print(markdown_table(frame, {c: ".3f" for c in frame.columns}))
+    formats = {c: ".3f" for c in frame.columns} | {"violations (mean rows)": ".1f"}
+    print(markdown_table(frame, formats))
     print("\nPart 2: the invented demo registry (true SACE 4.0)")
     demo = demo_table()
     print(markdown_table(demo, {c: ".3f" for c in demo.columns} | {"log-likelihood": ".1f"}))
+    if args.timing_sizes:
+        timing = timing_table(args.timing_sizes)
+        print("\nPart 3: fit times (best of 2)")
+        print(markdown_table(timing, {c: ".2f" for c in timing.columns}))
     print(f"\n({time.perf_counter() - start:.0f} s)")
 
 

@@ -198,13 +198,16 @@ def test_shared_nuisance_bounds_and_missing_at_random_keep_working():
 
 
 def test_other_classifiers_fall_back_to_the_bootstrap():
-    base = LogisticRegression(C=np.inf, max_iter=500)
+    data = make_truncation(400, n_features=2, stratum_model="multinomial", random_state=9)
+    base = LogisticRegression(C=np.inf, solver="newton-cholesky", max_iter=100)
     est = ps.PrincipalScoreWeighting(
-        survival_model=ps.PrincipalScoreModel(base, tol=1e-6), n_bootstrap=5, random_state=0
-    ).fit(MULTI.X, MULTI.y, treatment=MULTI.treatment, survival=MULTI.survival)
+        survival_model=ps.PrincipalScoreModel(base, tol=1e-5), n_bootstrap=3, random_state=0
+    ).fit(data.X, data.y, treatment=data.treatment, survival=data.survival)
     assert est.std_error_method_ == "bootstrap" and est.n_monotonicity_violations_ == 0
+    assert len(est.bootstrap_replicates_) == 3
+    assert "PrincipalScoreModel fitted by EM" in " ".join(est.summary().attrs["notes"])
     again = pickle.loads(pickle.dumps(est))
-    np.testing.assert_array_equal(again.predict_proba(MULTI.X), est.predict_proba(MULTI.X))
+    np.testing.assert_array_equal(again.predict_proba(data.X), est.predict_proba(data.X))
     assert clone(est).get_params()["survival_model__estimator__C"] == np.inf
 
 

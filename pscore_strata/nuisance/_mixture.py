@@ -90,17 +90,18 @@ def _with_intercept(Z):
 
 
 def _block_information(Zd, a):
-    """``sum_i Zd_i Zd_i' a_i[j, k]`` for each (j, k) block, assembled class-major."""
+    """``sum_i Zd_i Zd_i' a_i[(j, k)]`` for each (j, k) block, assembled class-major.
+
+    ``a`` maps ``(j, k)`` with ``j <= k`` to a per-row weight vector.
+    """
     p = Zd.shape[1]
     info = np.zeros((_N_FREE * p, _N_FREE * p))
     for start in range(0, Zd.shape[0], _CHUNK):
         block = Zd[start : start + _CHUNK]
-        part = a[start : start + _CHUNK]
-        for j in range(_N_FREE):
-            for k in range(j, _N_FREE):
-                info[j * p : (j + 1) * p, k * p : (k + 1) * p] += block.T @ (
-                    block * part[:, j, k, None]
-                )
+        for (j, k), weight in a.items():
+            info[j * p : (j + 1) * p, k * p : (k + 1) * p] += block.T @ (
+                block * weight[start : start + _CHUNK, None]
+            )
     for j in range(_N_FREE):
         for k in range(j):
             info[j * p : (j + 1) * p, k * p : (k + 1) * p] = info[
@@ -148,13 +149,13 @@ class MixtureLikelihood:
 
 
 def _observed_information(Zd, e, post, weights):
-    e2, post2 = e[:, :_N_FREE], post[:, :_N_FREE]
-    eye = np.eye(_N_FREE)
     # -(Hessian in eta) = [diag(e) - e e'] - [diag(post) - post post'] per row.
-    a = (e2[:, :, None] * eye - e2[:, :, None] * e2[:, None, :]) - (
-        post2[:, :, None] * eye - post2[:, :, None] * post2[:, None, :]
-    )
-    return _block_information(Zd, a * weights[:, None, None])
+    a = {
+        (j, k): weights * ((e[:, j] * ((j == k) - e[:, k])) - post[:, j] * ((j == k) - post[:, k]))
+        for j in range(_N_FREE)
+        for k in range(j, _N_FREE)
+    }
+    return _block_information(Zd, a)
 
 
 def _equilibrated_inverse(info):
