@@ -245,14 +245,19 @@ def _stacked_functions(params, X, T, S, Y, kind, k):
     return np.hstack([first, stratum_score, means])
 
 
+@pytest.mark.parametrize("weighted", [False, True])
 @pytest.mark.parametrize("kind", ["weighting", "regression"])
-def test_sandwich_matches_a_numerical_stacked_m_estimation(kind):
-    # Reference: Stefanski & Boos (2002) sandwich A^-1 B A^-T / n with A the finite-difference
-    # Jacobian of the stacked estimating functions written above.
+def test_sandwich_matches_a_numerical_stacked_m_estimation(kind, weighted):
+    # Reference: Stefanski & Boos (2002) sandwich A^-1 B A^-T with A the finite-difference
+    # Jacobian of the stacked estimating functions written above; with survey weights w,
+    # A = sum w dpsi / sum w and B = sum w^2 psi psi' / (sum w)^2 (linearization variance).
     data = make_truncation(1500, n_features=2, stratum_model="multinomial", random_state=13)
     X, T, S, Y = data.X, data.treatment, data.survival, data.y
+    w = np.random.default_rng(2).uniform(0.5, 2.0, len(X)) if weighted else np.ones(len(X))
     cls = ps.PrincipalScoreWeighting if kind == "weighting" else ps.OutcomeRegression
-    est = cls(survival_model=ps.PrincipalScoreModel()).fit(X, Y, treatment=T, survival=S)
+    est = cls(survival_model=ps.PrincipalScoreModel()).fit(
+        X, Y, treatment=T, survival=S, sample_weight=w if weighted else None
+    )
     assert est.std_error_method_ == "sandwich"
     strata = est.nuisance_.models[("survival", 0)][0].strata
     theta = np.column_stack([strata.intercept_[:2], strata.coef_[:2]]).ravel()
@@ -265,19 +270,20 @@ def test_sandwich_matches_a_numerical_stacked_m_estimation(kind):
         beta0 = _logistic_design(est.nuisance_.models[("outcome", 0)][0])
         params = np.concatenate([beta1, theta, beta0, [est.mean_treated_, est.mean_control_]])
 
-    def functions(p):
-        return _stacked_functions(p, X, T, S, Y, kind, k)
+    def mean_functions(p):
+        return w @ _stacked_functions(p, X, T, S, Y, kind, k) / w.sum()
 
-    psi = functions(params)
-    np.testing.assert_allclose(psi.mean(axis=0), 0.0, atol=1e-6)  # the fit solves them
+    psi = _stacked_functions(params, X, T, S, Y, kind, k)
+    np.testing.assert_allclose(mean_functions(params), 0.0, atol=1e-6)  # the fit solves them
     step = 1e-6
     jacobian = np.column_stack([
-        (functions(params + step * unit).mean(0) - functions(params - step * unit).mean(0))
+        (mean_functions(params + step * unit) - mean_functions(params - step * unit))
         / (2 * step)
         for unit in np.eye(params.size)
     ])  # fmt: skip
     bread = np.linalg.inv(jacobian)
-    covariance = bread @ (psi.T @ psi / len(X)) @ bread.T / len(X)
+    meat = (psi * w[:, None]).T @ (psi * w[:, None]) / w.sum() ** 2
+    covariance = bread @ meat @ bread.T
     contrast = np.zeros(params.size)
     contrast[-2:] = [1.0, -1.0]
     # The library's influence-value SE carries the factor n / (n - 1) (inference/_influence.py).
