@@ -399,3 +399,14 @@ def test_observed_information_is_the_derivative_of_the_score(monkeypatch):
         for u in np.eye(theta.size)
     ])  # fmt: skip
     np.testing.assert_allclose(likelihood.score(theta), gradient, atol=1e-8)
+
+
+def test_docstring_example_runs():
+    import doctest
+
+    runner = doctest.DocTestRunner()
+    for test in doctest.DocTestFinder().find(ps.PrincipalScoreModel, "PrincipalScoreModel"):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            runner.run(test)
+    assert runner.tries > 0 and runner.failures == 0
