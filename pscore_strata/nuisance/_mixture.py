@@ -30,8 +30,10 @@ __all__ = [
     "compatible_strata",
     "strata_probabilities",
     "posterior_strata",
+    "fast_strata",
     "MixtureLikelihood",
     "StratumScoreFit",
+    "stratum_pieces",
 ]
 
 _CHUNK = 65_536
@@ -202,10 +204,8 @@ def stratum_pieces(model, X, treatment, survival, weights, mask, arms):
     ``arms`` maps each arm to the strata its survival probability sums.
     """
     Zd = _with_intercept(model._standardized(X, len(treatment)))
-    b = model._standardized_coef()
-    e = strata_probabilities(Zd @ b.T)
     allowed = compatible_strata(treatment, survival, model.monotonicity == "increasing")
-    post, _ = posterior_strata(np.log(np.clip(e, 1e-300, None)), allowed)
+    e, post, _ = fast_strata(Zd @ model._standardized_coef().T, allowed)
     residual = np.where(mask[:, None], (post - e)[:, :_N_FREE], 0.0)
     info = _observed_information(Zd, e, post, weights * mask) / weights.sum()
     h_inverse = _equilibrated_inverse(info)

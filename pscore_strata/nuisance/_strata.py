@@ -57,6 +57,9 @@ class PrincipalScoreModel(BaseEstimator):
         the E-step gives each unit its posterior stratum probabilities, the M-step fits a
         clone of the classifier to the units duplicated once per compatible stratum (labels
         0, 1, 2 in ``classes_`` order), weighted by those posteriors times ``sample_weight``.
+        ``LogisticRegression(C=np.inf)`` gives the EM fit of the default model (same maximum,
+        more iterations). Standard errors of estimators using a classifier come from the
+        bootstrap.
     monotonicity : {"increasing", "decreasing"}, default="increasing"
         Must match the estimator the model is passed to.
     max_iter : int, default=200
