@@ -99,8 +99,10 @@ class TrimmingBounds(BaseEstimator):
         Model of ``P(T=1|X)`` for the inverse probability weights ``1/pi`` (treated) and
         ``1/(1-pi)`` (control); a number is a known randomization probability. Unused when
         ``X`` is ``None`` (the unadjusted bounds of a randomized trial).
-    survival_model : estimator or None, default=None
-        Classifier of ``P(S=1|T=t,X)``, fitted per arm; used only by ``strata="score"``.
+    survival_model : estimator, PrincipalScoreModel or None, default=None
+        Classifier of ``P(S=1|T=t,X)``, fitted per arm (a
+        :class:`~pscore_strata.PrincipalScoreModel`: fitted once on both arms); used only by
+        ``strata="score"``.
     monotonicity : {"increasing", "decreasing"}, default="increasing"
         ``"increasing"``: treatment can only help survival; ``"decreasing"``: only harm it.
     strata : {"none", "score"}, default="none"
@@ -246,7 +248,7 @@ class TrimmingBounds(BaseEstimator):
         if nuisance is None:
             nuisance = fit_nuisance(
                 data, self.treatment_model, self.survival_model, random_state=None,
-                response_model=self.response_model,
+                response_model=self.response_model, monotonicity=self.monotonicity,
             )  # fmt: skip
         else:
             nuisance = shared_bounds_nuisance(self, nuisance, data)

@@ -16,9 +16,12 @@ _COMMON_PARAMETERS = """
     treatment_model : estimator, float in (0, 1) or None, default=None
         Model of ``P(T=1|X)``: a scikit-learn classifier or pipeline, or a known randomization
         probability. ``None`` is unpenalized logistic regression.
-    survival_model : estimator or None, default=None
+    survival_model : estimator, PrincipalScoreModel or None, default=None
         Classifier for ``P(S=1|T=t,X)``, cloned and fitted in each arm. ``None`` is unpenalized
-        logistic regression.
+        logistic regression. A :class:`~pscore_strata.PrincipalScoreModel` (same
+        ``monotonicity``) is instead fitted once on both arms and gives both survival
+        probabilities as sums of its stratum probabilities, so they never contradict
+        monotonicity; ``predict_proba`` then returns its scores.
     monotonicity : {"increasing", "decreasing"}, default="increasing"
         ``"increasing"``: treatment can only help survival (no harmed units);
         ``"decreasing"``: it can only harm survival (no protected units).
