@@ -59,6 +59,9 @@ class AnalysisOptions:
     unit_name: str = "unit"
     arm_names: tuple | None = None
     missing: str = "error"
+    # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
+    # "by_fit" (fit both, keep the better; the demo).
+    survival_model: str = "arm-wise"
 
 
 def model_settings(options, n_rows=None):
@@ -80,6 +83,10 @@ def build_estimator(method, options, n_rows=None):
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
                   random_state=options.seed, missing=options.missing)  # fmt: skip
+    if options.survival_model != "arm-wise":
+        from ._survival_model import survival_model_argument
+
+        params["survival_model"] = survival_model_argument(options, models.get("survival_model"))
     if method != "weighting" and models:
         from sklearn.ensemble import HistGradientBoostingRegressor
 
