@@ -31,7 +31,7 @@ from .distributions import (
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
 from .inference import BootstrapResult, bootstrap
-from .nuisance import MonotonicityWarning, OverlapWarning
+from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
 
 __version__ = "0.1.0"
 
@@ -50,6 +50,7 @@ __all__ = [
     "OutcomeRegression",
     "MultiplyRobust",
     "fit_estimators",
+    "PrincipalScoreModel",
     "OverlapWarning",
     "MonotonicityWarning",
     "TrimmingBounds",

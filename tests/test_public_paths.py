@@ -23,6 +23,7 @@ TOP_LEVEL = [
     "diagnostic_warnings",
     "OverlapWarning",
     "MonotonicityWarning",
+    "PrincipalScoreModel",
     "survivor_distribution",
     "quantile_effects",
     "ordinal_comparison",
@@ -30,7 +31,9 @@ TOP_LEVEL = [
 
 SUBPACKAGE_NAMES = {
     "pscore_strata.estimators": ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"],
-    "pscore_strata.nuisance": ["fit_nuisance", "NuisanceFit", "default_binary_model"],
+    "pscore_strata.nuisance": [
+        "fit_nuisance", "NuisanceFit", "default_binary_model", "PrincipalScoreModel"
+    ],
     "pscore_strata.inference": ["bootstrap", "BootstrapResult", "influence_std_error"],
     "pscore_strata.assumptions": ["TrimmingBounds", "sensitivity_grid", "tipping_point"],
     "pscore_strata.diagnostics": [

@@ -238,7 +238,7 @@ class TrimmingBounds(BaseEstimator):
         if nuisance is None:
             nuisance = fit_nuisance(
                 data, self.treatment_model, self.survival_model, random_state=None,
-                response_model=self.response_model,
+                response_model=self.response_model, monotonicity=self.monotonicity,
             )  # fmt: skip
         else:
             nuisance = shared_bounds_nuisance(self, nuisance, data)

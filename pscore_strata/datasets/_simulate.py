@@ -13,6 +13,7 @@ STRATUM_LABELS = ("always_survivor", "protected", "harmed", "doomed")
 DESIGNS = ("observational", "randomized")
 OUTCOMES = ("linear", "nonlinear", "binary")
 MONOTONICITY = ("increasing", "decreasing")
+STRATUM_MODELS = ("logistic", "multinomial")
 
 # The population truth is an average over X only, so it is computed once on a sample whose
 # seed does not depend on random_state: every dataset of a setting shares the same truth.
@@ -64,11 +65,35 @@ def _control_index(X, outcome):
     return -0.2 + 0.8 * x1 + 0.4 * x2 - 0.4 * x3
 
 
-def _principal_scores(X, outcome, harmed_ratio, monotonicity):
-    """True stratum probabilities given X, columns in ``STRATUM_LABELS`` order."""
+def _multinomial_strata(X):
+    """Always-survivor and changed-fate shares from a multinomial logistic model in x1, x2.
+
+    Doomed is the reference stratum: ``e_k = exp(eta_k) / (1 + exp(eta_a) + exp(eta_c))``.
+    Neither arm's survival (``e_a`` and ``e_a + e_c``) is then a logistic function of X, so
+    arm-wise main-effects logistic survival models are misspecified while a multinomial
+    principal score model is right. The changed share is small at low x1 and large at high x1
+    (where the outcome is high), as in the logistic setting.
+    """
+    x1, x2, _ = _active_columns(X)
+    eta_always = 0.6 - 0.9 * x1 + 0.6 * x2
+    eta_changed = -0.6 + 1.2 * x1 - 0.5 * x2
+    top = np.maximum(np.maximum(eta_always, eta_changed), 0.0)
+    a, c, d = np.exp(eta_always - top), np.exp(eta_changed - top), np.exp(-top)
+    total = a + c + d
+    return a / total, c / total
+
+
+def _always_and_changed(X, outcome, stratum_model):
+    if stratum_model == "multinomial":
+        return _multinomial_strata(X)
     always_logit, lift = _stratum_logits(X, outcome)
     always = expit(always_logit)
-    changed = expit(always_logit + lift) - always
+    return always, expit(always_logit + lift) - always
+
+
+def _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model="logistic"):
+    """True stratum probabilities given X, columns in ``STRATUM_LABELS`` order."""
+    always, changed = _always_and_changed(X, outcome, stratum_model)
     helped = changed / (1.0 + harmed_ratio)
     opposite = harmed_ratio * helped
     protected, harmed = (helped, opposite) if monotonicity == "increasing" else (opposite, helped)
@@ -87,7 +112,7 @@ def _always_survivor_means(X, outcome, effect, effect_heterogeneity):
 
 
 @lru_cache(maxsize=64)
-def _population_truth(outcome, effect, effect_heterogeneity, n_active):
+def _population_truth(outcome, effect, effect_heterogeneity, n_active, stratum_model="logistic"):
     """Monte Carlo SACE ``E[e_a (mu1 - mu0)] / E[e_a]`` and its delta-method error.
 
     Returns ``(sace, mc_error, mu1, mu0)``; the stratum shares do not depend on the
@@ -95,7 +120,7 @@ def _population_truth(outcome, effect, effect_heterogeneity, n_active):
     """
     rng = np.random.default_rng(_TRUTH_SEED)
     X = rng.standard_normal((_TRUTH_DRAWS, n_active))
-    always = expit(_stratum_logits(X, outcome)[0])
+    always = _always_and_changed(X, outcome, stratum_model)[0]
     mean0, mean1 = _always_survivor_means(X, outcome, effect, effect_heterogeneity)
     share = always.mean()
     mu1 = float(np.mean(always * mean1) / share)
@@ -109,10 +134,10 @@ def _population_truth(outcome, effect, effect_heterogeneity, n_active):
 
 def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogeneity,
               pi_difference, harmed_ratio, monotonicity, noise, rng, *,
-              treatment_scale=1.0, n_clusters=None, cluster_sd=1.0):
+              treatment_scale=1.0, n_clusters=None, cluster_sd=1.0, stratum_model="logistic"):
     """Draw one dataset; the keyword-only knobs serve the named scenarios."""
     X = rng.standard_normal((n_samples, n_features))
-    scores = _principal_scores(X, outcome, harmed_ratio, monotonicity)
+    scores = _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model)
     cumulative = np.cumsum(scores, axis=1)
     stratum_code = (rng.random(n_samples)[:, None] > cumulative[:, :-1]).sum(axis=1)
     stratum = np.asarray(STRATUM_LABELS, dtype=object)[stratum_code].astype(str)
@@ -160,7 +185,7 @@ def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogenei
     is_always = stratum_code == 0
     sample_sace = float(np.mean(y1[is_always] - y0[is_always])) if is_always.any() else np.nan
     sace, mc_error, mu1, mu0 = _population_truth(
-        outcome, float(effect), float(effect_heterogeneity), min(n_features, 3)
+        outcome, float(effect), float(effect_heterogeneity), min(n_features, 3), stratum_model
     )
     if outcome != "binary" and effect_heterogeneity == 0.0:
         sace, mc_error = float(effect), 0.0
@@ -178,7 +203,7 @@ def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogenei
 def make_truncation(n_samples=2000, *, n_features=5, design="observational", outcome="linear",
                     effect=1.0, effect_heterogeneity=0.0, pi_difference=0.0, harmed_ratio=0.0,
                     monotonicity="increasing", noise=1.0, follow_up=None, response=None,
-                    random_state=None):
+                    stratum_model="logistic", random_state=None):
     """Simulate outcomes truncated by death with a known survivor average causal effect.
 
     Units are drawn stratum first: covariates ``X ~ N(0, I)``, then the principal stratum
@@ -224,6 +249,14 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
         ``survival_full`` and ``y_full``, the indicators in ``status_known`` and
         ``outcome_observed``, the probabilities in ``follow_up_probability`` and
         ``response_probability``. The truth is unchanged.
+    stratum_model : {"logistic", "multinomial"}, default="logistic"
+        ``"logistic"``: survival in each arm is a main-effects logistic model in X (in the
+        linear and binary settings), so arm-wise logistic survival models are right.
+        ``"multinomial"``: the strata are drawn from a multinomial logistic model in x1 and x2
+        (always-survivor and changed-fate linear predictors against doomed), so the arm-wise
+        logistic survival models are misspecified and a multinomial principal score model
+        (:class:`~pscore_strata.PrincipalScoreModel`) is right. The ``"nonlinear"`` bends of
+        the stratum logits apply to ``"logistic"`` only.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState
         Seed or generator. A passed generator is advanced, never copied.
 
@@ -265,6 +298,7 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
     pi_difference = check_real(pi_difference, "pi_difference")
     harmed_ratio = check_real(harmed_ratio, "harmed_ratio", low=0.0, high=1.0, high_open=True)
     noise = check_real(noise, "noise", low=0.0)
+    stratum_model = check_choice(stratum_model, "stratum_model", STRATUM_MODELS)
     follow_up_spec = check_missingness(follow_up, "follow_up")
     response_spec = check_missingness(response, "response")
     rng = resolve_rng(random_state)
@@ -273,10 +307,13 @@ def make_truncation(n_samples=2000, *, n_features=5, design="observational", out
         effect=effect, effect_heterogeneity=effect_heterogeneity, pi_difference=pi_difference,
         harmed_ratio=harmed_ratio, monotonicity=monotonicity, noise=noise,
     )
-    data = _simulate(**params, rng=rng)
+    knobs = {} if stratum_model == "logistic" else {"stratum_model": stratum_model}
+    data = _simulate(**params, rng=rng, **knobs)
     data = apply_missingness(data, follow_up_spec, response_spec, rng)
     if follow_up is not None or response is not None:
         params = dict(params, follow_up=follow_up, response=response)
+    if knobs:
+        params = dict(params, **knobs)
     data.params = params
     data.treatment_probability = 0.5 if design == "randomized" else None
     data.DESCR = describe(params, data.true_effect, data.true_effect_mc_error)
@@ -290,10 +327,12 @@ def describe(params, true_effect, mc_error):
     ignorable = "holds" if params["pi_difference"] == 0 else (
         f"violated (difference {params['pi_difference']:g})")
     truth = "exact" if mc_error == 0 else f"Monte Carlo, error {mc_error:.2g}"
+    multinomial = params.get("stratum_model") == "multinomial"
     return (
         f"Simulated truncation by death: {params['n_samples']} units, "
         f"{params['n_features']} covariates, {params['design']} treatment, "
-        f"{params['outcome']} outcome.\n"
+        f"{params['outcome']} outcome"
+        f"{', strata from a multinomial logistic model' if multinomial else ''}.\n"
         f"Monotonicity ({params['monotonicity']}) {monotone}; "
         f"principal ignorability {ignorable}.\n"
         f"True SACE = {true_effect:.6g} ({truth})."

@@ -21,6 +21,7 @@ from ..inference._influence import influence_std_error, normal_interval, resampl
 from ..inference._refits import _seed_models
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
+from ..nuisance._strata import StratumArm
 from . import _formulas
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -66,6 +67,7 @@ class SurvivorEffectEstimator(BaseEstimator):
             response_model=self.response_model,
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=sandwich and self._formula is not _formulas.robust_means,
+            monotonicity=self.monotonicity,
         )
         return record_settings(fitted, self, data, random_state)
 
@@ -310,6 +312,8 @@ class SurvivorEffectEstimator(BaseEstimator):
             models = [m for fit in self._repeat_fits for m in fit.models[("survival", arm)]]
             scores[arm] = predict_models(models, X)
         result = _principal_scores(scores[mixed], scores[pure])
+        if isinstance(models[0], StratumArm):  # a stratum model's own scores, fold-averaged
+            result = np.mean([m.strata.predict_proba(X) for m in models], axis=0)
         if index is not None:
             return pd.DataFrame(result, index=index, columns=list(self.classes_))
         return result

@@ -13,8 +13,10 @@ from ._fit import (
     default_binary_model,
     fit_nuisance,
 )
+from ._strata import PrincipalScoreModel
 
 __all__ = [
+    "PrincipalScoreModel",
     "NuisanceFit",
     "ParametricFit",
     "fit_nuisance",

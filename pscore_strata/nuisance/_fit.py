@@ -21,6 +21,7 @@ from sklearn.utils.validation import has_fit_parameter
 from .._validation import EXTREME_PROBABILITY
 from ._conditioned import StandardizedLinearRegression, StandardizedLogisticRegression
 from ._sandwich import build_parametric, response_glm
+from ._strata import StratumArm, check_stratum_model, fit_strata_scores
 
 __all__ = [
     "NuisanceFit",
@@ -229,6 +230,7 @@ def fit_nuisance(
     treatment_enters_estimate=True,
     response_model=None,
     sandwich=True,
+    monotonicity=None,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -255,6 +257,8 @@ def fit_nuisance(
     sandwich : bool, default=True
         Build the M-estimation sandwich pieces (``parametric``) when the models allow it;
         ``False`` skips them (the multiply robust estimator never uses them).
+    monotonicity : {"increasing", "decreasing"} or None
+        The estimator's direction; a :class:`PrincipalScoreModel` survival model must share it.
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -286,6 +290,7 @@ def fit_nuisance(
             _default_outcome_model(binary_outcome) if outcome_model is None else outcome_model
         ),
     }
+    strata = check_stratum_model(survival_model, monotonicity)
     all_rows = np.arange(n)
     if n_folds is None:
         splits = [(all_rows, all_rows)]
@@ -311,13 +316,22 @@ def fit_nuisance(
                 models["treatment"], X, T.astype(float), train, test, w, weighted, True
             )
             fitted["treatment"].append(model)
+        if strata:
+            # One stratum model on both arms supplies p0 and p1 (nuisance/_strata.py).
+            model, predicted = fit_strata_scores(
+                survival_model, X, T, S, w if weighted else None, train[known[train]], test
+            )
+            for arm in (0, 1):
+                survival[arm][test] = predicted[arm]
+                fitted[("survival", arm)].append(StratumArm(model, arm))
         for arm in (0, 1):
             arm_rows = train[T[train] == arm]
-            model, survival[arm][test] = _fit_predict(
-                models["survival"], X, S.astype(float), arm_rows[known[arm_rows]], test, w,
-                weighted, True,
-            )
-            fitted[("survival", arm)].append(model)
+            if not strata:
+                model, survival[arm][test] = _fit_predict(
+                    models["survival"], X, S.astype(float), arm_rows[known[arm_rows]], test, w,
+                    weighted, True,
+                )
+                fitted[("survival", arm)].append(model)
             if fit_outcome:
                 rows = arm_rows[observed[arm_rows]]
                 model, outcome[arm][test] = _fit_predict(

@@ -125,7 +125,7 @@ def sandwich_reason(estimator):
                 "LogisticRegression on the covariates as given"
             )
     for role, model in roles:
-        if model is None or isinstance(model, int | float):
+        if model is None or isinstance(model, int | float) or _default_strata(model):
             continue
         if glm_kind(model) is None:
             return (
@@ -207,6 +207,13 @@ def _information_vector(Z, u):
     return np.concatenate([[u.sum()], Z.T @ u])
 
 
+def _default_strata(model):
+    """A :class:`~._strata.PrincipalScoreModel` with its multinomial logistic default."""
+    from ._strata import PrincipalScoreModel
+
+    return isinstance(model, PrincipalScoreModel) and model.estimator is None
+
+
 def response_glm(model):
     """Whether a follow-up/response model admits the sandwich on the raw covariates."""
     return model is None or (not isinstance(model, Pipeline) and glm_kind(model) == "logistic")
@@ -236,6 +243,8 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
     for role in roles:
         model = given.get(role)
         kind = "default" if model is None else glm_kind(model)
+        if role == "survival" and _default_strata(model):
+            kind = "strata"
         if kind is None:
             if role == "treatment" and not treatment_enters_estimate:
                 continue  # only feeds reported shares
@@ -262,6 +271,14 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
         keys = ["treatment"] if role == "treatment" else [(role, 0), (role, 1)]
         if all(key in memo for key in keys):
             pieces.update({key: memo[key] for key in keys})
+            continue
+        if kinds[role] == "strata":
+            from ._mixture import stratum_pieces
+            from ._strata import stratum_arms
+
+            strata = nuisance.models[("survival", 0)][0].strata
+            pieces.update({("survival", arm): piece for arm, piece in stratum_pieces(
+                strata, data.X, T, S, w, known, stratum_arms(strata)).items()})  # fmt: skip
             continue
         if role == "treatment":
             pi = nuisance.treatment_probability

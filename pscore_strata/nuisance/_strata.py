@@ -1,0 +1,430 @@
+"""A model of principal stratum membership, fitted on both arms at once.
+
+The arm-wise survival models give ``p0`` and ``p1`` separately, so their difference (the helped
+stratum's score) can be negative. :class:`PrincipalScoreModel` models the strata themselves:
+``P(always_survivor | X)``, ``P(helped | X)``, ``P(doomed | X)``, fitted to the observed cells
+by maximum likelihood of the mixture each cell is (:mod:`._mixture`), so ``p_mixed = e_always +
+e_helped >= p_pure = e_always`` by construction.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import minimize
+from sklearn.base import BaseEstimator, clone
+from sklearn.exceptions import ConvergenceWarning
+from sklearn.pipeline import Pipeline
+from sklearn.utils.validation import check_array, check_is_fitted, has_fit_parameter
+
+from ._mixture import (
+    MixtureLikelihood,
+    _with_intercept,
+    compatible_strata,
+    posterior_strata,
+    strata_probabilities,
+)
+
+__all__ = ["PrincipalScoreModel", "StratumArm", "fit_strata_scores"]
+
+# Probabilities are floored here before logs in the EM path (a classifier may predict 0).
+_TINY = 1e-300
+
+
+class PrincipalScoreModel(BaseEstimator):
+    """Principal score model: stratum probabilities given covariates, fitted on both arms.
+
+    Each observed cell is a mixture of principal strata. Under ``"increasing"`` monotonicity
+    treated survivors are always-survivors or protected, treated deaths doomed, control
+    survivors always-survivors, control deaths protected or doomed (``"decreasing"`` mirrors
+    the arms, with ``harmed`` in place of ``protected``). The model is fitted to the
+    observed-data likelihood ``prod_i sum_{k in C_i} e_k(X_i)`` over the strata ``C_i``
+    compatible with each unit's cell (Ding & Lu 2017). Pass it as ``survival_model`` of an
+    estimator: it then supplies both arms' survival probabilities (under ``"increasing"``,
+    ``p0 = e_always`` and ``p1 = e_always + e_protected``), which never contradict
+    monotonicity.
+
+    Parameters
+    ----------
+    estimator : classifier or None, default=None
+        ``None``: multinomial logistic model in X (linear predictors for the always-survivor
+        and helped strata, doomed the reference), fitted by direct maximum likelihood (a
+        trust-region Newton method on the exact gradient and Hessian, on standardized columns,
+        coefficients mapped back). Otherwise a scikit-learn classifier (or pipeline) that
+        accepts ``sample_weight`` and has ``predict_proba``, fitted by EM: the E-step gives
+        each unit its posterior stratum probabilities, the M-step fits a clone of the
+        classifier to the units duplicated once per compatible stratum (labels 0, 1, 2 in
+        ``classes_`` order), weighted by those posteriors times ``sample_weight``.
+    monotonicity : {"increasing", "decreasing"}, default="increasing"
+        Must match the estimator the model is passed to.
+    max_iter : int, default=200
+        Newton iterations (default model) or EM iterations (classifier).
+    tol : float, default=1e-8
+        Default model: largest absolute gradient of the mean log-likelihood (standardized
+        coefficients) at convergence. EM: change of the mean log-likelihood between
+        iterations.
+
+    Attributes
+    ----------
+    classes_ : ndarray of str
+        ``["always_survivor", "protected", "doomed"]`` (``"harmed"`` under ``"decreasing"``).
+    coef_ : ndarray of shape (3, n_features)
+        Default model: coefficients of each stratum's linear predictor on the original scale
+        (the doomed row is 0: it is the reference).
+    intercept_ : ndarray of shape (3,)
+    estimator_ : classifier
+        The last M-step's fitted classifier (classifier path only).
+    n_iter_ : int
+        Iterations run.
+    converged_ : bool
+    log_likelihood_ : float
+        Weighted observed-data log-likelihood at the fit, ``sum_i w_i log L_i``.
+    n_features_in_ : int
+
+    See Also
+    --------
+    PrincipalScoreWeighting, OutcomeRegression, MultiplyRobust : estimators that accept this
+        model as ``survival_model``.
+
+    References
+    ----------
+    Ding, P. & Lu, J. (2017). Principal stratification analysis using principal scores.
+    JRSSB 79(3), 757-777.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import pscore_strata as ps
+    >>> data = ps.datasets.make_truncation(2000, stratum_model="multinomial", random_state=0)
+    >>> model = ps.PrincipalScoreModel().fit(
+    ...     data.X, treatment=data.treatment, survival=data.survival)
+    >>> model.converged_, model.classes_.tolist()
+    (True, ['always_survivor', 'protected', 'doomed'])
+    >>> scores = model.predict_proba(data.X)
+    >>> bool(np.allclose(scores.sum(axis=1), 1.0) and (scores >= 0).all())
+    True
+    >>> est = ps.PrincipalScoreWeighting(survival_model=ps.PrincipalScoreModel()).fit(
+    ...     data.X, data.y, treatment=data.treatment, survival=data.survival)
+    >>> est.n_monotonicity_violations_, est.std_error_method_
+    (0, 'sandwich')
+    """
+
+    def __init__(self, estimator=None, *, monotonicity="increasing", max_iter=200, tol=1e-8):
+        self.estimator = estimator
+        self.monotonicity = monotonicity
+        self.max_iter = max_iter
+        self.tol = tol
+
+    # -- fitting -----------------------------------------------------------------------------
+    def fit(self, X, treatment, survival, sample_weight=None):
+        """Fit the stratum model to the observed cells.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features) or None
+            Covariates (``None``: stratum shares only).
+        treatment, survival : array-like of shape (n_samples,)
+            0/1 indicators.
+        sample_weight : array-like of shape (n_samples,), optional
+            Non-negative weights of the log-likelihood terms.
+
+        Returns
+        -------
+        self
+        """
+        self._check_params()
+        treatment, survival, weights = self._check_cells(X, treatment, survival, sample_weight)
+        self.classes_ = np.array(
+            ["always_survivor", "protected" if self._increasing else "harmed", "doomed"]
+        )
+        allowed = compatible_strata(treatment, survival, self._increasing)
+        if self.estimator is None:
+            self._fit_multinomial(X, allowed, weights)
+        else:
+            self._fit_em(X, allowed, weights)
+        if not self.converged_:
+            warnings.warn(
+                f"PrincipalScoreModel did not converge in max_iter={self.max_iter} iterations "
+                f"(tol={self.tol}). Increase `max_iter`, loosen `tol`, or simplify the covariates; "
+                "a stratum with almost no units (for example no helped units anywhere) also "
+                "drives its coefficients towards infinity.",
+                ConvergenceWarning,
+                stacklevel=2,
+            )
+        return self
+
+    @property
+    def _increasing(self):
+        return self.monotonicity == "increasing"
+
+    def _check_params(self):
+        if self.monotonicity not in ("increasing", "decreasing"):
+            raise ValueError(
+                "`monotonicity` must be 'increasing' or 'decreasing'; got "
+                f"{self.monotonicity!r}."
+            )
+        if isinstance(self.max_iter, bool) or not isinstance(self.max_iter, int | np.integer) or (
+            self.max_iter < 1
+        ):
+            raise ValueError(f"`max_iter` must be a positive integer; got {self.max_iter!r}.")
+        if isinstance(self.tol, bool) or not isinstance(self.tol, int | float) or not (
+            self.tol > 0
+        ):
+            raise ValueError(f"`tol` must be a positive number; got {self.tol!r}.")
+        if self.estimator is not None:
+            final = self.estimator.steps[-1][1] if isinstance(self.estimator, Pipeline) else (
+                self.estimator
+            )
+            if not hasattr(final, "predict_proba") or not hasattr(final, "fit"):
+                raise TypeError(
+                    f"`estimator` must be a classifier with `predict_proba`; got "
+                    f"{type(self.estimator).__name__}."
+                )
+            if not has_fit_parameter(final, "sample_weight"):
+                raise TypeError(
+                    f"`estimator` ({type(final).__name__}) does not accept `sample_weight` in "
+                    "fit, which the EM fit needs (each unit is duplicated once per compatible "
+                    "stratum and weighted by its posterior probability). Pass a classifier that "
+                    "accepts sample weights (for example LogisticRegression or "
+                    "HistGradientBoostingClassifier), or estimator=None for the multinomial "
+                    "logistic model."
+                )
+
+    def _check_cells(self, X, treatment, survival, sample_weight):
+        n = None if X is None else len(X)
+        arrays = {}
+        for name, values in (("treatment", treatment), ("survival", survival)):
+            values = np.asarray(values, dtype=float).ravel()
+            if n is not None and values.size != n:
+                raise ValueError(f"`{name}` has {values.size} values but `X` has {n} rows.")
+            bad = ~np.isin(values, (0.0, 1.0))
+            if bad.any():
+                raise ValueError(
+                    f"`{name}` must hold only 0 and 1; {int(bad.sum())} value(s) differ "
+                    f"(first: {values[bad][0]!r})."
+                )
+            n = values.size
+            arrays[name] = values.astype(int)
+        if sample_weight is None:
+            weights = np.ones(n)
+        else:
+            weights = np.asarray(sample_weight, dtype=float).ravel()
+            if weights.size != n or not np.all(np.isfinite(weights)) or (weights < 0).any() or (
+                weights.sum() <= 0
+            ):
+                raise ValueError(
+                    f"`sample_weight` must be {n} finite non-negative values with a positive "
+                    "sum."
+                )
+        if X is None:
+            self.n_features_in_ = 0
+        return arrays["treatment"], arrays["survival"], weights
+
+    def _starting_strata(self, allowed, weights):
+        """Stratum shares from the arms' survival shares (the unadjusted moment estimates)."""
+        survived = allowed[:, 0]
+        # Mixed-arm survivors allow the helped stratum and its deaths do not; the pure arm is
+        # the other way round.
+        mixed = allowed[:, 1] == survived
+        pure = ~mixed
+        pure_share = (
+            np.average(survived[pure], weights=weights[pure]) if weights[pure].sum() else 0.5
+        )
+        mixed_share = (
+            np.average(survived[mixed], weights=weights[mixed]) if weights[mixed].sum() else 0.5
+        )
+        always = float(np.clip(pure_share, 0.02, 0.96))
+        helped = float(np.clip(mixed_share - pure_share, 0.02, 0.97 - always))
+        return np.array([always, helped, 1.0 - always - helped])
+
+    # -- default: multinomial logistic by direct maximum likelihood --------------------------
+    def _design(self, X):
+        if X is None:
+            return None
+        return check_array(X, dtype=float, ensure_min_features=1)
+
+    def _fit_multinomial(self, X, allowed, weights):
+        values = self._design(X)
+        n = allowed.shape[0]
+        if values is None:
+            self._center, self._scale = np.zeros(0), np.ones(0)
+            Z = np.empty((n, 0))
+        else:
+            self.n_features_in_ = values.shape[1]
+            self._center = values.mean(axis=0)
+            spread = values.std(axis=0)
+            self._scale = np.where(np.isfinite(spread) & (spread > 0), spread, 1.0)
+            Z = (values - self._center) / self._scale
+        Zd = _with_intercept(Z)
+        likelihood = MixtureLikelihood(Zd, allowed, weights)
+        start = np.zeros((2, Zd.shape[1]))
+        shares = self._starting_strata(allowed, weights)
+        start[:, 0] = np.log(shares[:2] / shares[2])
+        result = minimize(
+            lambda theta: -likelihood.log_likelihood(theta),
+            start.ravel(),
+            jac=lambda theta: -likelihood.score(theta),
+            hess=likelihood.information,
+            method="trust-exact",
+            options={"gtol": float(self.tol), "maxiter": int(self.max_iter)},
+        )
+        theta = result.x
+        self._coef_standardized = theta.reshape(2, -1)
+        gradient = np.max(np.abs(likelihood.score(theta)))
+        self.n_iter_ = int(result.nit)
+        self.converged_ = bool(gradient <= self.tol)
+        self.log_likelihood_ = likelihood.log_likelihood(theta) * likelihood.total
+        coef = self._coef_standardized[:, 1:] / self._scale
+        intercept = self._coef_standardized[:, 0] - coef @ self._center
+        self.coef_ = np.vstack([coef, np.zeros((1, coef.shape[1]))])
+        self.intercept_ = np.append(intercept, 0.0)
+
+    def _standardized(self, X):
+        values = self._design(X)
+        if values is None:
+            return np.empty((0 if X is None else len(X), 0))
+        return (values - self._center) / self._scale
+
+    def _standardized_coef(self):
+        return self._coef_standardized
+
+    # -- any classifier: EM ------------------------------------------------------------------
+    def _classifier_input(self, X, n):
+        return np.zeros((n, 1)) if X is None else X
+
+    def _classifier_strata(self, model, X):
+        proba = np.asarray(model.predict_proba(X), dtype=float)
+        strata = np.zeros((proba.shape[0], 3))
+        for column, label in enumerate(model.classes_):
+            strata[:, int(label)] = proba[:, column]
+        return strata
+
+    def _fit_em(self, X, allowed, weights):
+        n = allowed.shape[0]
+        inputs = self._classifier_input(X, n)
+        if X is not None:
+            self.n_features_in_ = inputs.shape[1]
+        rows = np.repeat(np.arange(n), allowed.sum(axis=1))
+        labels = np.nonzero(allowed)[1]
+        duplicated = inputs.iloc[rows] if isinstance(inputs, pd.DataFrame) else (
+            np.asarray(inputs)[rows]
+        )
+        log_e = np.log(np.broadcast_to(self._starting_strata(allowed, weights), allowed.shape))
+        post, log_cell = posterior_strata(log_e, allowed)
+        previous = -np.inf
+        total = weights.sum()
+        self.converged_ = False
+        for iteration in range(1, int(self.max_iter) + 1):
+            model = _weighted_fit(
+                clone(self.estimator), duplicated, labels, weights[rows] * post[rows, labels]
+            )
+            strata = self._classifier_strata(model, inputs)
+            post, log_cell = posterior_strata(np.log(np.clip(strata, _TINY, None)), allowed)
+            current = float(weights @ log_cell) / total
+            self.n_iter_ = iteration
+            if abs(current - previous) <= self.tol:
+                self.converged_ = True
+                break
+            previous = current
+        self.estimator_ = model
+        self.log_likelihood_ = current * total
+
+    # -- predictions -------------------------------------------------------------------------
+    def predict_proba(self, X):
+        """Principal scores per row, columns in ``classes_`` order.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+
+        Returns
+        -------
+        ndarray of shape (n_rows, 3)
+        """
+        check_is_fitted(self, "classes_")
+        if self.estimator is None:
+            if X is None:
+                return strata_probabilities(np.tile(self._coef_standardized[:, 0], (1, 1)))
+            Z = self._standardized(X)
+            if Z.shape[1] != self.n_features_in_:
+                raise ValueError(
+                    f"`X` has {Z.shape[1]} features but the model was fitted with "
+                    f"{self.n_features_in_}."
+                )
+            return strata_probabilities(_with_intercept(Z) @ self._coef_standardized.T)
+        n = 1 if X is None else len(X)
+        return self._classifier_strata(self.estimator_, self._classifier_input(X, n))
+
+    def predict(self, X):
+        """The most probable principal stratum per row."""
+        return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+
+    def survival_probability(self, X):
+        """Survival probabilities ``(p0, p1)`` implied by the stratum probabilities."""
+        scores = self.predict_proba(X)
+        pure = scores[:, 0]
+        mixed = scores[:, 0] + scores[:, 1]
+        return (pure, mixed) if self._increasing else (mixed, pure)
+
+
+def _weighted_fit(model, X, labels, weights):
+    if isinstance(model, Pipeline):
+        return model.fit(X, labels, **{f"{model.steps[-1][0]}__sample_weight": weights})
+    return model.fit(X, labels, sample_weight=weights)
+
+
+class StratumArm:
+    """One arm's survival probability from a fitted :class:`PrincipalScoreModel`.
+
+    Stands where an arm-wise survival classifier stands in a nuisance fit, so code that asks a
+    fold model for ``predict_proba(X)[:, 1]`` gets ``p_t(X)``; ``strata`` is the stratum model.
+    """
+
+    def __init__(self, strata, arm):
+        self.strata, self.arm = strata, arm
+
+    def predict_proba(self, X):
+        survival = self.strata.survival_probability(X)[self.arm]
+        return np.column_stack([1.0 - survival, survival])
+
+
+def fit_strata_scores(model, X, treatment, survival, weights, fit_rows, predict_rows):
+    """Fit a clone of ``model`` on ``fit_rows``; return it and ``{0: p0, 1: p1}`` on
+    ``predict_rows``."""
+
+    def take(values, rows):
+        if values is None:
+            return None
+        return values.iloc[rows] if isinstance(values, pd.DataFrame) else values[rows]
+
+    fitted = clone(model).fit(
+        take(X, fit_rows), treatment[fit_rows], survival[fit_rows],
+        sample_weight=None if weights is None else weights[fit_rows],
+    )  # fmt: skip
+    predict_X = take(X, predict_rows)
+    if predict_X is None:
+        p0, p1 = (np.repeat(p, predict_rows.size) for p in fitted.survival_probability(None))
+    else:
+        p0, p1 = fitted.survival_probability(predict_X)
+    return fitted, {0: p0, 1: p1}
+
+
+def check_stratum_model(model, monotonicity):
+    """Whether ``model`` is a stratum model; refuse one whose direction differs."""
+    if not isinstance(model, PrincipalScoreModel):
+        return False
+    if monotonicity is not None and model.monotonicity != monotonicity:
+        raise ValueError(
+            f"`survival_model` is a PrincipalScoreModel with monotonicity="
+            f"{model.monotonicity!r}, but the estimator has monotonicity={monotonicity!r}. "
+            "The strata (protected or harmed) must be the same: set both to the same value."
+        )
+    return True
+
+
+def stratum_arms(model):
+    """Which strata each arm's survival probability sums: ``{arm: members}``."""
+    mixed, pure = (1, 0) if model.monotonicity == "increasing" else (0, 1)
+    return {mixed: (0, 1), pure: (0,)}

@@ -1,0 +1,317 @@
+"""PrincipalScoreModel: the joint stratum model, its fit, its use by estimators, its sandwich."""
+
+import pickle
+import warnings
+
+import numpy as np
+import pytest
+from scipy.optimize import minimize
+from scipy.special import logsumexp
+from sklearn.base import clone
+from sklearn.exceptions import ConvergenceWarning
+from sklearn.linear_model import LogisticRegression
+from sklearn.neighbors import KNeighborsClassifier
+
+import pscore_strata as ps
+from pscore_strata.datasets import make_truncation
+
+ESTIMATORS = [ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust]
+MULTI = make_truncation(1500, n_features=2, stratum_model="multinomial", random_state=4)
+
+
+def _cells(treatment, survival, increasing=True):
+    """Strata (always, helped, doomed) compatible with each observed cell, written out again."""
+    mixed = treatment == (1 if increasing else 0)
+    table = {
+        (True, 1): [1, 1, 0], (True, 0): [0, 0, 1],
+        (False, 1): [1, 0, 0], (False, 0): [0, 1, 1],
+    }  # fmt: skip
+    return np.array([table[(bool(m), int(s))] for m, s in zip(mixed, survival, strict=True)], bool)
+
+
+def _softmax_scores(theta, Xd):
+    """Multinomial logistic stratum probabilities, doomed the reference class."""
+    eta = np.column_stack([Xd @ theta.reshape(2, -1).T, np.zeros(len(Xd))])
+    return np.exp(eta - logsumexp(eta, axis=1, keepdims=True))
+
+
+def _independent_mle(X, treatment, survival, increasing=True):
+    """Maximum likelihood of prod_i sum_{k in C_i} e_k(X_i) by scipy BFGS (numerical gradient)."""
+    Xd = np.column_stack([np.ones(len(X)), X])
+    allowed = _cells(treatment, survival, increasing)
+
+    def negative_log_likelihood(theta):
+        e = _softmax_scores(theta, Xd)
+        return -np.sum(np.log(np.sum(np.where(allowed, e, 0.0), axis=1))) / len(X)
+
+    result = minimize(negative_log_likelihood, np.zeros(2 * Xd.shape[1]), method="BFGS",
+                      options={"gtol": 1e-9, "maxiter": 2000})  # fmt: skip
+    return result.x, Xd
+
+
+@pytest.mark.parametrize("monotonicity", ["increasing", "decreasing"])
+def test_default_fit_matches_an_independent_maximum_likelihood_fit(monotonicity):
+    # Reference: scipy BFGS on the observed-data likelihood written in this test.
+    data = make_truncation(1200, n_features=2, stratum_model="multinomial",
+                           monotonicity=monotonicity, random_state=7)  # fmt: skip
+    increasing = monotonicity == "increasing"
+    theta, Xd = _independent_mle(data.X, data.treatment, data.survival, increasing)
+    model = ps.PrincipalScoreModel(monotonicity=monotonicity).fit(
+        data.X, data.treatment, data.survival
+    )
+    assert model.converged_
+    reference = _softmax_scores(theta, Xd)
+    np.testing.assert_allclose(model.predict_proba(data.X), reference, atol=1e-4)
+    allowed = _cells(data.treatment, data.survival, increasing)
+    log_likelihood = np.sum(np.log(np.sum(np.where(allowed, reference, 0.0), axis=1)))
+    assert model.log_likelihood_ == pytest.approx(log_likelihood, abs=1e-6)
+    helped = "protected" if increasing else "harmed"
+    assert list(model.classes_) == ["always_survivor", helped, "doomed"]
+    # The coefficients are on the original scale: softmax of X coef' + intercept.
+    eta = data.X @ model.coef_.T + model.intercept_
+    np.testing.assert_allclose(
+        np.exp(eta - logsumexp(eta, axis=1, keepdims=True)), model.predict_proba(data.X),
+        atol=1e-12,
+    )
+    assert set(model.predict(data.X)) <= set(model.classes_)
+
+
+def test_fit_is_invariant_to_the_units_of_the_covariates():
+    # Maximum likelihood is invariant to rescaling a covariate (the design is standardized).
+    X = MULTI.X * np.array([1e6, 1e-5]) + np.array([3e7, 0.0])
+    scaled = ps.PrincipalScoreModel().fit(X, MULTI.treatment, MULTI.survival)
+    plain = ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival)
+    np.testing.assert_allclose(scaled.predict_proba(X), plain.predict_proba(MULTI.X), atol=1e-8)
+
+
+def test_em_with_a_logistic_base_reaches_the_same_optimum():
+    # EM's fixed point is the maximum of the observed-data likelihood (Dempster et al. 1977).
+    data = make_truncation(500, n_features=2, stratum_model="multinomial", random_state=11)
+    direct = ps.PrincipalScoreModel().fit(data.X, data.treatment, data.survival)
+    base = LogisticRegression(C=np.inf, solver="newton-cg", tol=1e-10, max_iter=500)
+    em = ps.PrincipalScoreModel(base, max_iter=1000, tol=1e-11).fit(
+        data.X, data.treatment, data.survival
+    )
+    assert em.converged_ and em.n_iter_ > 1
+    np.testing.assert_allclose(em.predict_proba(data.X), direct.predict_proba(data.X), atol=1e-4)
+    assert em.log_likelihood_ == pytest.approx(direct.log_likelihood_, abs=1e-5)
+
+
+def test_classifier_without_sample_weight_gets_a_clear_error():
+    with pytest.raises(TypeError, match="`estimator` \\(KNeighborsClassifier\\).*sample_weight"):
+        ps.PrincipalScoreModel(KNeighborsClassifier()).fit(
+            MULTI.X, MULTI.treatment, MULTI.survival
+        )
+
+
+@pytest.mark.parametrize(
+    ("params", "match"),
+    [({"monotonicity": "up"}, "`monotonicity`"), ({"max_iter": 0}, "`max_iter`"),
+     ({"tol": -1.0}, "`tol`")],
+)  # fmt: skip
+def test_bad_parameters_are_named(params, match):
+    with pytest.raises(ValueError, match=match):
+        ps.PrincipalScoreModel(**params).fit(MULTI.X, MULTI.treatment, MULTI.survival)
+
+
+def test_bad_indicators_are_named():
+    with pytest.raises(ValueError, match="`survival` must hold only 0 and 1"):
+        ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival * 2)
+
+
+def test_non_convergence_warns_with_advice():
+    with pytest.warns(ConvergenceWarning, match="Increase `max_iter`"):
+        ps.PrincipalScoreModel(max_iter=1).fit(MULTI.X, MULTI.treatment, MULTI.survival)
+
+
+def test_monotonicity_must_match_the_estimator():
+    est = ps.PrincipalScoreWeighting(
+        survival_model=ps.PrincipalScoreModel(monotonicity="decreasing")
+    )
+    with pytest.raises(ValueError, match="monotonicity='decreasing'.*monotonicity='increasing'"):
+        est.fit(MULTI.X, MULTI.y, treatment=MULTI.treatment, survival=MULTI.survival)
+
+
+def _settings():
+    yield "multinomial", make_truncation(1500, n_features=3, stratum_model="multinomial",
+                                         random_state=5), "increasing"  # fmt: skip
+    yield "logistic", make_truncation(1500, n_features=3, random_state=5), "increasing"
+    yield "decreasing", make_truncation(1500, n_features=3, monotonicity="decreasing",
+                                        random_state=5), "decreasing"  # fmt: skip
+
+
+@pytest.mark.parametrize("cls", ESTIMATORS)
+@pytest.mark.parametrize("n_folds", [None, 3])
+def test_zero_violations_and_the_models_scores_in_every_setting(cls, n_folds):
+    for _, data, monotonicity in _settings():
+        strata = ps.PrincipalScoreModel(monotonicity=monotonicity)
+        params = dict(survival_model=strata, monotonicity=monotonicity, n_folds=n_folds,
+                      random_state=0)  # fmt: skip
+        if cls is not ps.MultiplyRobust:
+            params["n_bootstrap"] = 0
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", ps.MonotonicityWarning)
+            est = cls(**params).fit(data.X, data.y, treatment=data.treatment,
+                                    survival=data.survival)  # fmt: skip
+        assert est.n_monotonicity_violations_ == 0
+        models = [arm.strata for arm in est.nuisance_.models[("survival", 0)]]
+        assert len(models) == (1 if n_folds is None else 3)
+        expected = np.mean([m.predict_proba(data.X) for m in models], axis=0)
+        np.testing.assert_allclose(est.predict_proba(data.X), expected, atol=0)
+        np.testing.assert_allclose(est.principal_scores_.sum(axis=1), 1.0)
+        if n_folds is None:
+            # The estimator's survival predictions are the stratum model's sums of strata.
+            helped = 1 if monotonicity == "increasing" else 0
+            np.testing.assert_allclose(est.nuisance_.survival[helped],
+                                       expected[:, 0] + expected[:, 1])  # fmt: skip
+            np.testing.assert_allclose(est.nuisance_.survival[1 - helped], expected[:, 0])
+
+
+def test_shared_nuisance_bounds_and_missing_at_random_keep_working():
+    strata = ps.PrincipalScoreModel()
+    fit = dict(treatment=MULTI.treatment, survival=MULTI.survival)
+    regression = ps.OutcomeRegression(survival_model=strata).fit(MULTI.X, MULTI.y, **fit)
+    shared = ps.PrincipalScoreWeighting(survival_model=strata).fit(
+        MULTI.X, MULTI.y, nuisance=regression.nuisance_, **fit
+    )
+    alone = ps.PrincipalScoreWeighting(survival_model=strata).fit(MULTI.X, MULTI.y, **fit)
+    assert (shared.effect_, shared.std_error_) == (alone.effect_, alone.std_error_)
+    with pytest.raises(ValueError, match="survival_model="):
+        ps.PrincipalScoreWeighting().fit(MULTI.X, MULTI.y, nuisance=regression.nuisance_, **fit)
+    bounds = ps.TrimmingBounds(survival_model=strata, strata="score").fit(MULTI.X, MULTI.y, **fit)
+    assert bounds.lower_ <= bounds.upper_
+    together = ps.fit_estimators(MULTI.X, MULTI.y, survival_model=strata, n_bootstrap=0, **fit)
+    assert len(together) == 3
+    # Missing at random: the stratum model is fitted on the rows of known status (the observed
+    # cells keep their distribution given X and arm), as the arm-wise models are.
+    lossy = make_truncation(3000, n_features=2, stratum_model="multinomial",
+                            follow_up=(0.8, 0.5), random_state=8)  # fmt: skip
+    est = ps.PrincipalScoreWeighting(survival_model=strata, missing="at_random").fit(
+        lossy.X, lossy.y, treatment=lossy.treatment, survival=lossy.survival
+    )
+    known = lossy.status_known == 1
+    direct = ps.PrincipalScoreModel().fit(
+        lossy.X[known], lossy.treatment[known], lossy.survival[known]
+    )
+    np.testing.assert_allclose(est.predict_proba(lossy.X), direct.predict_proba(lossy.X))
+    assert est.std_error_method_ == "sandwich" and est.n_monotonicity_violations_ == 0
+
+
+def test_other_classifiers_fall_back_to_the_bootstrap():
+    base = LogisticRegression(C=np.inf, max_iter=500)
+    est = ps.PrincipalScoreWeighting(
+        survival_model=ps.PrincipalScoreModel(base, tol=1e-6), n_bootstrap=5, random_state=0
+    ).fit(MULTI.X, MULTI.y, treatment=MULTI.treatment, survival=MULTI.survival)
+    assert est.std_error_method_ == "bootstrap" and est.n_monotonicity_violations_ == 0
+    again = pickle.loads(pickle.dumps(est))
+    np.testing.assert_array_equal(again.predict_proba(MULTI.X), est.predict_proba(MULTI.X))
+    assert clone(est).get_params()["survival_model__estimator__C"] == np.inf
+
+
+# -- the sandwich against a numerical stacked M-estimation ---------------------------------
+
+
+def _logistic_design(model):
+    return np.concatenate([np.ravel(model.intercept_), np.ravel(model.coef_)])
+
+
+def _stacked_functions(params, X, T, S, Y, kind, k):
+    """Per-row stacked estimating functions (treatment or outcome models, stratum model,
+    always-survivor means), written out from the definitions."""
+    Xd = np.column_stack([np.ones(len(X)), X])
+    gamma, theta, rest = params[:k], params[k : 3 * k], params[3 * k :]
+    e = _softmax_scores(theta, Xd)
+    allowed = _cells(T, S)
+    cell = np.sum(np.where(allowed, e, 0.0), axis=1)
+    post = np.where(allowed, e, 0.0) / cell[:, None]
+    stratum_score = np.hstack([(post - e)[:, [j]] * Xd for j in (0, 1)])
+    p0, p1 = e[:, 0], e[:, 0] + e[:, 1]
+    Y0 = np.nan_to_num(Y)
+    if kind == "weighting":
+        pi = 1 / (1 + np.exp(-(Xd @ gamma)))
+        mu1, mu0 = rest
+        first = (T - pi)[:, None] * Xd
+        means = np.column_stack([T * S * p0 / (pi * p1) * (Y0 - mu1),
+                                 (1 - T) * S / (1 - pi) * (Y0 - mu0)])  # fmt: skip
+    else:
+        beta1, beta0, (mu1, mu0) = gamma, rest[:k], rest[k:]
+        m1, m0 = Xd @ beta1, Xd @ beta0
+        first = np.hstack([(T * S * (Y0 - m1))[:, None] * Xd,
+                           ((1 - T) * S * (Y0 - m0))[:, None] * Xd])  # fmt: skip
+        means = np.column_stack([p0 * (m1 - mu1), p0 * (m0 - mu0)])
+    return np.hstack([first, stratum_score, means])
+
+
+@pytest.mark.parametrize("kind", ["weighting", "regression"])
+def test_sandwich_matches_a_numerical_stacked_m_estimation(kind):
+    # Reference: Stefanski & Boos (2002) sandwich A^-1 B A^-T / n with A the finite-difference
+    # Jacobian of the stacked estimating functions written above.
+    data = make_truncation(1500, n_features=2, stratum_model="multinomial", random_state=13)
+    X, T, S, Y = data.X, data.treatment, data.survival, data.y
+    cls = ps.PrincipalScoreWeighting if kind == "weighting" else ps.OutcomeRegression
+    est = cls(survival_model=ps.PrincipalScoreModel()).fit(X, Y, treatment=T, survival=S)
+    assert est.std_error_method_ == "sandwich"
+    strata = est.nuisance_.models[("survival", 0)][0].strata
+    theta = np.column_stack([strata.intercept_[:2], strata.coef_[:2]]).ravel()
+    k = X.shape[1] + 1
+    if kind == "weighting":
+        first = _logistic_design(est.nuisance_.models["treatment"][0])
+        params = np.concatenate([first, theta, [est.mean_treated_, est.mean_control_]])
+    else:
+        beta1 = _logistic_design(est.nuisance_.models[("outcome", 1)][0])
+        beta0 = _logistic_design(est.nuisance_.models[("outcome", 0)][0])
+        params = np.concatenate([beta1, theta, beta0, [est.mean_treated_, est.mean_control_]])
+
+    def functions(p):
+        return _stacked_functions(p, X, T, S, Y, kind, k)
+
+    psi = functions(params)
+    np.testing.assert_allclose(psi.mean(axis=0), 0.0, atol=1e-6)  # the fit solves them
+    step = 1e-6
+    jacobian = np.column_stack([
+        (functions(params + step * unit).mean(0) - functions(params - step * unit).mean(0))
+        / (2 * step)
+        for unit in np.eye(params.size)
+    ])  # fmt: skip
+    bread = np.linalg.inv(jacobian)
+    covariance = bread @ (psi.T @ psi / len(X)) @ bread.T / len(X)
+    contrast = np.zeros(params.size)
+    contrast[-2:] = [1.0, -1.0]
+    # The library's influence-value SE carries the factor n / (n - 1) (inference/_influence.py).
+    reference = np.sqrt(contrast @ covariance @ contrast * len(X) / (len(X) - 1))
+    assert est.std_error_ == pytest.approx(reference, rel=1e-4)
+
+
+@pytest.mark.slow
+def test_truth_recovery_and_coverage_in_the_multinomial_setting():
+    # Simulated truth: the SACE of make_truncation is `effect` exactly (continuous outcome,
+    # no effect heterogeneity). 300 replicates; 95% intervals should cover 92-98% of the time
+    # (binomial sd of the rate about 1.3 points).
+    covered = {cls: 0 for cls in ESTIMATORS}
+    estimates = {cls: [] for cls in ESTIMATORS}
+    n_replicates = 300
+    for seed in range(n_replicates):
+        data = make_truncation(600, n_features=2, stratum_model="multinomial",
+                               random_state=1000 + seed)  # fmt: skip
+        fit = dict(treatment=data.treatment, survival=data.survival)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            robust = ps.MultiplyRobust(survival_model=ps.PrincipalScoreModel()).fit(
+                data.X, data.y, **fit
+            )
+            fits = {ps.MultiplyRobust: robust}
+            for cls in (ps.PrincipalScoreWeighting, ps.OutcomeRegression):
+                fits[cls] = cls(survival_model=ps.PrincipalScoreModel()).fit(
+                    data.X, data.y, nuisance=robust.nuisance_, **fit
+                )
+        for cls, est in fits.items():
+            assert est.n_monotonicity_violations_ == 0
+            low, high = est.conf_int()
+            covered[cls] += low <= data.true_effect <= high
+            estimates[cls].append(est.effect_)
+    for cls in ESTIMATORS:
+        rate = covered[cls] / n_replicates
+        assert 0.92 <= rate <= 0.98, (cls.__name__, rate)
+        values = np.asarray(estimates[cls])
+        # Mean within 4 Monte Carlo standard errors of the truth.
+        assert abs(values.mean() - 1.0) < 4 * values.std(ddof=1) / np.sqrt(n_replicates)
