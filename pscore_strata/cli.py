@@ -74,8 +74,8 @@ def _options(args):
 def _print_survival_model(results):
     chosen = results.get("survival_model")
     if chosen:
-        print(f"  Principal scores from the {chosen['model']} survival model: "
-              f"{chosen['description']}")  # fmt: skip
+        print(f"  Principal scores from the {chosen['label']} (--survival-model "
+              f"{chosen['model']}): {chosen['description']}")  # fmt: skip
         if chosen["reason"]:
             print(f"  Chosen by fit: {chosen['reason']}")
     checks = results.get("model_checks") or {}

@@ -37,16 +37,12 @@ def _quantile_groups(predicted, n_groups):
     return ids, labels
 
 
-def _stratum_model_used(estimator):
-    from ..nuisance import _fit
+def _stratum_model(estimator):
+    """The fitted PrincipalScoreModel behind the survival side, or None when it is arm-wise."""
+    from ..nuisance._strata import StratumArm
 
-    model_class = getattr(_fit, "PrincipalScoreModel", None)
-    if model_class is None:
-        try:
-            from ..nuisance import PrincipalScoreModel as model_class
-        except ImportError:
-            return False
-    return isinstance(getattr(estimator, "survival_model", None), model_class)
+    first = estimator.nuisance_.models[("survival", 1)][0]
+    return first.strata if isinstance(first, StratumArm) else None
 
 
 def survival_log_likelihood(estimator):
@@ -72,8 +68,6 @@ def survival_log_likelihood(estimator):
 def _coefficient_count(model):
     if hasattr(model, "steps"):  # a Pipeline: the parameters sit in its last step
         model = model.steps[-1][1]
-    if hasattr(model, "n_parameters_"):
-        return int(model.n_parameters_)
     if hasattr(model, "coef_") and hasattr(model, "intercept_"):
         return int(np.size(model.coef_) + np.size(model.intercept_))
     if type(model).__name__ == "_ConstantModel":
@@ -84,17 +78,21 @@ def _coefficient_count(model):
 def survival_parameter_count(estimator):
     """Free parameters of the fitted survival side, or ``None`` when they cannot be counted.
 
-    Arm-wise: the coefficients and intercepts of the two survival models. Stratum model: the
-    parameters it reports (``n_parameters_``), or the size of its coefficients. Models without
-    coefficients (boosting, forests) and cross-fitted models (one fit per fold) give ``None``.
+    Arm-wise: the coefficients and intercepts of the two survival models. Default stratum
+    model (multinomial logistic, doomed the reference): an intercept and a coefficient per
+    covariate for each of the two other strata. Models without coefficients (boosting,
+    forests, a stratum model fitted by EM) and cross-fitted models (one fit per fold) give
+    ``None``.
     """
     nuisance = estimator.nuisance_
     if nuisance.cross_fitted:
         return None
-    if _stratum_model_used(estimator):
-        fitted = nuisance.models.get("stratum") or nuisance.models.get("principal_score")
-        fitted = fitted[0] if isinstance(fitted, list) else fitted
-        return None if fitted is None else _coefficient_count(fitted)
+    strata = _stratum_model(estimator)
+    if strata is not None:
+        if strata.estimator is not None:
+            return None
+        # coef_ and intercept_ carry a row of zeros for the reference stratum.
+        return int((len(strata.classes_) - 1) * (strata.n_features_in_ + 1))
     counts = [_coefficient_count(nuisance.models[("survival", arm)][0]) for arm, _ in ARMS]
     return None if None in counts else int(sum(counts))
 
@@ -142,7 +140,7 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         (``(O - E) / sqrt(V)``). ``table.attrs["tests"]`` holds, for ``"treated"``,
         ``"control"`` and ``"both arms"`` (the sum of the two), the ``statistic``, its ``df``
         and ``p_value``; ``attrs`` also gives ``survival_model`` (``"arm-wise"`` or
-        ``"stratum"``), ``grouping``, ``reference``, ``log_likelihood`` (see
+        ``"strata"``: a stratum model), ``grouping``, ``reference``, ``log_likelihood`` (see
         :func:`survival_log_likelihood`), ``n_parameters``, ``aic`` and ``notes``.
 
     Notes
@@ -267,7 +265,7 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         )
     table.attrs.update(
         tests=tests,
-        survival_model="stratum" if _stratum_model_used(estimator) else "arm-wise",
+        survival_model="arm-wise" if _stratum_model(estimator) is None else "strata",
         grouping=description,
         reference=reference,
         out_of_fold=bool(nuisance.cross_fitted),

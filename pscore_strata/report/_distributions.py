@@ -84,7 +84,8 @@ def _quantile_bounds(collector, options, data, primary):
     from ..assumptions._quantile_bounds import quantile_intervals
 
     models, _ = model_settings(options)
-    models.pop("survival_model", None)  # unused without score strata
+    if options.survival_model == "arm-wise":
+        models.pop("survival_model", None)  # unused without score strata
     bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=QUANTILES, **models)
     # With the default models the bounds reuse the analysis' one fit (never a cross-fitted one).
     shared = primary.nuisance_

@@ -135,8 +135,9 @@ def _calibration_figure(primary, results):
         observed = np.array([g["observed"] for g in rows], dtype=float)
         spread = 1.96 * np.array([g["std_error"] or 0.0 for g in rows], dtype=float)
         ax.plot([0, 1], [0, 1], color="0.5", linestyle="--", linewidth=1, label="perfect")
-        ax.errorbar(predicted, observed, yerr=spread, fmt="o-", color=_ARM_COLORS[1 if arm ==
-                    "treated" else 0], capsize=2, label="tenths of rows, 95% binomial range")
+        color = _ARM_COLORS[1 if arm == "treated" else 0]
+        ax.errorbar(predicted, observed, yerr=spread, fmt="o-", color=color, capsize=2,
+                    label="tenths of rows, ±1.96 SE")  # fmt: skip
         ax.set_xlim(0, 1)
         ax.set_ylim(0, 1)
         ax.set_aspect("equal")
@@ -168,8 +169,9 @@ def model_check_figures(analysis):
          "these two groups, which are different mixtures of strata."),
         ("calibration.png", "Calibration of the survival side", _calibration_figure,
          (primary, results),
-         "Each point is a tenth of the arm's rows ordered by predicted survival; the bars show "
-         "where 95% of the observed shares would fall if the fitted probabilities were right. "
-         "Points on the dashed line mean the model's probabilities match the observed "
-         "survival shares."),
+         "Each point is a tenth of the arm's rows ordered by predicted survival; points on the "
+         "dashed line mean the model's probabilities match the observed survival shares. Bars "
+         "span 1.96 binomial standard errors under the fitted model: a bar missing the line "
+         "marks a gap significant at 5% on its own (the fit check in the title tests all "
+         "groups at once)."),
     ]  # fmt: skip

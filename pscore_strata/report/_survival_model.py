@@ -18,11 +18,12 @@ __all__ = ["SURVIVAL_MODELS", "survival_model_argument", "choose_survival_model"
 SURVIVAL_MODELS = ("arm-wise", "strata")
 # The choice the demo makes; not offered by ``analyze``, whose users say what they want.
 BY_FIT = "by_fit"
+LABELS = {"arm-wise": "arm-wise survival models", "strata": "stratum model"}
 DESCRIPTIONS = {
-    "arm-wise": "two survival models, one fitted in each arm; the principal scores are their "
-    "differences (clipped where they cross)",
-    "strata": "one principal score model of stratum membership (multinomial logistic unless a "
-    "learner is chosen) fitted on both arms; monotone by construction",
+    "arm-wise": "a survival model fitted in each arm; the principal scores are differences of "
+    "the two (clipped where they cross)",
+    "strata": "one principal score model of stratum membership fitted on both arms "
+    "(multinomial logistic, or the chosen learner fitted by EM); monotone by construction",
 }
 
 
@@ -80,8 +81,8 @@ def choose_survival_model(collector, options, data, build_estimator, fit_argumen
     else:
         numbers = (f"out-of-fold log-likelihood {best['log_likelihood']:.1f} against "
                    f"{other['log_likelihood']:.1f}")  # fmt: skip
-    reason = (f"The {best['model']} model fits the observed survival statuses better than the "
-              f"{other['model']} model: {numbers}.")  # fmt: skip
+    reason = (f"The {LABELS[best['model']]} fit the observed survival statuses better than the "
+              f"{LABELS[other['model']]}: {numbers}.")  # fmt: skip
     return {
         "model": best["model"],
         "criterion": "aic" if by_aic else "log_likelihood",
@@ -94,6 +95,7 @@ def survival_model_record(options, choice=None):
     """The ``survival_model`` record of results.json."""
     return {
         "model": options.survival_model,
+        "label": LABELS[options.survival_model],
         "description": DESCRIPTIONS[options.survival_model],
         "chosen_by": "fit" if choice else "option",
         "criterion": choice["criterion"] if choice else None,
