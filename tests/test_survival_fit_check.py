@@ -137,6 +137,27 @@ def test_cross_fitted_predictions_are_checked(sample):
         assert table.attrs["tests"][name]["statistic"] == pytest.approx(statistic, rel=1e-9)
 
 
+def test_stratum_model_survival_side():
+    data = ps.datasets.make_truncation(3000, stratum_model="multinomial", random_state=4)
+    model = ps.PrincipalScoreModel()
+    est = _fit(data.X, data.y, data.treatment, data.survival, survival_model=model)
+    table = ps.survival_fit_check(est)
+    strata = est.nuisance_.models[("survival", 1)][0].strata
+    # The stratum model's own observed-data likelihood (its log_likelihood_ at the fit).
+    assert table.attrs["log_likelihood"] == pytest.approx(strata.log_likelihood_, rel=1e-9)
+    assert table.attrs["survival_model"] == "strata"
+    # Multinomial logistic, doomed the reference: (3 - 1) x (intercept + 5 covariates).
+    assert table.attrs["n_parameters"] == 12
+    # A model refitted outside the estimator: p1 = e_always + e_protected, p0 = e_always.
+    scores = ps.PrincipalScoreModel().fit(data.X, data.treatment, data.survival)
+    scores = scores.predict_proba(data.X)
+    T, S = data.treatment, data.survival
+    for arm, name, p in ((1, "treated", scores[:, 0] + scores[:, 1]), (0, "control", scores[:, 0])):
+        rows = T == arm
+        statistic = _hand_statistic(S[rows], p[rows], pd.qcut(p[rows], 10, labels=False))
+        assert table.attrs["tests"][name]["statistic"] == pytest.approx(statistic, rel=1e-4)
+
+
 def test_errors_name_the_argument(sample):
     X, Y, T, S = sample
     with pytest.raises(NotFittedError, match="not fitted"):
@@ -170,3 +191,19 @@ def test_size_under_correct_logistic_models():
     assert stats.kstest(quantile, "uniform").pvalue > 0.01
     # Groups of the caller's covariates: the G - 1 reference is conservative.
     assert np.mean(np.asarray(p_values["caller"]) < 0.05) <= 0.05
+
+
+@pytest.mark.slow
+def test_size_under_a_correct_stratum_model():
+    # Simulated truth: strata drawn from a multinomial logistic model, the stratum model's form;
+    # 300 replicates of 1000 rows.
+    p_values = []
+    for replicate in range(300):
+        data = ps.datasets.make_truncation(
+            1000, stratum_model="multinomial", random_state=1000 + replicate
+        )
+        est = _fit(data.X, data.y, data.treatment, data.survival,
+                   survival_model=ps.PrincipalScoreModel())  # fmt: skip
+        p_values.append(ps.survival_fit_check(est).attrs["tests"]["both arms"]["p_value"])
+    assert 0.02 <= np.mean(np.asarray(p_values) < 0.05) <= 0.085
+    assert stats.kstest(p_values, "uniform").pvalue > 0.01

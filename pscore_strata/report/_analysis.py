@@ -177,8 +177,18 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     -------
     Analysis
     """
-    from ._survival_model import BY_FIT, choose_survival_model, survival_model_record
+    from ._survival_model import (
+        BY_FIT,
+        SURVIVAL_MODELS,
+        choose_survival_model,
+        survival_model_record,
+    )
 
+    if options.survival_model not in (*SURVIVAL_MODELS, BY_FIT):
+        raise ValueError(
+            f"`survival_model` must be one of {', '.join(SURVIVAL_MODELS)} or {BY_FIT!r} (fit "
+            f"both, keep the better); got {options.survival_model!r}."
+        )
     collector = _Collector(progress)
     choice = None
     if options.survival_model == BY_FIT:
