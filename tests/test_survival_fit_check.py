@@ -158,6 +158,18 @@ def test_stratum_model_survival_side():
         assert table.attrs["tests"][name]["statistic"] == pytest.approx(statistic, rel=1e-4)
 
 
+def test_without_covariates_there_is_nothing_to_test(sample):
+    _, Y, T, S = sample
+    table = ps.survival_fit_check(_fit(None, Y, T, S))
+    # One fitted probability per arm: the arm's survival share, matched exactly.
+    for arm, name in ((1, "treated"), (0, "control")):
+        assert table.loc[name, "observed"].item() == pytest.approx(S[T == arm].mean())
+        assert table.attrs["tests"][name]["df"] == 0
+        assert np.isnan(table.attrs["tests"][name]["p_value"])
+    assert np.isnan(table.attrs["tests"]["both arms"]["p_value"])
+    assert table.attrs["n_parameters"] == 2 and "no p-value" in table.attrs["notes"][0]
+
+
 def test_errors_name_the_argument(sample):
     X, Y, T, S = sample
     with pytest.raises(NotFittedError, match="not fitted"):

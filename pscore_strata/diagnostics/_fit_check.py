@@ -231,20 +231,21 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
                 "std_error": np.sqrt(variance[g]) / total[g],
                 "z": z if variance[g] > 0 else np.nan,
             })  # fmt: skip
-        df = _reference_df(used, masks is None)
+        df = max(0, _reference_df(used, masks is None))
         tests[arm_name] = {
             "statistic": float(statistic),
             "df": int(df),
             "p_value": float(stats.chi2.sf(statistic, df)) if df > 0 else np.nan,
             "n_groups": int(used),
         }
-    both = sum(tests[name]["statistic"] for _, name in ARMS)
-    both_df = sum(tests[name]["df"] for _, name in ARMS)
+    testable = [tests[name] for _, name in ARMS if tests[name]["df"] > 0]
+    both = sum(test["statistic"] for test in testable)
+    both_df = sum(test["df"] for test in testable)
     tests["both arms"] = {
         "statistic": float(both),
         "df": int(both_df),
         "p_value": float(stats.chi2.sf(both, both_df)) if both_df > 0 else np.nan,
-        "n_groups": int(sum(tests[name]["n_groups"] for _, name in ARMS)),
+        "n_groups": int(sum(test["n_groups"] for test in testable)),
     }
     table = pd.DataFrame.from_records(records).set_index(["arm", "group"])
     log_likelihood = survival_log_likelihood(estimator)
@@ -254,6 +255,10 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
     if empty:
         notes.append("Groups whose fitted probabilities are all 0 or 1 have no binomial "
                      "variance; they are shown but do not enter the statistic.")  # fmt: skip
+    if any(tests[name]["df"] <= 0 for _, name in ARMS):
+        notes.append("Too few groups with distinct fitted probabilities for a test in some arm "
+                     "(as without covariates): that arm has no p-value and is left out of the "
+                     "test of both arms.")  # fmt: skip
     if data.groups is not None:
         notes.append("Rows are treated as independent; the clusters are ignored, so the test "
                      "is liberal if survival is correlated within clusters.")  # fmt: skip
