@@ -110,3 +110,31 @@ def test_unfitted_estimator_raises(cls):
 
     with pytest.raises(NotFittedError):
         cls().summary()
+
+
+@pytest.mark.parametrize("cls", ESTIMATORS)
+def test_conventions_with_a_stratum_model(cls):
+    # The joint principal score model as survival model: clone, pickle, inputs left alone.
+    est = cls(survival_model=ps.PrincipalScoreModel(max_iter=50))
+    assert clone(est).get_params()["survival_model__max_iter"] == 50
+    X, t = DATA.X.copy(), DATA.treatment.copy()
+    fitted = _fit(est, X=X)
+    np.testing.assert_array_equal(X, DATA.X)
+    np.testing.assert_array_equal(t, DATA.treatment)
+    again = pickle.loads(pickle.dumps(fitted))
+    np.testing.assert_array_equal(again.predict_proba(DATA.X), fitted.predict_proba(DATA.X))
+    assert not hasattr(clone(fitted).survival_model, "classes_")
+
+
+def test_stratum_model_conventions():
+    model = ps.PrincipalScoreModel(monotonicity="decreasing", tol=1e-6)
+    assert clone(model).get_params() == model.get_params()
+    unfitted = ps.PrincipalScoreModel(monotonicity="sideways")  # checked by fit, not __init__
+    with pytest.raises(ValueError, match="`monotonicity`"):
+        unfitted.fit(DATA.X, DATA.treatment, DATA.survival)
+    X = pd.DataFrame(DATA.X, columns=["a", "b", "c"])
+    before = X.copy()
+    fitted = model.fit(X, DATA.treatment, DATA.survival)
+    pd.testing.assert_frame_equal(X, before)
+    again = pickle.loads(pickle.dumps(fitted))
+    np.testing.assert_array_equal(again.predict_proba(X), fitted.predict_proba(X))

@@ -315,3 +315,55 @@ def test_truth_recovery_and_coverage_in_the_multinomial_setting():
         values = np.asarray(estimates[cls])
         # Mean within 4 Monte Carlo standard errors of the truth.
         assert abs(values.mean() - 1.0) < 4 * values.std(ddof=1) / np.sqrt(n_replicates)
+
+
+def test_integer_weights_equal_repeated_rows():
+    # A frequency weight enters the likelihood as that many copies of the row.
+    weights = np.random.default_rng(0).integers(1, 4, size=len(MULTI.X))
+    rows = np.repeat(np.arange(len(MULTI.X)), weights)
+    weighted = ps.PrincipalScoreModel().fit(
+        MULTI.X, MULTI.treatment, MULTI.survival, sample_weight=weights
+    )
+    repeated = ps.PrincipalScoreModel().fit(MULTI.X[rows], MULTI.treatment[rows],
+                                            MULTI.survival[rows])  # fmt: skip
+    np.testing.assert_allclose(weighted.predict_proba(MULTI.X), repeated.predict_proba(MULTI.X),
+                               atol=1e-9)  # fmt: skip
+    assert weighted.log_likelihood_ == pytest.approx(repeated.log_likelihood_, rel=1e-10)
+
+
+def test_unadjusted_model_gives_the_arms_survival_shares():
+    # Without covariates the maximum-likelihood strata are the moment estimates:
+    # e_always = control survival share, e_protected = difference of the arms' shares.
+    model = ps.PrincipalScoreModel().fit(None, MULTI.treatment, MULTI.survival)
+    shares = model.predict_proba(None)[0]
+    treated = MULTI.survival[MULTI.treatment == 1].mean()
+    control = MULTI.survival[MULTI.treatment == 0].mean()
+    np.testing.assert_allclose(shares, [control, treated - control, 1 - treated], atol=1e-7)
+    est = ps.PrincipalScoreWeighting(survival_model=ps.PrincipalScoreModel()).fit(
+        None, MULTI.y, treatment=MULTI.treatment, survival=MULTI.survival
+    )
+    plain = ps.PrincipalScoreWeighting().fit(
+        None, MULTI.y, treatment=MULTI.treatment, survival=MULTI.survival
+    )
+    assert est.effect_ == pytest.approx(plain.effect_, abs=1e-7)
+    assert est.std_error_ == pytest.approx(plain.std_error_, rel=1e-5)
+
+
+def test_make_truncation_default_is_unchanged_and_multinomial_strata_are_as_stated():
+    default = make_truncation(300, random_state=3)
+    explicit = make_truncation(300, stratum_model="logistic", random_state=3)
+    for key in ("X", "treatment", "survival", "principal_scores"):
+        np.testing.assert_array_equal(default[key], explicit[key])
+    np.testing.assert_array_equal(np.nan_to_num(default.y), np.nan_to_num(explicit.y))
+    assert "stratum_model" not in default.params
+    data = make_truncation(300, stratum_model="multinomial", random_state=3)
+    # The stated multinomial logistic model, recomputed here (doomed the reference).
+    x1, x2 = data.X[:, 0], data.X[:, 1]
+    eta = np.column_stack([0.6 - 0.9 * x1 + 0.6 * x2, -0.6 + 1.2 * x1 - 0.5 * x2,
+                           np.zeros(len(x1))])  # fmt: skip
+    e = np.exp(eta - logsumexp(eta, axis=1, keepdims=True))
+    np.testing.assert_allclose(data.principal_scores[:, [0, 1, 3]], e, atol=1e-12)
+    assert data.true_effect == 1.0 and data.params["stratum_model"] == "multinomial"
+    assert "multinomial" in data.DESCR
+    with pytest.raises(ValueError, match="stratum_model"):
+        make_truncation(10, stratum_model="probit")

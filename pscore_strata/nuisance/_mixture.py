@@ -175,7 +175,7 @@ def stratum_pieces(model, X, treatment, survival, weights, mask, arms):
     ``mask`` marks the rows the model was fitted on (all rows, or those of known status);
     ``arms`` maps each arm to the strata its survival probability sums.
     """
-    Zd = _with_intercept(model._standardized(X))
+    Zd = _with_intercept(model._standardized(X, len(treatment)))
     b = model._standardized_coef()
     e = strata_probabilities(Zd @ b.T)
     allowed = compatible_strata(treatment, survival, model.monotonicity == "increasing")

@@ -127,6 +127,12 @@ def sandwich_reason(estimator):
     for role, model in roles:
         if model is None or isinstance(model, int | float) or _default_strata(model):
             continue
+        if role == "survival_model" and _stratum_model(model):
+            return (
+                f"`survival_model` is a PrincipalScoreModel fitted by EM with "
+                f"{type(model.estimator).__name__}; the sandwich needs its default multinomial "
+                "logistic model (estimator=None)"
+            )
         if glm_kind(model) is None:
             return (
                 f"`{role}` is {_describe(model)}, not an unpenalized logistic or linear "
@@ -207,11 +213,15 @@ def _information_vector(Z, u):
     return np.concatenate([[u.sum()], Z.T @ u])
 
 
-def _default_strata(model):
-    """A :class:`~._strata.PrincipalScoreModel` with its multinomial logistic default."""
+def _stratum_model(model):
     from ._strata import PrincipalScoreModel
 
-    return isinstance(model, PrincipalScoreModel) and model.estimator is None
+    return isinstance(model, PrincipalScoreModel)
+
+
+def _default_strata(model):
+    """A :class:`~._strata.PrincipalScoreModel` with its multinomial logistic default."""
+    return _stratum_model(model) and model.estimator is None
 
 
 def response_glm(model):

@@ -17,6 +17,7 @@ from scipy.optimize import minimize
 from sklearn.base import BaseEstimator, clone
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.pipeline import Pipeline
+from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted, has_fit_parameter
 
 from ._mixture import (
@@ -116,6 +117,16 @@ class PrincipalScoreModel(BaseEstimator):
         self.monotonicity = monotonicity
         self.max_iter = max_iter
         self.tol = tol
+
+    def __sklearn_tags__(self):
+        # Missing covariates are the classifier's business (a pipeline may impute them); the
+        # default model needs complete numeric covariates.
+        tags = super().__sklearn_tags__()
+        if isinstance(self.estimator, Pipeline):
+            tags.input_tags.allow_nan = True
+        elif self.estimator is not None:
+            tags.input_tags.allow_nan = get_tags(self.estimator).input_tags.allow_nan
+        return tags
 
     # -- fitting -----------------------------------------------------------------------------
     def fit(self, X, treatment, survival, sample_weight=None):
@@ -281,10 +292,10 @@ class PrincipalScoreModel(BaseEstimator):
         self.coef_ = np.vstack([coef, np.zeros((1, coef.shape[1]))])
         self.intercept_ = np.append(intercept, 0.0)
 
-    def _standardized(self, X):
+    def _standardized(self, X, n_rows=1):
         values = self._design(X)
         if values is None:
-            return np.empty((0 if X is None else len(X), 0))
+            return np.empty((n_rows, 0))
         return (values - self._center) / self._scale
 
     def _standardized_coef(self):
