@@ -365,8 +365,9 @@ def build_parser():
     analyze.add_argument(
         "--survival-model", choices=("arm-wise", "strata"), default="arm-wise",
         help="arm-wise: a survival model in each arm, principal scores from their difference "
-        "(default); strata: one principal score model of stratum membership fitted on both "
-        "arms (monotone by construction)",
+        "(default); strata: one multinomial logistic model of stratum membership fitted on "
+        "both arms, monotone by construction (also with --learner boosting, which then "
+        "applies to the treatment and outcome models)",
     )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")

@@ -153,3 +153,17 @@ def test_unknown_survival_model_is_refused(tmp_path, capsys, prepared):
     options = report.AnalysisOptions(survival_model="joint")
     with pytest.raises(ValueError, match="`survival_model` must be one of arm-wise, strata"):
         report.run_analysis(prepared, _roles(), options)
+
+
+def test_boosting_keeps_the_multinomial_stratum_model():
+    options = report.AnalysisOptions(learner="boosting", survival_model="strata",
+                                     monotonicity="decreasing")  # fmt: skip
+    for method in ("weighting", "regression", "robust"):
+        est = report.build_estimator(method, options, 2000)
+        assert isinstance(est.survival_model, ps.PrincipalScoreModel)
+        assert est.survival_model.estimator is None  # multinomial logistic, no EM on boosting
+        assert est.survival_model.monotonicity == est.monotonicity == "decreasing"
+        assert type(est.treatment_model).__name__ == "HistGradientBoostingClassifier"
+        assert est.n_folds == 5
+    arm_wise = report.build_estimator("robust", report.AnalysisOptions(learner="boosting"), 2000)
+    assert type(arm_wise.survival_model).__name__ == "HistGradientBoostingClassifier"
