@@ -19,6 +19,7 @@ from .diagnostics import (
     diagnostic_warnings,
     monotonicity_check,
     overlap_summary,
+    survival_fit_check,
     weight_summary,
 )
 from .distributions import (
@@ -75,6 +76,7 @@ __all__ = [
     "weight_summary",
     "overlap_summary",
     "monotonicity_check",
+    "survival_fit_check",
     "diagnostic_warnings",
     "__version__",
 ]

@@ -9,7 +9,7 @@ the report and the API always agree.
 from __future__ import annotations
 
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 
 import numpy as np
@@ -33,7 +33,7 @@ from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.2.0"
+SCHEMA_VERSION = "1.3.0"
 
 
 @dataclass
@@ -177,7 +177,23 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     -------
     Analysis
     """
+    from ._survival_model import (
+        BY_FIT,
+        SURVIVAL_MODELS,
+        choose_survival_model,
+        survival_model_record,
+    )
+
+    if options.survival_model not in (*SURVIVAL_MODELS, BY_FIT):
+        raise ValueError(
+            f"`survival_model` must be one of {', '.join(SURVIVAL_MODELS)} or {BY_FIT!r} (fit "
+            f"both, keep the better); got {options.survival_model!r}."
+        )
     collector = _Collector(progress)
+    choice = None
+    if options.survival_model == BY_FIT:
+        choice = choose_survival_model(collector, options, data, build_estimator, fit_arguments)
+        options = replace(options, survival_model=choice["model"])
     estimators = {}
     n_rows = int(len(data.treatment))
     order = (options.method, *[m for m in METHODS if m != options.method])
@@ -214,7 +230,9 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "monotonicity": options.monotonicity,
             "seed": options.seed,
             "missing": options.missing,
+            "survival_model": options.survival_model,
         },
+        "survival_model": survival_model_record(options, choice),
         "wording": words,
         "estimand": estimand(roles, options.monotonicity, words),
         "data_overview": _overview(data, roles),

@@ -85,7 +85,8 @@ def _quantile_bounds(collector, options, data, primary):
     from ..inference._influence import estimator_dof
 
     models, _ = model_settings(options)
-    models.pop("survival_model", None)  # unused without score strata
+    if options.survival_model == "arm-wise":
+        models.pop("survival_model", None)  # unused without score strata
     bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=QUANTILES, **models)
     # With the default models the bounds reuse the analysis' one fit (never a cross-fitted one).
     shared = primary.nuisance_

@@ -1,11 +1,12 @@
 """What a reviewer asks to see of the fitted models: principal-score distributions by arm,
-survivors' outcome distributions by arm, and the calibration of each survival model.
+survivors' outcome distributions by arm, and the calibration of the survival side.
 
-Calibration is checked on each arm's own rows, where the survival model was fitted (out of
-fold when cross-fitted): rows are grouped into tenths of the predicted probability and the
-observed survival share of each group is set against its mean prediction
-(``sklearn.calibration.calibration_curve``); the Brier score is scikit-learn's
-``brier_score_loss``. Both ignore sample weights.
+Calibration is checked on each arm's own rows (out of fold when cross-fitted), for whichever
+model produced the principal scores: :func:`pscore_strata.survival_fit_check` groups the rows
+into tenths of the predicted probability (as ``sklearn.calibration.calibration_curve`` bins
+them), sets each group's observed survival share against its mean prediction and tests the
+gaps (a Hosmer-Lemeshow-type chi-square per arm). Shares are weighted by the sample weights;
+the Brier score is scikit-learn's ``brier_score_loss`` with the same weights.
 """
 
 from __future__ import annotations
@@ -24,30 +25,58 @@ def _arm_names(results):
     return {1: words.get("treated_arm", "treated"), 0: words.get("control_arm", "control")}
 
 
+def _fit_check_record(table):
+    attrs = table.attrs
+    return {
+        "survival_model": attrs["survival_model"],
+        "grouping": attrs["grouping"],
+        "reference": attrs["reference"],
+        "tests": [
+            {"arm": "both" if arm == "both arms" else arm, "statistic": number(t["statistic"]),
+             "df": int(t["df"]), "p_value": number(t["p_value"]), "n_groups": int(t["n_groups"])}
+            for arm, t in attrs["tests"].items()
+        ],
+        "groups": [
+            {"arm": arm, "group": str(group), "n_rows": int(row["n_rows"]),
+             "predicted": number(row["predicted"]), "observed": number(row["observed"]),
+             "std_error": number(row["std_error"]), "z": number(row["z"])}
+            for (arm, group), row in table.iterrows()
+        ],
+        "log_likelihood": number(attrs["log_likelihood"]),
+        "n_parameters": attrs["n_parameters"],
+        "aic": None if attrs["aic"] is None else number(attrs["aic"]),
+        "notes": list(attrs["notes"]),
+    }  # fmt: skip
+
+
 def model_checks_section(primary):
-    """Calibration of each arm's survival model (``model_checks`` record of results.json)."""
-    from sklearn.calibration import calibration_curve
+    """Calibration and fit of the survival side (``model_checks`` record of results.json)."""
     from sklearn.metrics import brier_score_loss
 
+    from ..diagnostics import survival_fit_check
+
+    table = survival_fit_check(primary, n_groups=10)
     data = primary.training_data_
     rows = []
     for arm in (1, 0):
+        name = "treated" if arm == 1 else "control"
         # Rows of the arm with a known survival status (all rows unless --missing at_random).
         in_arm = (data.treatment == arm) & np.isfinite(data.survival)
+        if data.status_known is not None:
+            in_arm &= data.status_known == 1
         survived = data.survival[in_arm]
+        weights = data.sample_weight[in_arm]
         predicted = np.clip(primary.nuisance_.survival[arm][in_arm], 0.0, 1.0)
-        observed_share, mean_predicted = calibration_curve(
-            survived, predicted, n_bins=10, strategy="quantile"
-        )
+        groups = table.loc[name]
         rows.append({
-            "arm": "treated" if arm == 1 else "control",
+            "arm": name,
             "n_rows": int(in_arm.sum()),
-            "mean_predicted": number(predicted.mean()),
-            "observed_share": number(survived.mean()),
-            "brier_score": number(brier_score_loss(survived, predicted)),
-            "max_bin_gap": number(np.max(np.abs(observed_share - mean_predicted))),
+            "mean_predicted": number(np.average(predicted, weights=weights)),
+            "observed_share": number(np.average(survived, weights=weights)),
+            "brier_score": number(brier_score_loss(survived, predicted, sample_weight=weights)),
+            "max_bin_gap": number(np.max(np.abs(groups["observed"] - groups["predicted"]))),
         })  # fmt: skip
-    return {"calibration": rows, "n_bins": 10}
+    return {"calibration": rows, "n_bins": 10, "fit_check": _fit_check_record(table)}
 
 
 def _scores_figure(primary, results):
@@ -95,34 +124,40 @@ def _outcome_figure(primary, results):
 
 def _calibration_figure(primary, results):
     import matplotlib.pyplot as plt
-    from sklearn.calibration import calibration_curve
 
     names = _arm_names(results)
-    data = primary.training_data_
+    groups = results["model_checks"]["fit_check"]["groups"]
+    tests = {t["arm"]: t for t in results["model_checks"]["fit_check"]["tests"]}
     figure, axes = plt.subplots(1, 2, figsize=(8.4, 3.8), layout="constrained")
-    for ax, arm in zip(axes, (1, 0), strict=True):
-        in_arm = (data.treatment == arm) & np.isfinite(data.survival)
-        predicted = np.clip(primary.nuisance_.survival[arm][in_arm], 0.0, 1.0)
-        observed, mean_predicted = calibration_curve(
-            data.survival[in_arm], predicted, n_bins=10, strategy="quantile"
-        )
+    for ax, arm in zip(axes, ("treated", "control"), strict=True):
+        rows = [g for g in groups if g["arm"] == arm]
+        predicted = np.array([g["predicted"] for g in rows], dtype=float)
+        observed = np.array([g["observed"] for g in rows], dtype=float)
+        spread = 1.96 * np.array([g["std_error"] or 0.0 for g in rows], dtype=float)
         ax.plot([0, 1], [0, 1], color="0.5", linestyle="--", linewidth=1, label="perfect")
-        ax.plot(mean_predicted, observed, "o-", color=_ARM_COLORS[arm], label="tenths of rows")
+        color = _ARM_COLORS[1 if arm == "treated" else 0]
+        ax.errorbar(predicted, observed, yerr=spread, fmt="o-", color=color, capsize=2,
+                    label="tenths of rows, ±1.96 SE")  # fmt: skip
         ax.set_xlim(0, 1)
         ax.set_ylim(0, 1)
         ax.set_aspect("equal")
         ax.set_xlabel("predicted survival probability")
         ax.set_ylabel("observed survival share")
-        ax.set_title(f"Survival model, {names[arm]} (n={in_arm.sum():,})", fontsize=9)
-        ax.legend(fontsize=8, loc="upper left")
+        test = tests[arm]
+        p_value = "n/a" if test["p_value"] is None else f"{test['p_value']:.3f}"
+        ax.set_title(f"Survival, {names[1 if arm == 'treated' else 0]} "
+                     f"(n={sum(g['n_rows'] for g in rows):,}; fit check p={p_value})",
+                     fontsize=9)  # fmt: skip
+        ax.legend(fontsize=7, loc="upper left")
         ax.grid(color="0.92")
     return figure
 
 
 def model_check_figures(analysis):
     """Figure specifications (name, title, draw, args, caption) for the report."""
-    if analysis.primary is None or "model_checks" not in analysis.results:
-        return []
+    checks = analysis.results.get("model_checks") or {}
+    if analysis.primary is None or "fit_check" not in checks:
+        return []  # the section shows why the checks are missing, and no figure
     primary, results = analysis.primary, analysis.results
     return [
         ("principal_scores.png", "Principal scores by arm", _scores_figure, (primary, results),
@@ -132,8 +167,11 @@ def model_check_figures(analysis):
          (primary, results),
          "Observed outcomes of the survivors, without weights: the naive comparison contrasts "
          "these two groups, which are different mixtures of strata."),
-        ("calibration.png", "Calibration of the survival models", _calibration_figure,
+        ("calibration.png", "Calibration of the survival side", _calibration_figure,
          (primary, results),
-         "Each point is a tenth of the arm's rows ordered by predicted survival: points on the "
-         "dashed line mean the model's probabilities match the observed survival shares."),
+         "Each point is a tenth of the arm's rows ordered by predicted survival; points on the "
+         "dashed line mean the model's probabilities match the observed survival shares. Bars "
+         "span 1.96 binomial standard errors under the fitted model: a bar missing the line "
+         "marks a gap significant at 5% on its own (the fit check in the title tests all "
+         "groups at once)."),
     ]  # fmt: skip

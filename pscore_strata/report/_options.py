@@ -59,10 +59,26 @@ class AnalysisOptions:
     unit_name: str = "unit"
     arm_names: tuple | None = None
     missing: str = "error"
+    # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
+    # "by_fit" (fit both, keep the better; the demo).
+    survival_model: str = "arm-wise"
 
 
 def model_settings(options, n_rows=None):
-    """Nuisance models and fold count for the chosen learner (``n_rows``: size of the data)."""
+    """Nuisance models and fold count for the chosen learner (``n_rows``: size of the data).
+
+    With ``survival_model="strata"`` the survival model is a ``PrincipalScoreModel`` (of the
+    learner's classifier), the same for the estimators and the bounds.
+    """
+    models, folds = _learner_settings(options, n_rows)
+    if options.survival_model == "strata":
+        from ._survival_model import survival_model_argument
+
+        models["survival_model"] = survival_model_argument(options, models.get("survival_model"))
+    return models, folds
+
+
+def _learner_settings(options, n_rows):
     if options.learner == "linear":
         return {}, options.folds
     from sklearn.ensemble import HistGradientBoostingClassifier
@@ -80,13 +96,14 @@ def build_estimator(method, options, n_rows=None):
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
                   random_state=options.seed, missing=options.missing)  # fmt: skip
-    if method != "weighting" and models:
+    boosting = options.learner != "linear"
+    if method != "weighting" and boosting:
         from sklearn.ensemble import HistGradientBoostingRegressor
 
         params["outcome_model"] = HistGradientBoostingRegressor(
             random_state=options.seed, **boosting_params(n_rows)
         )
-    if method != "robust" and models:
+    if method != "robust" and boosting:
         # The refitting bootstrap inside these estimators would refit every boosting model
         # hundreds of times; --bootstrap N runs it once, for the primary estimator, instead.
         params["n_bootstrap"] = 0
