@@ -22,8 +22,8 @@ LABELS = {"arm-wise": "arm-wise survival models", "strata": "stratum model"}
 DESCRIPTIONS = {
     "arm-wise": "a survival model fitted in each arm; the principal scores are differences of "
     "the two (clipped where they cross)",
-    "strata": "one principal score model of stratum membership, multinomial logistic (with "
-    "every learner), fitted on both arms; monotone by construction",
+    "strata": "one principal score model of stratum membership (multinomial logistic, "
+    "whichever learner fits the other models), fitted on both arms; monotone by construction",
 }
 
 
