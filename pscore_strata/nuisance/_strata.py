@@ -16,7 +16,7 @@ import pandas as pd
 from sklearn.base import BaseEstimator, clone
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.pipeline import Pipeline
-from sklearn.utils import get_tags
+from sklearn.utils import check_random_state, get_tags
 from sklearn.utils.validation import check_array, check_is_fitted, has_fit_parameter
 
 from ._mixture import (
@@ -31,6 +31,13 @@ __all__ = ["PrincipalScoreModel", "StratumArm", "fit_strata_scores"]
 
 # Probabilities are floored here before logs in the EM path (a classifier may predict 0).
 _TINY = 1e-300
+# tol="auto": the default model's bound on the gradient (as before "auto" existed), and EM's
+# bound on the relative rise of the observed-data log-likelihood per iteration (1e-6: common
+# practice for EM stopping rules; EM's linear rate makes a tighter bound costly for little).
+_NEWTON_TOL = 1e-8
+_EM_TOL = 1e-6
+# EM iterations in a row without a new best log-likelihood (by more than tol) before it stops.
+_EM_PATIENCE = 3
 
 
 class PrincipalScoreModel(BaseEstimator):
@@ -64,10 +71,23 @@ class PrincipalScoreModel(BaseEstimator):
         Must match the estimator the model is passed to.
     max_iter : int, default=200
         Newton iterations (default model) or EM iterations (classifier).
-    tol : float, default=1e-8
+    tol : "auto" or float, default="auto"
         Default model: largest absolute gradient of the mean log-likelihood (standardized
-        coefficients) at convergence. EM: change of the mean log-likelihood between
-        iterations.
+        coefficients) at convergence (``"auto"``: 1e-8). EM: the relative rise of the
+        observed-data log-likelihood below which an iteration counts as no improvement
+        (``"auto"``: 1e-6); EM stops after 3 iterations in a row without a rise of more than
+        ``tol`` over the best so far, and keeps the best iteration. An exact M-step (a
+        logistic classifier) never lowers the log-likelihood, so this is the usual rule; a
+        learner whose fit is not an exact M-step (trees, early stopping) wanders around its
+        plateau instead, and the rule stops it there.
+    init : {"multinomial", "shares"}, default="multinomial"
+        EM only: start from the posteriors of the default multinomial logistic fit (when ``X``
+        is numeric and complete; otherwise, as with ``"shares"``, from the stratum shares
+        implied by the arms' survival shares).
+    random_state : int, RandomState or None, default=None
+        EM only: seeds the classifier's ``random_state`` parameters (also those of pipeline
+        steps) that are ``None``, once per fit, so that every M-step uses the same randomness
+        and the iterations can settle. Parameters already set are left as they are.
 
     Attributes
     ----------
@@ -78,12 +98,16 @@ class PrincipalScoreModel(BaseEstimator):
         (the doomed row is 0: it is the reference).
     intercept_ : ndarray of shape (3,)
     estimator_ : classifier
-        The last M-step's fitted classifier (classifier path only).
+        The fitted classifier of the EM iteration with the highest observed-data
+        log-likelihood (classifier path only).
     n_iter_ : int
         Iterations run.
+    log_likelihood_path_ : ndarray of shape (n_iter_,)
+        EM only: the weighted observed-data log-likelihood after each iteration.
     converged_ : bool
     log_likelihood_ : float
-        Weighted observed-data log-likelihood at the fit, ``sum_i w_i log L_i``.
+        Weighted observed-data log-likelihood at the fit, ``sum_i w_i log L_i`` (EM: of the
+        kept iteration).
     n_features_in_ : int
 
     See Also
@@ -114,11 +138,14 @@ class PrincipalScoreModel(BaseEstimator):
     (0, 'sandwich')
     """
 
-    def __init__(self, estimator=None, *, monotonicity="increasing", max_iter=200, tol=1e-8):
+    def __init__(self, estimator=None, *, monotonicity="increasing", max_iter=200, tol="auto",
+                 init="multinomial", random_state=None):  # fmt: skip
         self.estimator = estimator
         self.monotonicity = monotonicity
         self.max_iter = max_iter
         self.tol = tol
+        self.init = init
+        self.random_state = random_state
 
     def __sklearn_tags__(self):
         # Missing covariates are the classifier's business (a pipeline may impute them); the
@@ -157,7 +184,19 @@ class PrincipalScoreModel(BaseEstimator):
             self._fit_multinomial(X, allowed, weights)
         else:
             self._fit_em(X, allowed, weights)
-        if not self.converged_:
+        if not self.converged_ and self.estimator is not None:
+            warnings.warn(
+                f"PrincipalScoreModel's EM fit did not settle in max_iter={self.max_iter} "
+                f"iterations: the observed-data log-likelihood still rose by more than "
+                f"tol={self.tol} (relative) within the last {_EM_PATIENCE} iterations. The "
+                "model kept is the iteration with the highest log-likelihood. Increase "
+                "`max_iter`, loosen `tol`, or regularize the classifier (fewer or shallower "
+                "trees, larger leaves); a learner that keeps fitting the posteriors more "
+                "closely overfits them.",
+                ConvergenceWarning,
+                stacklevel=2,
+            )
+        elif not self.converged_:
             warnings.warn(
                 f"PrincipalScoreModel did not converge in max_iter={self.max_iter} iterations "
                 f"(tol={self.tol}). Increase `max_iter`, loosen `tol`, or simplify the covariates; "
@@ -182,10 +221,13 @@ class PrincipalScoreModel(BaseEstimator):
             self.max_iter < 1
         ):
             raise ValueError(f"`max_iter` must be a positive integer; got {self.max_iter!r}.")
-        if isinstance(self.tol, bool) or not isinstance(self.tol, int | float) or not (
-            self.tol > 0
-        ):
-            raise ValueError(f"`tol` must be a positive number; got {self.tol!r}.")
+        if not (isinstance(self.tol, str) and self.tol == "auto") and (
+            isinstance(self.tol, bool) or not isinstance(self.tol, int | float)
+            or not (self.tol > 0)
+        ):  # fmt: skip
+            raise ValueError(f"`tol` must be 'auto' or a positive number; got {self.tol!r}.")
+        if self.init not in ("multinomial", "shares"):
+            raise ValueError(f"`init` must be 'multinomial' or 'shares'; got {self.init!r}.")
         if self.estimator is not None:
             final = self.estimator.steps[-1][1] if isinstance(self.estimator, Pipeline) else (
                 self.estimator
@@ -275,10 +317,11 @@ class PrincipalScoreModel(BaseEstimator):
         start = np.zeros((2, Zd.shape[1]))
         shares = self._starting_strata(allowed, weights)
         start[:, 0] = np.log(shares[:2] / shares[2])
-        theta, self.n_iter_ = _newton(likelihood, start.ravel(), self.max_iter, self.tol)
+        tol = _NEWTON_TOL if self.tol == "auto" else self.tol
+        theta, self.n_iter_ = _newton(likelihood, start.ravel(), self.max_iter, tol)
         self._coef_standardized = theta.reshape(2, -1)
         gradient = np.max(np.abs(likelihood.score(theta)))
-        self.converged_ = bool(gradient <= self.tol)
+        self.converged_ = bool(gradient <= tol)
         self.log_likelihood_ = likelihood.log_likelihood(theta) * likelihood.total
         coef = self._coef_standardized[:, 1:] / self._scale
         intercept = self._coef_standardized[:, 0] - coef @ self._center
@@ -315,25 +358,71 @@ class PrincipalScoreModel(BaseEstimator):
         duplicated = inputs.iloc[rows] if isinstance(inputs, pd.DataFrame) else (
             np.asarray(inputs)[rows]
         )
-        log_e = np.log(np.broadcast_to(self._starting_strata(allowed, weights), allowed.shape))
-        post, log_cell = posterior_strata(log_e, allowed)
-        previous = -np.inf
+        base = self._seeded_estimator()
+        post = self._starting_posteriors(X, allowed, weights)
+        tol = _EM_TOL if self.tol == "auto" else float(self.tol)
         total = weights.sum()
+        best, stalled, path = -np.inf, 0, []
         self.converged_ = False
         for iteration in range(1, int(self.max_iter) + 1):
             model = _weighted_fit(
-                clone(self.estimator), duplicated, labels, weights[rows] * post[rows, labels]
+                clone(base), duplicated, labels, weights[rows] * post[rows, labels]
             )
             strata = self._classifier_strata(model, inputs)
             post, log_cell = posterior_strata(np.log(np.clip(strata, _TINY, None)), allowed)
             current = float(weights @ log_cell) / total
+            path.append(current * total)
             self.n_iter_ = iteration
-            if abs(current - previous) <= self.tol:
+            # Relative rise of the best mean log-likelihood so far. An exact M-step never lowers
+            # it, so one iteration without a rise is the usual stop; a learner whose fit is not
+            # an exact M-step (trees, early stopping) wanders around its plateau instead, and
+            # _EM_PATIENCE iterations without a new best stop it there.
+            stalled = stalled + 1 if current - best <= tol * abs(best) else 0
+            if current > best:
+                best, self.estimator_ = current, model
+            if stalled >= _EM_PATIENCE:
                 self.converged_ = True
                 break
-            previous = current
-        self.estimator_ = model
-        self.log_likelihood_ = current * total
+        self.log_likelihood_ = best * total
+        self.log_likelihood_path_ = np.asarray(path)
+
+    def _seeded_estimator(self):
+        """A clone of ``estimator`` whose unset ``random_state`` parameters are fixed integers.
+
+        Every M-step refits a clone; with ``random_state=None`` each refit would draw new
+        randomness (validation split of early stopping, feature subsampling) and the iterations
+        could not settle. One seed per parameter, drawn from ``self.random_state``, serves all
+        iterations of a fit.
+        """
+        base = clone(self.estimator)
+        unset = sorted(
+            name for name, value in base.get_params(deep=True).items()
+            if (name == "random_state" or name.endswith("__random_state")) and value is None
+        )  # fmt: skip
+        if unset:
+            rng = check_random_state(self.random_state)
+            base.set_params(**{name: int(rng.randint(np.iinfo(np.int32).max)) for name in unset})
+        return base
+
+    def _starting_posteriors(self, X, allowed, weights):
+        """Posterior strata of the EM start (see ``init``)."""
+        strata = None
+        if self.init == "multinomial":
+            try:
+                values = None if X is None else check_array(X, dtype=float, ensure_min_features=1)
+            except (TypeError, ValueError):  # text columns or missing values: a pipeline's job
+                values = None
+            if values is not None:
+                start = PrincipalScoreModel(monotonicity=self.monotonicity)
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore", ConvergenceWarning)  # only a starting point
+                    start._fit_multinomial(values, allowed, weights)
+                strata = strata_probabilities(
+                    _with_intercept(start._standardized(values)) @ start._coef_standardized.T
+                )
+        if strata is None:
+            strata = np.broadcast_to(self._starting_strata(allowed, weights), allowed.shape)
+        return posterior_strata(np.log(np.clip(strata, _TINY, None)), allowed)[0]
 
     # -- predictions -------------------------------------------------------------------------
     def predict_proba(self, X):
