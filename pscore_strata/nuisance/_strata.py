@@ -16,7 +16,7 @@ import pandas as pd
 from sklearn.base import BaseEstimator, clone
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.pipeline import Pipeline
-from sklearn.utils import check_random_state, get_tags
+from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted, has_fit_parameter
 
 from ._mixture import (
@@ -391,18 +391,13 @@ class PrincipalScoreModel(BaseEstimator):
 
         Every M-step refits a clone; with ``random_state=None`` each refit would draw new
         randomness (validation split of early stopping, feature subsampling) and the iterations
-        could not settle. One seed per parameter, drawn from ``self.random_state``, serves all
-        iterations of a fit.
+        could not settle. The seeds, drawn from ``self.random_state`` as the estimators seed their
+        learners, serve all iterations of a fit.
         """
-        base = clone(self.estimator)
-        unset = sorted(
-            name for name, value in base.get_params(deep=True).items()
-            if (name == "random_state" or name.endswith("__random_state")) and value is None
-        )  # fmt: skip
-        if unset:
-            rng = check_random_state(self.random_state)
-            base.set_params(**{name: int(rng.randint(np.iinfo(np.int32).max)) for name in unset})
-        return base
+        from ..inference._influence import spawn_seeds
+        from ..inference._refits import _seed_models
+
+        return _seed_models(clone(self.estimator), spawn_seeds(self.random_state, 1)[0])
 
     def _starting_posteriors(self, X, allowed, weights):
         """Posterior strata of the EM start (see ``init``)."""
