@@ -194,7 +194,8 @@ def test_non_convergence_warns_with_advice():
 
 def test_em_non_convergence_warns_with_advice_and_keeps_the_best_iteration():
     base = LogisticRegression(C=np.inf, solver="newton-cg", max_iter=500)
-    with pytest.warns(ConvergenceWarning, match="did not settle in max_iter=2.*Increase `max_iter`"):
+    advice = "did not settle in max_iter=2.*Increase `max_iter`"
+    with pytest.warns(ConvergenceWarning, match=advice):
         em = ps.PrincipalScoreModel(base, init="shares", max_iter=2).fit(
             MULTI.X, MULTI.treatment, MULTI.survival
         )
