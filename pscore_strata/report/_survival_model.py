@@ -33,7 +33,7 @@ def survival_model_argument(options, classifier=None):
     ``classifier`` is the learner's survival model (``None``: the default logistic models).
     The stratum model is the default multinomial logistic ``PrincipalScoreModel()`` with every
     learner; ``--learner boosting`` applies to the treatment and outcome models. The boosting
-    classifier fitted by EM settles in about 10-15 iterations (a few seconds per fit on the demo
+    classifier fitted by EM settles in 13-16 iterations (about 6 s per fit on the demo
     registry), but the report fits it once per fold: on the demo, 65 s end to end against 12 s,
     and its cross-fitted survival fit was worse (fit check chi-square 220 on 16 df, against 30
     for the multinomial model and 123 for arm-wise boosting); see benchmarks/README.md.
