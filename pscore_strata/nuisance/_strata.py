@@ -102,7 +102,7 @@ class PrincipalScoreModel(BaseEstimator):
         log-likelihood (classifier path only).
     n_iter_ : int
         Iterations run.
-    log_likelihood_path_ : ndarray of shape (n_iter_,)
+    log_likelihood_path_ : ndarray of shape (n_iterations,)
         EM only: the weighted observed-data log-likelihood after each iteration.
     converged_ : bool
     log_likelihood_ : float
