@@ -112,12 +112,15 @@ def test_simultaneous_band_covers_the_whole_curve():
     # Source: simulated truth (always-survivor CDFs of Y(1), Y(0) over 10^6 units). 150
     # replicates of n = 4000, weighting, 25 values between the 15% and 85% points; each arm's
     # 95% simultaneous band should cover the whole true curve, and does so far more often than
-    # the pointwise intervals do. Measured: the band covers 89.7% of the 300 curves, below the
-    # nominal 95%: the control arm's band covers about 94% (pointwise SE/SD 0.97-1.06), the
-    # treated arm's about 86%, because the sandwich SE of the treated arm's weighted CDF is
-    # 5-13% below the Monte Carlo SD in the middle of the distribution at n = 1500 and at
-    # n = 4000 alike (heavy principal score weights p0 / (pi p1)), and the sup-t statistic
-    # amplifies that. The check accepts 85-99% and records the shortfall (docs/distributions.md).
+    # the pointwise intervals do. These 150 seeds give 89.7% of the 300 curves (treated 87.3%),
+    # a low draw: over 2000 replicates (benchmarks/distribution_band_coverage.py) the band
+    # covers 93.5% (treated) and 94.1% (control) at n = 4000, and 91.0% and 93.9% at
+    # n = 1500, where the treated arm's sandwich SE is 0.96-1.01 of the Monte Carlo SD. The SE
+    # itself equals the numerical stacked sandwich (tests/test_distributions.py); the shortfall
+    # is the noise of the estimated SE under the heavy weights p0 / (pi p1), which the sup-t
+    # statistic amplifies (with the Monte Carlo SD in place of the SE the same critical values
+    # cover 94.1-94.7%). Over 150 replicates the Monte Carlo SE of a coverage is 1.8 points,
+    # that of an SD ratio about 6%. The check accepts 88-99% (docs/distributions.md).
     # Multiplier bands: Chernozhukov, Fernandez-Val & Melly (2013).
     big = make_truncation(1_000_000, n_features=3, random_state=12345)
     always = big.stratum == "always_survivor"
@@ -139,7 +142,7 @@ def test_simultaneous_band_covers_the_whole_curve():
                                              & (t <= frame[f"{arm}_ci_high"])))  # fmt: skip
     print(f"band covers the whole curve: {np.mean(band_hits):.3f}; "
           f"pointwise intervals all cover: {np.mean(pointwise_hits):.3f}")
-    assert 0.85 <= np.mean(band_hits) <= 0.99
+    assert 0.88 <= np.mean(band_hits) <= 0.99
     assert np.mean(pointwise_hits) < 0.85
 
 

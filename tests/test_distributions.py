@@ -3,19 +3,23 @@
 External references: simulated truth (quantiles and CDF values of the always-survivors'
 potential outcomes in a large simulation of the same setting), an independent weighted ECDF and
 weighted quantile (statsmodels DescrStatsW), the Mann-Whitney statistic (scipy) and a brute-force
-weighted pair count, and the refitting bootstrap.
+weighted pair count, the refitting bootstrap, and a numerical stacked M-estimation sandwich
+(statsmodels logistic fits, finite-difference bread).
 """
 
 import warnings
 
 import numpy as np
 import pytest
+import statsmodels.api as sm
 from scipy import stats
+from scipy.special import expit
 from statsmodels.stats.weightstats import DescrStatsW
 
 import pscore_strata as ps
 from pscore_strata.assumptions import imbens_manski_interval
 from pscore_strata.datasets import make_truncation
+from pscore_strata.inference._influence import influence_std_error
 
 
 def skewed(y):
@@ -375,3 +379,75 @@ def test_quantile_bounds_with_few_clusters_use_the_t_reference():
         row["lower"], row["upper"], row["std_error_lower"], row["std_error_upper"], 0.95
     )
     assert row["ci_high"] - row["ci_low"] > normal[1] - normal[0]
+
+
+def _stacked_cdf_errors(data, values, monotonicity):
+    """Sandwich SEs of both arms' weighted CDFs at ``values`` from the stacked equations.
+
+    Equations per row: the three logistic scores (treatment; survival in each arm, fitted by
+    statsmodels) and, per value and arm, ``w_t (1{Y <= v} - F_t)`` with the estimator's weights.
+    The bread ``A`` is a central finite-difference Jacobian, so no analytic derivative of the
+    package is reused (Stefanski & Boos 2002, The calculus of M-estimation).
+    """
+    T, S = data.treatment.astype(float), data.survival.astype(float)
+    y = np.where(S == 1, skewed(np.nan_to_num(data.y)), 0.0)
+    D = sm.add_constant(data.X)
+    n, k = D.shape
+    cells = (np.ones(n, bool), T), (T == 1, S), (T == 0, S)
+    coefficients = [sm.GLM(target[rows], D[rows], family=sm.families.Binomial()).fit().params
+                    for rows, target in cells]  # fmt: skip
+    below = (y[:, None] <= values).astype(float)
+
+    def weights(theta):
+        pi, p1, p0 = (expit(D @ theta[j * k:(j + 1) * k]) for j in range(3))
+        w1, w0 = T * S / pi, (1 - T) * S / (1 - pi)
+        # The arm whose survivors mix strata gets the always-survivor odds p_pure / p_mixed.
+        return (w1 * p0 / p1, w0) if monotonicity == "increasing" else (w1, w0 * p1 / p0)
+
+    def stacked(theta):
+        pi, p1, p0 = (expit(D @ theta[j * k:(j + 1) * k]) for j in range(3))
+        w1, w0 = weights(theta)
+        F1, F0 = np.split(theta[3 * k:], 2)
+        scores = [(rows * (target - p))[:, None] * D
+                  for (rows, target), p in zip(cells, (pi, p1, p0), strict=True)]  # fmt: skip
+        return np.column_stack(scores + [w1[:, None] * (below - F1), w0[:, None] * (below - F0)])
+
+    w1, w0 = weights(np.concatenate(coefficients))
+    theta = np.concatenate(coefficients + [w1 @ below / w1.sum(), w0 @ below / w0.sum()])
+    rows = stacked(theta)
+    assert np.abs(rows.mean(axis=0)).max() < 1e-8  # every equation is solved
+    step = 1e-6
+    bread = np.column_stack([(stacked(theta + step * e).mean(0) - stacked(theta - step * e).mean(0))
+                             / (2 * step) for e in np.eye(theta.size)])  # fmt: skip
+    bread_inv = np.linalg.inv(bread)
+    covariance = bread_inv @ (rows.T @ rows / n) @ bread_inv.T / (n - 1)
+    m = values.size
+    se = np.sqrt(np.diag(covariance)[3 * k:])
+    return theta[3 * k:3 * k + m], theta[3 * k + m:], se[:m], se[m:]
+
+
+@pytest.mark.parametrize("monotonicity", ["increasing", "decreasing"])
+def test_weighted_cdf_errors_match_a_numerical_stacked_sandwich(monotonicity):
+    # Reference 1: the numerical stacked M-estimation sandwich above (statsmodels logistic fits,
+    # finite-difference bread). Reference 2: the weighting estimator fitted directly with the
+    # outcome 1{Y <= v}: the CDF at v is that estimator's always-survivor mean, so its estimate
+    # and standard error must be the CDF path's exactly (same nuisance models, same formula).
+    data = make_truncation(2000, n_features=3, monotonicity=monotonicity, random_state=3)
+    values = np.array([0.6, 1.0, 1.5, 2.5, 4.0])
+    est = fit(ps.PrincipalScoreWeighting, data, monotonicity=monotonicity)
+    dist = ps.survivor_distribution(est, values=values, n_draws=100)
+    F1, F0, se1, se0 = _stacked_cdf_errors(data, values, monotonicity)
+    np.testing.assert_allclose(dist.treated, F1, rtol=1e-8)
+    np.testing.assert_allclose(dist.control, F0, rtol=1e-8)
+    np.testing.assert_allclose(dist.std_error_treated, se1, rtol=1e-4)
+    np.testing.assert_allclose(dist.std_error_control, se0, rtol=1e-4)
+    y = skewed(data.y)
+    for j, v in enumerate(values):
+        indicator = np.where(data.survival == 1, (y <= v).astype(float), np.nan)
+        direct = fit(ps.PrincipalScoreWeighting, data, y=indicator, monotonicity=monotonicity)
+        difference = dist.influence_treated[:, j] - dist.influence_control[:, j]
+        assert direct.std_error_method_ == "sandwich"
+        assert direct.mean_treated_ == pytest.approx(dist.treated[j], rel=1e-12)
+        assert direct.mean_control_ == pytest.approx(dist.control[j], rel=1e-12)
+        np.testing.assert_allclose(direct.influence_, difference, rtol=1e-10, atol=1e-12)
+        assert direct.std_error_ == pytest.approx(influence_std_error(difference), rel=1e-10)
