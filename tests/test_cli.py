@@ -303,3 +303,12 @@ def test_argument_errors_are_one_line():
     result = run_cli("analyze", "x.csv", "--method", "magic")
     line = assert_one_line_error(result)
     assert "invalid choice: 'magic'" in line and "--help" in line
+
+
+def test_few_clusters_are_named_with_the_t_reference(analyzed):
+    # The demo registry has 5 sites: the intervals above equal the estimators' conf_int, which
+    # uses Student's t with G - 1 = 4 degrees of freedom under fewer than 30 clusters.
+    _, out, results = analyzed
+    assert results["data_overview"]["n_clusters"] == 5
+    html = " ".join((out / "report.html").read_text().split())
+    assert "t reference with 4 degrees of freedom (G - 1)" in html
