@@ -20,3 +20,7 @@ def test_quickstart_runs_and_recovers_truth():
     assert bounds.lower_ <= data.true_effect <= bounds.upper_
     low, high = namespace["boot"].conf_int(0.95, kind="bca")
     assert low < robust.effect_ < high
+    # The stratum model's scores are sums of stratum probabilities, so they cannot cross.
+    joint = namespace["joint"]
+    assert joint.n_monotonicity_violations_ == 0
+    assert abs(joint.effect_ - data.true_effect) < 4 * joint.std_error_
