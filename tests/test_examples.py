@@ -136,3 +136,14 @@ def test_distributions():
         low, high = map(float, line.split()[5:7])
         assert low < true < high
     assert "P(better level)" in out and "latent" in out
+
+
+def test_stratum_model():
+    out = run_example("stratum_model.py")
+    # Simulated truth: make_truncation(stratum_model="multinomial") has a SACE of exactly 1.
+    pattern = r"stratum model\s+([-\d.]+)\s+([\d.]+)\s+[-\d.]+ to\s+[-\d.]+\s+(\d+)"
+    effect, se, crossings = re.search(pattern, out).groups()
+    assert abs(float(effect) - 1.0) < 4 * float(se)
+    assert int(crossings) == 0  # the stratum model's scores are monotone by construction
+    assert re.search(r"arm-wise\s+[-\d.]+\s+[\d.]+\s+[-\d.]+ to\s+[-\d.]+\s+[1-9]\d*", out)
+    assert "converged: True" in out and "chi-square" in out
