@@ -17,7 +17,7 @@ import warnings
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import optimize
 from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
@@ -25,7 +25,13 @@ from .._arguments import check_estimator_arguments, check_positive_integer
 from .._validation import check_choice, check_level, check_truncation_data
 from ..distributions._quantiles import check_quantiles
 from ..estimators import _formulas
-from ..inference._influence import count_clusters, estimator_dof, influence_std_error
+from ..inference._influence import (
+    count_clusters,
+    estimator_dof,
+    influence_std_error,
+    reference_distribution,
+    reference_quantile,
+)
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import shared_nuisance
 from ._quantile_bounds import add_quantile_bounds
@@ -76,7 +82,7 @@ def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95, dof=Non
     Econometrica 72, section 4) and returns ``(lower - c se_lower, upper + c se_upper)``. With
     ``dof`` (few clusters) ``Phi`` is Student's t with ``dof`` degrees of freedom.
     """
-    reference = stats.norm if dof is None else stats.t(dof)
+    reference = reference_distribution(dof)
     width = max(upper - lower, 0.0)
     scale = max(se_lower, se_upper)
     z_two_sided = reference.ppf(0.5 + level / 2)
@@ -436,7 +442,7 @@ class TrimmingBounds(BaseEstimator):
         check_choice(coverage, "coverage", ("effect", "identified_set"))
         dof = estimator_dof(self)
         if coverage == "identified_set":
-            z = (stats.norm if dof is None else stats.t(dof)).ppf(0.5 + level / 2)
+            z = reference_quantile(level, dof)
             return (
                 float(self.lower_ - z * self.std_error_lower_),
                 float(self.upper_ + z * self.std_error_upper_),

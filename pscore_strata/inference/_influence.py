@@ -118,11 +118,15 @@ def influence_std_error(influence, sample_weight=None, groups=None):
     return float(result) if influence.ndim == 1 else result
 
 
+def reference_distribution(dof=None):
+    """The intervals' reference: the normal, or Student's t with ``dof`` degrees of freedom
+    (few clusters: see :func:`reference_dof`)."""
+    return stats.norm if dof is None else stats.t(dof)
+
+
 def reference_quantile(level, dof=None):
-    """Two-sided quantile of the interval's reference: normal, or Student's t with ``dof``
-    degrees of freedom (few clusters: see :func:`reference_dof`)."""
-    reference = stats.norm if dof is None else stats.t(dof)
-    return float(reference.ppf(0.5 + level / 2))
+    """Two-sided quantile of :func:`reference_distribution` at ``level``."""
+    return float(reference_distribution(dof).ppf(0.5 + level / 2))
 
 
 def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
