@@ -128,6 +128,12 @@ def _moments(Z, observed, weights):
     return mean, np.maximum(variance, 0.0)
 
 
+NO_COVARIATES_NOTE = (
+    "The analysis has no covariates, so there is no covariate balance to check (pass `X` to "
+    "check covariates the models did not use)."
+)
+
+
 @cached_diagnostic(always)
 def balance_table(estimator, X):
     """Covariate balance of the always-survivor reconstructions (the balancing property).
@@ -152,7 +158,8 @@ def balance_table(estimator, X):
         ``raw_variance_ratio_treated_vs_control``: the survivor-only comparison without
         balancing weights (what a naive survivor analysis compares); ``pooled_sd``.
         ``attrs["effective_sample_size"]`` holds the Kish effective sample size of each weight
-        set.
+        set. For an estimator fitted without covariates and ``X=None`` the table has no rows
+        and ``attrs["notes"]`` says so.
 
     Notes
     -----
@@ -163,7 +170,12 @@ def balance_table(estimator, X):
     0.1 is the common-practice signal of imbalance.
     """
     o = oriented_predictions(estimator)
-    names, Z = _covariate_matrix(X, o.weight.shape[0])
+    unadjusted = X is None and getattr(estimator, "n_features_in_", None) == 0
+    if unadjusted:
+        # No covariates: no row to balance; an empty table says so instead of failing.
+        names, Z = [], np.zeros((0, o.weight.shape[0]))
+    else:
+        names, Z = _covariate_matrix(X, o.weight.shape[0])
     missing = np.isnan(Z)
     observed = (~missing).astype(float)
     Z[missing] = 0.0  # Z is a fresh matrix built from X, never the caller's array
@@ -204,6 +216,7 @@ def balance_table(estimator, X):
         **{f"raw_{group}": effective_sample_size(w) for group, w in raw.items()},
     }
     table.attrs["smd_threshold"] = SMD_THRESHOLD
+    table.attrs["notes"] = [NO_COVARIATES_NOTE] if unadjusted else []
     return table
 
 

@@ -47,6 +47,20 @@ class Analysis:
     bounds: object = None
 
 
+# numpy's floating-point warnings ("invalid value encountered in scalar divide") say nothing
+# to a reader of the report; the numbers they concern print as n/a.
+_NUMPY_TEXTS = ("encountered in", "Mean of empty slice", "Degrees of freedom <= 0",
+                "divide by zero", "overflow")  # fmt: skip
+
+
+def _plain(warning):
+    text = " ".join(str(warning.message).split())
+    if issubclass(warning.category, RuntimeWarning) and any(p in text for p in _NUMPY_TEXTS):
+        return ("a computation gave an undefined value (a division by zero or an overflow); "
+                "the numbers it concerns are shown as n/a")  # fmt: skip
+    return text.replace("; returning NaN.", "; shown as n/a.")
+
+
 class _Collector:
     """Runs steps, reports progress and gathers warnings as plain messages."""
 
@@ -63,7 +77,7 @@ class _Collector:
             warnings.simplefilter("always")
             value = step(*args, **kwargs)
         for warning in caught:
-            steps = self.steps.setdefault(" ".join(str(warning.message).split()), [])
+            steps = self.steps.setdefault(_plain(warning), [])
             if label not in steps:
                 steps.append(label)
         return value

@@ -45,11 +45,37 @@ _DEFAULT_WORDING = {
 
 
 def _every_few(grid, n_shown):
-    """About ``n_shown`` evenly spaced rows of a grid, its last row included."""
-    selected = grid[:: max(1, len(grid) // (n_shown - 1))]
-    if grid[-1] not in selected:
-        selected.append(grid[-1])
-    return selected
+    """About ``n_shown`` evenly spaced rows of a grid: the null setting (value 0), both ends.
+
+    The spacing is counted from the row at 0, so the assumption itself is always shown.
+    """
+    step = max(1, len(grid) // (n_shown - 1))
+    null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
+    chosen = set(range(null % step, len(grid), step)) | {0, len(grid) - 1}
+    return [grid[i] for i in sorted(chosen)]
+
+
+def _outside_bounds(results):
+    """Estimates that fall outside the trimming bounds, with how far and in standard errors."""
+    bounds = results.get("bounds") or {}
+    if bounds.get("lower") is None or bounds.get("upper") is None:
+        return []
+    outside = []
+    for estimate in results["estimates"]:
+        effect = estimate["effect"]
+        if effect is None:
+            continue
+        if effect < bounds["lower"]:
+            side, bound, error = "below the lower", bounds["lower"], bounds.get("std_error_lower")
+        elif effect > bounds["upper"]:
+            side, bound, error = "above the upper", bounds["upper"], bounds.get("std_error_upper")
+        else:
+            continue
+        distance = abs(effect - bound)
+        outside.append({"label": estimate["label"], "effect": effect, "side": side,
+                        "bound": bound, "distance": distance,
+                        "in_std_errors": distance / error if error else None})  # fmt: skip
+    return outside
 
 
 def _view(results, figures):
@@ -73,6 +99,9 @@ def _view(results, figures):
         "balance": balance,
         "selected_grid": selected,
         "selected_harmed": selected_harmed,
+        "outside_bounds": _outside_bounds(results),
+        "outcome_name": (results.get("wording") or {}).get("outcome_label")
+        or results["columns"]["outcome"],
         "w": results.get("wording") or _DEFAULT_WORDING,
         "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
         "fmt": number,
@@ -88,7 +117,8 @@ def render_html(results, figures):
         import jinja2
     except ImportError as error:
         raise ImportError(
-            "The HTML report needs jinja2 and matplotlib: pip install 'pscore_strata[report]'."
+            "The HTML report needs jinja2 and matplotlib: pip install jinja2 matplotlib (or, "
+            "from a checkout, pip install '.[report]')."
         ) from error
     environment = jinja2.Environment(
         loader=jinja2.PackageLoader("pscore_strata.report", "templates"),

@@ -33,7 +33,8 @@ def _fit_check_record(table):
         "reference": attrs["reference"],
         "tests": [
             {"arm": "both" if arm == "both arms" else arm, "statistic": number(t["statistic"]),
-             "df": int(t["df"]), "p_value": number(t["p_value"]), "n_groups": int(t["n_groups"])}
+             "df": int(t["df"]), "p_value": number(t["p_value"]), "n_groups": int(t["n_groups"]),
+             "assessable": bool(t["assessable"])}
             for arm, t in attrs["tests"].items()
         ],
         "groups": [
