@@ -21,6 +21,7 @@ from ._arrays import (
     ROW_SHARE_TOLERANCE,
     SCORE_FLOOR,
     SMD_THRESHOLD,
+    VIOLATION_TOLERANCE,
     balancing_weights,
     effective_sample_size,
     fitted_scores,
@@ -293,6 +294,11 @@ def overlap_summary(estimator):
     return table
 
 
+#: Below this many rows a more flexible learner is not the advice (common practice: flexible
+#: learners with cross-fitting need thousands of rows).
+FLEXIBLE_ROWS = 2000
+
+
 @cached_diagnostic(always)
 def diagnostic_warnings(estimator, X=None):
     """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
@@ -306,6 +312,7 @@ def diagnostic_warnings(estimator, X=None):
     """
     o = oriented_predictions(estimator)
     messages = []
+    n_rows = len(o.p_pure)
     if X is not None:
         smd = balance_table(estimator, X).filter(regex="^smd_").abs().max(axis=1)
         flagged = smd[smd > SMD_THRESHOLD].sort_values(ascending=False)
@@ -315,7 +322,12 @@ def diagnostic_warnings(estimator, X=None):
                 f"Covariate balance: {len(flagged)} covariate(s) have a weighted |SMD| above "
                 f"{SMD_THRESHOLD} (common rule of thumb): {listed}. The reconstructions of the "
                 "always-survivors disagree, so the treatment or survival model is probably "
-                "misspecified; try interactions, transformations or a more flexible learner."
+                "misspecified; "
+                + ("try interactions, transformations or a more flexible learner."
+                   if n_rows >= FLEXIBLE_ROWS else
+                   f"with {n_rows} rows, prefer fewer covariates or merged levels to a more "
+                   "flexible model, and read the bounds, which do not need the outcome "
+                   "model.")  # fmt: skip
             )
     low, high = PROBABILITY_BOUNDS
     scores = fitted_scores(o)
@@ -340,7 +352,6 @@ def diagnostic_warnings(estimator, X=None):
     # Small fitted reversals arise from estimation noise where the arms' survival is close, so
     # only reversals larger than the probability floor count.
     marked = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))
-    n_rows = len(o.p_pure)
     check = monotonicity_check(estimator)
     if marked > ROW_SHARE_TOLERANCE * n_rows:
         helped, other = ("treatment", "control") if o.increasing else ("control", "treatment")
@@ -348,7 +359,8 @@ def diagnostic_warnings(estimator, X=None):
         messages.append(
             f"Monotonicity: for {marked} of {n_rows} rows ({marked / n_rows:.1%}) the fitted "
             f"survival probability under {helped} is more than {SCORE_FLOOR} below that under "
-            f"{other} ({int(np.sum(o.p_mixed < o.p_pure))} rows are reversed at all), "
+            f"{other} ({int(np.sum(o.p_pure - o.p_mixed > VIOLATION_TOLERANCE))} rows are "
+            "reversed by any amount), "
             f"contradicting monotonicity ('{check.attrs['monotonicity']}'). Check the survival "
             "model and run the sensitivity analysis for monotonicity."
         )

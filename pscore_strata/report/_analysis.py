@@ -58,7 +58,21 @@ def _plain(warning):
     if issubclass(warning.category, RuntimeWarning) and any(p in text for p in _NUMPY_TEXTS):
         return ("a computation gave an undefined value (a division by zero or an overflow); "
                 "the numbers it concerns are shown as n/a")  # fmt: skip
-    return text.replace("; returning NaN.", "; shown as n/a.")
+    for python, words in _PYTHON_WORDS:
+        text = text.replace(python, words)
+    return text
+
+
+# A reader of the report runs the command line, not Python: the library's argument names in a
+# message become the quantities they stand for.
+_PYTHON_WORDS = (
+    ("; returning NaN.", "; shown as n/a."),
+    ("for harmed_ratio in", "for the harmed / protected stratum-size ratio in"),
+    ("for pi_difference in", "for the principal-ignorability difference in"),
+    ("at harmed_ratio=", "at a harmed / protected stratum-size ratio of "),
+    ("at pi_difference=", "at a principal-ignorability difference of "),
+    ("see sensitivity_grid around that value", "see the sensitivity table around that value"),
+)
 
 
 class _Collector:

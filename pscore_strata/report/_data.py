@@ -325,12 +325,23 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
     if names:
         covariates = used[list(names)]
         _coding.check_dates(covariates, InputError)
+        _coding.check_identifiers(covariates, roles.categorical, InputError)
         messages = tuple(_coding.many_levels_messages(covariates, roles.categorical))
         text = [
             c
             for c in names
             if c not in roles.categorical and not pd.api.types.is_numeric_dtype(covariates[c])
         ]
+        separated = _coding.separated_numbers(covariates, text)
+        if separated:
+            name, example = next(iter(separated.items()))
+            raise InputError(
+                f"Covariate(s) {', '.join(separated)} hold numbers written with thousands "
+                f"separators (e.g. {example!r} in '{name}'), which are read as text. Save the "
+                "file with plain numbers (no thousands separators; a decimal point, or a "
+                "decimal comma in a semicolon-separated file), or in Python read it with "
+                "pandas.read_csv(..., thousands=',') and write it back."
+            )
         if text:
             raise InputError(
                 f"Covariate(s) {', '.join(text)} are not numeric; list them with --categorical "

@@ -7,6 +7,8 @@ import json
 from importlib import resources
 from pathlib import Path
 
+import numpy as np
+
 from ._format import count, interval, number, percent
 
 __all__ = ["write_report", "render_html", "schema"]
@@ -53,6 +55,17 @@ def _every_few(grid, n_shown):
     null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
     chosen = set(range(null % step, len(grid), step)) | {0, len(grid) - 1}
     return [grid[i] for i in sorted(chosen)]
+
+
+def finite_or_null(value):
+    """A copy of a JSON-ready record with NaN and infinite floats replaced by ``None``."""
+    if isinstance(value, dict):
+        return {key: finite_or_null(item) for key, item in value.items()}
+    if isinstance(value, list | tuple):
+        return [finite_or_null(item) for item in value]
+    if isinstance(value, float | np.floating) and not np.isfinite(value):
+        return None
+    return value
 
 
 def _outside_bounds(results):
@@ -151,8 +164,9 @@ def write_report(analysis, out_dir):
         path.write_bytes(figure["png"])
         paths["figures"].append(path)
     paths["json"] = out / "results.json"
-    paths["json"].write_text(json.dumps(results, indent=2, allow_nan=False) + "\n",
-                             encoding="utf-8")  # fmt: skip
+    # Every non-finite number becomes null, as the schema says (json refuses NaN otherwise).
+    paths["json"].write_text(json.dumps(finite_or_null(results), indent=2, allow_nan=False)
+                             + "\n", encoding="utf-8")  # fmt: skip
     paths["html"] = out / "report.html"
     paths["html"].write_text(render_html(results, figures), encoding="utf-8")
     analysis.results = results

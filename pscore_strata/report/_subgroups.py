@@ -27,7 +27,14 @@ def subgroups_section(collector, primary, data, roles, level, input_error=ValueE
             f"--by column '{roles.by}' has {n_groups} distinct values; subgroup effects need at "
             f"most {MAX_SUBGROUPS} groups. Group its values first (for example age bands)."
         )
-    table = collector.run("subgroup effects", primary.effect_by, labels, level)
+    try:
+        table = collector.run("subgroup effects", primary.effect_by, labels, level)
+    except ValueError as error:
+        # effect_by names its Python argument; on the command line it is the --by column.
+        raise input_error(
+            str(error).replace("of `labels` ", f"of --by column '{roles.by}' ")
+            .replace("`labels`", f"--by column '{roles.by}'")
+        ) from None
     honest = str(primary.std_error_method_) in ("sandwich", "influence function")
     rows = []
     for _, row in table.iterrows():
