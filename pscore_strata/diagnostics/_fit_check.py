@@ -153,7 +153,8 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         predicted within ``1e-6`` of 0 or 1, as under separation, or no more distinct fitted
         values than coefficients; the ``p_value`` is then NaN); ``attrs`` also gives
         ``survival_model`` (``"arm-wise"`` or ``"strata"``: a stratum model), ``grouping``,
-        ``reference``, ``log_likelihood`` (see :func:`survival_log_likelihood`), ``n_parameters``, ``aic`` and ``notes``.
+        ``reference``, ``log_likelihood`` (see :func:`survival_log_likelihood`),
+        ``n_parameters``, ``aic`` and ``notes``.
 
     Notes
     -----
