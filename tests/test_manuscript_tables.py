@@ -104,9 +104,9 @@ def test_balance_table_equals_results_json(found):
 
 
 def test_sensitivity_tables_equal_results_json(found):
-    for start, key in (("Sensitivity of the SACE on functional_score_6mo to principal", "pi_difference"),
-                       ("Sensitivity of the SACE on functional_score_6mo to monotonicity", "harmed_ratio")):  # fmt: skip
-        (header, rows), results = _table(found, start)
+    start = "Sensitivity of the SACE on functional_score_6mo to "
+    for end, key in (("principal", "pi_difference"), ("monotonicity", "harmed_ratio")):
+        (header, rows), results = _table(found, start + end)
         grid = {g["value"]: g for g in results["sensitivity"][key]["grid"]}
         assert len(rows) <= 21 and any(float(r[0]) == 0 for r in rows)
         for value, effect, se, ci in rows:

@@ -121,8 +121,9 @@ def results_table(results):
         *notes,
         assumptions_note(results),
     ]
-    return Table(frame, caption, footnote=footnote, group_column="group",
-                 align={c: _RIGHT for c in ("Estimate", "SE", level)}, label="tab:sace")  # fmt: skip
+    right = {c: _RIGHT for c in ("Estimate", "SE", level)}
+    return Table(frame, caption, footnote=footnote, group_column="group", align=right,
+                 label="tab:sace")
 
 
 BALANCE_COLUMNS = {
