@@ -129,7 +129,7 @@ def separation_message(kind, arm, findings):
         f"{'This covariate predicts' if len(described) == 1 else 'Together they predict'} "
         f"{label} perfectly there, so {findings['n_certain']} of {findings['n_rows']} rows "
         f"have fitted probabilities within {CERTAIN:g} of 0 or 1 and the coefficients run off "
-        "towards infinity. The estimate leans on that artefact and its sandwich standard error is not "
-        "to be trusted. Merge or drop the level, use a penalized model (e.g. "
+        "towards infinity. The estimate leans on that artefact and its sandwich standard error "
+        "is not to be trusted. Merge or drop the level, use a penalized model (e.g. "
         "LogisticRegression(C=1.0)), or run the unadjusted analysis (no covariates)."
     )
