@@ -33,7 +33,7 @@ from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.3.0"
+SCHEMA_VERSION = "1.4.0"
 
 
 @dataclass
@@ -259,6 +259,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "seed": options.seed,
             "missing": options.missing,
             "survival_model": options.survival_model,
+            "treatment_probability": options.treatment_probability,
         },
         "survival_model": survival_model_record(options, choice),
         "wording": words,

@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ._options import METHOD_LABELS, fit_arguments, model_settings, number
+from ._wording import outcome_label
 
 __all__ = ["distributions_section", "distribution_figures", "level_labels", "QUANTILES"]
 
@@ -147,7 +148,7 @@ def _cdf_figure(results):
         influence_treated=None, influence_control=None, level=level,
         dof=reference_dof(results["data_overview"]["n_clusters"]),
     )  # fmt: skip
-    axes = plot_survivor_distribution(distribution, outcome=results["columns"]["outcome"])
+    axes = plot_survivor_distribution(distribution, outcome=outcome_label(results))
     return axes[0].figure
 
 
@@ -160,7 +161,7 @@ def _quantile_figure(results):
     table = pd.DataFrame(record["quantile_effects"]).astype(float)
     bounds = record.get("quantile_bounds")
     bounds = None if not bounds else pd.DataFrame(bounds).astype(float)
-    ax = plot_quantile_effects(table, outcome=results["columns"]["outcome"], bounds=bounds)
+    ax = plot_quantile_effects(table, outcome=outcome_label(results), bounds=bounds)
     return ax.figure
 
 
@@ -173,7 +174,7 @@ def _level_figure(results):
     table = pd.DataFrame(record["levels"])
     wording = results.get("wording") or {}
     arms = (wording.get("treated_arm", "treated"), wording.get("control_arm", "control"))
-    outcome = wording.get("outcome_label") or results["columns"]["outcome"]
+    outcome = outcome_label(results)
     ax = plot_level_shares(table, labels=list(table["label"]), arm_names=arms, outcome=outcome)
     return ax.figure
 

@@ -8,6 +8,7 @@ import numpy as np
 
 from ._distributions import distribution_figures
 from ._format import number
+from ._wording import outcome_label
 
 __all__ = ["draw_figures"]
 
@@ -58,7 +59,7 @@ def _estimates_figure(results):
     ax.axvline(0, color="0.3", linewidth=1, linestyle="--")
     ax.set_yticks(positions, [label for label, *_ in rows])
     level = results["settings"]["level"]
-    ax.set_xlabel(f"effect on '{results['columns']['outcome']}' ({level:.0%} intervals)")
+    ax.set_xlabel(f"effect on {outcome_label(results)} ({level:.0%} intervals)")
     ax.set_title("Survivor average causal effect", fontsize=10)
     ax.grid(axis="x", color="0.92")
     return figure
@@ -73,7 +74,7 @@ def _sensitivity_figure(results):
                     else ("harmed", "protected"))  # fmt: skip
     panels = (
         ("pi_difference", f"{mixed} minus always-survivor mean of "
-         f"'{results['columns']['outcome']}'\n(0 = principal ignorability)"),
+         f"{outcome_label(results)}\n(0 = principal ignorability)"),
         ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
          "informative)"),
     )  # fmt: skip

@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from ._format import count, interval, number, percent
+from ._wording import outcome_label
 
 __all__ = ["write_report", "render_html", "schema"]
 
@@ -113,8 +114,7 @@ def _view(results, figures):
         "selected_grid": selected,
         "selected_harmed": selected_harmed,
         "outside_bounds": _outside_bounds(results),
-        "outcome_name": (results.get("wording") or {}).get("outcome_label")
-        or results["columns"]["outcome"],
+        "outcome_name": outcome_label(results),
         "w": results.get("wording") or _DEFAULT_WORDING,
         "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
         "fmt": number,
