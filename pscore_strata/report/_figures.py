@@ -166,6 +166,11 @@ def draw_figures(analysis):
                     "practice) the reconstructions agree.",
                 )  # fmt: skip
             )
+    # Without covariates every unit shares one treatment probability, one set of principal
+    # scores and one weight per arm: the overlap, weight, score and calibration figures would
+    # show single bars (the tables say it in numbers).
+    unadjusted = analysis.primary is not None and analysis.primary.n_features_in_ == 0
+    if diagnostics.get("available", True) and not unadjusted:
         figures.append(
             ("overlap.png", "Overlap of the treatment probability", plotting.plot_overlap,
              (analysis.primary,),
@@ -180,7 +185,8 @@ def draw_figures(analysis):
 
     # In report order: subgroups follow the estimates, the model checks the diagnostics.
     figures[1:1] = subgroup_figures(results)
-    figures += model_check_figures(analysis)
+    figures += [f for f in model_check_figures(analysis)
+                if not (unadjusted and f[0] in ("principal_scores.png", "calibration.png"))]
     if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
         figures.append(
             ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),

@@ -219,6 +219,11 @@ def sensitivity_section(collector, primary, data, level):
     grid_mono = grid_mono.iloc[: max(last + 1, 3)]
     mixed = "protected" if primary.monotonicity == "increasing" else "harmed"
     other = "harmed" if mixed == "protected" else "protected"
+    effects = grid_mono["effect"].to_numpy(dtype=float)
+    if np.ptp(effects) <= 1e-9 * (1 + abs(primary.effect_)):
+        # Constant principal scores (no covariates): the harmed ratio rescales every score
+        # alike, so the normalized means do not move.
+        status["harmed_ratio"] = "unchanged"
     return {
         "pi_difference": {
             "description": f"Mean outcome under treatment of the {mixed} stratum minus that of "
