@@ -252,3 +252,73 @@ def test_fit_estimators_with_missing_at_random_equals_separate_fits(pbc):
         assert fits[name].effect_ == pytest.approx(alone.effect_, abs=1e-12)
         assert fits[name].std_error_ == pytest.approx(alone.std_error_, abs=1e-12)
     assert fits["robust"].nuisance_.missingness is not None
+
+
+def analyze(frame, out, **options):
+    from pscore_strata import report
+
+    roles = report.ColumnRoles(outcome="score", treatment="arm", survival="alive",
+                               covariates=tuple(options.pop("covariates", ())))  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return report.analyze_frame(frame, roles, report.AnalysisOptions(**options), out,
+                                    treated_value="Streptomycin")  # fmt: skip
+
+
+def test_report_options_label_levels_and_known_probability(strep, tmp_path):
+    from pscore_strata.report._options import parse_levels
+
+    labels = parse_levels("2=considerable deterioration,3=moderate deterioration,4=no change,"
+                          "5=moderate improvement,6=considerable improvement")  # fmt: skip
+    analysis = analyze(strep, tmp_path, outcome_label="radiologic level at 6 months",
+                       levels=labels, treatment_probability=0.5)  # fmt: skip
+    results = analysis.results
+    assert results["settings"]["treatment_probability"] == 0.5
+    assert results["wording"]["outcome_label"] == "radiologic level at 6 months"
+    level_labels = [row["label"] for row in results["distributions"]["levels"]]
+    assert level_labels[2] == "4 = no change"
+    html = (tmp_path / "report.html").read_text()
+    assert "on radiologic level at 6 months</h1>" in html
+    assert "known randomization probability 0.500" in html
+    # Reference: with pi = 0.5 known and no covariates the estimate is still the difference of
+    # the survivor means (the weights are constant within each arm).
+    y, t, s = arrays(strep)
+    hand = y[(t == 1) & (s == 1)].mean() - y[(t == 0) & (s == 1)].mean()
+    assert results["estimates"][0]["effect"] == pytest.approx(hand, abs=1e-10)
+
+
+@pytest.mark.parametrize("text", ["1=worse,2", "a=worse", "1=worse,1=same", "1="])
+def test_levels_option_refuses_malformed_text(text):
+    from pscore_strata.report._options import parse_levels
+
+    with pytest.raises(ValueError, match="--levels"):
+        parse_levels(text)
+
+
+@pytest.mark.parametrize("value", [0, 1, 1.5, -0.1, "half", None])
+def test_treatment_probability_must_lie_strictly_inside_zero_one(value):
+    from pscore_strata.report._options import check_treatment_probability
+
+    with pytest.raises(ValueError, match="--treatment-probability"):
+        check_treatment_probability(value)
+
+
+def test_unadjusted_report_says_why_the_estimators_equal_the_naive_contrast(strep, tmp_path):
+    analysis = analyze(strep, tmp_path)
+    html = (tmp_path / "report.html").read_text()
+    assert "Unadjusted analysis." in html
+    assert not (tmp_path / "overlap.png").exists()  # a single bar says nothing
+    record = analysis.results["sensitivity"]["harmed_ratio"]
+    assert record["tipping_status"] == "unchanged"
+    checks = analysis.results["model_checks"]["fit_check"]["tests"]
+    assert not any(test["assessable"] for test in checks)
+
+
+def test_tipping_point_statuses():
+    from pscore_strata.report._sections import _tipping_status
+
+    # At the null value the interval already covers no effect: nothing to report.
+    assert _tipping_status(0.0, 0.0, "pi_difference", [2.0, 6.0]) == "covers_null"
+    assert _tipping_status(None, 0.0, "pi_difference", [2.0, 6.0]) == "not_reached"
+    assert _tipping_status(4.81, 0.0, "pi_difference", [2.0, 6.0]) == "beyond_outcome_range"
+    assert _tipping_status(1.91, 0.0, "pi_difference", [2.0, 6.0]) == "reached"
