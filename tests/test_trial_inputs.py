@@ -145,3 +145,94 @@ def test_value_labels_of_a_stata_outcome_become_level_labels(tmp_path):
     survivors = data.outcome[data.survival == 1]
     np.testing.assert_array_equal(np.unique(survivors), [1, 2, 3, 4, 5])
     assert InputError is not None
+
+
+# -- PrincipalScoreModel: the inputs the estimators already check ----------------------------
+
+
+@pytest.fixture(scope="module")
+def stratum_data():
+    data = ps.datasets.make_truncation(500, random_state=0)
+    X = pd.DataFrame(data.X, columns=[f"x{j}" for j in range(data.X.shape[1])])
+    return X, data
+
+
+def test_stratum_model_checks_column_names_like_the_estimators(stratum_data):
+    X, data = stratum_data
+    model = ps.PrincipalScoreModel().fit(X, data.treatment, data.survival)
+    assert list(model.feature_names_in_) == list(X.columns)
+    # Reordered columns changed the scores by up to 0.85 before: now refused.
+    with pytest.raises(ValueError, match="feature names"):
+        model.predict_proba(X[X.columns[::-1]])
+    with pytest.raises(ValueError, match="feature names"):
+        model.predict_proba(X.rename(columns={"x0": "unrelated"}))
+    np.testing.assert_allclose(model.predict_proba(X.to_numpy()), model.predict_proba(X))
+
+
+@pytest.mark.parametrize("case", ["all treated", "weight in one arm"])
+def test_stratum_model_refuses_unidentified_strata(stratum_data, case):
+    X, data = stratum_data
+    treatment, weights = data.treatment, None
+    if case == "all treated":
+        treatment = np.ones_like(data.treatment)
+    else:
+        weights = np.where(data.treatment == 1, 1.0, 0.0)
+    with pytest.raises(ValueError, match="`treatment`"):
+        ps.PrincipalScoreModel().fit(X, treatment, data.survival, sample_weight=weights)
+
+
+@pytest.mark.parametrize("case", ["text treatment", "NaN in X", "text in X"])
+def test_stratum_model_names_the_argument(stratum_data, case):
+    X, data = stratum_data
+    treatment = data.treatment
+    if case == "text treatment":
+        treatment, name = np.where(data.treatment == 1, "a", "b"), "`treatment`"
+    elif case == "NaN in X":
+        X = X.copy()
+        X.iloc[0, 0] = np.nan
+        name = "`X`"
+    else:
+        X = X.astype(object)
+        X.iloc[0, 0] = "x"
+        name = "`X`"
+    with pytest.raises(ValueError, match=name):
+        ps.PrincipalScoreModel().fit(X, treatment, data.survival)
+
+
+def test_stratum_model_fitted_without_covariates_refuses_covariates(stratum_data):
+    X, data = stratum_data
+    model = ps.PrincipalScoreModel().fit(None, data.treatment, data.survival)
+    assert model.predict_proba(None).shape[1] == 3
+    with pytest.raises(ValueError, match="fitted without covariates"):
+        model.predict_proba(X)
+
+
+def test_polars_input_gives_no_feature_name_warning(stratum_data):
+    pl = pytest.importorskip("polars")
+    X, data = stratum_data
+    frame = pl.from_pandas(X)
+    est = ps.PrincipalScoreWeighting().fit(frame, data.y, treatment=data.treatment,
+                                           survival=data.survival)  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # a spurious "X does not have valid feature names"
+        est.predict_proba(frame)
+
+
+def test_quantile_effects_refuse_another_x(stratum_data):
+    X, data = stratum_data
+    est = ps.MultiplyRobust().fit(X, data.y, treatment=data.treatment, survival=data.survival)
+    shuffled = X.sample(frac=1.0, random_state=1).reset_index(drop=True)  # 1.287 for 1.192
+    with pytest.raises(ValueError, match="not the covariate table"):
+        ps.quantile_effects(est, [0.5], X=shuffled)
+    assert np.isfinite(ps.quantile_effects(est, [0.5], X=X)["effect"].iloc[0])
+
+
+def test_one_observed_treated_survivor_is_named():
+    data = ps.datasets.make_truncation(300, random_state=2)
+    y = data.y.copy()
+    treated_survivors = np.flatnonzero((data.treatment == 1) & (data.survival == 1))
+    y[treated_survivors[1:]] = np.nan  # one treated survivor's outcome observed
+    with pytest.warns(UserWarning, match="one row carries the arm's always-survivor mean"):
+        ps.MultiplyRobust(missing="at_random").fit(
+            data.X, y, treatment=data.treatment, survival=data.survival
+        )
