@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import inspect
 import os
-import re
 import warnings
 
 import numpy as np
@@ -18,6 +17,7 @@ from joblib import delayed
 from sklearn.base import clone
 
 from .._validation import check_choice, check_level
+from ._failures import _check_failures, failure_reasons
 from ._influence import (
     bca_interval,
     influence_acceleration,
@@ -31,11 +31,8 @@ from ._influence import (
 )
 from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
 
-__all__ = ["bootstrap", "BootstrapResult", "BootstrapFailureError"]
+__all__ = ["bootstrap", "BootstrapResult"]
 
-# A resample without survivors (or deaths) in an arm cannot be fitted; beyond this share the
-# bootstrap distribution would describe a different sampling scheme (common practice: 1%).
-MAX_FAILURE_SHARE = 0.01
 _RESAMPLE_TASKS = 100  # tasks per run: enough to balance workers and move a progress bar
 _MULTIPLIER_BLOCK = 250  # replicates per multiplier task
 
@@ -326,56 +323,6 @@ class BootstrapResult:
             f"BootstrapResult({', '.join(parts)}; method={self.method!r}, "
             f"n_resamples={self.n_resamples}, n_failed={self.n_failed})"
         )
-
-
-class BootstrapFailureError(RuntimeError):
-    """More bootstrap resamples could not be estimated than ``MAX_FAILURE_SHARE`` allows.
-
-    Attributes ``n_failed``, ``n_resamples``, ``reasons`` (failure message -> count) and
-    ``counts`` (the sentence that counts them).
-    """
-
-    def __init__(self, message, n_failed, n_resamples, reasons, counts):
-        super().__init__(message)
-        self.n_failed, self.n_resamples, self.reasons = n_failed, n_resamples, reasons
-        self.counts = counts
-
-
-def failure_reasons(failures):
-    """Failure messages counted, most frequent first (one clause each, no trailing period)."""
-    # The first sentence of each message says what the resample lacked ("The treated arm has no
-    # deaths"); the advice after it is written for a full-sample fit.
-    first = [re.split(r"(?<=[a-z)])(\. |; )", str(f).split(": ", 1)[-1].strip())[0].rstrip(".")
-             for f in failures]  # fmt: skip
-    first = [text[:1].lower() + text[1:] for text in first]
-    counts = pd.Series(first, dtype=object).value_counts()
-    return {str(reason): int(count) for reason, count in counts.items()}
-
-
-def describe_failures(failures, n_resamples):
-    """``"k of N resamples (x%) could not be estimated: j: reason; ..."``."""
-    reasons = failure_reasons(failures)
-    listed = "; ".join(f"{count}: {reason}" for reason, count in list(reasons.items())[:3])
-    return (
-        f"{len(failures)} of {n_resamples} bootstrap resamples ({len(failures) / n_resamples:.1%})"
-        f" could not be estimated ({listed})"
-    )
-
-
-def _check_failures(failures, n_resamples):
-    if not failures:
-        return
-    message = describe_failures(failures, n_resamples)
-    if len(failures) / n_resamples > MAX_FAILURE_SHARE:
-        raise BootstrapFailureError(
-            f"{message}. With more than {MAX_FAILURE_SHARE:.0%} of the resamples failing, the "
-            "replicates would describe a selected subset of resamples (those that kept deaths "
-            "and survivors in every arm), so no bootstrap interval is given. Use "
-            "method='multiplier' (no refits), merge sparse clusters or covariate levels, or "
-            "rely on the influence-function or sandwich interval.",
-            len(failures), n_resamples, failure_reasons(failures), message,
-        )  # fmt: skip
-    warnings.warn(f"{message}. They are left out of the replicates.", RuntimeWarning, stacklevel=3)
 
 
 def _describe(method, stratify, clustered, failures, extra):

@@ -35,7 +35,7 @@ def run_bootstrap(collector, method, options, data):
 
 def refused_bootstrap(error, options):
     """The record of a bootstrap whose resamples failed too often: counts, no interval."""
-    from ..inference._bootstrap import MAX_FAILURE_SHARE
+    from ..inference._failures import MAX_FAILURE_SHARE
 
     return {
         "n_resamples": int(error.n_resamples),
@@ -57,7 +57,7 @@ def refused_bootstrap(error, options):
 
 
 def bootstrap_section(collector, options, data):
-    from ..inference._bootstrap import BootstrapFailureError
+    from ..inference._failures import BootstrapFailureError
 
     try:
         result = run_bootstrap(collector, options.method, options, data)
