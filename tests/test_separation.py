@@ -38,9 +38,9 @@ def test_separated_survival_model_warns_once_naming_model_arm_and_covariate():
     text = str(found[0].message)
     assert "survival model in the treated arm" in text and "group = 0" in text
     assert "penalized" in text and "unadjusted" in text
-    # The sandwich is flagged next to the standard error.
-    assert "separation" in est.std_error_method_
-    assert any("separation" in note.lower() for note in est.summary().attrs["notes"])
+    # The standard error is flagged next to it.
+    assert len(est.separation_) == 1
+    assert any("not to be trusted" in note for note in est.summary().attrs["notes"])
 
 
 def test_penalized_model_does_not_warn():
