@@ -148,6 +148,7 @@ def _estimate_record(method, estimator, level, primary):
         "mean_control": float(estimator.mean_control_),
         "std_error_method": str(estimator.std_error_method_),
         "notes": _method_notes(estimator, table.attrs["notes"]),
+        "separation": list(getattr(estimator, "separation_", [])),
     }
 
 
