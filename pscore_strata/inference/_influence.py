@@ -18,6 +18,7 @@ from joblib import Parallel
 from scipy import stats
 
 from .._validation import check_level
+from ..exceptions import FewClustersWarning
 
 __all__ = [
     "FewClustersWarning",
@@ -44,10 +45,6 @@ __all__ = [
 # Below this many clusters a cluster-robust standard error is itself noisy and the normal
 # reference too narrow; a t reference with G - 1 degrees of freedom is common practice.
 FEW_CLUSTERS = 30
-
-
-class FewClustersWarning(UserWarning):
-    """Cluster-robust inference with fewer than 30 clusters (intervals use a t reference)."""
 
 
 def count_clusters(groups, stacklevel=3):

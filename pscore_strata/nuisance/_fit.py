@@ -19,6 +19,7 @@ from sklearn.pipeline import Pipeline
 from sklearn.utils.validation import has_fit_parameter
 
 from .._validation import EXTREME_PROBABILITY
+from ..exceptions import MonotonicityWarning, OverlapWarning
 from ._conditioned import StandardizedLinearRegression, StandardizedLogisticRegression
 from ._sandwich import build_parametric, response_glm
 from ._strata import StratumArm, check_stratum_model, fit_strata_scores
@@ -33,14 +34,6 @@ __all__ = [
 ]
 
 _CHUNK = 65_536
-
-
-class OverlapWarning(UserWarning):
-    """Fitted probabilities close to 0 or 1: weights are unstable and overlap is doubtful."""
-
-
-class MonotonicityWarning(UserWarning):
-    """The fitted survival models contradict the monotonicity assumption for some rows."""
 
 
 def default_binary_model():

@@ -40,6 +40,8 @@ from sklearn.preprocessing import (
     StandardScaler,
 )
 
+from ..exceptions import LooseFitWarning
+
 __all__ = [
     "glm_kind", "sandwich_reason", "build_parametric", "response_glm", "LooseFitWarning"
 ]  # fmt: skip
@@ -58,10 +60,6 @@ _FIXED = (
 # the standard error of a standardized coefficient at n = 10,000).
 _LOOSE_STEP = 1e-3
 _CHUNK = 65_536
-
-
-class LooseFitWarning(UserWarning):
-    """A user's GLM stopped far from the root of its score; the sandwich uses it as fitted."""
 
 
 def _fixed_transformer(step):
