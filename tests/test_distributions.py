@@ -19,7 +19,7 @@ from statsmodels.stats.weightstats import DescrStatsW
 import pscore_strata as ps
 from pscore_strata.assumptions import imbens_manski_interval
 from pscore_strata.datasets import make_truncation
-from pscore_strata.inference._influence import influence_std_error
+from pscore_strata.inference._standard_errors import influence_std_error
 
 
 def skewed(y):

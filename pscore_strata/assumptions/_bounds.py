@@ -25,7 +25,7 @@ from .._arguments import check_estimator_arguments, check_positive_integer
 from .._validation import check_choice, check_level, check_truncation_data
 from ..distributions._quantiles import check_quantiles
 from ..estimators import _formulas
-from ..inference._influence import (
+from ..inference._standard_errors import (
     count_clusters,
     estimator_dof,
     influence_std_error,

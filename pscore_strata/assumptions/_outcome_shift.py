@@ -23,7 +23,7 @@ import pandas as pd
 from ..estimators import _formulas
 from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
+from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 
 __all__ = ["outcome_shift_grid", "shifted_effect"]
 

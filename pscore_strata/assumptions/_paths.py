@@ -25,7 +25,7 @@ import pandas as pd
 
 from ..estimators import _formulas
 from ..estimators._repeats import median_aggregate
-from ..inference._influence import influence_std_error
+from ..inference._standard_errors import influence_std_error
 
 __all__ = ["SensitivityPath"]
 

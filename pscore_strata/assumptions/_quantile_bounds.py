@@ -35,7 +35,7 @@ from ..distributions._quantiles import (
     quantiles_of,
     silverman_bandwidth,
 )
-from ..inference._influence import estimator_dof, influence_std_error
+from ..inference._standard_errors import estimator_dof, influence_std_error
 
 __all__ = ["trimmed_mixtures", "quantile_bounds", "add_quantile_bounds", "quantile_intervals"]
 

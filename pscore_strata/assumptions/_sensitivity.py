@@ -33,7 +33,7 @@ from .._validation import check_level
 from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import estimator_dof, normal_interval
+from ..inference._standard_errors import estimator_dof, normal_interval
 from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]

@@ -12,7 +12,7 @@ import warnings
 import numpy as np
 from scipy import optimize
 
-from ..inference._influence import estimator_dof, normal_interval
+from ..inference._standard_errors import estimator_dof, normal_interval
 from ._sensitivity import (
     _NULL,
     _check_estimator,

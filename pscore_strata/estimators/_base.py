@@ -25,15 +25,13 @@ except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._validation import check_choice, check_features, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
-from ..inference._influence import (
+from ..inference._resampling import resample_rows, seed_models, spawn_seeds
+from ..inference._standard_errors import (
     count_clusters,
     influence_std_error,
     normal_interval,
     reference_dof,
-    resample_rows,
-    spawn_seeds,
 )
-from ..inference._refits import _seed_models
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
 from ..nuisance._strata import StratumArm
@@ -70,7 +68,7 @@ class SurvivorEffectEstimator(BaseEstimator):
     def _fit_nuisance(self, data, random_state, sandwich=True):
         # Learners left at random_state=None are seeded from `random_state` (as the bootstrap
         # seeds them per replicate), so two fits with the same random_state agree.
-        models = self if random_state is None else _seed_models(
+        models = self if random_state is None else seed_models(
             clone(self), spawn_seeds(random_state, 1)[0]
         )  # fmt: skip
         fitted = fit_nuisance(
@@ -424,7 +422,7 @@ def _one_replicate(estimator, data, seed):
     rows = resample_rows(data.treatment, seed, data.groups)
     # Learners left at random_state=None get a seed from the replicate, so the bootstrap
     # standard error is reproducible with random learners too.
-    estimator = _seed_models(clone(estimator), seed)
+    estimator = seed_models(clone(estimator), seed)
     try:
         values = estimator._refit_means(data.take(rows))
     except (ValueError, np.linalg.LinAlgError):

@@ -14,7 +14,7 @@ import pandas as pd
 from sklearn.base import is_classifier
 
 from .._validation import _one_dimensional, check_features
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
+from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._fit import predict_models
 from . import _formulas
 from ._repeats import median_aggregate

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 
 from ..diagnostics._tables import diagnostic_warnings
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
+from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ._repeats import median_aggregate
 
 __all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]

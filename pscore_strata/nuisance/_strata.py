@@ -394,10 +394,9 @@ class PrincipalScoreModel(BaseEstimator):
         could not settle. The seeds, drawn from ``self.random_state`` as the estimators seed their
         learners, serve all iterations of a fit.
         """
-        from ..inference._influence import spawn_seeds
-        from ..inference._refits import _seed_models
+        from ..inference._resampling import seed_models, spawn_seeds
 
-        return _seed_models(clone(self.estimator), spawn_seeds(self.random_state, 1)[0])
+        return seed_models(clone(self.estimator), spawn_seeds(self.random_state, 1)[0])
 
     def _starting_posteriors(self, X, allowed, weights):
         """Posterior strata of the EM start (see ``init``)."""
