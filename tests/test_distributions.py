@@ -270,7 +270,7 @@ def test_quantile_bounds_contain_the_truth(no_pi, strata):
 def test_quantile_bounds_reduce_to_the_mean_bounds_construction(no_pi):
     # Source: the construction documented in assumptions/_quantile_bounds.py, checked by hand.
     from pscore_strata.assumptions._quantile_bounds import trimmed_mixtures
-    from pscore_strata.estimators import _formulas
+    from pscore_strata.estimands import _formulas
     from pscore_strata.nuisance._fit import fit_nuisance
 
     data, u, _ = no_pi

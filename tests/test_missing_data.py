@@ -16,7 +16,7 @@ from scipy.special import expit
 
 import pscore_strata as ps
 from pscore_strata.datasets import make_truncation
-from pscore_strata.estimators import _formulas
+from pscore_strata.estimands import _formulas
 from pscore_strata.nuisance import fit_nuisance
 
 ESTIMATORS = (ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust)

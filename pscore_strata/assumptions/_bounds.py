@@ -24,7 +24,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._arguments import check_estimator_arguments, check_positive_integer
 from .._validation import check_choice, check_level, check_truncation_data
 from ..distributions._quantiles import check_quantiles
-from ..estimators import _formulas
+from ..estimands._formulas import orient, ratio
 from ..inference._standard_errors import (
     count_clusters,
     estimator_dof,
@@ -258,7 +258,7 @@ class TrimmingBounds(BaseEstimator):
             )  # fmt: skip
         else:
             nuisance = shared_bounds_nuisance(self, nuisance, data)
-        o = _formulas.orient(data, nuisance, self.monotonicity)
+        o = orient(data, nuisance, self.monotonicity)
         labels = self._cell_labels(cells, data, o)
         self._compute(o, labels, data)
         add_quantile_bounds(self, o, labels, data)
@@ -380,10 +380,10 @@ class TrimmingBounds(BaseEstimator):
                 outcome_part = sum(om * parts[index]
                                    for om, parts in zip(omegas, response_parts, strict=True))
                 derivatives.update({
-                    "c_mixed": -_formulas._ratio(A * weighted, co.c_mixed),
-                    "c_pure": -_formulas._ratio((1 - A) * weighted, co.c_pure),
-                    "r_mixed": -_formulas._ratio(A * outcome_part, co.r_mixed),
-                    "r_pure": -_formulas._ratio((1 - A) * outcome_part, co.r_pure),
+                    "c_mixed": -ratio(A * weighted, co.c_mixed),
+                    "c_pure": -ratio((1 - A) * weighted, co.c_pure),
+                    "r_mixed": -ratio(A * outcome_part, co.r_mixed),
+                    "r_pure": -ratio((1 - A) * outcome_part, co.r_pure),
                 })  # fmt: skip
             influence[bound] = raw - o.weighted_mean(raw) + o.corrections(derivatives)
         if not o.increasing:

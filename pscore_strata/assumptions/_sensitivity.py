@@ -2,7 +2,7 @@
 
 Every quantity is a formula over the per-row nuisance predictions a fitted estimator stored
 (``est.nuisance_``, ``est.training_data_``), written in the oriented view of
-:func:`pscore_strata.estimators._formulas.orient`: the *mixed* arm's survivors are
+:func:`pscore_strata.estimands._formulas.orient`: the *mixed* arm's survivors are
 always-survivors plus the *helped* stratum (protected units when treatment can only help
 survival), the *pure* arm's are always-survivors plus the *opposite* stratum, which monotonicity
 rules out.
@@ -30,7 +30,8 @@ import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
 from .._validation import check_level
-from ..estimators import _coarsening, _formulas
+from ..estimands._coarsening import weight_derivatives
+from ..estimands._formulas import orient, scale_effect, unorient
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from ..estimators._summary import CAUTIONS
 from ..inference._standard_errors import estimator_dof, normal_interval
@@ -112,7 +113,7 @@ def _weighting(o, st, parametric):
             "pi": -f / pi,
             "p_pure": base * (g_pp - mu * st.a_pure),
             "p_mixed": -f / o.p_mixed + base * (g_pm - mu * st.a_mixed),
-            **_coarsening.weight_derivatives(o, f, "mixed"),
+            **weight_derivatives(o, f, "mixed"),
         }
 
     mu_m, if_m = _ratio(o, base * g, base * st.e_always, mixed_derivatives, parametric)
@@ -123,7 +124,7 @@ def _weighting(o, st, parametric):
             "pi": f / (1 - pi),
             "p_pure": -f / o.p_pure + base * st.a_pure * (Y - mu),
             "p_mixed": base * st.a_mixed * (Y - mu),
-            **_coarsening.weight_derivatives(o, f, "pure"),
+            **weight_derivatives(o, f, "pure"),
         }
 
     mu_p, if_p = _ratio(o, base * st.e_always * Y, base * st.e_always, pure_derivatives, parametric)
@@ -265,9 +266,9 @@ def _check_one_scale(pi_ratio, pi_difference):
 
 def _adjusted(formula, estimator, nuisance, delta, eps, xi):
     data = estimator.training_data_
-    o = _formulas.orient(data, nuisance, estimator.monotonicity)
+    o = orient(data, nuisance, estimator.monotonicity)
     parts, clipped = _adjust_view(formula, estimator, o, nuisance.parametric, delta, eps, xi)
-    effect, influence = _formulas.scale_effect(parts, estimator.scale)
+    effect, influence = scale_effect(parts, estimator.scale)
     return float(effect), influence, clipped
 
 
@@ -280,7 +281,7 @@ def _adjust_view(formula, estimator, o, parametric, delta, eps, xi, cache=None):
         mu_m, mu_p, if_m, if_p = _robust(o, st, False, cache)
     else:
         mu_m, mu_p, if_m, if_p = formula(o, st, parametric is not None)
-    return _formulas._unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
+    return unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
 
 
 def sensitivity_path(estimator):

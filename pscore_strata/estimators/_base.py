@@ -1,7 +1,7 @@
 """Shared machinery of the SACE estimators: fitting, repeats, bootstrap fallback, results.
 
 A concrete estimator (:mod:`pscore_strata.estimators`) only names its estimand formula from
-:mod:`pscore_strata.estimators._formulas` and whether it needs the outcome model.
+:mod:`pscore_strata.estimands._formulas` and whether it needs the outcome model.
 """
 
 from __future__ import annotations
@@ -25,6 +25,7 @@ except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._validation import check_choice, check_features, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
+from ..estimands._formulas import orient, robust_means, scale_effect
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 from ..inference._standard_errors import (
     count_clusters,
@@ -35,7 +36,6 @@ from ..inference._standard_errors import (
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
 from ..nuisance._strata import StratumArm
-from . import _formulas
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._summary import summary_table
@@ -82,13 +82,13 @@ class SurvivorEffectEstimator(BaseEstimator):
             treatment_enters_estimate=self._treatment_enters_estimate,
             response_model=models.response_model,
             # The multiply robust influence values never use the sandwich pieces.
-            sandwich=sandwich and self._formula is not _formulas.robust_means,
+            sandwich=sandwich and self._formula is not robust_means,
             monotonicity=self.monotonicity,
         )
         return record_settings(fitted, self, data, random_state)
 
     def _means(self, data, nuisance):
-        oriented = _formulas.orient(data, nuisance, self.monotonicity)
+        oriented = orient(data, nuisance, self.monotonicity)
         with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
             return type(self)._formula(oriented), oriented
 
@@ -149,7 +149,7 @@ class SurvivorEffectEstimator(BaseEstimator):
             fits = [
                 shared_nuisance(
                     self, nuisance, data, uses_outcome=self._uses_outcome_model,
-                    sandwich=self._formula is not _formulas.robust_means,
+                    sandwich=self._formula is not robust_means,
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                 )
             ]  # fmt: skip
@@ -167,7 +167,7 @@ class SurvivorEffectEstimator(BaseEstimator):
     def _evaluate(self, data, nuisance):
         """Estimates of one nuisance fit (one cross-fitting repeat)."""
         parts, oriented = self._means(data, nuisance)
-        effect, influence = _formulas.scale_effect(parts, self.scale)
+        effect, influence = scale_effect(parts, self.scale)
         if not (np.isfinite(effect) and np.all(np.isfinite(influence))):
             raise ValueError(
                 "The estimate is not finite: a fitted treatment or survival probability is exactly "
@@ -247,7 +247,7 @@ class SurvivorEffectEstimator(BaseEstimator):
         return _principal_scores(survival[mixed], survival[pure])
 
     def _std_error_method(self, nuisance):
-        if self._formula is _formulas.robust_means:
+        if self._formula is robust_means:
             return "influence function"
         if nuisance.parametric is not None:
             return "sandwich"
@@ -259,7 +259,7 @@ class SurvivorEffectEstimator(BaseEstimator):
         seed = self.random_state if random_state is None else random_state
         nuisance = self._fit_nuisance(data, seed, sandwich=False)
         parts, _ = self._means(data, nuisance)
-        effect, _ = _formulas.scale_effect(parts, self.scale)
+        effect, _ = scale_effect(parts, self.scale)
         return effect, parts.mean_treated, parts.mean_control
 
     def _fit_statistic(self, data, n_repeats):

@@ -5,8 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from .._validation import MISSING_AT_RANDOM_ASSUMPTION
 from ..diagnostics._tables import diagnostic_warnings
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
+from ..nuisance._missing import missingness_counts
 from ._repeats import median_aggregate
 
 __all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
@@ -155,8 +157,6 @@ def _notes(estimator):
     if estimator.training_data_.groups is not None:
         notes.append("Standard errors are cluster-robust (influence values summed per cluster).")
     if estimator.nuisance_.missingness is not None:
-        from ._coarsening import missing_data_note
-
         notes.append(missing_data_note(estimator))
     if estimator.n_monotonicity_violations_:
         notes.append(
@@ -165,3 +165,17 @@ def _notes(estimator):
         )
     notes.append(CAUTIONS)
     return notes
+
+
+def missing_data_note(estimator):
+    """The summary's note on missing data: counts by arm and the assumption made."""
+    parts = [
+        f"{r['arm']}: {r['n_status_unknown']} of {r['n']} with unknown survival status, "
+        f"{r['n_outcome_missing']} of {r['n_known_survivors']} known survivors without an outcome"
+        for r in missingness_counts(estimator.training_data_)
+    ]
+    return (
+        "Missing data (" + "; ".join(parts) + ") were handled by inverse probability of "
+        f"observation weighting under the assumption that they are {MISSING_AT_RANDOM_ASSUMPTION}"
+        ". This cannot be checked from the data; see sensitivity_grid(outcome_shift=...)."
+    )
