@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from ..nuisance._models import ConstantModel
 from ._arrays import oriented_predictions
 from ._cache import cached_diagnostic, without_strata
 from ._monotonicity import _strata_labels
@@ -70,7 +71,7 @@ def _coefficient_count(model):
         model = model.steps[-1][1]
     if hasattr(model, "coef_") and hasattr(model, "intercept_"):
         return int(np.size(model.coef_) + np.size(model.intercept_))
-    if type(model).__name__ == "_ConstantModel":
+    if isinstance(model, ConstantModel):
         return 1
     return None
 

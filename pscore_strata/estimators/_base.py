@@ -33,7 +33,8 @@ from ..inference._standard_errors import (
     normal_interval,
     reference_dof,
 )
-from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
+from ..nuisance._fit import MonotonicityWarning, fit_nuisance
+from ..nuisance._models import predict_models
 from ..nuisance._share import record_settings, shared_nuisance
 from ..nuisance._strata import StratumArm
 from ._heterogeneity import conditional_effect, subgroup_effects

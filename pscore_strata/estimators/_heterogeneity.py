@@ -16,7 +16,7 @@ from sklearn.base import is_classifier
 from .._validation import _one_dimensional, check_features
 from ..estimands._formulas import orient, scale_effect
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
-from ..nuisance._fit import predict_models
+from ..nuisance._models import predict_models
 from ._repeats import median_aggregate
 from ._summary import CAUTIONS
 
