@@ -103,7 +103,7 @@ class TruncationData:
         )
 
 
-def _one_dimensional(values, name):
+def one_dimensional(values, name):
     array = _as_vector(values, name)
     if array.dtype.kind == "c":
         raise TypeError(
@@ -176,7 +176,7 @@ MISSING_AT_RANDOM_ASSUMPTION = (
 
 
 def _binary_indicator(values, name, allow_missing=False):
-    array = _one_dimensional(values, name)
+    array = one_dimensional(values, name)
     if array.dtype.kind == "O" and all(_is_missing(v) or _is_real(v) for v in array):
         # Python ints or bools, pandas nullable integers or booleans (pd.NA): NaN floats.
         array = np.array([np.nan if _is_missing(v) else float(v) for v in array], dtype=float)
@@ -237,7 +237,7 @@ def check_truncation_data(
         raise ValueError(
             f"`treatment` has {n} rows but `survival` has {survival.shape[0]}; they must match."
         )
-    outcome = _one_dimensional(y, "y")
+    outcome = one_dimensional(y, "y")
     if outcome.shape[0] != n:
         raise ValueError(
             f"`y` has {outcome.shape[0]} rows but `treatment` has {n}; they must match."
@@ -282,7 +282,7 @@ def check_truncation_data(
         weights = np.ones(n)
         weighted = False
     else:
-        weights = _numbers_or_missing(_one_dimensional(sample_weight, "sample_weight"),
+        weights = _numbers_or_missing(one_dimensional(sample_weight, "sample_weight"),
                                       "sample_weight").astype(float)  # fmt: skip
         if weights.shape[0] != n:
             raise ValueError(
@@ -303,7 +303,7 @@ def check_truncation_data(
         weighted = True
 
     if groups is not None:
-        groups = _one_dimensional(groups, "groups")
+        groups = one_dimensional(groups, "groups")
         if groups.shape[0] != n:
             raise ValueError(f"`groups` has {groups.shape[0]} rows but `treatment` has {n}.")
         if pd.isna(groups).any():

@@ -39,7 +39,7 @@ from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
 
-_NULL = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
+NULL_SETTING = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
 
 
 class _Stratum:

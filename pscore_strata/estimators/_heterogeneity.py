@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 from sklearn.base import is_classifier
 
-from .._validation import _one_dimensional, check_features
+from .._validation import check_features, one_dimensional
 from ..estimands._formulas import orient, scale_effect
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._models import predict_models
@@ -51,7 +51,7 @@ def conditional_effect(estimator, X):
 def _check_labels(labels, n_samples):
     if labels is None:
         raise ValueError("`labels` is required: pass one subgroup label per training row.")
-    array = _one_dimensional(labels, "labels")
+    array = one_dimensional(labels, "labels")
     if array.shape[0] != n_samples:
         raise ValueError(
             f"`labels` has {array.shape[0]} rows but the estimator was fitted on {n_samples}; "
