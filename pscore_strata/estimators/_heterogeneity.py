@@ -13,7 +13,8 @@ import numpy as np
 import pandas as pd
 from sklearn.base import is_classifier
 
-from .._validation import check_features, one_dimensional
+from .._validation import check_features
+from .._vectors import one_dimensional
 from ..estimands._formulas import orient, scale_effect
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._models import predict_models

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .._validation import MISSING_AT_RANDOM_ASSUMPTION
+from .._vectors import MISSING_AT_RANDOM_ASSUMPTION
 from ..diagnostics._tables import diagnostic_warnings
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._missing import missingness_counts
