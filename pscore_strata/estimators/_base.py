@@ -15,15 +15,8 @@ from joblib import Parallel, delayed
 from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
-try:
-    from sklearn.utils.validation import _check_feature_names
-except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
-
-    def _check_feature_names(estimator, X, *, reset):
-        return estimator._check_feature_names(X, reset=reset)
-
 from .._arguments import check_estimator_arguments, check_n_folds
-from .._validation import check_choice, check_features, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ..estimands._formulas import orient, robust_means, scale_effect
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
@@ -34,11 +27,10 @@ from ..inference._standard_errors import (
     reference_dof,
 )
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
-from ..nuisance._models import predict_models
 from ..nuisance._share import record_settings, shared_nuisance
-from ..nuisance._strata import StratumArm
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
+from ._scores import PrincipalScoresMixin, check_feature_names
 from ._summary import summary_table
 
 __all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
@@ -46,7 +38,7 @@ __all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
 _SCALES = ("difference", "ratio", "odds_ratio")
 
 
-class SurvivorEffectEstimator(BaseEstimator):
+class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
     """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
 
     _uses_outcome_model = False
@@ -139,7 +131,7 @@ class SurvivorEffectEstimator(BaseEstimator):
         if X is not None:
             # scikit-learn's convention: feature_names_in_ for DataFrames with string names,
             # checked again by predict_proba.
-            _check_feature_names(self, data.X, reset=True)
+            check_feature_names(self, data.X, reset=True)
         if self.scale == "odds_ratio" and not data.binary_outcome:
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
@@ -234,19 +226,6 @@ class SurvivorEffectEstimator(BaseEstimator):
         self.std_error_method_ = self._std_error_method(self.nuisance_)
         self.bootstrap_replicates_ = None
 
-    @property
-    def principal_scores_(self):
-        """Principal scores of the training rows, shape (n_samples, 3), ``classes_`` order.
-
-        Computed from the stored survival predictions on each access (not kept, so three
-        estimators sharing one nuisance fit do not hold three n x 3 copies).
-        """
-        if "nuisance_" not in self.__dict__:
-            raise AttributeError("principal_scores_ is set by fit")
-        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
-        survival = self.nuisance_.survival
-        return _principal_scores(survival[mixed], survival[pure])
-
     def _std_error_method(self, nuisance):
         if self._formula is robust_means:
             return "influence function"
@@ -314,52 +293,6 @@ class SurvivorEffectEstimator(BaseEstimator):
             self.effect_, self.std_error_, level, self.scale != "difference",
             dof=reference_dof(getattr(self, "n_clusters_", None)),
         )  # fmt: skip
-
-    def predict_proba(self, X):
-        """Principal scores per row, columns in ``classes_`` order.
-
-        Columns are checked as scikit-learn checks them: a DataFrame must have the names and
-        order seen in ``fit`` (``feature_names_in_``; otherwise a ValueError), and mixing a
-        DataFrame with an array between ``fit`` and here warns and matches columns by position.
-
-        Under monotonicity the always-survivor score is the survival probability in the pure arm,
-        the helped stratum's score the difference of the arms' survival probabilities, and the
-        doomed score the rest. Where the fitted models contradict monotonicity (survival in the
-        mixed arm below that in the pure arm) the helped score is 0 and the always-survivor
-        score the smaller of the two survival probabilities. With
-        cross-fitting, the predictions average every fold model (of every repeat).
-
-        Returns
-        -------
-        ndarray of shape (n_rows, 3), or DataFrame
-            A pandas DataFrame (columns ``classes_``, the index of ``X``) when ``X`` is a
-            DataFrame, as scikit-learn's ``set_output(transform="pandas")`` labels its output;
-            an ndarray otherwise.
-        """
-        check_is_fitted(self, "effect_")
-        index = X.index if isinstance(X, pd.DataFrame) else None
-        X = _match_feature_names(self, X)
-        X, n_features, _ = check_features(X, self._models())
-        if n_features != self.n_features_in_:
-            raise ValueError(
-                f"`X` has {n_features} features but the estimator was fitted with "
-                f"{self.n_features_in_}."
-            )
-        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
-        scores = {}
-        for arm in (mixed, pure):
-            models = [m for fit in self._repeat_fits for m in fit.models[("survival", arm)]]
-            scores[arm] = predict_models(models, X)
-        result = _principal_scores(scores[mixed], scores[pure])
-        if isinstance(models[0], StratumArm):  # a stratum model's own scores, fold-averaged
-            result = np.mean([m.strata.predict_proba(X) for m in models], axis=0)
-        if index is not None:
-            return pd.DataFrame(result, index=index, columns=list(self.classes_))
-        return result
-
-    def predict(self, X):
-        """The most probable principal stratum per row."""
-        return self.classes_[np.argmax(np.asarray(self.predict_proba(X)), axis=1)]
 
     def summary(self, level=0.95):
         """Estimates with standard errors and confidence intervals, one row per quantity.
@@ -431,34 +364,6 @@ def _one_replicate(estimator, data, seed):
     # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
     # count it as a failed fit, as the full-sample fit would refuse it.
     return values if np.all(np.isfinite(values)) else None
-
-
-def _match_feature_names(estimator, X):
-    """scikit-learn's feature-name check; after its warning, ``X`` takes the fitted form so the
-    nuisance models do not warn again."""
-    if X is None:
-        return X
-    _check_feature_names(estimator, X, reset=False)
-    names = getattr(estimator, "feature_names_in_", None)
-    if isinstance(X, pd.DataFrame) and names is None:
-        return X.to_numpy()
-    if names is not None and not isinstance(X, pd.DataFrame):
-        values = np.asarray(X)
-        if values.ndim == 2 and values.shape[1] == len(names):
-            return pd.DataFrame(values, columns=names)
-    return X
-
-
-def _principal_scores(p_mixed, p_pure):
-    # Written into one array (three n-vectors at the peak, not six).
-    scores = np.empty((p_mixed.shape[0], 3))
-    always, helped, doomed = scores[:, 0], scores[:, 1], scores[:, 2]
-    np.minimum(p_pure, p_mixed, out=always)
-    np.subtract(p_mixed, p_pure, out=helped)
-    np.clip(helped, 0.0, None, out=helped)
-    np.subtract(1.0, always, out=doomed)
-    doomed -= helped
-    return scores
 
 
 class _Roles:
