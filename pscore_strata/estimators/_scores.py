@@ -16,7 +16,7 @@ except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
 
 from .._validation import check_features
 from ..nuisance._models import predict_models
-from ..nuisance._strata import StratumArm
+from ..nuisance._stratum_arms import StratumArm
 
 __all__ = ["PrincipalScoresMixin", "check_feature_names"]
 

@@ -27,7 +27,7 @@ from ._models import (
     numeric_design,
 )
 from ._sandwich import build_parametric, parametric_piece, response_glm
-from ._strata import StratumArm, check_stratum_model, fit_strata_scores
+from ._stratum_arms import StratumArm, check_stratum_model, fit_strata_scores
 
 __all__ = [
     "NuisanceFit",

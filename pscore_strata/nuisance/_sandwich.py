@@ -43,7 +43,8 @@ from sklearn.preprocessing import (
 from ..exceptions import LooseFitWarning
 from ._mixture import stratum_pieces
 from ._models import ParametricFit
-from ._strata import PrincipalScoreModel, stratum_arms
+from ._strata import PrincipalScoreModel
+from ._stratum_arms import stratum_arms
 
 __all__ = [
     "glm_kind", "sandwich_reason", "build_parametric", "response_glm", "LooseFitWarning"
