@@ -176,7 +176,7 @@ def fit_nuisance(
             )
             fitted["treatment"].append(model)
         if strata:
-            # One stratum model on both arms supplies p0 and p1 (nuisance/_strata.py).
+            # One stratum model on both arms supplies p0 and p1 (nuisance/_stratum_arms.py).
             model, predicted = fit_strata_scores(
                 survival_model, X, T, S, w if weighted else None, train[known[train]], test
             )
