@@ -31,6 +31,7 @@ from .distributions import (
     survivor_distribution,
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
+from .exceptions import BootstrapFailureError, FewOutcomesWarning, SeparationWarning
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
 
@@ -55,6 +56,9 @@ __all__ = [
     "OverlapWarning",
     "MonotonicityWarning",
     "FewClustersWarning",
+    "SeparationWarning",
+    "FewOutcomesWarning",
+    "BootstrapFailureError",
     "TrimmingBounds",
     "bootstrap",
     "BootstrapResult",

@@ -63,6 +63,7 @@ def _check_out_dir(out):
 
 def _options(args):
     from .report import AnalysisOptions
+    from .report._options import check_treatment_probability, parse_levels
 
     _check_seed(args.seed)
     if args.folds is not None and args.folds < 2:
@@ -83,6 +84,12 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        treatment_probability=(
+            None if args.treatment_probability is None
+            else check_treatment_probability(args.treatment_probability)
+        ),
+        outcome_label=args.outcome_label,
+        levels=None if args.levels is None else parse_levels(args.levels),
     )
 
 
@@ -341,6 +348,20 @@ def build_parser():
     analyze.add_argument(
         "--arm-names", nargs=2, default=None, metavar=("TREATED", "CONTROL"),
         help="names of the two arms (default: the treatment levels, or treatment / control)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--treatment-probability", type=float, default=None, metavar="P",
+        help="known randomization probability of treatment (e.g. 0.5 for 1:1): used instead "
+        "of a fitted treatment model",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--outcome-label", default=None, metavar="TEXT",
+        help="what headings and axes call the outcome (default: the column name)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--levels", default=None, metavar="CODE=LABEL,...",
+        help='labels of an ordinal outcome\'s levels, e.g. "1=worse,2=same,3=better" '
+        "(default: the data file's value labels, else the codes)",
     )  # fmt: skip
     analyze.add_argument(
         "--by", default=None, metavar="COL",

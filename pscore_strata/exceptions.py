@@ -21,6 +21,9 @@ __all__ = [
     "LooseFitWarning",
     "FewClustersWarning",
     "DataWarning",
+    "SeparationWarning",
+    "FewOutcomesWarning",
+    "BootstrapFailureError",
     "InputError",
     "FileProblem",
 ]
@@ -66,6 +69,39 @@ class DataWarning(UserWarning):
     Raised by the report's data preparation (for example, a categorical column with very many
     levels, or date-like text); the message says what was found and what to do.
     """
+
+
+class SeparationWarning(UserWarning):
+    """A binary nuisance model is (quasi-)completely separated in an arm.
+
+    Raised once per fitted model (treatment; survival, follow-up or response per arm) when a
+    covariate level predicts the model's 0/1 target perfectly on its fitting rows (fitted
+    probabilities within 1e-6 of 0 or 1, coefficients of 10 or more). The coefficients then run
+    off towards infinity and the sandwich standard error is not to be trusted. Merge or drop the
+    level, use a penalized model, or run the unadjusted analysis.
+    """
+
+
+class FewOutcomesWarning(UserWarning):
+    """An arm has fewer than 5 survivors with an observed outcome.
+
+    Those few rows carry the arm's always-survivor mean (one row: the trimming bounds coincide),
+    and large-sample standard errors and intervals are not reliable there.
+    """
+
+
+class BootstrapFailureError(RuntimeError):
+    """More bootstrap resamples could not be estimated than the stated share allows (1%).
+
+    Resamples that lose every death (or survivor) of an arm cannot be fitted; the ones that
+    remain would describe a selected subset. ``n_failed``, ``n_resamples``, ``reasons``
+    (failure reason -> count) and ``counts`` (the sentence that counts them) say what happened.
+    """
+
+    def __init__(self, message, n_failed, n_resamples, reasons, counts):
+        super().__init__(message)
+        self.n_failed, self.n_resamples, self.reasons = n_failed, n_resamples, reasons
+        self.counts = counts
 
 
 class InputError(ValueError):

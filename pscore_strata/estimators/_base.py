@@ -16,9 +16,11 @@ from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_n_folds
+from .._features import feature_fingerprint
 from .._validation import check_choice, check_level, check_truncation_data
-from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
+from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR, VIOLATION_TOLERANCE
 from ..estimands._formulas import orient, robust_means, scale_effect
+from ..exceptions import FewOutcomesWarning
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 from ..inference._standard_errors import (
     count_clusters,
@@ -27,6 +29,7 @@ from ..inference._standard_errors import (
     reference_dof,
 )
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
+from ..nuisance._missing import few_outcomes_message
 from ..nuisance._share import record_settings, shared_nuisance
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -58,7 +61,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         check_estimator_arguments(self)
         return check_repeats(getattr(self, "n_repeats", 1), self.n_folds)
 
-    def _fit_nuisance(self, data, random_state, sandwich=True):
+    def _fit_nuisance(self, data, random_state, sandwich=True, check_separation=True):
         # Learners left at random_state=None are seeded from `random_state` (as the bootstrap
         # seeds them per replicate), so two fits with the same random_state agree.
         models = self if random_state is None else seed_models(
@@ -77,6 +80,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=sandwich and self._formula is not robust_means,
             monotonicity=self.monotonicity,
+            check_separation=check_separation,
         )
         return record_settings(fitted, self, data, random_state)
 
@@ -131,7 +135,9 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         if X is not None:
             # scikit-learn's convention: feature_names_in_ for DataFrames with string names,
             # checked again by predict_proba.
-            check_feature_names(self, data.X, reset=True)
+            # The caller's table, so that polars (converted for the models) keeps its names.
+            check_feature_names(self, X if hasattr(X, "columns") else data.X, reset=True)
+        self._fitted_on_frame = isinstance(data.X, pd.DataFrame)
         if self.scale == "odds_ratio" and not data.binary_outcome:
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
@@ -152,6 +158,13 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
                 for seed in repeat_seeds(self.random_state, n_repeats)
             ]
         self._store(data, fits)
+        # The rows seen, so that labels (effect_by) and covariates (the distribution functions)
+        # given later can be checked against them.
+        self.training_index_ = X.index if isinstance(X, pd.DataFrame) else None
+        self.feature_fingerprint_ = feature_fingerprint(X) if data.n_features else None
+        message = few_outcomes_message(data)
+        if message:
+            warnings.warn(message, FewOutcomesWarning, stacklevel=2)
         self.n_clusters_ = n_clusters
         if self.std_error_method_ == "bootstrap":
             self._bootstrap_std_errors(data)
@@ -205,7 +218,8 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         self.classes_ = np.array(
             ["always_survivor", "protected" if oriented.increasing else "harmed", "doomed"]
         )
-        violations = int(np.sum(oriented.p_mixed < oriented.p_pure))
+        # Crossings within rounding (two arms fitted to the same shares) are no contradiction.
+        violations = int(np.sum(oriented.p_pure - oriented.p_mixed > VIOLATION_TOLERANCE))
         self.n_monotonicity_violations_ = violations
         # Small reversals are estimation noise where the arms' survival is close; warn when
         # more than 5% of rows are reversed by more than 0.05 (thresholds: common practice,
@@ -217,13 +231,17 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
                 f"fitted survival probability under "
                 f"{'treatment' if oriented.increasing else 'control'} is more than "
                 f"{SCORE_FLOOR} below that under the other arm ({violations} rows are reversed "
-                "at all), contradicting the monotonicity assumption. Principal scores are "
-                "clipped at zero there. Check the survival model, and see the sensitivity "
-                "analysis for monotonicity.",
+                f"by more than {VIOLATION_TOLERANCE:g}), contradicting the monotonicity "
+                "assumption. The estimates use the fitted survival probabilities as they are "
+                "(unclipped); only the principal scores that predict_proba reports are clipped "
+                "at zero there so that each row's scores add to one. Check the survival model, "
+                "and see the sensitivity analysis for monotonicity.",
                 MonotonicityWarning,
                 stacklevel=3,
             )
         self.std_error_method_ = self._std_error_method(self.nuisance_)
+        # Separated binary models (SeparationWarning at fit): their sandwich is not trusted.
+        self.separation_ = list(getattr(self.nuisance_, "separation", []))
         self.bootstrap_replicates_ = None
 
     def _std_error_method(self, nuisance):
@@ -237,7 +255,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
     def _refit_means(self, data, random_state=None):
         """The statistic of one refit: no standard errors, sandwich pieces or diagnostics."""
         seed = self.random_state if random_state is None else random_state
-        nuisance = self._fit_nuisance(data, seed, sandwich=False)
+        nuisance = self._fit_nuisance(data, seed, sandwich=False, check_separation=False)
         parts, _ = self._means(data, nuisance)
         effect, _ = scale_effect(parts, self.scale)
         return effect, parts.mean_treated, parts.mean_control

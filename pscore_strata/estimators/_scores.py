@@ -7,13 +7,7 @@ import numpy as np
 import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
-try:
-    from sklearn.utils.validation import _check_feature_names
-except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
-
-    def _check_feature_names(estimator, X, *, reset):
-        return estimator._check_feature_names(X, reset=reset)
-
+from .._features import check_feature_names
 from .._validation import check_features
 from ..nuisance._models import predict_models
 from ..nuisance._stratum_arms import StratumArm
@@ -89,10 +83,13 @@ def _match_feature_names(estimator, X):
     nuisance models do not warn again."""
     if X is None:
         return X
-    _check_feature_names(estimator, X, reset=False)
+    check_feature_names(estimator, X, reset=False)
     names = getattr(estimator, "feature_names_in_", None)
     if isinstance(X, pd.DataFrame) and names is None:
         return X.to_numpy()
+    if not getattr(estimator, "_fitted_on_frame", True) and hasattr(X, "columns"):
+        # A polars table (or another frame) was converted to an array for the models at fit.
+        return np.asarray(X)
     if names is not None and not isinstance(X, pd.DataFrame):
         values = np.asarray(X)
         if values.ndim == 2 and values.shape[1] == len(names):
@@ -112,6 +109,3 @@ def _principal_scores(p_mixed, p_pure):
     return scores
 
 
-def check_feature_names(estimator, X, *, reset):
-    """scikit-learn's feature-name check (``feature_names_in_``), across its versions."""
-    return _check_feature_names(estimator, X, reset=reset)

@@ -16,7 +16,7 @@ from sklearn.base import is_classifier
 from sklearn.model_selection import StratifiedKFold
 
 from .._validation import EXTREME_PROBABILITY
-from ..exceptions import MonotonicityWarning, OverlapWarning
+from ..exceptions import MonotonicityWarning, OverlapWarning, SeparationWarning
 from ._missing import fit_missingness
 from ._models import (
     ConstantModel,
@@ -27,6 +27,7 @@ from ._models import (
     numeric_design,
 )
 from ._sandwich import build_parametric, parametric_piece, response_glm
+from ._separation import warn_separation
 from ._stratum_arms import StratumArm, check_stratum_model, fit_strata_scores
 
 __all__ = [
@@ -75,6 +76,8 @@ class NuisanceFit:
     # {0: r0, 1: r1}} per row; None when nothing is missing.
     missingness: dict | None = None
     settings: dict | None = None  # what it was fitted with, for sharing (see _share.py)
+    # SeparationWarning texts of the binary models that are separated (nuisance/_separation.py).
+    separation: list = field(default_factory=list)
 
 
 def fit_nuisance(
@@ -90,6 +93,7 @@ def fit_nuisance(
     response_model=None,
     sandwich=True,
     monotonicity=None,
+    check_separation=True,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -118,6 +122,9 @@ def fit_nuisance(
         ``False`` skips them (the multiply robust estimator never uses them).
     monotonicity : {"increasing", "decreasing"} or None
         The estimator's direction; a :class:`PrincipalScoreModel` survival model must share it.
+    check_separation : bool, default=True
+        Look for separated binary models (:mod:`._separation`) and warn with
+        :class:`~pscore_strata.exceptions.SeparationWarning`; bootstrap refits skip it.
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -230,6 +237,9 @@ def fit_nuisance(
         fitted.update(missing_models)
         result.missingness = missingness
         result.parametric = {**result.parametric, **missing_parametric} if pieces else None
+    if check_separation:
+        result.separation = warn_separation(data, result, known_probability, SeparationWarning,
+                                            strata=bool(strata))  # fmt: skip
     _warn_extremes(pi, survival, known_probability)
     return result
 

@@ -141,7 +141,19 @@ def fit_predict(model, X, target, fit_rows, predict_rows, weights, weighted, bin
         clone(model), take_rows(X, fit_rows), take_rows(target, fit_rows),
         take_rows(weights, fit_rows) if weighted else None,
     )  # fmt: skip
-    return fitted, predict_model(fitted, take_rows(X, predict_rows), binary)
+    try:
+        return fitted, predict_model(fitted, take_rows(X, predict_rows), binary)
+    except ValueError as error:
+        if "unknown categor" not in str(error):
+            raise
+        # Cross-fitting predicts each fold from models fitted on the others, which may not
+        # have seen a rare category at all.
+        raise ValueError(
+            "A cross-fitting fold holds a category of `X` that the model fitted on the other "
+            f"folds never saw ({str(error).splitlines()[0]}). Set handle_unknown='ignore' in "
+            "the pipeline's OneHotEncoder, merge the rare category with another, or use fewer "
+            "folds (`n_folds`)."
+        ) from None
 
 
 def numeric_design(X):

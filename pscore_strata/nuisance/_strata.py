@@ -19,6 +19,7 @@ from sklearn.pipeline import Pipeline
 from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted
 
+from .._features import check_feature_names, check_features
 from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
@@ -186,6 +187,11 @@ class PrincipalScoreModel(BaseEstimator):
         treatment, survival, weights = check_cells(X, treatment, survival, sample_weight)
         if X is None:
             self.n_features_in_ = 0
+        else:
+            # The checks (and messages) of the estimators: NaN or text that the model cannot
+            # take, and scikit-learn's feature names for predict_proba to compare.
+            X, _, _ = check_features(X, (self.estimator,), n_rows=treatment.size)
+            check_feature_names(self, X, reset=True)
         self.classes_ = np.array(
             ["always_survivor", "protected" if self._increasing else "harmed", "doomed"]
         )
@@ -356,6 +362,14 @@ class PrincipalScoreModel(BaseEstimator):
         ndarray of shape (n_rows, 3)
         """
         check_is_fitted(self, "classes_")
+        if X is not None and self.n_features_in_ == 0:
+            raise ValueError(
+                "This PrincipalScoreModel was fitted without covariates (X=None), so its "
+                "principal scores are the same for every row: call predict_proba(None), or "
+                "refit it with the covariates."
+            )
+        if X is not None:
+            check_feature_names(self, X, reset=False)
         if self.estimator is None:
             if X is None:
                 return strata_probabilities(np.tile(self._coef_standardized[:, 0], (1, 1)))

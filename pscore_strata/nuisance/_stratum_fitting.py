@@ -54,7 +54,15 @@ def check_cells(X, treatment, survival, sample_weight):
     n = None if X is None else len(X)
     arrays = {}
     for name, values in (("treatment", treatment), ("survival", survival)):
-        values = np.asarray(values, dtype=float).ravel()
+        try:
+            values = np.asarray(values, dtype=float).ravel()
+        except (TypeError, ValueError):
+            shown = np.asarray(values, dtype=object).ravel()[:1]
+            raise ValueError(
+                f"`{name}` must hold only 0 and 1 (numbers); got text such as "
+                f"{shown[0] if shown.size else ''!r}. Recode it first, for example "
+                f"(column == 'treated').astype(int)."
+            ) from None
         if n is not None and values.size != n:
             raise ValueError(f"`{name}` has {values.size} values but `X` has {n} rows.")
         bad = ~np.isin(values, (0.0, 1.0))
@@ -75,6 +83,13 @@ def check_cells(X, treatment, survival, sample_weight):
             raise ValueError(
                 f"`sample_weight` must be {n} finite non-negative values with a positive "
                 "sum."
+            )
+    for arm, name in ((1, "treated"), (0, "control")):
+        if weights[arrays["treatment"] == arm].sum() <= 0:
+            raise ValueError(
+                f"`treatment` puts no row (or no weight) in the {name} arm: the strata are "
+                "identified only by comparing the two arms' survival, so the model cannot be "
+                "fitted. Pass data with units (and positive weights) in both arms."
             )
     return arrays["treatment"], arrays["survival"], weights
 

@@ -21,14 +21,19 @@ def print_survival_model(results):
         if test["arm"] == "both" and test["p_value"] is not None:
             print(f"  Survival fit check, both arms: chi-square {test['statistic']:.2f} on "
                   f"{test['df']} df, p = {test['p_value']:.3f}")  # fmt: skip
+        elif test["arm"] == "both" and test.get("assessable") is False:
+            # Perfectly predicted rows (separation) or as many coefficients as fitted values:
+            # a p-value near 1 would only look like a perfect fit.
+            print("  Survival fit check: cannot assess the fit (see Fitted models in the report)")
 
 
 def print_key_results(results, out_dir):
     level = f"{results['settings']['level']:.0%}"
     words = results["wording"]
+    outcome = words.get("outcome_label") or results["columns"]["outcome"]
     print(f"Survivor average causal effect of {words['treated_arm']} "
           f"('{words['treated_condition']}') against {words['control_arm']} "
-          f"('{words['control_condition']}') on '{results['columns']['outcome']}' "
+          f"('{words['control_condition']}') on '{outcome}' "
           f"({results['data_overview']['n_rows_analyzed']} {words['units']} "
           "analysed):")  # fmt: skip
     for record in results["estimates"]:
@@ -40,7 +45,10 @@ def print_key_results(results, out_dir):
             print(f"  {record['label']:<27} {number(record['effect']):>10}   {level} CI "
                   f"{interval(record['ci_low'], record['ci_high'])}{tag}")  # fmt: skip
     boot = results.get("bootstrap")
-    if boot:
+    if boot and boot.get("refused"):
+        print(f"  {'Bootstrap (percentile)':<27} {'refused':>10}   {boot['n_failed']} of "
+              f"{boot['n_resamples']} resamples could not be estimated (see the report)")
+    elif boot:
         print(f"  {'Bootstrap (percentile)':<27} {number(boot['estimate']):>10}   {level} CI "
               f"{interval(boot['ci_low'], boot['ci_high'])}")  # fmt: skip
     bounds = results.get("bounds", {})
@@ -57,22 +65,33 @@ def print_key_results(results, out_dir):
     if shift:
         value = shift["smallest_shift_covering_zero"]
         shown = "not within the grid" if value is None else f"{value:.3g}"
+        if value == 0:
+            shown = "none to report (the CI covers 0 with no shift)"
         print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
     naive = results["naive_survivor_contrast"]
     print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
           "(biased; comparison)")  # fmt: skip
+    if not results["columns"]["covariates"]:
+        print("  Unadjusted (no covariates): the estimators equal the naive contrast because "
+              "principal ignorability without covariates says so; the bounds drop it.")
     for record in results["estimates"]:
         if record["ci_low"] is None:
             print(f"  {record['label']}: {record['interval_note']}")
     sens = results.get("sensitivity", {})
     if "pi_difference" in sens:
-        tip = sens["pi_difference"]["tipping_point"]
-        sd = sens["pi_difference"]["outcome_sd_survivors"]
+        record = sens["pi_difference"]
+        tip, sd = record["tipping_point"], record["outcome_sd_survivors"]
+        status = record.get("tipping_status")
         shown = ("not reached" if tip is None else
-                 f"{number(tip)} {results['columns']['outcome']} units "
-                 f"({number(tip / sd)} outcome SDs)")  # fmt: skip
+                 f"{number(tip)} {outcome} units ({number(tip / sd)} outcome SDs)")  # fmt: skip
         if tip is None and sens.get("interval_note"):
             shown = "not available"
+        if status == "covers_null":
+            shown = "none to report (the CI covers 0 under principal ignorability itself)"
+        elif status == "beyond_outcome_range":
+            low, high = record["outcome_range_survivors"]
+            shown += (f", more than the survivors' whole outcome range ({number(low)} to "
+                      f"{number(high)})")  # fmt: skip
         print(f"  Tipping point for principal ignorability (difference): {shown}")
     for subgroup in (results.get("subgroups") or {}).get("rows", []):
         shown = (f"{level} CI {interval(subgroup['ci_low'], subgroup['ci_high'])}"
