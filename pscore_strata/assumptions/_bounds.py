@@ -62,8 +62,8 @@ class TrimmingBounds(BaseEstimator):
         the trimming is then done on the observed survivors weighted by the inverse
         probability of being observed (follow-up ``c_t(X)`` times response ``r_t(X)``), and
         arm survival shares use the rows with known status weighted by ``1 / c_t(X)``.
-    response_model : classifier or None, default=None
-        Model for ``c_t`` and ``r_t``; ``None`` is unpenalized logistic regression.
+    response_model, follow_up_model : classifier or None, default=None
+        Models for ``r_t`` and ``c_t``; ``None`` is unpenalized logistic regression.
     quantiles : sequence of float in (0, 1) or None, default=None
         Also bound the always-survivor quantile effects at these probabilities
         (``quantile_bounds_``; construction in :mod:`pscore_strata.assumptions._quantile_bounds`).
@@ -132,6 +132,7 @@ class TrimmingBounds(BaseEstimator):
         missing="error",
         response_model=None,
         quantiles=None,
+        follow_up_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -141,6 +142,7 @@ class TrimmingBounds(BaseEstimator):
         self.missing = missing
         self.response_model = response_model
         self.quantiles = quantiles
+        self.follow_up_model = follow_up_model
 
     def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None,
             nuisance=None):  # fmt: skip
@@ -175,7 +177,8 @@ class TrimmingBounds(BaseEstimator):
             check_quantiles(self.quantiles)
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups,
-            models=(self.treatment_model, self.survival_model, self.response_model),
+            models=(self.treatment_model, self.survival_model, self.response_model,
+                    self.follow_up_model),
             missing=self.missing,
         )  # fmt: skip
         self.n_clusters_ = count_clusters(data.groups)
@@ -194,6 +197,7 @@ class TrimmingBounds(BaseEstimator):
             nuisance = fit_nuisance(
                 data, self.treatment_model, self.survival_model, random_state=None,
                 response_model=self.response_model, monotonicity=self.monotonicity,
+                follow_up_model=self.follow_up_model,
             )  # fmt: skip
         else:
             nuisance = shared_bounds_nuisance(self, nuisance, data)
@@ -307,3 +311,4 @@ class _BoundsSettings:
         self.survival_model = bounds.survival_model
         self.monotonicity = bounds.monotonicity
         self.response_model = bounds.response_model
+        self.follow_up_model = bounds.follow_up_model

@@ -52,7 +52,8 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         """The models that will see X (for input checks that depend on them)."""
         used = (self.treatment_model, self.survival_model)
         used += (self.outcome_model,) if self._uses_outcome_model else ()
-        return used + ((self.response_model,) if self.missing == "at_random" else ())
+        missing = (self.follow_up_model, self.response_model)
+        return used + (missing if self.missing == "at_random" else ())
 
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
@@ -77,6 +78,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             random_state=random_state,
             treatment_enters_estimate=self._treatment_enters_estimate,
             response_model=models.response_model,
+            follow_up_model=models.follow_up_model,
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=sandwich and self._formula is not robust_means,
             monotonicity=self.monotonicity,

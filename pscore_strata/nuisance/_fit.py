@@ -91,6 +91,7 @@ def fit_nuisance(
     random_state=None,
     treatment_enters_estimate=True,
     response_model=None,
+    follow_up_model=None,
     sandwich=True,
     monotonicity=None,
     check_separation=True,
@@ -113,6 +114,8 @@ def fit_nuisance(
     treatment_enters_estimate : bool, default=True
         ``False`` when the estimator's formula does not use ``pi`` (outcome regression), so a
         non-default treatment model does not rule out the sandwich standard error.
+    follow_up_model : classifier or None
+        The follow-up models ``c_t`` (``None``: the default logistic model).
     response_model : classifier or None
         Follow-up and response models when ``data`` has missing status or outcomes
         (``None``: the default logistic model); survival models are then fitted on rows with
@@ -226,10 +229,12 @@ def fit_nuisance(
         )  # fmt: skip
     if coarsened:
         # The response model's pieces share the raw design, so it must be a bare GLM.
-        pieces = result.parametric is not None and response_glm(response_model)
+        pieces = (result.parametric is not None and response_glm(response_model)
+                  and response_glm(follow_up_model))  # fmt: skip
         missingness, missing_models, missing_parametric = fit_missingness(
             data,
-            default_binary_model() if response_model is None else response_model,
+            {"follow_up": default_binary_model() if follow_up_model is None else follow_up_model,
+             "response": default_binary_model() if response_model is None else response_model},
             splits,
             numeric_design(X) if pieces else None,
             parametric_piece if pieces else None,

@@ -45,8 +45,9 @@ def fit_missingness(data, model, splits, design, parametric_builder):
     ----------
     data : TruncationData
         With ``status_known`` and ``outcome_observed`` set.
-    model : classifier
-        Cloned for each model, arm and fold.
+    model : classifier or dict
+        Cloned for each model, arm and fold; a dict ``{"follow_up": ..., "response": ...}``
+        gives each kind its own model.
     splits : list of (train, test) row-position arrays
     design : ndarray or None
         Numeric design for the sandwich; ``parametric_builder`` is called only when it is used.
@@ -83,7 +84,8 @@ def fit_missingness(data, model, splits, design, parametric_builder):
                     values[test] = model_fit.predict(np.empty(test.size))
                 else:
                     model_fit, values[test] = fit_predict(
-                        model, data.X, target, fit_rows, test, w, data.weighted, True
+                        model[kind] if isinstance(model, dict) else model, data.X, target,
+                        fit_rows, test, w, data.weighted, True,
                     )
                 fitted[(kind, arm)].append(model_fit)
             predictions[kind][arm] = values

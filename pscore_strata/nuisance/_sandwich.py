@@ -120,12 +120,13 @@ def sandwich_reason(estimator):
     if getattr(estimator, "_uses_outcome_model", False):
         roles.append(("outcome_model", estimator.outcome_model))
     if getattr(estimator, "missing", "error") == "at_random":
-        response = getattr(estimator, "response_model", None)
-        if not response_glm(response):
-            return (
-                f"`response_model` is {_describe(response)}, not an unpenalized "
-                "LogisticRegression on the covariates as given"
-            )
+        for role in ("follow_up_model", "response_model"):
+            model = getattr(estimator, role, None)
+            if not response_glm(model):
+                return (
+                    f"`{role}` is {_describe(model)}, not an unpenalized LogisticRegression "
+                    "on the covariates as given"
+                )
     for role, model in roles:
         if model is None or isinstance(model, int | float) or _default_strata(model):
             continue
