@@ -11,7 +11,6 @@ from dataclasses import replace
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
@@ -21,7 +20,7 @@ from .._validation import check_choice, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR, VIOLATION_TOLERANCE
 from ..estimands._formulas import orient, robust_means, scale_effect
 from ..exceptions import FewOutcomesWarning
-from ..inference._resampling import resample_rows, seed_models, spawn_seeds
+from ..inference._resampling import seed_models, spawn_seeds
 from ..inference._standard_errors import (
     count_clusters,
     influence_std_error,
@@ -31,6 +30,7 @@ from ..inference._standard_errors import (
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._missing import few_outcomes_message
 from ..nuisance._share import record_settings, shared_nuisance
+from ._fallback import bootstrap_std_errors
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._scores import PrincipalScoresMixin, check_feature_names
@@ -276,26 +276,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
 
     def _bootstrap_std_errors(self, data):
         """Resample rows within arms (clusters, if given) and refit every model."""
-        seeds = spawn_seeds(self.random_state, self.n_bootstrap)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            results = Parallel(n_jobs=self.n_jobs)(
-                delayed(_one_replicate)(self, data, seed) for seed in seeds
-            )
-        table = pd.DataFrame(
-            [r for r in results if r is not None],
-            columns=["effect", "mean_treated", "mean_control"],
-        )
-        self.bootstrap_replicates_ = table
-        self.n_bootstrap_failed_ = len(results) - len(table)
-        if len(table) < 2:
-            raise RuntimeError(
-                f"Fewer than two of the `n_bootstrap`={self.n_bootstrap} resamples could be "
-                "fitted (resamples lost the survivors or deaths of an arm, or the fitted "
-                "probabilities reached 0 or 1). Use the default models (sandwich standard "
-                "errors), set n_bootstrap=0, or use more data."
-            )
-        self.std_error_ = float(table["effect"].std(ddof=1))
+        bootstrap_std_errors(self, data)
 
     # -- results -----------------------------------------------------------------------------
     def conf_int(self, level=0.95):
@@ -370,20 +351,6 @@ class ConditionalEffectMixin:
         """
         check_is_fitted(self, "effect_")
         return conditional_effect(self, X)
-
-
-def _one_replicate(estimator, data, seed):
-    rows = resample_rows(data.treatment, seed, data.groups)
-    # Learners left at random_state=None get a seed from the replicate, so the bootstrap
-    # standard error is reproducible with random learners too.
-    estimator = seed_models(clone(estimator), seed)
-    try:
-        values = estimator._refit_means(data.take(rows))
-    except (ValueError, np.linalg.LinAlgError):
-        return None
-    # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
-    # count it as a failed fit, as the full-sample fit would refuse it.
-    return values if np.all(np.isfinite(values)) else None
 
 
 class _Roles:
