@@ -163,6 +163,12 @@ def _notes(estimator):
             f"{estimator.n_monotonicity_violations_} rows contradict monotonicity in the fitted "
             "survival models."
         )
+    for message in getattr(estimator, "separation_", []):
+        notes.append(
+            message.split(":", 1)[0] + ": the standard error (sandwich or influence function) "
+            "is not to be trusted where a covariate predicts the model's outcome perfectly. "
+            "Merge or drop the level, use a penalized model, or run the unadjusted analysis."
+        )
     notes.append(CAUTIONS)
     return notes
 
