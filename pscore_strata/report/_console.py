@@ -99,6 +99,9 @@ def print_key_results(results, out_dir):
         print(f"  {results['subgroups']['column']} = {subgroup['label']!s:<16} "
               f"{number(subgroup['effect']):>10}   {shown} ({subgroup['n']} rows)")  # fmt: skip
     print_survival_model(results)
+    primary = next((e for e in results["estimates"] if e["primary"]), {})
+    for message in primary.get("separation", []):
+        print(f"  warning: {message}")
     for message in results.get("diagnostics", {}).get("warnings", []):
         print(f"  warning: {message}")
     for message in results.get("warnings", []):
