@@ -8,6 +8,7 @@ from . import (
     datasets,
     diagnostics,
     distributions,
+    exceptions,
     inference,
     nuisance,
     plotting,
@@ -31,6 +32,7 @@ from .distributions import (
     survivor_distribution,
 )
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
+from .exceptions import BootstrapFailureError, FewOutcomesWarning, SeparationWarning
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
 
@@ -55,6 +57,9 @@ __all__ = [
     "OverlapWarning",
     "MonotonicityWarning",
     "FewClustersWarning",
+    "SeparationWarning",
+    "FewOutcomesWarning",
+    "BootstrapFailureError",
     "TrimmingBounds",
     "bootstrap",
     "BootstrapResult",
@@ -74,6 +79,7 @@ __all__ = [
     "assumptions",
     "inference",
     "nuisance",
+    "exceptions",
     "balance_table",
     "weight_summary",
     "overlap_summary",

@@ -136,6 +136,7 @@ def check_estimator_arguments(estimator):
         "treatment_model": "treatment",
         "survival_model": "classifier",
         "response_model": "classifier",
+        "follow_up_model": "classifier",
         "outcome_model": "outcome",
     }
     params = estimator.get_params(deep=False)

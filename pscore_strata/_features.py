@@ -11,15 +11,36 @@ from sklearn.compose import ColumnTransformer
 from sklearn.pipeline import Pipeline
 
 try:
+    from sklearn.utils.validation import _check_feature_names
+except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
+
+    def _check_feature_names(estimator, X, *, reset):
+        return estimator._check_feature_names(X, reset=reset)
+
+
+try:
     from sklearn.utils import get_tags
 except ImportError:  # scikit-learn < 1.6 (the declared minimum is 1.4): legacy tag dictionaries
     get_tags = None
 
-__all__ = ["check_features", "feature_fingerprint", "reject_sparse"]
+__all__ = ["check_feature_names", "check_features", "feature_fingerprint", "reject_sparse"]
+
+
+def check_feature_names(estimator, X, *, reset):
+    """scikit-learn's feature-name check (``feature_names_in_``), across its versions."""
+    return _check_feature_names(estimator, X, reset=reset)
+
+
+def _inner(model):
+    """The classifier inside a PrincipalScoreModel (it sees X), else the model itself."""
+    if type(model).__name__ == "PrincipalScoreModel" and hasattr(model, "estimator"):
+        return model.estimator
+    return model
 
 
 def _accepts_missing(model):
     """Whether a model can take NaN in X (a pipeline may impute; some learners handle NaN)."""
+    model = _inner(model)
     if model is None or isinstance(model, int | float):
         return False
     if isinstance(model, Pipeline | ColumnTransformer):
@@ -33,7 +54,7 @@ def _accepts_missing(model):
 
 
 def _encodes_text(model):
-    return isinstance(model, Pipeline | ColumnTransformer)
+    return isinstance(_inner(model), Pipeline | ColumnTransformer)
 
 
 def check_features(X, models, n_rows=None):

@@ -63,6 +63,7 @@ def _check_out_dir(out):
 
 def _options(args):
     from .report import AnalysisOptions
+    from .report._options import trial_settings
 
     _check_seed(args.seed)
     if args.folds is not None and args.folds < 2:
@@ -83,91 +84,8 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        **trial_settings(args),
     )
-
-
-def _print_survival_model(results):
-    chosen = results.get("survival_model")
-    if chosen:
-        print(f"  Principal scores from the {chosen['label']} (--survival-model "
-              f"{chosen['model']}): {chosen['description']}")  # fmt: skip
-        if chosen["reason"]:
-            print(f"  Chosen by fit: {chosen['reason']}")
-    checks = results.get("model_checks") or {}
-    for test in checks.get("fit_check", {}).get("tests", []):
-        if test["arm"] == "both" and test["p_value"] is not None:
-            print(f"  Survival fit check, both arms: chi-square {test['statistic']:.2f} on "
-                  f"{test['df']} df, p = {test['p_value']:.3f}")  # fmt: skip
-
-
-def _print_key_results(results, out_dir):
-    from .report._format import interval, number
-
-    level = f"{results['settings']['level']:.0%}"
-    words = results["wording"]
-    print(f"Survivor average causal effect of {words['treated_arm']} "
-          f"('{words['treated_condition']}') against {words['control_arm']} "
-          f"('{words['control_condition']}') on '{results['columns']['outcome']}' "
-          f"({results['data_overview']['n_rows_analyzed']} {words['units']} "
-          "analysed):")  # fmt: skip
-    for record in results["estimates"]:
-        tag = "  <- primary" if record["primary"] else ""
-        if record["ci_low"] is None:
-            print(f"  {record['label']:<27} {number(record['effect']):>10}   "
-                  f"interval not available (see below){tag}")  # fmt: skip
-        else:
-            print(f"  {record['label']:<27} {number(record['effect']):>10}   {level} CI "
-                  f"{interval(record['ci_low'], record['ci_high'])}{tag}")  # fmt: skip
-    boot = results.get("bootstrap")
-    if boot:
-        print(f"  {'Bootstrap (percentile)':<27} {number(boot['estimate']):>10}   {level} CI "
-              f"{interval(boot['ci_low'], boot['ci_high'])}")  # fmt: skip
-    bounds = results.get("bounds", {})
-    if "lower" in bounds:
-        print(f"  {'Bounds (no princ. ignor.)':<27} {number(bounds['lower']):>10} to "
-              f"{number(bounds['upper'])}")  # fmt: skip
-    missing = results.get("missing_data") or {}
-    for arm in missing.get("by_arm", []):
-        print(f"  Missing data, {arm['arm']}: status unknown {arm['n_status_unknown']} "
-              f"({arm['share_status_unknown']:.1%}), outcome missing {arm['n_outcome_missing']} "
-              f"of {arm['n_known_survivors']} known survivors "
-              f"({arm['share_outcome_missing']:.1%}); assumed missing at random")  # fmt: skip
-    shift = missing.get("outcome_shift") or {}
-    if shift:
-        value = shift["smallest_shift_covering_zero"]
-        shown = "not within the grid" if value is None else f"{value:.3g}"
-        print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
-    naive = results["naive_survivor_contrast"]
-    print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
-          "(biased; comparison)")  # fmt: skip
-    for record in results["estimates"]:
-        if record["ci_low"] is None:
-            print(f"  {record['label']}: {record['interval_note']}")
-    sens = results.get("sensitivity", {})
-    if "pi_difference" in sens:
-        tip = sens["pi_difference"]["tipping_point"]
-        sd = sens["pi_difference"]["outcome_sd_survivors"]
-        shown = ("not reached" if tip is None else
-                 f"{number(tip)} {results['columns']['outcome']} units "
-                 f"({number(tip / sd)} outcome SDs)")  # fmt: skip
-        if tip is None and sens.get("interval_note"):
-            shown = "not available"
-        print(f"  Tipping point for principal ignorability (difference): {shown}")
-    for subgroup in (results.get("subgroups") or {}).get("rows", []):
-        shown = (f"{level} CI {interval(subgroup['ci_low'], subgroup['ci_high'])}"
-                 if subgroup["ci_low"] is not None else "interval not available")  # fmt: skip
-        print(f"  {results['subgroups']['column']} = {subgroup['label']!s:<16} "
-              f"{number(subgroup['effect']):>10}   {shown} ({subgroup['n']} rows)")  # fmt: skip
-    _print_survival_model(results)
-    for message in results.get("diagnostics", {}).get("warnings", []):
-        print(f"  warning: {message}")
-    for message in results.get("warnings", []):
-        if message.startswith("data: "):
-            print(f"  warning: {message[6:]}")
-    print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
-    print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
-          "no individual decisions. Follow the study protocol and local regulation, and have a "
-          "qualified statistician review the analysis.")  # fmt: skip
 
 
 def _analyze(args):
@@ -196,7 +114,9 @@ def _analyze(args):
     dropped = analysis.results["data_overview"]["n_rows_dropped"]
     if dropped:
         print(f"Dropped {dropped} incomplete row(s) (--drop-incomplete).", file=sys.stderr)
-    _print_key_results(analysis.results, args.out)
+    from .report._console import print_key_results
+
+    print_key_results(analysis.results, args.out)
     return 0
 
 
@@ -223,7 +143,9 @@ def _demo(args):
         load_demo(), roles, options, args.out,
         source="bundled demo registry (invented)", progress=_Progress(args.quiet),
     )  # fmt: skip
-    _print_key_results(analysis.results, args.out)
+    from .report._console import print_key_results
+
+    print_key_results(analysis.results, args.out)
     print(f"(The data were simulated with a true SACE of {DEMO_TRUE_EFFECT:+.1f} points.)")
     return 0
 
@@ -422,6 +344,9 @@ def build_parser():
         "--arm-names", nargs=2, default=None, metavar=("TREATED", "CONTROL"),
         help="names of the two arms (default: the treatment levels, or treatment / control)",
     )  # fmt: skip
+    from .report._options import add_trial_arguments
+
+    add_trial_arguments(analyze)
     analyze.add_argument(
         "--by", default=None, metavar="COL",
         help="subgroup effects by this column (from the fitted models, no refit)",

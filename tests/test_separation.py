@@ -10,9 +10,9 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
-from pscore_strata.exceptions import SeparationWarning
 
 import pscore_strata as ps
+from pscore_strata.exceptions import SeparationWarning
 
 
 def separated_design(n=400, seed=0):

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 from sklearn.exceptions import NotFittedError
 
-from ..estimators import _formulas
+from ..estimands._formulas import orient
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
 SMD_THRESHOLD = 0.1
@@ -48,7 +48,7 @@ def oriented_predictions(estimator):
             f"OutcomeRegression or MultiplyRobust); got {type(estimator).__name__}."
         )
     monotonicity = getattr(estimator, "monotonicity", "increasing")
-    return _formulas.orient(estimator.training_data_, estimator.nuisance_, monotonicity)
+    return orient(estimator.training_data_, estimator.nuisance_, monotonicity)
 
 
 def treated_indicator(o):

@@ -8,14 +8,8 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_level
-from ..inference._influence import (
-    estimator_dof,
-    influence_std_error,
-    multiplier_contributions,
-    multiplier_draws,
-    reference_quantile,
-    spawn_seeds,
-)
+from ..inference._resampling import multiplier_contributions, multiplier_draws, spawn_seeds
+from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
 from ._paths import cdf_path, prepare
 
 __all__ = ["survivor_distribution", "SurvivorDistribution", "default_values", "CAUTION"]

@@ -23,7 +23,8 @@ import numpy as np
 from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 
-from ..nuisance._fit import _fit, _parametric, _rows, default_binary_model
+from ..nuisance._models import default_binary_model, fit_model, take_rows
+from ..nuisance._sandwich import parametric_piece
 
 __all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "MAX_LEVELS"]
 
@@ -168,12 +169,12 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
                     grid[arm][test, j] = share
                     n_constant += X is not None
                     continue
-                fitted = _fit(clone(model), _rows(X, rows), labels,
+                fitted = fit_model(clone(model), take_rows(X, rows), labels,
                               w[rows] if data.weighted else None)  # fmt: skip
-                grid[arm][test, j] = fitted.predict_proba(_rows(X, test))[:, 1]
+                grid[arm][test, j] = fitted.predict_proba(take_rows(X, test))[:, 1]
             if use_sandwich:
                 p = grid[arm][:, j]
                 mask = (T == arm) & (S == 1)
-                parametric[arm].append(_parametric(design, mask, target, p, p * (1 - p), w))
+                parametric[arm].append(parametric_piece(design, mask, target, p, p * (1 - p), w))
         grid[arm] = np.sort(grid[arm], axis=1)  # rearrangement over the thresholds
     return ConditionalCDF(thresholds, discrete, low, high, grid, parametric, n_constant)

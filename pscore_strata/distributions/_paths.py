@@ -2,7 +2,7 @@
 
 Replacing the outcome by ``1{Y <= v}`` in an always-survivor mean gives the always-survivor CDF
 at ``v`` (DESIGN.md section 5b), so each estimator's formula in
-:mod:`pscore_strata.estimators._formulas` is called once per value on an :class:`Oriented`
+:mod:`pscore_strata.estimands._formulas` is called once per value on an :class:`Oriented`
 view whose outcome (and, for the outcome-model estimators, outcome predictions) are swapped:
 
 - weighting: the weighted empirical CDFs of each arm's survivors, with the estimator's weights
@@ -24,15 +24,15 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._features import feature_fingerprint
 from .._validation import check_features
-from ..estimators import _formulas
+from ..estimands._formulas import Oriented, orient, regression_means, robust_means, weighting_means
 from ._conditional import fit_conditional_cdf
 
 __all__ = ["CDFPath", "prepare", "cdf_path", "method_of"]
 
 _METHODS = {
-    _formulas.weighting_means: "weighting",
-    _formulas.regression_means: "regression",
-    _formulas.robust_means: "robust",
+    weighting_means: "weighting",
+    regression_means: "regression",
+    robust_means: "robust",
 }
 
 
@@ -54,7 +54,7 @@ class Prepared:
     """What every CDF evaluation of one fitted estimator shares."""
 
     method: str
-    oriented: _formulas.Oriented
+    oriented: Oriented
     data: object
     conditional: object  # ConditionalCDF or None (weighting)
     cdf_model_name: str = "unpenalized logistic regression"
@@ -86,7 +86,7 @@ def prepare(estimator, X=None, cdf_model=None):
             "refit with complete cases, or use the estimator's mean effect."
         )
     data = estimator.training_data_
-    oriented = _formulas.orient(data, estimator.nuisance_, estimator.monotonicity)
+    oriented = orient(data, estimator.nuisance_, estimator.monotonicity)
     conditional = None
     if method != "weighting":
         if X is None and estimator.n_features_in_ > 0:
@@ -148,8 +148,8 @@ def cdf_path(prepared, values, with_influence=True):
     ``values``; Chernozhukov, Fernandez-Val & Galichon 2010) and clipped to [0, 1]; the
     influence values move with the estimates they belong to.
     """
-    formula = {"weighting": _formulas.weighting_means, "regression": _formulas.regression_means,
-               "robust": _formulas.robust_means}[prepared.method]  # fmt: skip
+    formula = {"weighting": weighting_means, "regression": regression_means,
+               "robust": robust_means}[prepared.method]  # fmt: skip
     k = values.size
     n = prepared.data.n_samples
     treated, control = np.empty(k), np.empty(k)

@@ -7,7 +7,7 @@ fit and result logic (:mod:`._base`).
 
 from __future__ import annotations
 
-from . import _formulas
+from ..estimands._formulas import regression_means, robust_means, weighting_means
 from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
@@ -44,8 +44,11 @@ _COMMON_PARAMETERS = """
         survivors, and weights every observed residual by the inverse probability of being
         observed (docs/missing-data.md). An arm with nothing missing gets no such model.
     response_model : classifier or None, default=None
-        Model for ``c_t`` and ``r_t`` (cloned per model and arm); ``None`` is unpenalized
-        logistic regression. Used only when something is missing.
+        Model for ``r_t`` (outcome observed among known survivors; cloned per arm); ``None`` is
+        unpenalized logistic regression. Used only when outcomes are missing.
+    follow_up_model : classifier or None, default=None
+        Model for ``c_t`` (survival status known; cloned per arm); ``None`` is unpenalized
+        logistic regression. Used only when survival statuses are missing.
 """
 
 
@@ -108,7 +111,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     True
     """
 
-    _formula = staticmethod(_formulas.weighting_means)
+    _formula = staticmethod(weighting_means)
 
     def __init__(
         self,
@@ -123,6 +126,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         n_jobs=None,
         missing="error",
         response_model=None,
+        follow_up_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -134,6 +138,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         self.n_jobs = n_jobs
         self.missing = missing
         self.response_model = response_model
+        self.follow_up_model = follow_up_model
 
 
 class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
@@ -166,7 +171,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
     array([0.9, 1.8, 1.2])
     """
 
-    _formula = staticmethod(_formulas.regression_means)
+    _formula = staticmethod(regression_means)
     _uses_outcome_model = True
     _treatment_enters_estimate = False
 
@@ -184,6 +189,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         n_jobs=None,
         missing="error",
         response_model=None,
+        follow_up_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -196,6 +202,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.n_jobs = n_jobs
         self.missing = missing
         self.response_model = response_model
+        self.follow_up_model = follow_up_model
 
 
 class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
@@ -241,7 +248,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
     [False, True]
     """
 
-    _formula = staticmethod(_formulas.robust_means)
+    _formula = staticmethod(robust_means)
     _uses_outcome_model = True
     n_bootstrap = 0
 
@@ -258,6 +265,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         random_state=None,
         missing="error",
         response_model=None,
+        follow_up_model=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -269,3 +277,4 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.random_state = random_state
         self.missing = missing
         self.response_model = response_model
+        self.follow_up_model = follow_up_model

@@ -13,24 +13,13 @@ import warnings
 
 import pandas as pd
 
+from ..exceptions import BootstrapFailureError
+
 __all__ = ["MAX_FAILURE_SHARE", "BootstrapFailureError", "describe_failures", "failure_reasons"]
 
 #: Share of failed resamples beyond which the bootstrap interval is refused (common practice:
 #: a few failures among hundreds are noise; many mean the resampling changes the design).
 MAX_FAILURE_SHARE = 0.01
-
-
-class BootstrapFailureError(RuntimeError):
-    """More bootstrap resamples could not be estimated than ``MAX_FAILURE_SHARE`` allows.
-
-    Attributes ``n_failed``, ``n_resamples``, ``reasons`` (failure message -> count) and
-    ``counts`` (the sentence that counts them).
-    """
-
-    def __init__(self, message, n_failed, n_resamples, reasons, counts):
-        super().__init__(message)
-        self.n_failed, self.n_resamples, self.reasons = n_failed, n_resamples, reasons
-        self.counts = counts
 
 
 def failure_reasons(failures):

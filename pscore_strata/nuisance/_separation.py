@@ -133,3 +133,51 @@ def separation_message(kind, arm, findings):
         "is not to be trusted. Merge or drop the level, use a penalized model (e.g. "
         "LogisticRegression(C=1.0)), or run the unadjusted analysis (no covariates)."
     )
+
+
+def _rows_of(X, rows):
+    return X.iloc[rows] if hasattr(X, "iloc") else np.asarray(X)[rows]
+
+
+def separation_checks(data, result, known_probability, strata=False):
+    """``(kind, arm, rows, target, predicted, model)`` for every binary model of a fit."""
+    T, S, w = data.treatment, data.survival, data.sample_weight
+    known = np.ones(data.n_samples, bool) if data.status_known is None else data.status_known == 1
+    first = {key: models[0] for key, models in result.models.items() if models}
+    if not known_probability:
+        yield ("treatment", None, w > 0, T, result.treatment_probability, first["treatment"])
+    for arm in (1, 0):
+        model = first.get(("survival", arm))
+        if model is not None and not strata:
+            rows = (T == arm) & known & (w > 0)
+            yield ("survival", arm, rows, S, result.survival[arm], model)
+        if result.missingness is None:
+            continue
+        for kind, rows, target in (
+            ("follow_up", (T == arm) & (w > 0), data.status_known),
+            ("response", (T == arm) & known & (S == 1) & (w > 0), data.outcome_observed),
+        ):
+            model = first.get((kind, arm))
+            if model is not None:
+                yield (kind, arm, rows, target, result.missingness[kind][arm], model)
+
+
+def warn_separation(data, result, known_probability, category, strata=False, stacklevel=5):
+    """Warn once per separated model (``category``); return the messages."""
+    import warnings
+
+    if data.X is None or data.n_features == 0:
+        return []
+    messages = []
+    for kind, arm, rows, target, predicted, model in separation_checks(
+        data, result, known_probability, strata
+    ):
+        rows = np.flatnonzero(rows)
+        findings = separation_findings(
+            _rows_of(data.X, rows), np.asarray(target, float)[rows], predicted[rows], model,
+            names=data.feature_names or None,
+        )  # fmt: skip
+        if findings is not None:
+            messages.append(separation_message(kind, arm, findings))
+            warnings.warn(messages[-1], category, stacklevel=stacklevel)
+    return messages

@@ -17,6 +17,8 @@ from dataclasses import replace
 import numpy as np
 from sklearn.base import is_classifier
 
+from ._fit import NuisanceFit
+from ._missing import _cells
 from ._sandwich import build_parametric, parametric_piece, response_glm
 
 __all__ = ["record_settings", "shared_nuisance", "model_key"]
@@ -71,6 +73,8 @@ def record_settings(nuisance, owner, data, random_state):
         else None,
         "response_model": model_key(getattr(owner, "response_model", None))
         if nuisance.missingness is not None else None,
+        "follow_up_model": model_key(getattr(owner, "follow_up_model", None))
+        if nuisance.missingness is not None else None,
         "n_folds": getattr(owner, "n_folds", None),
         "random_state": _state_key(random_state),
         "monotonicity": owner.monotonicity,
@@ -91,8 +95,6 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
     Returns the nuisance to use: the same predictions and models, with the sandwich pieces
     ``owner`` would have built itself (rebuilt from the fitted models, or none).
     """
-    from ._fit import NuisanceFit
-
     if not isinstance(nuisance, NuisanceFit):
         raise TypeError(
             "`nuisance` must be the `nuisance_` attribute of a fitted pscore_strata estimator "
@@ -141,11 +143,10 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
                 _differs("outcome_model", settings["outcome_model"],
                          model_key(owner.outcome_model))  # fmt: skip
             )
-    if nuisance.missingness is not None and settings["response_model"] != model_key(
-        getattr(owner, "response_model", None)
-    ):
-        problems.append(_differs("response_model", settings["response_model"],
-                                 model_key(getattr(owner, "response_model", None))))  # fmt: skip
+    for role in ("response_model", "follow_up_model"):
+        mine = model_key(getattr(owner, role, None))
+        if nuisance.missingness is not None and settings.get(role) != mine:
+            problems.append(_differs(role, settings.get(role), mine))
     n_folds = getattr(owner, "n_folds", None)
     if settings["n_folds"] != n_folds:
         problems.append(_differs("n_folds", settings["n_folds"], n_folds))
@@ -180,19 +181,18 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
             observed=data.outcome_observed == 1 if coarsened else None,
         )  # fmt: skip
         if parametric is not None and nuisance.missingness is not None:
-            missing = _missing_pieces(data, nuisance, getattr(owner, "response_model", None))
+            missing = _missing_pieces(data, nuisance, getattr(owner, "response_model", None),
+                                      getattr(owner, "follow_up_model", None))  # fmt: skip
             parametric = None if missing is None else {**parametric, **missing}
     shared = replace(nuisance, parametric=parametric)
     shared.settings = settings
     return shared
 
 
-def _missing_pieces(data, nuisance, response_model):
+def _missing_pieces(data, nuisance, response_model, follow_up_model=None):
     """Sandwich pieces of the follow-up and response models, as ``fit_missingness`` builds them."""
-    if not response_glm(response_model):
+    if not (response_glm(response_model) and response_glm(follow_up_model)):
         return None
-    from ._missing import _cells
-
     design = None if data.X is None else np.asarray(data.X, dtype=float)
     pieces = {}
     for key in nuisance.models:

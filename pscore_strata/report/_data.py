@@ -12,15 +12,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..exceptions import InputError
 from . import _coding, _readers
 
 __all__ = [
     "InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data", "check_folds",
 ]
-
-
-class InputError(ValueError):
-    """A problem with the user's data or options, reported without a traceback."""
 
 
 @dataclass(frozen=True)

@@ -63,7 +63,7 @@ def unavailable_reason(std_error_method, learner):
 
 
 def _bootstrap_record(collector, method, options, data):
-    from ..inference._failures import BootstrapFailureError
+    from ..exceptions import BootstrapFailureError
     from ._sections import run_bootstrap
 
     try:

@@ -16,6 +16,8 @@ __all__ = [
     "model_settings",
     "number",
     "parse_levels",
+    "add_trial_arguments",
+    "trial_settings",
 ]
 
 METHODS = {
@@ -174,3 +176,32 @@ def fit_arguments(data):
 def number(value):
     value = float(value)
     return value if np.isfinite(value) else None
+
+
+def add_trial_arguments(parser):
+    """The command line's options for a trial's known design and the outcome's words."""
+    parser.add_argument(
+        "--treatment-probability", type=float, default=None, metavar="P",
+        help="known randomization probability of treatment (e.g. 0.5 for 1:1): used instead "
+        "of a fitted treatment model",
+    )  # fmt: skip
+    parser.add_argument(
+        "--outcome-label", default=None, metavar="TEXT",
+        help="what headings and axes call the outcome (default: the column name)",
+    )  # fmt: skip
+    parser.add_argument(
+        "--levels", default=None, metavar="CODE=LABEL,...",
+        help='labels of an ordinal outcome\'s levels, e.g. "1=worse,2=same,3=better" '
+        "(default: the data file's value labels, else the codes)",
+    )  # fmt: skip
+
+
+def trial_settings(args):
+    """``AnalysisOptions`` fields from the options of :func:`add_trial_arguments`, checked."""
+    probability = args.treatment_probability
+    return {
+        "treatment_probability": None if probability is None
+        else check_treatment_probability(probability),
+        "outcome_label": args.outcome_label,
+        "levels": None if args.levels is None else parse_levels(args.levels),
+    }  # fmt: skip
