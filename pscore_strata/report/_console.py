@@ -27,6 +27,13 @@ def print_survival_model(results):
             print("  Survival fit check: cannot assess the fit (see Fitted models in the report)")
 
 
+def _units(results):
+    """``"<column> units"``, or, when ``--outcome-label`` names it, its scale in words."""
+    column = results["columns"]["outcome"]
+    label = (results.get("wording") or {}).get("outcome_label") or column
+    return f"{column} units" if label == column else f"on the scale of {label}"
+
+
 def print_key_results(results, out_dir):
     level = f"{results['settings']['level']:.0%}"
     words = results["wording"]
@@ -83,7 +90,7 @@ def print_key_results(results, out_dir):
         tip, sd = record["tipping_point"], record["outcome_sd_survivors"]
         status = record.get("tipping_status")
         shown = ("not reached" if tip is None else
-                 f"{number(tip)} {outcome} units ({number(tip / sd)} outcome SDs)")  # fmt: skip
+                 f"{number(tip)} {_units(results)} ({number(tip / sd)} outcome SDs)")
         if tip is None and sens.get("interval_note"):
             shown = "not available"
         if status == "covers_null":
