@@ -148,8 +148,18 @@ def _estimate_record(method, estimator, level, primary):
         "mean_control": float(estimator.mean_control_),
         "std_error_method": str(estimator.std_error_method_),
         "notes": _method_notes(estimator, table.attrs["notes"]),
-        "separation": list(getattr(estimator, "separation_", [])),
+        "separation": [_separation_words(m) for m in getattr(estimator, "separation_", [])],
     }
+
+
+def _separation_words(message):
+    """The separation advice in the command line's terms (no Python model to pass there)."""
+    return message.replace(
+        "Merge or drop the level, use a penalized model (e.g. LogisticRegression(C=1.0)), or run "
+        "the unadjusted analysis (no covariates).",
+        "Merge or drop the level (recode the column, or leave it out of --covariates and "
+        "--categorical), or run the unadjusted analysis (no --covariates or --categorical).",
+    )
 
 
 def _method_notes(estimator, notes):
@@ -167,7 +177,9 @@ def _method_notes(estimator, notes):
         repeated.update(diagnostic_warnings(estimator))
     except ImportError:
         pass
-    return [note for note in notes if note not in repeated]
+    # Separation has its own box in the Estimates section (estimates[].separation).
+    return [note for note in notes
+            if note not in repeated and not note.startswith("Separation in the")]  # fmt: skip
 
 
 def _summary_rows(estimator, level):
