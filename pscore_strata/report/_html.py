@@ -54,7 +54,11 @@ def _every_few(grid, n_shown):
     """
     step = max(1, len(grid) // (n_shown - 1))
     null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
-    chosen = set(range(null % step, len(grid), step)) | {0, len(grid) - 1}
+    chosen = set(range(null % step, len(grid), step))
+    # The ends too, unless a chosen row sits right beside them.
+    for end in (0, len(grid) - 1):
+        if min(abs(end - i) for i in chosen) >= max(1, step // 2):
+            chosen.add(end)
     return [grid[i] for i in sorted(chosen)]
 
 
