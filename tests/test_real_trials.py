@@ -222,7 +222,7 @@ def test_cli_adjusted_tipping_point_beyond_the_outcome_range(strep_csv, tmp_path
     assert record["tipping_status"] == "beyond_outcome_range"
     assert record["outcome_range_survivors"] == [2.0, 6.0]
     html = (out / "report.html").read_text()
-    assert "more than the outcome's whole observed range" in html
+    assert "whole range of the outcome among survivors" in html
     shown = [row["value"] for row in results["sensitivity"]["pi_difference"]["grid"]]
     assert 0.0 in shown
 
