@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..nuisance._missing import few_outcomes_message
 from ._arrays import (
     PROBABILITY_BOUNDS,
     ROW_SHARE_TOLERANCE,
@@ -290,4 +291,7 @@ def diagnostic_warnings(estimator, X=None):
             f"forbids in {', '.join(map(str, wrong))} (95% intervals, Bonferroni-adjusted). "
             "Reconsider the monotonicity direction or use the sensitivity analysis."
         )
-    return messages + missing_data_warnings(estimator, o, X)
+    few = few_outcomes_message(estimator.training_data_)
+    return messages + ([f"Few outcomes: {few}"] if few else []) + missing_data_warnings(
+        estimator, o, X
+    )

@@ -72,6 +72,8 @@ _PYTHON_WORDS = (
     ("at harmed_ratio=", "at a harmed / protected stratum-size ratio of "),
     ("at pi_difference=", "at a principal-ignorability difference of "),
     ("see sensitivity_grid around that value", "see the sensitivity table around that value"),
+    ("only the principal scores that predict_proba reports are clipped",
+     "only the principal scores shown in the figures are clipped"),
 )
 
 
