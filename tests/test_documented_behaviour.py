@@ -114,3 +114,14 @@ def test_readme_and_guide_name_every_package_of_the_report_extra():
         assert name in guide, name
     # Installed from a checkout, never by a published name.
     assert "pip install 'pscore_strata[" not in guide
+
+
+def test_analyze_and_demo_write_to_the_same_default_directory():
+    # docs/guide/cli-report.md: "without --out, both demo and analyze write into pscore_report/".
+    from pscore_strata.cli import build_parser
+
+    parser = build_parser()
+    analyze = parser.parse_args(["analyze", "data.csv", "--outcome", "y", "--treatment", "t",
+                                 "--survival", "s"])  # fmt: skip
+    demo = parser.parse_args(["demo"])
+    assert analyze.out == demo.out == "pscore_report"
