@@ -13,6 +13,7 @@ from . import (
     nuisance,
     plotting,
     simulation,
+    tables,
 )
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
@@ -68,6 +69,7 @@ __all__ = [
     "distributions",
     "datasets",
     "simulation",
+    "tables",
     "diagnostics",
     "plotting",
     "assumptions",
