@@ -29,7 +29,7 @@ from ..inference._influence import (
     spawn_seeds,
 )
 from ..inference._refits import _seed_models
-from ._cdf import CAUTION, default_values
+from ._cdf import CAUTION, default_values, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
 
@@ -90,39 +90,18 @@ def effective_sizes(oriented):
 
 
 def _survivor_values(data):
-    return np.unique(data.outcome[data.survival == 1])
-
-
-def _bisect(prepared, values, quantiles):
-    """Exact inverse of a CDF that is monotone by construction (weighting), by bisection."""
-    out = {"treated": [], "control": []}
-    cache = {}
-
-    def cdf(j):
-        if j not in cache:
-            path = cdf_path(prepared, values[j : j + 1], with_influence=False)
-            cache[j] = {"treated": path.treated[0], "control": path.control[0]}
-        return cache[j]
-
-    for arm in out:
-        for u in quantiles:
-            low, high = 0, values.size - 1
-            while low < high:
-                middle = (low + high) // 2
-                if cdf(middle)[arm] >= u - 1e-12:
-                    high = middle
-                else:
-                    low = middle + 1
-            out[arm].append(values[low])
-    return {arm: np.asarray(v) for arm, v in out.items()}
+    return np.unique(data.outcome[observed_survivors(data)])
 
 
 def _point_quantiles(prepared, quantiles):
-    """Quantiles of the two always-survivor distributions (no influence values)."""
+    """Quantiles of the two always-survivor distributions (no influence values).
+
+    Weighting inverts its weighted ECDF exactly (every distinct survivor outcome: one sort and
+    a cumulative sum); the outcome-model estimators invert their rearranged CDF at up to
+    ``MAX_PATH_VALUES`` distinct survivor outcomes (evenly spaced ranks beyond).
+    """
     values = _survivor_values(prepared.data)
-    if prepared.method == "weighting":
-        return _bisect(prepared, values, quantiles)
-    if values.size > MAX_PATH_VALUES:
+    if prepared.method != "weighting" and values.size > MAX_PATH_VALUES:
         values = default_values(prepared.data, limit=MAX_PATH_VALUES)
     path = cdf_path(prepared, values, with_influence=False)
     return {arm: quantiles_of(path.values, getattr(path, arm), quantiles)
@@ -178,7 +157,7 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         raise ValueError(f"`n_bootstrap` must be 0 or an integer >= 2; got {n_bootstrap!r}.")
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    if np.unique(data.outcome[data.survival == 1]).size <= MAX_LEVELS:
+    if _survivor_values(data).size <= MAX_LEVELS:
         raise ValueError(
             f"The survivors' outcome takes at most {MAX_LEVELS} distinct values, so its "
             "quantiles sit on point masses and have no density-based standard error. Use "
