@@ -11,8 +11,8 @@ Fernandez-Val & Melly 2013, Econometrica 81), fitted per arm among survivors. Th
   from 0 at the smallest to 1 at the largest observed survivor outcome beyond them.
 
 With the default model (unpenalized logistic regression) every threshold is fitted by
-:func:`logistic_mle`, Newton-Raphson on standardized columns started from the previous
-threshold's solution, which reaches the same maximum-likelihood fit as the estimators'
+:func:`._threshold_fits.fit_thresholds`, Newton-Raphson on standardized columns for a group
+of thresholds at once, which reaches the same maximum-likelihood fit as the estimators'
 scikit-learn model (checked to 1e-8 in ``tests/test_distribution_reference.py``) without its
 per-fit overhead; a threshold where it does not converge cleanly (separation, collinear
 columns) is fitted by the scikit-learn model itself.
@@ -27,13 +27,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.special import expit
 from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 
-from ..nuisance._fit import _fit, _parametric, _rows, default_binary_model
+from ..nuisance._fit import _fit, _rows, default_binary_model
+from ._threshold_fits import ThresholdSandwich, fit_thresholds
 
-__all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "logistic_mle", "MAX_LEVELS"]
+__all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "MAX_LEVELS"]
 
 MAX_LEVELS = 20
 N_THRESHOLDS = 19
@@ -67,14 +67,15 @@ class _Blend:
     terms, each with the derivative scaled by its coefficient.
     """
 
-    def __init__(self, fits, coefficients):
-        self.fits, self.coefficients = fits, coefficients
+    def __init__(self, fits, columns, coefficients):
+        # ``fits[j]`` is built on first use (formulas without M-estimation terms never ask).
+        self.fits, self.columns, self.coefficients = fits, columns, coefficients
 
     def correction(self, derivative, weights):
         total = 0.0
-        for fit, c in zip(self.fits, self.coefficients, strict=True):
-            if fit is not None and c != 0:
-                total = total + fit.correction(c * derivative, weights)
+        for j, c in zip(self.columns, self.coefficients, strict=True):
+            if c != 0:
+                total = total + self.fits[j].correction(c * derivative, weights)
         return total
 
 
@@ -82,8 +83,9 @@ class _Blend:
 class ConditionalCDF:
     """Per-row conditional CDF predictions on the grid, per arm.
 
-    ``grid[t]`` has shape ``(n_rows, n_thresholds)`` (rearranged); ``parametric[t]`` holds one
-    :class:`ParametricFit` per threshold when every classifier is the default logistic model
+    ``grid[t]`` has shape ``(n_rows, n_thresholds)`` (rearranged); ``parametric[t]`` gives one
+    :class:`ParametricFit` per threshold (a :class:`._threshold_fits.ThresholdSandwich`) when
+    every classifier is the default logistic model
     fitted on all rows (the outcome regression's sandwich needs them), else ``None``.
     """
 
@@ -131,7 +133,7 @@ class ConditionalCDF:
             prediction = prediction + c * self.grid[arm][:, j]
         fits = None
         if self.parametric is not None:
-            fits = _Blend([self.parametric[arm][j] for j in columns], coefficients)
+            fits = _Blend(self.parametric[arm], columns, coefficients)
         return prediction, fits
 
 
@@ -166,107 +168,51 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
     model = default_binary_model() if cdf_model is None else cdf_model
     grid = {arm: np.empty((n, thresholds.size)) for arm in (0, 1)}
     use_sandwich = cdf_model is None and n_folds is None
-    parametric = {0: [], 1: []} if use_sandwich else None
+    parametric = {} if use_sandwich else None
     design = None if X is None else np.asarray(X, dtype=float) if use_sandwich else None
     values = None if X is None or cdf_model is not None else np.asarray(X, dtype=float)
     n_constant = 0
     outcome = np.nan_to_num(Y)
     for arm in (0, 1):
-        folds = []
         for train, test in splits:
             rows = train[(T[train] == arm) & observed[train]]
-            fold = None if values is None or rows.size == 0 else _FoldFit(values, rows, w,
-                                                                          data.weighted)
-            folds.append((rows, outcome[rows], w[rows], test, fold))
-        for j, threshold in enumerate(thresholds):
-            for rows, y_rows, w_rows, test, fold in folds:
-                labels = (y_rows <= threshold).astype(float)
-                share = np.sum(w_rows * labels) / np.sum(w_rows)
-                if X is None or share in (0.0, 1.0):
-                    # No covariates, or one class only among these survivors: the weighted share.
-                    grid[arm][test, j] = share
-                    n_constant += X is not None
-                    continue
-                prediction = None if fold is None else fold.predict(labels, values, test)
-                if prediction is None:
-                    fitted = _fit(clone(model), _rows(X, rows), labels,
-                                  w_rows if data.weighted else None)  # fmt: skip
-                    prediction = fitted.predict_proba(_rows(X, test))[:, 1]
-                grid[arm][test, j] = prediction
-            if use_sandwich:
-                p = grid[arm][:, j]
-                mask = (T == arm) & observed
-                target = np.where(observed, (outcome <= threshold).astype(float), 0.0)
-                parametric[arm].append(_parametric(design, mask, target, p, p * (1 - p), w))
-        grid[arm] = np.sort(grid[arm], axis=1)  # rearrangement over the thresholds
+            y_rows, w_rows = outcome[rows], w[rows]
+            order = np.argsort(y_rows, kind="stable")
+            cumulative = np.concatenate([[0.0], np.cumsum(w_rows[order])])
+            shares = cumulative[np.searchsorted(y_rows[order], thresholds, side="right")]
+            shares = shares / cumulative[-1]
+            constant = (shares == 0.0) | (shares == 1.0) if X is not None else np.ones_like(
+                shares, dtype=bool)
+            n_constant += int(constant.sum()) if X is not None else 0
+            every_row = test.size == n
+            fitted_here = np.flatnonzero(~constant)
+            failed = fitted_here
+            predictions = np.empty((test.size, fitted_here.size))
+            if values is not None and fitted_here.size:
+                predictions, converged = fit_thresholds(values, rows, y_rows,
+                                                        w_rows if data.weighted else
+                                                        np.ones(rows.size),
+                                                        thresholds[fitted_here], test)  # fmt: skip
+                failed = fitted_here[~converged]
+            for j in failed:
+                labels = (y_rows <= thresholds[j]).astype(float)
+                fitted = _fit(clone(model), _rows(X, rows), labels,
+                              w_rows if data.weighted else None)  # fmt: skip
+                predictions[:, np.searchsorted(fitted_here, j)] = fitted.predict_proba(
+                    _rows(X, test))[:, 1]
+            # No covariates, or one class only among these survivors: the weighted share.
+            if every_row:
+                grid[arm][:, constant] = shares[constant]
+                grid[arm][:, fitted_here] = predictions
+            else:
+                grid[arm][np.ix_(test, np.flatnonzero(constant))] = shares[constant]
+                grid[arm][np.ix_(test, fitted_here)] = predictions
+        raw = grid[arm]
+        grid[arm] = np.sort(raw, axis=1)  # rearrangement over the thresholds
+        if use_sandwich:
+            # The sandwich belongs to the fits as fitted (before the rearrangement).
+            unsorted = raw if np.any(grid[arm] != raw) else grid[arm]
+            parametric[arm] = ThresholdSandwich(design, (T == arm) & observed, outcome,
+                                                thresholds, unsorted, w)  # fmt: skip
     return ConditionalCDF(thresholds, discrete, low, high, grid, parametric, n_constant)
 
-
-def logistic_mle(Z, y, w, start, tol=1e-11, max_iter=100):
-    """Unpenalized logistic maximum likelihood by Newton-Raphson with step halving.
-
-    ``Z`` is the design with an intercept column (standardized columns), ``w`` the row
-    weights. Returns the coefficients, or ``None`` when the iterations do not converge to a
-    finite, well-determined maximum (separation, collinear columns): the caller then uses the
-    scikit-learn model.
-    """
-    beta = np.array(start, dtype=float)
-    eta = Z @ beta
-    current = np.sum(w * (y * eta - np.logaddexp(0.0, eta)))
-    for _ in range(max_iter):
-        p = expit(eta)
-        gradient = Z.T @ (w * (y - p))
-        hessian = Z.T @ (Z * (w * p * (1 - p))[:, None])
-        if not np.all(np.isfinite(hessian)) or np.linalg.cond(hessian) > 1e12:
-            return None
-        step = np.linalg.solve(hessian, gradient)
-        size = 1.0
-        if np.max(np.abs(step)) > 1e-2:  # far from the maximum: halve until the fit improves
-            if current is None:
-                current = np.sum(w * (y * eta - np.logaddexp(0.0, eta)))
-            while True:
-                new_eta = Z @ (beta + size * step)
-                new = np.sum(w * (y * new_eta - np.logaddexp(0.0, new_eta)))
-                if new >= current - 1e-12 * abs(current) or size < 1e-6:
-                    break
-                size /= 2
-            eta, current = new_eta, new
-        else:  # within the quadratic convergence region: the full step
-            eta, current = Z @ (beta + step), None
-        beta = beta + size * step
-        if not np.all(np.isfinite(beta)) or np.max(np.abs(beta)) > 30:
-            return None  # drifting to infinity: (quasi-)separation
-        if np.max(np.abs(size * step)) < tol:
-            return beta
-    return None
-
-
-class _FoldFit:
-    """The standardized design of one arm's fitting rows, shared by every threshold."""
-
-    def __init__(self, values, rows, w, weighted):
-        block = values[rows]
-        self.center = block.mean(axis=0)
-        spread = block.std(axis=0)
-        self.spread = np.where(spread > 0, spread, 1.0)
-        self.Z = np.column_stack([np.ones(rows.size), (block - self.center) / self.spread])
-        self.w = w[rows] if weighted else np.ones(rows.size)
-        self.start = None
-
-    def predict(self, labels, values, test):
-        """Fitted probabilities on the ``test`` rows, or ``None`` (fall back to scikit-learn)."""
-        share = np.sum(self.w * labels) / np.sum(self.w)
-        intercept_only = np.zeros(self.Z.shape[1])
-        intercept_only[0] = np.log(share / (1 - share))
-        beta = None
-        for start in ((self.start, intercept_only) if self.start is not None else
-                      (intercept_only,)):  # fmt: skip
-            beta = logistic_mle(self.Z, labels, self.w, start)
-            if beta is not None:
-                break
-        if beta is None:
-            return None
-        self.start = beta  # the next threshold starts here
-        slopes = beta[1:] / self.spread
-        rows = values if test.size == values.shape[0] else values[test]  # all rows: no copy
-        return expit(rows @ slopes + (beta[0] - slopes @ self.center))

@@ -23,8 +23,7 @@ import numpy as np
 from ..estimators import _coarsening
 from ._expansion import Expansion
 
-__all__ = ["GridParts", "weighting_grid", "regression_grid", "robust_grid",
-           "threshold_corrections"]
+__all__ = ["GridParts", "weighting_grid", "regression_grid", "robust_grid"]
 
 
 @dataclass
@@ -60,28 +59,6 @@ def _fit_factors(fit, weights, ones):
     row = fit.mask * fit.residual
     bases = [ones] if fit.design is None else [ones, fit.design]
     return [(factor, B) for B in bases], [(row, B) for B in bases], fit.h_inverse
-
-
-def threshold_corrections(fits, derivative, weights):
-    """``[fit.correction(derivative, weights) for fit in fits]`` as columns, in two products.
-
-    ``fits`` are the :class:`~pscore_strata.nuisance._fit.ParametricFit` of the conditional CDF
-    models (one per threshold, same design and rows); batching them turns ``2 x thresholds``
-    passes over the design into two matrix products.
-    """
-    design = fits[0].design
-    slopes = np.column_stack([np.broadcast_to(f.slope, weights.shape) for f in fits])
-    u = (weights * derivative)[:, None] * slopes
-    gradients = u.sum(axis=0)[None, :]
-    if design is not None:
-        gradients = np.vstack([gradients, design.T @ u])
-    gradients /= weights.sum()
-    directions = np.column_stack([f.h_inverse @ g for f, g in zip(fits, gradients.T, strict=True)])
-    rows = np.broadcast_to(directions[0], u.shape)
-    if design is not None:
-        rows = design @ directions[1:] + directions[0]
-    residuals = np.column_stack([f.mask * f.residual for f in fits])
-    return residuals * rows
 
 
 def _correction_blocks(fit, derivative, weights):

@@ -30,7 +30,7 @@ from .._validation import check_features
 from ..estimators import _formulas
 from ._conditional import fit_conditional_cdf
 from ._expansion import Expansion, ValueGrid
-from ._grid_formulas import regression_grid, robust_grid, threshold_corrections, weighting_grid
+from ._grid_formulas import regression_grid, robust_grid, weighting_grid
 
 __all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula"]
 
@@ -211,7 +211,7 @@ def _grid_parts(prepared, grid, with_influence):
                 # the direction, so the columns are computed once per conditional CDF model.
                 key = ("corrections", o.increasing, arm)
                 if key not in c.cache:
-                    c.cache[key] = threshold_corrections(c.parametric[arm], derivative, o.weight)
+                    c.cache[key] = c.parametric[arm].corrections(derivative, o.weight)
                 return [(1.0, c.cache[key], coefficients)]
             blends[key] = blend
     return regression_grid(o, m_mixed, m_pure, blends, with_influence)
