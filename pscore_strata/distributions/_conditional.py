@@ -207,11 +207,15 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
             else:
                 grid[arm][np.ix_(test, np.flatnonzero(constant))] = shares[constant]
                 grid[arm][np.ix_(test, fitted_here)] = predictions
+        # Rearrangement over the thresholds, row by row where the fitted curves cross.
         raw = grid[arm]
-        grid[arm] = np.sort(raw, axis=1)  # rearrangement over the thresholds
+        crossing = np.flatnonzero(np.any(raw[:, 1:] < raw[:, :-1], axis=1))
+        if crossing.size:
+            grid[arm] = raw.copy()
+            grid[arm][crossing] = np.sort(raw[crossing], axis=1)
         if use_sandwich:
             # The sandwich belongs to the fits as fitted (before the rearrangement).
-            unsorted = raw if np.any(grid[arm] != raw) else grid[arm]
+            unsorted = raw
             parametric[arm] = ThresholdSandwich(design, (T == arm) & observed, outcome,
                                                 thresholds, unsorted, w)  # fmt: skip
     return ConditionalCDF(thresholds, discrete, low, high, grid, parametric, n_constant)

@@ -127,7 +127,10 @@ class Expansion:
         if self.D is not None:
             out += self.grid.cumulative((factor * self.D)[:, None] * base)[:, self.index]
         for f, B, M in self.blocks:
-            out += (base.T @ (np.broadcast_to(factor * f, factor.shape)[:, None] * B)) @ M
+            h = np.broadcast_to(factor * f, factor.shape)[:, None]
+            # Scale the narrower of the two matrices (the temporary is rows x its width).
+            product = (base * h).T @ B if base.shape[1] < B.shape[1] else base.T @ (h * B)
+            out += product @ M
         return out
 
     def columns(self, which=None):
