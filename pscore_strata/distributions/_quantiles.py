@@ -170,11 +170,13 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     w, groups = data.sample_weight, data.groups
     z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
     influence, density, bandwidth = {}, {}, {}
+    # One pass gives both arms' influence values at every quantile of either arm.
+    at_quantiles = cdf_path(prepared, np.unique(np.concatenate([point["treated"],
+                                                                point["control"]])))
     for arm in ("treated", "control"):
         mass = masses(getattr(path, arm))
         bandwidth[arm] = silverman_bandwidth(path.values, mass, sizes[arm])
         density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
-        at_quantiles = cdf_path(prepared, np.unique(point[arm]))
         columns = np.searchsorted(at_quantiles.values, point[arm])
         influence[arm] = -getattr(at_quantiles, f"influence_{arm}")[:, columns] / density[arm]
     effect_influence = influence["treated"] - influence["control"]

@@ -400,6 +400,11 @@ def gaussian_draws(cross_products, seeds):
     cross_products = np.asarray(cross_products, dtype=float)
     k = cross_products.shape[0]
     eigenvalues, eigenvectors = np.linalg.eigh(cross_products)
+    # Each eigenvector's sign is arbitrary, and rounding-level changes of C'C can flip it,
+    # which changes every draw; fixing it (largest component positive) makes the draws, and
+    # the band built on them, depend on C'C only.
+    largest = np.abs(eigenvectors).argmax(axis=0)
+    eigenvectors = eigenvectors * np.sign(eigenvectors[largest, np.arange(k)] + 0.0)[None, :]
     root = np.sqrt(np.clip(eigenvalues, 0.0, None))[:, None] * eigenvectors.T
     draws = np.zeros((len(seeds), k))
     for b, seed in enumerate(seeds):
