@@ -33,11 +33,12 @@ from ._cdf import CAUTION, default_values, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
 
-__all__ = ["quantile_effects", "quantiles_of", "silverman_bandwidth", "kernel_density"]
+__all__ = ["quantile_effects", "quantiles_of", "interpolated_quantiles", "silverman_bandwidth",
+           "kernel_density"]
 
 # Outcome-model estimators invert their rearranged CDF at the distinct survivor outcomes, at
 # most this many (evenly spaced ranks beyond); weighting inverts its exact weighted ECDF.
-MAX_PATH_VALUES = 1000
+MAX_PATH_VALUES = 4000
 
 
 def check_quantiles(quantiles):
@@ -93,18 +94,40 @@ def _survivor_values(data):
     return np.unique(data.outcome[observed_survivors(data)])
 
 
+def interpolated_quantiles(values, cdf, quantiles):
+    """Quantiles of a CDF known on a grid, interpolated linearly between grid values.
+
+    For ``u`` with ``F(g_{j-1}) < u <= F(g_j)`` the step inverse would give ``g_j``; the
+    interpolated one ``g_{j-1} + (u - F(g_{j-1})) / (F(g_j) - F(g_{j-1})) (g_j - g_{j-1})``
+    (error of order the squared grid spacing for a smooth CDF; docs/guide/distributions.md).
+    """
+    quantiles = np.asarray(quantiles, dtype=float)
+    index = np.minimum(np.searchsorted(cdf, quantiles - 1e-12, side="left"), values.size - 1)
+    out = values[index].astype(float)
+    inner = index > 0
+    j = index[inner]
+    low, high = cdf[j - 1], cdf[j]
+    share = np.where(high > low, (quantiles[inner] - low) / np.where(high > low, high - low, 1),
+                     1.0)  # fmt: skip
+    out[inner] = values[j - 1] + np.clip(share, 0.0, 1.0) * (values[j] - values[j - 1])
+    return out
+
+
 def _point_quantiles(prepared, quantiles):
     """Quantiles of the two always-survivor distributions (no influence values).
 
     Weighting inverts its weighted ECDF exactly (every distinct survivor outcome: one sort and
-    a cumulative sum); the outcome-model estimators invert their rearranged CDF at up to
-    ``MAX_PATH_VALUES`` distinct survivor outcomes (evenly spaced ranks beyond).
+    a cumulative sum). The outcome-model estimators invert their rearranged CDF at the
+    distinct survivor outcomes when there are at most ``MAX_PATH_VALUES`` (exactly), else at
+    that many evenly spaced ranks, interpolating linearly between them.
     """
     values = _survivor_values(prepared.data)
+    invert = quantiles_of
     if prepared.method != "weighting" and values.size > MAX_PATH_VALUES:
         values = default_values(prepared.data, limit=MAX_PATH_VALUES)
+        invert = interpolated_quantiles
     path = cdf_path(prepared, values, with_influence=False)
-    return {arm: quantiles_of(path.values, getattr(path, arm), quantiles)
+    return {arm: invert(path.values, getattr(path, arm), quantiles)
             for arm in ("treated", "control")}  # fmt: skip
 
 
