@@ -68,9 +68,9 @@ def one_replicate(kind, name, seed, n, true):
         dist = ps.survivor_distribution(est, values=quartiles, X=X, n_draws=500)
         frame = dist.to_frame()
         target = true_cdf(true[arm], quartiles)
+        covered = (frame[f"{arm}_ci_low"] <= target) & (target <= frame[f"{arm}_ci_high"])
         out[f"cdf_{arm}"] = (frame[arm].to_numpy(), frame[f"{arm}_std_error"].to_numpy(),
-                             (frame[f"{arm}_ci_low"] <= target) & (target <= frame[f"{arm}_ci_high"]),
-                             target)  # fmt: skip
+                             covered, target)  # fmt: skip
     band = ps.survivor_distribution(est, values=true["band"], X=X, n_draws=1000).to_frame()
     for arm in ("treated", "control"):
         target = true_cdf(true[arm], band["value"].to_numpy())
