@@ -20,7 +20,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..estimators import _coarsening
 from ._expansion import Expansion
 
 __all__ = ["GridParts", "weighting_grid", "regression_grid", "robust_grid"]
@@ -97,8 +96,13 @@ def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
 
 
 def _coarsening_factors(o, role):
-    """Per-row factors of ``weight_derivatives`` (``-1/c``, ``-1/r`` of the role's arm)."""
-    return _coarsening.weight_derivatives(o, np.ones_like(o.weight), role)
+    """Per-row factors of the coarsening's ``weight_derivatives``: an estimating function
+    proportional to ``1 / (c r)`` has derivatives ``-f / c`` and ``-f / r``."""
+    co = o.coarsening
+    if co is None:
+        return {}
+    c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
+    return {f"c_{role}": -_reciprocal(c), f"r_{role}": -_reciprocal(r)}
 
 
 def weighting_grid(o, indicator, with_influence=True):
