@@ -83,7 +83,8 @@ def make_visits(n_samples=2000, *, visits=VISIT_LABELS, effects=(0.5, 1.0, 1.5),
     survival to visit k under arm t ``expit(a_k - 0.8 x1 + 0.5 x2 + t)`` from one latent frailty
     per unit, so deaths accumulate over visits, depend on covariates and treatment, and satisfy
     monotonicity; outcome at visit k
-    ``Y_k(t) = 1 + x1 + 0.5 x2 - 0.5 x3 - 0.2 k + t (effects[k] + effect_heterogeneity x2) + b + e_k``
+    ``Y_k(t) = 1 + x1 + 0.5 x2 - 0.5 x3 - 0.2 k + t tau_k(X) + b + e_k`` with the unit effect
+    ``tau_k(X) = effects[k] + effect_heterogeneity x2``,
     with a unit effect ``b ~ N(0, (0.6 noise)^2)`` shared by the visits and ``e_k ~ N(0, (0.8
     noise)^2)``. Outcomes rise with x1 while the always-survivor share falls with it, so
     survivor-only contrasts are biased; survival rises with x2, which drives the effect, so
@@ -116,7 +117,8 @@ def make_visits(n_samples=2000, *, visits=VISIT_LABELS, effects=(0.5, 1.0, 1.5),
     -------
     data : sklearn.utils.Bunch
         ``X`` (DataFrame x1..x3), ``treatment``, ``y`` and ``survival`` (DataFrames, one column
-        per visit), ``y_full`` and ``survival_full`` (before any loss),
+        per visit), ``y_full`` and ``survival_full`` (before any loss), ``always_survivor``
+        (True for the always-survivors to each visit), ``unit_effect`` (``Y_k(1) - Y_k(0)``),
         ``true_effects`` (DataFrame indexed by visit: columns ``each``, ``last``),
         ``always_survivor_shares`` (true share of the always-survivors to each visit),
         ``visits``, ``params`` and ``DESCR``.
@@ -159,6 +161,8 @@ def make_visits(n_samples=2000, *, visits=VISIT_LABELS, effects=(0.5, 1.0, 1.5),
         for k in range(n_visits)
     ])  # fmt: skip
     y[survival == 0] = np.nan
+    always = np.column_stack([frailty < _survival_probability(x1, x2, a, 0) for a in intercepts])
+    unit_effect = np.column_stack([effects[k] + effect_heterogeneity * x2 for k in range(n_visits)])
     y_full, survival_full = y.copy(), survival.copy()
     if end_of_follow_up > 0:
         ends = rng.random(n_samples) < expit(logit(end_of_follow_up) + x2)
@@ -178,8 +182,10 @@ def make_visits(n_samples=2000, *, visits=VISIT_LABELS, effects=(0.5, 1.0, 1.5),
     return Bunch(
         X=pd.DataFrame(X, columns=["x1", "x2", "x3"]), treatment=treatment,
         y=frame(y), survival=frame(survival), y_full=frame(y_full),
-        survival_full=frame(survival_full),
-        true_effects=pd.DataFrame({"each": each, "last": last}, index=pd.Index(visits, name="visit")),
+        survival_full=frame(survival_full), always_survivor=frame(always),
+        unit_effect=frame(unit_effect),
+        true_effects=pd.DataFrame({"each": each, "last": last},
+                                  index=pd.Index(visits, name="visit")),
         always_survivor_shares=pd.Series(shares, index=visits), visits=visits, params=params,
         DESCR=(
             f"Simulated visits {visits}: {n_samples} units, {design} treatment, deaths between "

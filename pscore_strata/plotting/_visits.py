@@ -39,7 +39,8 @@ def plot_visit_effects(table, *, axes=None, outcome="outcome"):
     null = 0.0 if table.attrs.get("scale", "difference") == "difference" else 1.0
     # The band is drawn per visit, not joined: nothing is estimated between visits.
     left.bar(x, table["band_high"] - table["band_low"], bottom=table["band_low"], width=0.35,
-             color="#1f5f8b", alpha=0.15, linewidth=0, label=f"{level} simultaneous band")  # fmt: skip
+             color="#1f5f8b", alpha=0.15, linewidth=0,
+             label=f"{level} simultaneous band")  # fmt: skip
     left.errorbar(x, table["effect"],
                   yerr=[table["effect"] - table["ci_low"], table["ci_high"] - table["effect"]],
                   color="#1f5f8b", marker="o", capsize=4, linewidth=1.5,

@@ -146,10 +146,10 @@ def check_visits(y, survival):
     broken = np.flatnonzero(np.any(known_alive & dead_before, axis=1))
     if broken.size:
         raise ValueError(
-            f"`survival` is not monotone over visits for {broken.size} row(s) ({_name_rows(broken, index)}): "
-            "each is recorded dead (0) at a visit and alive (1) at a later one. Survival must "
-            "stay 0 after a death; correct those rows (a data-entry error, or a visit recorded in "
-            "the wrong column) before the analysis."
+            f"`survival` is not monotone over visits for {broken.size} row(s) "
+            f"({_name_rows(broken, index)}): each is recorded dead (0) at a visit and alive (1) "
+            "at a later one. Survival must stay 0 after a death; correct those rows (a "
+            "data-entry error, or a visit recorded in the wrong column) before the analysis."
         )
     notes = []
     unknown_after_death = int(np.sum(np.isnan(status) & dead_before))
