@@ -15,6 +15,7 @@ import pandas as pd
 from sklearn.base import clone
 
 from .._validation import check_choice, check_level
+from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
 from ..inference import normal_interval
 from ..inference._influence import reference_dof
 from ._inputs import POPULATIONS, check_visits
@@ -244,11 +245,14 @@ def _warn_once(caught):
 
 
 def _table(visits, fits, estimate, std_error, critical, level, log_scale, dof):
-    """The visits' rows, and the notes of their summaries (each once, the caution left out)."""
-    rows, notes = [], []
+    """The visits' rows, and the notes of their summaries (each once, the estimator's caution
+    left out: the visits' own follows)."""
+    rows, notes = [], {}
     for k, fit in enumerate(fits):
         summary = fit.summary(level)
-        notes.extend(note for note in summary.attrs["notes"][:-1] if note not in notes)
+        for note in summary.attrs["notes"]:
+            if note != SUMMARY_CAUTIONS:
+                notes.setdefault(note, []).append(visits.labels[k])
         low, high = normal_interval(estimate[k], std_error[k], level, log_scale, dof=dof)
         if not np.isfinite(critical):
             band = (float("nan"), float("nan"))
@@ -262,7 +266,11 @@ def _table(visits, fits, estimate, std_error, critical, level, log_scale, dof):
             float(summary.loc["share always-survivor", "estimate"]),
             *_survival_counts(fit.training_data_, visits.survival[:, k]),
         ])  # fmt: skip
-    return pd.DataFrame(rows, columns=VISIT_COLUMNS), notes
+    # A note that holds at every visit is said once; the others name their visits.
+    said = [note if len(labels) == len(fits) else
+            f"At visit(s) {', '.join(repr(v) for v in labels)}: {note}"
+            for note, labels in notes.items()]  # fmt: skip
+    return pd.DataFrame(rows, columns=VISIT_COLUMNS), said
 
 
 def _survival_counts(data, status):
