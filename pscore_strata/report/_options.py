@@ -62,6 +62,8 @@ class AnalysisOptions:
     # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
     # "by_fit" (fit both, keep the better; the demo).
     survival_model: str = "arm-wise"
+    # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
+    visit_population: str = "each"
 
 
 def model_settings(options, n_rows=None):

@@ -40,6 +40,10 @@ def visits_section(collector, data, options, population):
 
     if not data.visits:
         return None, None
+    if population not in POPULATION_TEXT:
+        raise ValueError(
+            f"`visit_population` must be 'each' or 'last'; got {population!r}."
+        )
     y = pd.DataFrame({v.label: v.outcome for v in data.visits})
     survival = pd.DataFrame({v.label: v.survival for v in data.visits})
     estimator = build_estimator(options.method, options, len(data.treatment))
@@ -93,7 +97,7 @@ def visit_figures(analysis):
     from ..plotting import plot_visit_effects
 
     def draw(table):
-        axes = plot_visit_effects(table, outcome=results["columns"]["outcome"])
+        axes = plot_visit_effects(table, outcome="the visit's outcome")
         return axes[0].figure
 
     level = f"{results['settings']['level']:.0%}"
