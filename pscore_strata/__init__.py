@@ -12,6 +12,7 @@ from . import (
     nuisance,
     plotting,
     simulation,
+    tables,
     visits,
 )
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
@@ -69,6 +70,7 @@ __all__ = [
     "distributions",
     "datasets",
     "simulation",
+    "tables",
     "diagnostics",
     "plotting",
     "assumptions",
