@@ -346,6 +346,7 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
     visits = prepare_visits(
         used, roles, allow_blank=bool(modelled), survived_value=survived_value,
         coded_indicator=_coded_indicator, input_error=InputError,
+        row_labels=frame.index[~incomplete],
     )  # fmt: skip
     groups = None if roles.cluster is None else used[roles.cluster].to_numpy()
     if groups is not None:

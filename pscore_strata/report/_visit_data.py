@@ -14,7 +14,9 @@ import pandas as pd
 
 from . import _coding
 
-__all__ = ["VisitColumns", "check_visit_roles", "visit_missing_rows", "prepare_visits"]
+__all__ = [
+    "VisitColumns", "visit_pairs", "check_visit_roles", "visit_missing_rows", "prepare_visits",
+]
 
 
 @dataclass(frozen=True)
@@ -47,6 +49,25 @@ def check_visit_roles(roles, input_error):
         )
 
 
+def visit_pairs(outcomes, survivals, population):
+    """``(outcome, survival)`` column pairs of repeated visits (``()`` for one visit), from the
+    command line's repeated --outcome and --survival options."""
+    if len(outcomes) != len(survivals):
+        raise ValueError(
+            f"--outcome {len(outcomes)} times but --survival {len(survivals)} times: for "
+            "repeated visits give one --survival column per --outcome column, in the same "
+            "(time) order."
+        )
+    if len(outcomes) == 1:
+        if population is not None:
+            raise ValueError(
+                "--visit-population needs several visits: repeat --outcome and --survival "
+                "once per visit, in time order."
+            )
+        return ()
+    return tuple(zip(outcomes, survivals, strict=True))
+
+
 def _alive(values, survived_value):
     if survived_value is None:
         return (pd.to_numeric(values, errors="coerce") == 1).to_numpy()
@@ -72,8 +93,15 @@ def visit_missing_rows(frame, roles, modelled, survived_value):
     return counts, incomplete
 
 
-def prepare_visits(used, roles, *, allow_blank, survived_value, coded_indicator, input_error):
-    """The coded visits of the analysed rows, in the order given (``()`` for one visit)."""
+def prepare_visits(used, roles, *, allow_blank, survived_value, coded_indicator, input_error,
+                   row_labels=None):  # fmt: skip
+    """The coded visits of the analysed rows, in the order given (``()`` for one visit).
+
+    Survival must be monotone over visits; rows that break it are refused by their labels in
+    the data file (``row_labels``: the analysed rows' index in the frame as read).
+    """
+    from ..visits._inputs import check_visits
+
     visits = []
     for outcome_column, survival_column in roles.visits:
         survival, _ = coded_indicator(used, survival_column, "--survival", survived_value,
@@ -90,4 +118,12 @@ def prepare_visits(used, roles, *, allow_blank, survived_value, coded_indicator,
             survival_column=str(survival_column), outcome=outcome.to_numpy(dtype=float),
             survival=np.asarray(survival, dtype=float),
         ))  # fmt: skip
+    if visits:
+        index = used.index if row_labels is None else row_labels
+        status = pd.DataFrame({v.label: v.survival for v in visits}, index=index)
+        try:
+            check_visits(status, status)
+        except ValueError as error:
+            columns = ", ".join(v.survival_column for v in visits)
+            raise input_error(f"--survival columns ({columns}): {error}") from None
     return tuple(visits)

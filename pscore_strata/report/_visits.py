@@ -107,3 +107,25 @@ def visit_figures(analysis):
         f"{level} simultaneous band over all visits (shaded boxes). Right: the share of each "
         "arm recorded alive at each visit, among units whose status is known.",
     )]  # fmt: skip
+
+
+def print_visits(results):
+    """The key lines of the section for the command line (nothing for one visit)."""
+    from ._format import interval
+    from ._format import number as shown
+
+    record = results.get("visits")
+    if not record:
+        return
+    if not record["available"]:
+        print(f"  Over visits: {record['reason']}")
+        return
+    level = f"{results['settings']['level']:.0%}"
+    print(f"  Over visits (population '{record['population']}'; {level} pointwise CI, "
+          f"{level} band over all visits):")  # fmt: skip
+    for row in record["visits"]:
+        print(f"    {row['visit']:<24} {shown(row['effect']):>10}   CI "
+              f"{interval(row['ci_low'], row['ci_high'])}   band "
+              f"{interval(row['band_low'], row['band_high'])}")  # fmt: skip
+    test = record["wald_test"]
+    print(f"    No effect at any visit: p = {shown(test['p_value'])}")
