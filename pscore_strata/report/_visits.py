@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ._honesty import accounts_for_nuisance, unavailable_reason
 from ._options import build_estimator, number
 
 __all__ = ["visits_section", "visit_figures", "POPULATION_TEXT"]
@@ -47,12 +48,23 @@ def visits_section(collector, data, options, population):
     y = pd.DataFrame({v.label: v.outcome for v in data.visits})
     survival = pd.DataFrame({v.label: v.survival for v in data.visits})
     estimator = build_estimator(options.method, options, len(data.treatment))
-    try:
-        table = collector.run(
+
+    def run(estimator):
+        return collector.run(
             "effects over visits", visit_effects, estimator, data.design, y,
             treatment=data.treatment, survival=survival, population=population,
             sample_weight=data.sample_weight, groups=data.groups, level=options.level,
         )  # fmt: skip
+
+    try:
+        table = run(estimator)
+        method = table.attrs["std_error_method"]
+        if not accounts_for_nuisance(method):
+            if not options.bootstrap:
+                return {"available": False, "reason": "Effects over visits: "
+                        + unavailable_reason(method, options.learner)}, None  # fmt: skip
+            # The joint refitting bootstrap: units resampled once for all visits.
+            table = run(estimator.set_params(n_bootstrap=options.bootstrap))
     except (ValueError, RuntimeError) as error:
         return {"available": False, "reason": f"The effects over visits could not be computed: "
                 f"{error}"}, None  # fmt: skip
