@@ -128,3 +128,21 @@ def test_pbc_trial_over_visits_as_a_new_user(tmp_path):
     rows = results["visits"]["visits"]
     assert [r["n_survivors_treated"] + r["n_survivors_control"] for r in rows] == [290, 278, 245]
     assert 0 <= results["visits"]["wald_test"]["p_value"] <= 1
+
+
+def test_report_withholds_visit_intervals_that_ignore_fitted_boosting_models(visit_csv):
+    # Source: the report's rule for honest intervals (report/_honesty.py): a weighting estimator
+    # with boosting models and no bootstrap has standard errors that treat the models as known.
+    path, _ = visit_csv
+    frame = pd.read_csv(path).head(400)
+    roles = report.ColumnRoles(
+        outcome="score_month_12", treatment="arm", survival="alive_month_12",
+        covariates=("x1", "x2", "x3"),
+        visits=tuple((f"score_{v}", f"alive_{v}") for v in VISITS),
+    )  # fmt: skip
+    options = report.AnalysisOptions(method="weighting", learner="boosting", folds=2,
+                                     missing="at_random")  # fmt: skip
+    analysis = report.analyze_frame(frame, roles, options, treated_value="program",
+                                    survived_value="alive")  # fmt: skip
+    section = analysis.results["visits"]
+    assert section["available"] is False and "interval not available" in section["reason"]
