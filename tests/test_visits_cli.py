@@ -17,6 +17,9 @@ import pytest
 import pscore_strata as ps
 from pscore_strata import report
 from pscore_strata.datasets import make_visits
+from pscore_strata.report._analysis import _Collector
+from pscore_strata.report._data import prepare_data
+from pscore_strata.report._visits import visits_section
 
 VISITS = ("month_3", "month_6", "month_12")
 
@@ -142,7 +145,8 @@ def test_report_withholds_visit_intervals_that_ignore_fitted_boosting_models(vis
     )  # fmt: skip
     options = report.AnalysisOptions(method="weighting", learner="boosting", folds=2,
                                      missing="at_random")  # fmt: skip
-    analysis = report.analyze_frame(frame, roles, options, treated_value="program",
-                                    survived_value="alive")  # fmt: skip
-    section = analysis.results["visits"]
+    data = prepare_data(frame, roles, missing="at_random", treated_value="program",
+                        survived_value="alive")  # fmt: skip
+    section, table = visits_section(_Collector(None), data, options, "each")
     assert section["available"] is False and "interval not available" in section["reason"]
+    assert table is None
