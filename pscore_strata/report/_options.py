@@ -60,7 +60,8 @@ class AnalysisOptions:
     arm_names: tuple | None = None
     missing: str = "error"
     # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
-    # "by_fit" (fit both, keep the better; the demo).
+    # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
+    # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
     # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
     visit_population: str = "each"
