@@ -244,25 +244,6 @@ def _missing_rows(frame, roles, modelled=(), survived_value=None):
     return counts, incomplete
 
 
-def _labelled_outcome(frame, column, name):
-    """A Stata/SPSS outcome read as its value labels: back to its codes, with the labels.
-
-    Returns the column (codes where labels were read) and ``{code: label}`` or ``None``.
-    """
-    labels = (frame.attrs.get("value_labels") or {}).get(name)
-    if not labels or not isinstance(column.dtype, pd.CategoricalDtype):
-        return column, None
-    codes = {label: code for code, label in labels.items()}
-    unknown = [v for v in column.dropna().unique() if str(v) not in codes]
-    if unknown:
-        raise InputError(
-            f"--outcome column '{name}' holds labels without a code in the file's value labels "
-            f"({unknown[0]!r}); recode it as numbers."
-        )
-    values = column.astype(object).map(lambda v: codes[str(v)] if pd.notna(v) else np.nan)
-    return values.astype(float), {float(code): str(label) for code, label in labels.items()}
-
-
 def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treated_value=None,
                  survived_value=None):
     """Check the columns and build the analysis arrays; the caller's frame is not modified.
@@ -326,7 +307,9 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         used, roles.survival, "--survival", survived_value, allow_blank=bool(modelled)
     )
     messages = ()
-    outcome_column, outcome_labels = _labelled_outcome(frame, used[roles.outcome], roles.outcome)
+    outcome_column, outcome_labels = _coding.labelled_outcome(
+        frame, used[roles.outcome], roles.outcome, InputError
+    )
     outcome = pd.to_numeric(outcome_column, errors="coerce")
     bad = outcome.isna() & used[roles.outcome].notna()
     if bad.any():
