@@ -14,6 +14,7 @@ from . import (
     plotting,
     simulation,
     tables,
+    visits,
 )
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
@@ -35,6 +36,7 @@ from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighti
 from .exceptions import BootstrapFailureError, FewOutcomesWarning, SeparationWarning
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
+from .visits import visit_effects
 
 __version__ = "0.1.0"
 
@@ -86,5 +88,7 @@ __all__ = [
     "monotonicity_check",
     "survival_fit_check",
     "diagnostic_warnings",
+    "visit_effects",
+    "visits",
     "__version__",
 ]

@@ -49,12 +49,6 @@ def _check_bootstrap(n_resamples):
         print(f"warning: {bootstrap_warning(n_resamples)}", file=sys.stderr)
 
 
-def _check_seed(seed):
-    # scikit-learn's random_state (folds, boosting, bootstrap) takes 0 .. 2**32 - 1.
-    if not 0 <= seed < 2**32:
-        raise ValueError(f"--seed must be an integer from 0 to {2**32 - 1}; got {seed}.")
-
-
 def _check_out_dir(out):
     # Before the analysis: a wrong --out must not cost a whole analysis, nor leave figures.
     from .report._data import InputError
@@ -67,12 +61,8 @@ def _options(args):
     from .report import AnalysisOptions
     from .report._options import trial_settings
 
-    _check_seed(args.seed)
-    if args.folds is not None and args.folds < 2:
-        raise ValueError(f"--folds must be at least 2; got {args.folds}.")
+    settings = trial_settings(args)  # checks --seed, --folds, --level first
     _check_bootstrap(args.bootstrap)
-    if not 0 < args.level < 1:
-        raise ValueError(f"--level must lie strictly between 0 and 1; got {args.level}.")
     return AnalysisOptions(
         method=args.method,
         learner=args.learner,
@@ -86,22 +76,26 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
-        **trial_settings(args),
+        visit_population=args.visit_population or "each",
+        **settings,
     )
 
 
 def _analyze(args):
     from .report import ColumnRoles, analyze_frame, read_table
+    from .report._visit_data import visit_pairs
 
     options = _options(args)
     _check_out_dir(args.out)
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
+    visits = visit_pairs(args.outcome, args.survival, args.visit_population)
     roles = ColumnRoles(
-        outcome=args.outcome,
+        outcome=args.outcome[-1],
         treatment=args.treatment,
-        survival=args.survival,
+        survival=args.survival[-1],
+        visits=visits,
         covariates=tuple(args.covariates),
         categorical=tuple(args.categorical),
         cluster=args.cluster,
@@ -159,8 +153,9 @@ def _demo(args):
 def _simulation_out(args):
     from .report._data import InputError
     from .report._file_checks import check_output_file
+    from .report._options import check_seed
 
-    _check_seed(args.seed)
+    check_seed(args.seed)
     out = Path(args.out)
     if out.suffix.lower() not in (".csv", ".parquet"):
         raise ValueError(f"--out '{out.name}' must end in .csv or .parquet.")
@@ -229,11 +224,11 @@ def build_parser():
         "unit",
     )  # fmt: skip
     analyze.add_argument(
-        "--outcome",
-        required=True,
-        metavar="COL",
-        help="outcome column (may be empty for non-survivors)",
-    )
+        "--outcome", required=True, action="append", metavar="COL",
+        help="outcome column (may be empty for non-survivors); repeated with as many "
+        "--survival columns, one per follow-up visit in time order, it adds the section "
+        "'Over visits' (the other sections analyse the last visit)",
+    )  # fmt: skip
     analyze.add_argument(
         "--treatment", required=True, metavar="COL",
         help="treatment column: 0/1, or two levels with --treated-value",
@@ -243,12 +238,10 @@ def build_parser():
         help="level of --treatment that means treated (for text-coded arms, e.g. program)",
     )  # fmt: skip
     analyze.add_argument(
-        "--survival",
-        required=True,
-        metavar="COL",
+        "--survival", required=True, action="append", metavar="COL",
         help="0/1 column: 1 if the unit survived (its outcome exists); or two levels with "
-        "--survived-value",
-    )
+        "--survived-value; repeated: survival to each visit, matching the --outcome columns",
+    )  # fmt: skip
     analyze.add_argument(
         "--survived-value", default=None, metavar="VALUE",
         help="level of --survival that means survived / no event (e.g. yes)",
@@ -329,6 +322,12 @@ def build_parser():
         "(default); strata: one multinomial logistic model of stratum membership fitted on "
         "both arms, monotone by construction (also with --learner boosting, which then "
         "applies to the treatment and outcome models)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--visit-population", choices=("each", "last"), default=None,
+        help="with several visits: each = the always-survivors to each visit (a different "
+        "group per visit; default); last = the always-survivors to the last visit at every "
+        "visit (one group)",
     )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")

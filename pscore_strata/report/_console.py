@@ -114,6 +114,9 @@ def print_key_results(results, out_dir):
     for message in results.get("warnings", []):
         if message.startswith("data: "):
             print(f"  warning: {message[6:]}")
+    from ._visits import print_visits
+
+    print_visits(results)
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
     print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "

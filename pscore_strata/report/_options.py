@@ -17,6 +17,7 @@ __all__ = [
     "number",
     "parse_levels",
     "add_trial_arguments",
+    "check_seed",
     "trial_settings",
 ]
 
@@ -73,6 +74,12 @@ class AnalysisOptions:
     # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
     # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
+    # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
+    visit_population: str = "each"
+    # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
+    # and their bounds (--quantiles), or the whole section skipped (--no-distributions).
+    quantiles: tuple = (0.1, 0.25, 0.5, 0.75, 0.9)
+    distributions: bool = True
     # A known randomization probability (--treatment-probability): the treatment model.
     treatment_probability: float | None = None
     # Headings and axes name the outcome so (--outcome-label); None: the column name.
@@ -197,8 +204,20 @@ def add_trial_arguments(parser):
     )  # fmt: skip
 
 
+def check_seed(seed):
+    # scikit-learn's random_state (folds, boosting, bootstrap) takes 0 .. 2**32 - 1.
+    if not 0 <= seed < 2**32:
+        raise ValueError(f"--seed must be an integer from 0 to {2**32 - 1}; got {seed}.")
+
+
 def trial_settings(args):
-    """``AnalysisOptions`` fields from the options of :func:`add_trial_arguments`, checked."""
+    """``AnalysisOptions`` fields from the options of :func:`add_trial_arguments`, checked
+    (after ``--seed``, ``--folds`` and ``--level``, in that order)."""
+    check_seed(args.seed)
+    if args.folds is not None and args.folds < 2:
+        raise ValueError(f"--folds must be at least 2; got {args.folds}.")
+    if not 0 < args.level < 1:
+        raise ValueError(f"--level must lie strictly between 0 and 1; got {args.level}.")
     probability = args.treatment_probability
     return {
         "treatment_probability": None if probability is None
