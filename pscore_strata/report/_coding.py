@@ -16,7 +16,8 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["MANY_LEVELS", "DataWarning", "indicator", "check_dates", "many_levels_messages",
-           "matches_level", "level_hint"]  # fmt: skip
+           "matches_level", "level_hint", "check_identifiers", "separated_numbers",
+           "labelled_outcome"]  # fmt: skip
 
 #: More levels than this make one-hot coding costly and unstable (common practice).
 MANY_LEVELS = 50
@@ -159,3 +160,22 @@ def many_levels_messages(covariates, categorical):
     for message in messages:
         warnings.warn(message, DataWarning, stacklevel=3)
     return messages
+
+
+def labelled_outcome(frame, column, name, input_error):
+    """A Stata/SPSS outcome read as its value labels: back to its codes, with the labels.
+
+    Returns the column (codes where labels were read) and ``{code: label}`` or ``None``.
+    """
+    labels = (frame.attrs.get("value_labels") or {}).get(name)
+    if not labels or not isinstance(column.dtype, pd.CategoricalDtype):
+        return column, None
+    codes = {label: code for code, label in labels.items()}
+    unknown = [v for v in column.dropna().unique() if str(v) not in codes]
+    if unknown:
+        raise input_error(
+            f"--outcome column '{name}' holds labels without a code in the file's value labels "
+            f"({unknown[0]!r}); recode it as numbers."
+        )
+    values = column.astype(object).map(lambda v: codes[str(v)] if pd.notna(v) else np.nan)
+    return values.astype(float), {float(code): str(label) for code, label in labels.items()}
