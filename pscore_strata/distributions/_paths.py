@@ -138,13 +138,14 @@ def prepare(estimator, X=None, cdf_model=None):
                 "estimator was fitted with (the fitted estimator does not keep them)."
             )
         if X is not None:
-            check_training_rows(estimator, X)
+            given = X
             X, n_features, _ = check_features(X, (cdf_model,), n_rows=data.n_samples)
             if n_features != estimator.n_features_in_:
                 raise ValueError(
                     f"`X` has {n_features} features but the estimator was fitted with "
                     f"{estimator.n_features_in_}; pass the same covariates."
                 )
+            check_training_rows(estimator, given)
             if n_features == 0:
                 X = None
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
