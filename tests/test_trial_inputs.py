@@ -237,3 +237,49 @@ def test_one_observed_treated_survivor_is_named():
         ps.MultiplyRobust(missing="at_random").fit(
             data.X, y, treatment=data.treatment, survival=data.survival
         )
+
+
+def _site_pipeline(model, handle_unknown="error"):
+    from sklearn.compose import make_column_transformer
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import OneHotEncoder
+
+    encoder = make_column_transformer((OneHotEncoder(handle_unknown=handle_unknown), ["site"]),
+                                      remainder="passthrough")  # fmt: skip
+    return make_pipeline(encoder, model)
+
+
+@pytest.fixture(scope="module")
+def text_covariates():
+    data = ps.datasets.make_truncation(400, random_state=0)
+    X = pd.DataFrame({"x0": data.X[:, 0], "site": np.where(data.X[:, 1] > 0, "a", "b")})
+    X.loc[:2, "site"] = "rare"  # three rows: some cross-fitting fold lacks it
+    return X, data
+
+
+def test_stratum_model_around_a_text_encoding_pipeline_is_accepted(text_covariates):
+    from sklearn.linear_model import LogisticRegression
+
+    X, data = text_covariates
+    # Refused before with "encode them first ... pipelines", which this already is.
+    est = ps.PrincipalScoreWeighting(
+        treatment_model=_site_pipeline(LogisticRegression(), "ignore"),
+        survival_model=ps.PrincipalScoreModel(_site_pipeline(LogisticRegression(), "ignore")),
+        n_bootstrap=0,
+    ).fit(X, data.y, treatment=data.treatment, survival=data.survival)
+    assert np.isfinite(est.effect_)
+
+
+def test_rare_category_missing_from_a_fold_names_folds_and_handle_unknown(text_covariates):
+    from sklearn.linear_model import LinearRegression, LogisticRegression
+
+    X, data = text_covariates
+    est = ps.MultiplyRobust(
+        treatment_model=_site_pipeline(LogisticRegression()),
+        survival_model=_site_pipeline(LogisticRegression()),
+        outcome_model=_site_pipeline(LinearRegression()), n_folds=5, random_state=0,
+    )  # fmt: skip
+    with pytest.raises(ValueError, match="cross-fitting fold.*handle_unknown='ignore'"):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            est.fit(X, data.y, treatment=data.treatment, survival=data.survival)
