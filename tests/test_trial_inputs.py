@@ -283,3 +283,22 @@ def test_rare_category_missing_from_a_fold_names_folds_and_handle_unknown(text_c
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             est.fit(X, data.y, treatment=data.treatment, survival=data.survival)
+
+
+def test_internal_bootstrap_refuses_when_many_resamples_fail():
+    from sklearn.linear_model import LogisticRegression
+
+    rng = np.random.default_rng(5)
+    n = 120
+    t = np.r_[np.ones(40, int), np.zeros(80, int)]
+    s = np.r_[np.ones(38, int), 0, 0, (rng.random(80) < 0.7).astype(int)]  # 2 treated deaths
+    X = rng.normal(size=(n, 2))
+    y = np.where(s == 1, X[:, 0] + rng.normal(size=n), np.nan)
+    # A penalized survival model has no sandwich: the estimator bootstraps. A resample keeps
+    # no treated death with probability (38/40)^40, about 13%.
+    est = ps.PrincipalScoreWeighting(survival_model=LogisticRegression(C=1.0), n_bootstrap=60,
+                                     random_state=0)  # fmt: skip
+    with pytest.warns(UserWarning, match=r"resamples \(.*\) could not be estimated"):
+        est.fit(X, y, treatment=t, survival=s)
+    assert est.n_bootstrap_failed_ > 1 and np.isnan(est.std_error_)
+    assert np.isnan(est.conf_int()[0])
