@@ -60,9 +60,7 @@ def _plain(warning):
     if issubclass(warning.category, RuntimeWarning) and any(p in text for p in _NUMPY_TEXTS):
         return ("a computation gave an undefined value (a division by zero or an overflow); "
                 "the numbers it concerns are shown as n/a")  # fmt: skip
-    for python, words in _PYTHON_WORDS:
-        text = text.replace(python, words)
-    return text
+    return _in_words(text)
 
 
 # A reader of the report runs the command line, not Python: the library's argument names in a
@@ -76,6 +74,8 @@ _PYTHON_WORDS = (
     ("see sensitivity_grid around that value", "see the sensitivity table around that value"),
     ("only the principal scores that predict_proba reports are clipped",
      "only the principal scores shown in the figures are clipped"),
+    ("see sensitivity_grid(outcome_shift=...)",
+     "see the outcome-shift sensitivity analysis under Missing data"),
 )
 
 
@@ -182,8 +182,14 @@ def _method_notes(estimator, notes):
     except ImportError:
         pass
     # Separation has its own box in the Estimates section (estimates[].separation).
-    return [note for note in notes
+    return [_in_words(note) for note in notes
             if note not in repeated and not note.startswith("Separation in the")]  # fmt: skip
+
+
+def _in_words(text):
+    for python, words in _PYTHON_WORDS:
+        text = text.replace(python, words)
+    return text
 
 
 def _summary_rows(estimator, level):
