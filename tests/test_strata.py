@@ -193,3 +193,51 @@ def test_simulated_stratum_effects_are_the_truth():
     assert data.true_effects == {"always_survivor": 0.0, "protected": 2.0, "doomed": 0.0}
     with pytest.raises(ValueError, match="stratum must be one of"):
         make_intermediate(100, stratum="harmed")
+
+
+@pytest.mark.parametrize("call", ["sensitivity", "distribution"])
+def test_unsupported_analyses_refuse_other_strata(call):
+    data = make_intermediate(600, random_state=0)
+    est = _fit(ps.PrincipalScoreWeighting, data, "complier")
+    with pytest.raises(ValueError, match="not available yet .*`stratum`='complier'"):
+        if call == "sensitivity":
+            ps.sensitivity_grid(est, pi_ratio=[0.9, 1.0])
+        else:
+            ps.survivor_distribution(est)
+
+
+def test_missing_at_random_refused_for_other_strata():
+    data = make_intermediate(300, random_state=0)
+    with pytest.raises(ValueError, match="`missing`='at_random' is not available with `stratum`"):
+        ps.MultiplyRobust(stratum="doomed", missing="at_random").fit(
+            data.X, data.y, treatment=data.treatment, intermediate=data.intermediate)
+
+
+def test_summary_names_the_stratum_and_its_assumptions():
+    data = make_intermediate(1500, random_state=0)
+    est = _fit(ps.MultiplyRobust, data, "complier")
+    table = est.summary()
+    assert table.index[0] == "protected effect (difference)"
+    assert "protected mean, treated" in table.index
+    notes = " ".join(table.attrs["notes"])
+    assert "E[Y(0) | protected, X] = E[Y(0) | doomed, X]" in notes
+    assert "latent" in notes and "individual patients" in notes
+    # Source: the naive as-treated contrast computed here (treated with S=1 vs control S=0).
+    T, S, Y = data.treatment, data.intermediate, data.y
+    naive = Y[(T == 1) & (S == 1)].mean() - Y[(T == 0) & (S == 0)].mean()
+    assert table.iloc[-1]["estimate"] == pytest.approx(naive, abs=1e-12)
+
+
+def test_subgroups_cross_fitting_clusters_and_weights_run_for_each_stratum():
+    data = make_intermediate(2000, stratum="doomed", random_state=3)
+    groups = np.arange(2000) % 40
+    weights = np.random.default_rng(0).uniform(0.5, 2.0, 2000)
+    for cls in ESTIMATORS:
+        # Cross-fitted weighting and regression get refitting-bootstrap errors: keep them few.
+        extra = {} if cls is ps.MultiplyRobust else {"n_bootstrap": 20}
+        est = cls(stratum="never_taker", n_folds=3, random_state=0, **extra).fit(
+            data.X, data.y, treatment=data.treatment, intermediate=data.intermediate,
+            groups=groups, sample_weight=weights)  # fmt: skip
+        assert abs(est.effect_ - data.true_effect) < 4 * est.std_error_
+        table = est.effect_by(data.X[:, 0] > 0)
+        assert table["n"].sum() == 2000 and np.isfinite(table["std_error"]).all()

@@ -24,6 +24,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._validation import check_features
 from ..estimators import _formulas
+from ..estimators._stratum_formulas import require_always_survivor
 from ._conditional import fit_conditional_cdf
 
 __all__ = ["CDFPath", "prepare", "cdf_path", "method_of"]
@@ -62,6 +63,9 @@ class Prepared:
 def prepare(estimator, X=None, cdf_model=None):
     """The oriented nuisance view and, for outcome-model estimators, the conditional CDF model."""
     method = method_of(estimator)
+    require_always_survivor(
+        estimator, "The distribution functions (survivor_distribution, quantile_effects, "
+        "ordinal_comparison)")  # fmt: skip
     if getattr(estimator, "missing", "error") != "error":
         raise ValueError(
             "The distribution functions do not yet support estimators fitted with "

@@ -39,6 +39,10 @@ __all__ = [
     "stratum_regression_means",
     "stratum_robust_means",
     "needs_zero_cells",
+    "arm_cells",
+    "stratum_words",
+    "ignorability_statement",
+    "require_always_survivor",
 ]
 
 
@@ -105,6 +109,61 @@ def needs_zero_cells(stratum):
     return stratum != "always_survivor"
 
 
+def arm_cells(stratum, monotonicity):
+    """``{1: s_g(1), 0: s_g(0)}``: the stratum's intermediate under each arm (its cells)."""
+    spec = _ROLES[STRATA[monotonicity][stratum]]
+    if monotonicity == "increasing":
+        return {1: spec.s_mixed, 0: spec.s_pure}
+    return {1: spec.s_pure, 0: spec.s_mixed}
+
+
+_WORDS = {"always_survivor": "always-survivor", "protected": "protected", "harmed": "harmed",
+          "doomed": "doomed"}  # fmt: skip
+
+
+def stratum_words(stratum):
+    """The stratum's name in text (``"always-survivor"``, ``"protected"``, ...)."""
+    return _WORDS[stratum]
+
+
+# Principal ignorability in mean form, one statement per observed cell that mixes two strata
+# (docs/strata.md section 3); keyed by (monotonicity, arm of the cell).
+_IGNORABILITY = {
+    ("increasing", 1): "E[Y(1) | always-survivor, X] = E[Y(1) | protected, X]",
+    ("increasing", 0): "E[Y(0) | protected, X] = E[Y(0) | doomed, X]",
+    ("decreasing", 0): "E[Y(0) | always-survivor, X] = E[Y(0) | harmed, X]",
+    ("decreasing", 1): "E[Y(1) | harmed, X] = E[Y(1) | doomed, X]",
+}
+
+
+def ignorability_statement(stratum, monotonicity):
+    """The principal ignorability the stratum's effect rests on, in words."""
+    cells = arm_cells(stratum, monotonicity)
+    mixed_cells = {("increasing", 1, 1), ("increasing", 0, 0), ("decreasing", 0, 1),
+                   ("decreasing", 1, 0)}  # fmt: skip
+    needed = [_IGNORABILITY[(monotonicity, arm)] for arm in (1, 0)
+              if (monotonicity, arm, cells[arm]) in mixed_cells]  # fmt: skip
+    return (
+        f"The {stratum_words(stratum)} effect assumes principal ignorability (mean form): "
+        + " and ".join(needed)
+        + ", with monotonicity "
+        + ("S(1) >= S(0)" if monotonicity == "increasing" else "S(1) <= S(0)")
+        + ". These assumptions cannot be checked from the data."
+    )
+
+
+def require_always_survivor(estimator, what):
+    """Refuse ``what`` for an estimator fitted for another stratum than the always-survivors."""
+    stratum = getattr(estimator, "stratum_", "always_survivor")
+    if stratum != "always_survivor":
+        raise ValueError(
+            f"{what}: not available yet for an estimator fitted with `stratum`="
+            f"{getattr(estimator, 'stratum', stratum)!r} (only for the always-survivor stratum). "
+            "Refit with stratum='always_survivor', or report the stratum's mean effect without "
+            "it."
+        )
+
+
 @dataclass(frozen=True)
 class StratumView:
     """Per-row arrays for one stratum's formulas, arms named by role."""
@@ -122,9 +181,24 @@ class StratumView:
     parametric: dict | None  # keys "pi", "p_mixed", "p_pure", "m_mixed", "m_pure"
     increasing: bool
 
+    coarsening = None  # missing="at_random" is not available for these strata
+
     @property
     def score(self):
         return self.stratum.score(self.p_mixed, self.p_pure)
+
+    @property
+    def observed_mixed(self):
+        return self.cell("mixed")
+
+    @property
+    def observed_pure(self):
+        return self.cell("pure")
+
+    def cell_weights(self):
+        """Weights of the stratum's reconstruction from each arm's cell: ``e / (P(arm) q)``."""
+        return {role: self.score * _ratio(self.cell(role), self.cell_probability(role))
+                for role in ("mixed", "pure")}  # fmt: skip
 
     def cell(self, role):
         s = self.stratum.s_mixed if role == "mixed" else self.stratum.s_pure
