@@ -62,6 +62,8 @@ class AnalysisOptions:
     # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
     # "by_fit" (fit both, keep the better; the demo).
     survival_model: str = "arm-wise"
+    # The principal stratum whose effect the report is about (--stratum; docs/strata.md).
+    stratum: str = "always_survivor"
 
 
 def model_settings(options, n_rows=None):
@@ -95,7 +97,8 @@ def build_estimator(method, options, n_rows=None):
     """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed, missing=options.missing)  # fmt: skip
+                  random_state=options.seed, missing=options.missing,
+                  stratum=options.stratum)  # fmt: skip
     boosting = options.learner != "linear"
     if method != "weighting" and boosting:
         from sklearn.ensemble import HistGradientBoostingRegressor
