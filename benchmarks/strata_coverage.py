@@ -1,7 +1,7 @@
 """Effects in every principal stratum: truth recovery and coverage against simulated truth.
 
 Runs the scenario family ``intermediate_*`` of ``ps.datasets`` (an outcome observed for every
-unit after a binary intermediate; exact effects in each stratum, docs/strata.md) through
+unit after a binary intermediate; exact effects in each stratum, docs/guide/derivations/strata.md) through
 ``ps.simulation.run_study``, each scenario against the three estimators targeting its stratum
 with their default models, and prints bias (with its Monte Carlo standard error), Monte Carlo
 SD, mean standard error, SE/SD and coverage of the 95% interval. The last block compares the

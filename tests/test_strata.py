@@ -1,6 +1,6 @@
 """Effects in every principal stratum: independent computations, the IV check, refusals.
 
-Derivations in docs/strata.md.
+Derivations in docs/guide/derivations/strata.md.
 """
 
 import warnings
@@ -36,12 +36,12 @@ def _logit(X, target, rows):
 
 def _weighted_mean(values, weights):
     # The normalized (Hajek) mean written out; the weights may be negative where the fitted
-    # intermediate models cross (the formulas keep e = p1 - p0 unclipped, docs/strata.md).
+    # intermediate models cross (the formulas keep e = p1 - p0 unclipped, docs/guide/derivations/strata.md).
     return float(np.sum(weights * values) / np.sum(weights))
 
 
 def _statsmodels_weighting(data, stratum, monotonicity):
-    """Each stratum's weighting formula (docs/strata.md section 4, table) from scratch."""
+    """Each stratum's weighting formula (docs/guide/derivations/strata.md section 4, table) from scratch."""
     X, T, S, Y = data.X, data.treatment, data.intermediate, data.y
     pi = _logit(X, T, np.ones(T.size, bool))
     p1, p0 = _logit(X, S, T == 1), _logit(X, S, T == 0)
@@ -113,7 +113,7 @@ def test_complier_effect_matches_two_stage_least_squares():
     # Source: linearmodels IV2SLS (Y on S instrumented by T, X exogenous). Under randomization,
     # monotonicity, the exclusion restriction and principal ignorability with a constant
     # complier effect, both estimate the complier effect (Angrist, Imbens & Rubin 1996;
-    # docs/strata.md section 7), so they agree up to sampling error.
+    # docs/guide/derivations/strata.md section 7), so they agree up to sampling error.
     from linearmodels.iv import IV2SLS
 
     data = ps.datasets.make_scenario("intermediate_exclusion", 20000, random_state=4)

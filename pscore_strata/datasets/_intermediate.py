@@ -4,7 +4,7 @@ in every principal stratum.
 Noncompliance (the intermediate is the treatment received) and intercurrent events after which
 the outcome is still measured (rescue medication, switching) share this structure: every unit
 has an outcome, so the effect exists in each principal stratum, not only among the
-always-survivors (docs/strata.md).
+always-survivors (docs/guide/derivations/strata.md).
 
 Units are drawn stratum first, as in :func:`make_truncation`: covariates, then the principal
 stratum from its true probabilities given X, then treatment, then potential outcomes

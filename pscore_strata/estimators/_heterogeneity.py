@@ -38,7 +38,7 @@ def conditional_effect(estimator, X):
 
     For another stratum than the always-survivors, ``m_t`` is the regression of the stratum's
     cell in arm ``t`` (``E[Y | T=t, S=s_g(t), X]``), its mean given X under principal
-    ignorability (docs/strata.md section 3).
+    ignorability (docs/guide/derivations/strata.md section 3).
     """
     X, n_features, _ = check_features(X, estimator._models())
     if n_features != estimator.n_features_in_:

@@ -1,4 +1,4 @@
-"""Estimand formulas for any principal stratum (docs/strata.md).
+"""Estimand formulas for any principal stratum (docs/guide/derivations/strata.md).
 
 The oriented view of :mod:`._formulas` names the arms by role: the *mixed* arm is the one
 where the treatment changes the intermediate of some units (the treated arm under increasing
@@ -127,7 +127,7 @@ def stratum_words(stratum):
 
 
 # Principal ignorability in mean form, one statement per observed cell that mixes two strata
-# (docs/strata.md section 3); keyed by (monotonicity, arm of the cell).
+# (docs/guide/derivations/strata.md section 3); keyed by (monotonicity, arm of the cell).
 _IGNORABILITY = {
     ("increasing", 1): "E[Y(1) | always-survivor, X] = E[Y(1) | protected, X]",
     ("increasing", 0): "E[Y(0) | protected, X] = E[Y(0) | doomed, X]",
@@ -292,7 +292,7 @@ def _unorient(v, mu_mixed, mu_pure, if_mixed, if_pure):
 
 
 def stratum_weighting_means(v, subset=None):
-    """Normalized principal score weighting of each arm's cell (docs/strata.md section 4).
+    """Normalized principal score weighting of each arm's cell (docs/guide/derivations/strata.md section 4).
 
     M-estimation terms: with ``f = w (Y - mu)`` and ``w = e 1{cell} / (P(arm) q)``,
     ``df/de = 1{cell} (Y - mu) / (P(arm) q)`` enters through ``e``'s coefficients,
@@ -322,7 +322,7 @@ def stratum_weighting_means(v, subset=None):
 
 
 def stratum_regression_means(v, subset=None):
-    """Outcome regression ``mu_t = E[e m_{t,s}] / E[e]`` (docs/strata.md section 5)."""
+    """Outcome regression ``mu_t = E[e m_{t,s}] / E[e]`` (docs/guide/derivations/strata.md section 5)."""
     g = _indicator(v, subset)
     spec = v.stratum
     score = g * v.score
@@ -342,7 +342,7 @@ def stratum_regression_means(v, subset=None):
 
 
 def stratum_robust_terms(v):
-    """``(phi_e, phi_mixed, phi_pure)`` of docs/strata.md section 6."""
+    """``(phi_e, phi_mixed, phi_pure)`` of docs/guide/derivations/strata.md section 6."""
     spec, S, Y = v.stratum, v.survival, v.outcome
     score = v.score
     residual = (spec.mixed_coefficient * _ratio(v.mixed * (S - v.p_mixed), v.pi)

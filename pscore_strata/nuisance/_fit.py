@@ -263,7 +263,7 @@ def fit_nuisance(
     zero_cells : bool, default=False
         Also fit the outcome model among each arm's units with intermediate 0 (stored under
         ``outcome[(arm, 0)]`` and ``models[("outcome", arm, 0)]``): the strata other than the
-        always-survivors need ``E[Y | T=t, S=0, X]`` (docs/strata.md).
+        always-survivors need ``E[Y | T=t, S=0, X]`` (docs/guide/derivations/strata.md).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight

@@ -62,7 +62,7 @@ class AnalysisOptions:
     # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
     # "by_fit" (fit both, keep the better; the demo).
     survival_model: str = "arm-wise"
-    # The principal stratum whose effect the report is about (--stratum; docs/strata.md).
+    # The principal stratum whose effect the report is about (--stratum; docs/guide/derivations/strata.md).
     stratum: str = "always_survivor"
 
 
