@@ -16,6 +16,8 @@ from pathlib import Path
 __all__ = ["main", "build_parser"]
 
 USER_ERRORS = (ValueError, TypeError, FileNotFoundError, ImportError, OSError, RuntimeError)
+# Where both commands write their report unless told otherwise.
+DEFAULT_OUT = "pscore_report"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -84,7 +86,19 @@ def _options(args):
         missing=args.missing,
         survival_model=args.survival_model,
         stratum=_stratum(args),
+        visit_population=args.visit_population or "each",
     )
+
+
+def _survival_columns(args):
+    """--intermediate is --survival under its general name: exactly one of the two is given."""
+    if (args.survival is None) == (args.intermediate is None):
+        raise ValueError(
+            "Give the binary post-treatment column with --survival COL or --intermediate COL "
+            "(the same role under two names); got "
+            + ("both." if args.survival is not None else "neither.")
+        )
+    return args.survival if args.survival is not None else args.intermediate
 
 
 def _stratum(args):
@@ -183,6 +197,9 @@ def _print_key_results(results, out_dir):
     for message in results.get("warnings", []):
         if message.startswith("data: "):
             print(f"  warning: {message[6:]}")
+    from .report._visits import print_visits
+
+    print_visits(results)
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
     stratum = f"the {target['label']} stratum" if other else "the always-survivor stratum"
     print(f"Caution: {stratum} is latent and the assumptions are untestable; "
@@ -192,17 +209,20 @@ def _print_key_results(results, out_dir):
 
 def _analyze(args):
     from .report import ColumnRoles, analyze_frame, read_table
+    from .report._visit_data import visit_pairs
 
+    args.survival = _survival_columns(args)
     options = _options(args)
     _check_out_dir(args.out)
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
+    visits = visit_pairs(args.outcome, args.survival, args.visit_population)
     roles = ColumnRoles(
-        outcome=args.outcome,
+        outcome=args.outcome[-1],
         treatment=args.treatment,
-        # --intermediate is the general name of --survival (exactly one is given).
-        survival=args.survival if args.survival is not None else args.intermediate,
+        survival=args.survival[-1],
+        visits=visits,
         covariates=tuple(args.covariates),
         categorical=tuple(args.categorical),
         cluster=args.cluster,
@@ -238,7 +258,11 @@ def _demo(args):
     options = AnalysisOptions(
         bootstrap=args.bootstrap, unit_name="patient",
         arm_names=("protective ventilation", "conventional ventilation"),
-        survival_model="by_fit",  # fits both survival sides, keeps the better (AIC)
+        # Pre-specified, as an analysis plan would: the stratum model, the side whose AIC on the
+        # registry's survival statuses is smaller (2331.8 against 2335.4 for the arm-wise
+        # models). A choice made by fit is invisible to the standard errors
+        # (benchmarks/bench_model_choice.py; docs/guide/cli-report.md).
+        survival_model="strata",
     )  # fmt: skip
     analysis = analyze_frame(
         load_demo(), roles, options, args.out,
@@ -322,11 +346,11 @@ def build_parser():
         "unit",
     )  # fmt: skip
     analyze.add_argument(
-        "--outcome",
-        required=True,
-        metavar="COL",
-        help="outcome column (may be empty for non-survivors)",
-    )
+        "--outcome", required=True, action="append", metavar="COL",
+        help="outcome column (may be empty for non-survivors); repeated with as many "
+        "--survival columns, one per follow-up visit in time order, it adds the section "
+        "'Over visits' (the other sections analyse the last visit)",
+    )  # fmt: skip
     analyze.add_argument(
         "--treatment", required=True, metavar="COL",
         help="treatment column: 0/1, or two levels with --treated-value",
@@ -335,20 +359,17 @@ def build_parser():
         "--treated-value", default=None, metavar="VALUE",
         help="level of --treatment that means treated (for text-coded arms, e.g. program)",
     )  # fmt: skip
-    intermediate = analyze.add_mutually_exclusive_group(required=True)
-    intermediate.add_argument(
-        "--survival",
-        metavar="COL",
+    analyze.add_argument(
+        "--survival", action="append", metavar="COL",
         help="0/1 column: 1 if the unit survived (its outcome exists); or two levels with "
-        "--survived-value",
-    )
-    intermediate.add_argument(
-        "--intermediate",
-        metavar="COL",
+        "--survived-value; repeated: survival to each visit, matching the --outcome columns",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--intermediate", action="append", metavar="COL",
         help="the same role as --survival under its general name: a binary post-treatment "
-        "variable (treatment received under noncompliance, an intercurrent event); give one "
-        "of the two",
-    )
+        "variable (treatment received under noncompliance, an intercurrent event); give "
+        "--survival or --intermediate, not both",
+    )  # fmt: skip
     analyze.add_argument(
         "--survived-value", default=None, metavar="VALUE",
         help="level of --survival that means survived / no event (e.g. yes)",
@@ -440,14 +461,18 @@ def build_parser():
         "both arms, monotone by construction (also with --learner boosting, which then "
         "applies to the treatment and outcome models)",
     )  # fmt: skip
+    analyze.add_argument(
+        "--visit-population", choices=("each", "last"), default=None,
+        help="with several visits: each = the always-survivors to each visit (a different "
+        "group per visit; default); last = the always-survivors to the last visit at every "
+        "visit (one group)",
+    )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")
     analyze.add_argument(
-        "--out",
-        default="pscore_report",
-        metavar="DIR",
-        help="output directory (default: pscore_report)",
-    )
+        "--out", default=DEFAULT_OUT, metavar="DIR",
+        help=f"output directory (default: {DEFAULT_OUT})",
+    )  # fmt: skip
     analyze.add_argument(
         "--event-name", default="death", metavar="TEXT",
         help="what the event that truncates the outcome is called (default: death)",
@@ -469,8 +494,9 @@ def build_parser():
 
     demo = commands.add_parser("demo", help="analyse the bundled, invented demo registry")
     demo.add_argument(
-        "--out", default="report", metavar="DIR", help="output directory (default: report)"
-    )
+        "--out", default=DEFAULT_OUT, metavar="DIR",
+        help=f"output directory (default: {DEFAULT_OUT})",
+    )  # fmt: skip
     demo.add_argument(
         "--bootstrap", type=int, default=0, metavar="N", help="bootstrap resamples (default: 0)"
     )

@@ -36,12 +36,12 @@ def _logit(X, target, rows):
 
 def _weighted_mean(values, weights):
     # The normalized (Hajek) mean written out; the weights may be negative where the fitted
-    # intermediate models cross (the formulas keep e = p1 - p0 unclipped, docs/guide/derivations/strata.md).
+    # intermediate models cross (the formulas keep e = p1 - p0 unclipped; derivation section 4).
     return float(np.sum(weights * values) / np.sum(weights))
 
 
 def _statsmodels_weighting(data, stratum, monotonicity):
-    """Each stratum's weighting formula (docs/guide/derivations/strata.md section 4, table) from scratch."""
+    """Each stratum's weighting formula (derivation section 4, table) from scratch."""
     X, T, S, Y = data.X, data.treatment, data.intermediate, data.y
     pi = _logit(X, T, np.ones(T.size, bool))
     p1, p0 = _logit(X, S, T == 1), _logit(X, S, T == 0)

@@ -33,7 +33,7 @@ def _wrong(role):
 @pytest.mark.parametrize("wrong", ["treatment", "survival", "outcome"])
 def test_multiply_robust_survives_each_wrong_model(monotonicity, stratum, wrong):
     # Source: simulated truth (make_intermediate: exact stratum effects). Consistency when any
-    # two of the three models are right (docs/guide/derivations/strata.md section 6; Jiang, Yang & Ding 2022).
+    # two of the three models are right (derivation section 6; Jiang, Yang & Ding 2022).
     data = make_intermediate(20000, stratum=stratum, monotonicity=monotonicity, random_state=1)
     models = {f"{wrong}_model": _wrong(wrong)}
     fit = dict(treatment=data.treatment, intermediate=data.intermediate)

@@ -9,6 +9,7 @@ from ._demo import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
 from ._intermediate import make_intermediate
 from ._scenarios import SCENARIOS, list_scenarios, make_scenario
 from ._simulate import make_truncation
+from ._visits import make_visits
 
 __all__ = [
     "DEMO_ROLES",
@@ -19,4 +20,5 @@ __all__ = [
     "make_intermediate",
     "make_scenario",
     "make_truncation",
+    "make_visits",
 ]

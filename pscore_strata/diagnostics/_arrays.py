@@ -6,8 +6,9 @@ Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
 ``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with
 weights ``p0``. Under "decreasing" the arms swap roles. For another target stratum ``g``
 (``stratum=``) the same holds with each arm's cell of ``g`` weighted by
-``e_g / (P(arm|X) P(S=s_g(arm)|arm,X))`` and everyone by ``e_g`` (docs/guide/derivations/strata.md section 4); the
-weight sets keep their names (``treated_survivors`` is then the treated cell of ``g``).
+``e_g / (P(arm|X) P(S=s_g(arm)|arm,X))`` and everyone by ``e_g``
+(docs/guide/derivations/strata.md, section 4); the weight sets keep their names
+(``treated_survivors`` is then the treated cell of ``g``).
 """
 
 from __future__ import annotations

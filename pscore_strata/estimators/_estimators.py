@@ -39,7 +39,8 @@ _COMMON_PARAMETERS = """
         ``E[Y(0) | protected, X] = E[Y(0) | doomed, X]`` (control, intermediate 0; needed by the
         protected and doomed strata); with decreasing monotonicity,
         ``E[Y(0) | always_survivor, X] = E[Y(0) | harmed, X]`` and
-        ``E[Y(1) | harmed, X] = E[Y(1) | doomed, X]``. Formulas and sources: docs/guide/derivations/strata.md.
+        ``E[Y(1) | harmed, X] = E[Y(1) | doomed, X]``. Formulas and sources:
+        docs/guide/derivations/strata.md.
     scale : {"difference", "ratio", "odds_ratio"}, default="difference"
         Scale of the effect. Ratio scales need positive (``"ratio"``) or binary
         (``"odds_ratio"``) outcomes; their intervals are computed on the log scale.

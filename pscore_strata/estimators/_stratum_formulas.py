@@ -292,7 +292,7 @@ def _unorient(v, mu_mixed, mu_pure, if_mixed, if_pure):
 
 
 def stratum_weighting_means(v, subset=None):
-    """Normalized principal score weighting of each arm's cell (docs/guide/derivations/strata.md section 4).
+    """Normalized principal score weighting of each arm's cell (derivation: section 4).
 
     M-estimation terms: with ``f = w (Y - mu)`` and ``w = e 1{cell} / (P(arm) q)``,
     ``df/de = 1{cell} (Y - mu) / (P(arm) q)`` enters through ``e``'s coefficients,
@@ -322,7 +322,7 @@ def stratum_weighting_means(v, subset=None):
 
 
 def stratum_regression_means(v, subset=None):
-    """Outcome regression ``mu_t = E[e m_{t,s}] / E[e]`` (docs/guide/derivations/strata.md section 5)."""
+    """Outcome regression ``mu_t = E[e m_{t,s}] / E[e]`` (derivation: section 5)."""
     g = _indicator(v, subset)
     spec = v.stratum
     score = g * v.score

@@ -20,6 +20,7 @@ SECTIONS = (
     "missing",
     "estimates",
     "subgroups",
+    "visits",
     "diagnostics",
     "model_checks",
     "bounds",
@@ -75,7 +76,8 @@ def _view(results, figures):
         "target_share": (results["stratum_shares"].get(target["name"]) if other
                          else results["stratum_shares"].get("always_survivor")),
         "strata": results.get("strata"),
-        "sections": SECTIONS,
+        # "Over visits" appears only for an analysis of several visits.
+        "sections": tuple(s for s in SECTIONS if s != "visits" or results.get("visits")),
         "level": level,
         "primary": primary,
         "balance": balance,

@@ -2,9 +2,9 @@
 
 When the outcome exists for every unit (noncompliance: the intermediate is the treatment
 received; an intercurrent event after which the outcome is still measured), the effect exists in
-each principal stratum (docs/guide/derivations/strata.md). ``--stratum NAME`` picks the one the report is about;
-the "all strata" table puts the effects of every stratum of the monotonicity direction side by
-side with their shares, each fitted by the primary method.
+each principal stratum (docs/guide/derivations/strata.md). ``--stratum NAME`` picks the one
+the report is about; the "all strata" table puts the effects of every stratum of the
+monotonicity direction side by side with their shares, each fitted by the primary method.
 """
 
 from __future__ import annotations
