@@ -3,7 +3,8 @@
 Runs the scenario family ``intermediate_*`` of ``ps.datasets`` (an outcome observed for every
 unit after a binary intermediate; exact effects in each stratum; derivations in
 docs/guide/derivations/strata.md) through ``ps.simulation.run_study``, each scenario against
-the three estimators targeting its stratum with their default models, and prints bias (with its Monte Carlo standard error), Monte Carlo
+the three estimators targeting its stratum with their default models, and prints bias (with
+its Monte Carlo standard error), Monte Carlo
 SD, mean standard error, SE/SD and coverage of the 95% interval. The last block compares the
 complier estimates with two-stage least squares under the exclusion restriction.
 
