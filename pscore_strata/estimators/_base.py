@@ -11,15 +11,20 @@ from dataclasses import replace
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._validation import check_choice, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
-from ..estimands._formulas import orient, robust_means, scale_effect
-from ..inference._resampling import resample_rows, seed_models, spawn_seeds
+from ..estimands._formulas import (
+    orient,
+    regression_means,
+    robust_means,
+    scale_effect,
+    weighting_means,
+)
+from ..inference._resampling import seed_models, spawn_seeds
 from ..inference._standard_errors import (
     count_clusters,
     influence_std_error,
@@ -28,6 +33,8 @@ from ..inference._standard_errors import (
 )
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import record_settings, shared_nuisance
+from . import _stratum_formulas
+from ._fallback import bootstrap_std_errors, intermediate_alias
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._scores import PrincipalScoresMixin, check_feature_names
@@ -51,8 +58,24 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         used += (self.outcome_model,) if self._uses_outcome_model else ()
         return used + ((self.response_model,) if self.missing == "at_random" else ())
 
+    def _target_stratum(self):
+        """The canonical name of the stratum targeted (``stratum=``; aliases resolved)."""
+        return _stratum_formulas.resolve_stratum(
+            getattr(self, "stratum", "always_survivor"), self.monotonicity
+        )
+
+    def _other_stratum(self):
+        return _stratum_formulas.needs_zero_cells(self._target_stratum())
+
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
+        if self._other_stratum() and self.missing != "error":
+            raise ValueError(
+                f"`missing`={self.missing!r} is not available with `stratum`="
+                f"{self.stratum!r} yet (the follow-up and response models are fitted for the "
+                "always-survivor formulas only); use missing='error' with complete data, or "
+                "stratum='always_survivor'."
+            )
         check_choice(self.scale, "scale", _SCALES)
         check_choice(self.missing, "missing", ("error", "at_random"))
         check_estimator_arguments(self)
@@ -77,16 +100,30 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=sandwich and self._formula is not robust_means,
             monotonicity=self.monotonicity,
+            zero_cells=self._other_stratum(),
         )
         return record_settings(fitted, self, data, random_state)
 
-    def _means(self, data, nuisance):
-        oriented = orient(data, nuisance, self.monotonicity)
-        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
-            return type(self)._formula(oriented), oriented
+    def _oriented(self, data, nuisance):
+        """The view the formulas read: the SACE's oriented arrays, or the target stratum's."""
+        stratum = self._target_stratum()
+        if _stratum_formulas.needs_zero_cells(stratum):
+            return _stratum_formulas.stratum_view(data, nuisance, self.monotonicity, stratum)
+        return orient(data, nuisance, self.monotonicity)
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, nuisance=None):
-        """Estimate the survivor average causal effect.
+    def _formula_for(self, oriented):
+        if isinstance(oriented, _stratum_formulas.StratumView):
+            return _STRATUM_FORMULAS[type(self)._formula]
+        return type(self)._formula
+
+    def _means(self, data, nuisance):
+        oriented = self._oriented(data, nuisance)
+        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
+            return self._formula_for(oriented)(oriented), oriented
+
+    def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
+            groups=None, nuisance=None):  # fmt: skip
+        """Estimate the effect in the target stratum (by default the SACE).
 
         Parameters
         ----------
@@ -97,6 +134,10 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             Outcome. Values of non-survivors are ignored (they may be NaN).
         treatment, survival : array-like of shape (n_samples,)
             0/1 indicators.
+        intermediate : array-like of shape (n_samples,), optional
+            The general name of the binary post-treatment variable (treatment received under
+            noncompliance, an intercurrent event): the same as ``survival``. Give exactly one
+            of the two.
         sample_weight : array-like of shape (n_samples,), optional
             Survey (sampling) or frequency weights. Every model is fitted with them and every
             mean in the formulas is weighted, so an integer weight gives the same point
@@ -122,9 +163,12 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         self
         """
         n_repeats = self._check_params()
+        survival, name = intermediate_alias(survival, intermediate)
+        stratum = self._target_stratum()
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups, models=self._models(),
-            missing=self.missing,
+            missing=self.missing, survival_name=name,
+            stratum=stratum if self._other_stratum() else None,
         )
         check_n_folds(self.n_folds, data)
         n_clusters = count_clusters(data.groups)
@@ -146,6 +190,14 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                 )
             ]  # fmt: skip
+            if self._uses_outcome_model and self._other_stratum() and (0, 0) not in (
+                fits[0].outcome or {}
+            ):
+                raise ValueError(
+                    f"`nuisance` was fitted without the outcome models among units with "
+                    f"intermediate 0 that `stratum`={self.stratum!r} needs; share the nuisance "
+                    "of a fit for a stratum other than 'always_survivor', or drop `nuisance`."
+                )
         else:
             fits = [
                 self._fit_nuisance(data, seed)
@@ -188,10 +240,11 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         _, influence, parts, oriented = evaluated[chosen]
         # Only the nuisance arrays are needed from here: drop the oriented copies before the
         # principal scores are built (peak memory at a million rows).
-        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)
+        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)  # any view
         del evaluated
         self.effect_ = float(effect)
         self.std_error_ = float(std_error)
+        self.stratum_ = self._target_stratum()
         self.mean_treated_ = float(np.median(table["mean_treated"]))
         self.mean_control_ = float(np.median(table["mean_control"]))
         self.repeat_estimates_ = table
@@ -256,26 +309,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
 
     def _bootstrap_std_errors(self, data):
         """Resample rows within arms (clusters, if given) and refit every model."""
-        seeds = spawn_seeds(self.random_state, self.n_bootstrap)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            results = Parallel(n_jobs=self.n_jobs)(
-                delayed(_one_replicate)(self, data, seed) for seed in seeds
-            )
-        table = pd.DataFrame(
-            [r for r in results if r is not None],
-            columns=["effect", "mean_treated", "mean_control"],
-        )
-        self.bootstrap_replicates_ = table
-        self.n_bootstrap_failed_ = len(results) - len(table)
-        if len(table) < 2:
-            raise RuntimeError(
-                f"Fewer than two of the `n_bootstrap`={self.n_bootstrap} resamples could be "
-                "fitted (resamples lost the survivors or deaths of an arm, or the fitted "
-                "probabilities reached 0 or 1). Use the default models (sandwich standard "
-                "errors), set n_bootstrap=0, or use more data."
-            )
-        self.std_error_ = float(table["effect"].std(ddof=1))
+        bootstrap_std_errors(self, data)
 
     # -- results -----------------------------------------------------------------------------
     def conf_int(self, level=0.95):
@@ -352,22 +386,15 @@ class ConditionalEffectMixin:
         return conditional_effect(self, X)
 
 
-def _one_replicate(estimator, data, seed):
-    rows = resample_rows(data.treatment, seed, data.groups)
-    # Learners left at random_state=None get a seed from the replicate, so the bootstrap
-    # standard error is reproducible with random learners too.
-    estimator = seed_models(clone(estimator), seed)
-    try:
-        values = estimator._refit_means(data.take(rows))
-    except (ValueError, np.linalg.LinAlgError):
-        return None
-    # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
-    # count it as a failed fit, as the full-sample fit would refuse it.
-    return values if np.all(np.isfinite(values)) else None
+# The formula of each method for the strata other than the always-survivors.
+_STRATUM_FORMULAS = {
+    weighting_means: _stratum_formulas.stratum_weighting_means,
+    regression_means: _stratum_formulas.stratum_regression_means,
+    robust_means: _stratum_formulas.stratum_robust_means,
+}
 
 
-class _Roles:
-    """The two survival predictions by role, and the monotonicity direction."""
+class _Roles:  # the two survival predictions by role, and the monotonicity direction
 
     def __init__(self, p_mixed, p_pure, increasing):
         self.p_mixed, self.p_pure, self.increasing = p_mixed, p_pure, increasing
