@@ -17,8 +17,13 @@ from sklearn.utils.validation import check_is_fitted
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._features import feature_fingerprint
 from .._validation import check_choice, check_level, check_truncation_data
-from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR, VIOLATION_TOLERANCE
-from ..estimands._formulas import orient, robust_means, scale_effect
+from ..estimands._formulas import (
+    orient,
+    regression_means,
+    robust_means,
+    scale_effect,
+    weighting_means,
+)
 from ..exceptions import FewOutcomesWarning
 from ..inference._resampling import seed_models, spawn_seeds
 from ..inference._standard_errors import (
@@ -27,13 +32,14 @@ from ..inference._standard_errors import (
     normal_interval,
     reference_dof,
 )
-from ..nuisance._fit import MonotonicityWarning, fit_nuisance
+from ..nuisance._fit import fit_nuisance
 from ..nuisance._missing import few_outcomes_message
 from ..nuisance._share import record_settings, shared_nuisance
-from ._fallback import bootstrap_std_errors
+from . import _stratum_formulas
+from ._fallback import bootstrap_std_errors, intermediate_alias
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
-from ._scores import PrincipalScoresMixin, check_feature_names
+from ._scores import PrincipalScoresMixin, check_feature_names, count_crossings
 from ._summary import summary_table
 
 __all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
@@ -55,8 +61,24 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         missing = (self.follow_up_model, self.response_model)
         return used + (missing if self.missing == "at_random" else ())
 
+    def _target_stratum(self):
+        """The canonical name of the stratum targeted (``stratum=``; aliases resolved)."""
+        return _stratum_formulas.resolve_stratum(
+            getattr(self, "stratum", "always_survivor"), self.monotonicity
+        )
+
+    def _other_stratum(self):
+        return _stratum_formulas.needs_zero_cells(self._target_stratum())
+
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
+        if self._other_stratum() and self.missing != "error":
+            raise ValueError(
+                f"`missing`={self.missing!r} is not available with `stratum`="
+                f"{self.stratum!r} yet (the follow-up and response models are fitted for the "
+                "always-survivor formulas only); use missing='error' with complete data, or "
+                "stratum='always_survivor'."
+            )
         check_choice(self.scale, "scale", _SCALES)
         check_choice(self.missing, "missing", ("error", "at_random"))
         check_estimator_arguments(self)
@@ -83,16 +105,30 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             sandwich=sandwich and self._formula is not robust_means,
             monotonicity=self.monotonicity,
             check_separation=check_separation,
+            zero_cells=self._other_stratum(),
         )
         return record_settings(fitted, self, data, random_state)
 
-    def _means(self, data, nuisance):
-        oriented = orient(data, nuisance, self.monotonicity)
-        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
-            return type(self)._formula(oriented), oriented
+    def _oriented(self, data, nuisance):
+        """The view the formulas read: the SACE's oriented arrays, or the target stratum's."""
+        stratum = self._target_stratum()
+        if _stratum_formulas.needs_zero_cells(stratum):
+            return _stratum_formulas.stratum_view(data, nuisance, self.monotonicity, stratum)
+        return orient(data, nuisance, self.monotonicity)
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, nuisance=None):
-        """Estimate the survivor average causal effect.
+    def _formula_for(self, oriented):
+        if isinstance(oriented, _stratum_formulas.StratumView):
+            return _STRATUM_FORMULAS[type(self)._formula]
+        return type(self)._formula
+
+    def _means(self, data, nuisance):
+        oriented = self._oriented(data, nuisance)
+        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
+            return self._formula_for(oriented)(oriented), oriented
+
+    def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
+            groups=None, nuisance=None):  # fmt: skip
+        """Estimate the effect in the target stratum (by default the SACE).
 
         Parameters
         ----------
@@ -103,6 +139,10 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             Outcome. Values of non-survivors are ignored (they may be NaN).
         treatment, survival : array-like of shape (n_samples,)
             0/1 indicators.
+        intermediate : array-like of shape (n_samples,), optional
+            The general name of the binary post-treatment variable (treatment received under
+            noncompliance, an intercurrent event): the same as ``survival``. Give exactly one
+            of the two.
         sample_weight : array-like of shape (n_samples,), optional
             Survey (sampling) or frequency weights. Every model is fitted with them and every
             mean in the formulas is weighted, so an integer weight gives the same point
@@ -128,9 +168,12 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         self
         """
         n_repeats = self._check_params()
+        survival, name = intermediate_alias(survival, intermediate)
+        stratum = self._target_stratum()
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups, models=self._models(),
-            missing=self.missing,
+            missing=self.missing, survival_name=name,
+            stratum=stratum if self._other_stratum() else None,
         )
         check_n_folds(self.n_folds, data)
         n_clusters = count_clusters(data.groups)
@@ -154,6 +197,14 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                 )
             ]  # fmt: skip
+            if self._uses_outcome_model and self._other_stratum() and (0, 0) not in (
+                fits[0].outcome or {}
+            ):
+                raise ValueError(
+                    f"`nuisance` was fitted without the outcome models among units with "
+                    f"intermediate 0 that `stratum`={self.stratum!r} needs; share the nuisance "
+                    "of a fit for a stratum other than 'always_survivor', or drop `nuisance`."
+                )
         else:
             fits = [
                 self._fit_nuisance(data, seed)
@@ -203,10 +254,11 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         _, influence, parts, oriented = evaluated[chosen]
         # Only the nuisance arrays are needed from here: drop the oriented copies before the
         # principal scores are built (peak memory at a million rows).
-        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)
+        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)  # any view
         del evaluated
         self.effect_ = float(effect)
         self.std_error_ = float(std_error)
+        self.stratum_ = self._target_stratum()
         self.mean_treated_ = float(np.median(table["mean_treated"]))
         self.mean_control_ = float(np.median(table["mean_control"]))
         self.repeat_estimates_ = table
@@ -221,26 +273,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             ["always_survivor", "protected" if oriented.increasing else "harmed", "doomed"]
         )
         # Crossings within rounding (two arms fitted to the same shares) are no contradiction.
-        violations = int(np.sum(oriented.p_pure - oriented.p_mixed > VIOLATION_TOLERANCE))
-        self.n_monotonicity_violations_ = violations
-        # Small reversals are estimation noise where the arms' survival is close; warn when
-        # more than 5% of rows are reversed by more than 0.05 (thresholds: common practice,
-        # shared with diagnostics.diagnostic_warnings).
-        marked = int(np.sum(oriented.p_pure - oriented.p_mixed > SCORE_FLOOR))
-        if marked > ROW_SHARE_TOLERANCE * data.n_samples:
-            warnings.warn(
-                f"For {marked} of {data.n_samples} rows ({marked / data.n_samples:.1%}) the "
-                f"fitted survival probability under "
-                f"{'treatment' if oriented.increasing else 'control'} is more than "
-                f"{SCORE_FLOOR} below that under the other arm ({violations} rows are reversed "
-                f"by more than {VIOLATION_TOLERANCE:g}), contradicting the monotonicity "
-                "assumption. The estimates use the fitted survival probabilities as they are "
-                "(unclipped); only the principal scores that predict_proba reports are clipped "
-                "at zero there so that each row's scores add to one. Check the survival model, "
-                "and see the sensitivity analysis for monotonicity.",
-                MonotonicityWarning,
-                stacklevel=3,
-            )
+        self.n_monotonicity_violations_ = count_crossings(oriented, data.n_samples)
         self.std_error_method_ = self._std_error_method(self.nuisance_)
         # Separated binary models (SeparationWarning at fit): their sandwich is not trusted.
         self.separation_ = list(getattr(self.nuisance_, "separation", []))
@@ -353,8 +386,15 @@ class ConditionalEffectMixin:
         return conditional_effect(self, X)
 
 
-class _Roles:
-    """The two survival predictions by role, and the monotonicity direction."""
+# The formula of each method for the strata other than the always-survivors.
+_STRATUM_FORMULAS = {
+    weighting_means: _stratum_formulas.stratum_weighting_means,
+    regression_means: _stratum_formulas.stratum_regression_means,
+    robust_means: _stratum_formulas.stratum_robust_means,
+}
+
+
+class _Roles:  # the two survival predictions by role, and the monotonicity direction
 
     def __init__(self, p_mixed, p_pure, increasing):
         self.p_mixed, self.p_pure, self.increasing = p_mixed, p_pure, increasing

@@ -1,8 +1,7 @@
-"""The bootstrap fallback of the weighting and regression estimators.
+"""The estimators' fallbacks: the refitting bootstrap of the standard error (when the sandwich is
+unavailable, or asked for), and the alias ``intermediate=`` for ``survival=``.
 
-When their nuisance models do not admit the M-estimation sandwich, ``n_bootstrap`` resamples
-(within arms, or whole clusters) refit every model; the standard error is the spread of the
-refitted effects. Resamples that cannot be estimated are counted, and beyond
+Bootstrap resamples that cannot be estimated are counted by reason, and beyond
 ``MAX_FAILURE_SHARE`` the standard error is refused.
 """
 
@@ -18,11 +17,11 @@ from sklearn.base import clone
 from ..inference._failures import MAX_FAILURE_SHARE, describe_failures
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 
-__all__ = ["bootstrap_std_errors"]
+__all__ = ["bootstrap_std_errors", "intermediate_alias"]
 
 
 def bootstrap_std_errors(estimator, data):
-    """Resample rows within arms (clusters, if given) and refit every model.
+    """Resample rows within arms (clusters, if given), refit every model, keep the replicates.
 
     Sets ``bootstrap_replicates_``, ``n_bootstrap_failed_`` and ``std_error_`` (NaN, with a
     warning that counts the failures, when more than ``MAX_FAILURE_SHARE`` fail).
@@ -85,3 +84,13 @@ def _one_replicate(estimator, data, seed):
     if not np.all(np.isfinite(values)):
         return None, "a fitted probability reached 0 or 1 where the formula divides by it"
     return values, None
+
+
+def intermediate_alias(survival, intermediate):
+    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
+    if (survival is None) == (intermediate is None):
+        raise TypeError(
+            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
+            "variable under two names); got " + ("both." if survival is not None else "neither.")
+        )
+    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")

@@ -3,16 +3,20 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
 from .._features import check_feature_names
 from .._validation import check_features
+from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR, VIOLATION_TOLERANCE
+from ..exceptions import MonotonicityWarning
 from ..nuisance._models import predict_models
 from ..nuisance._stratum_arms import StratumArm
 
-__all__ = ["PrincipalScoresMixin", "check_feature_names"]
+__all__ = ["PrincipalScoresMixin", "check_feature_names", "count_crossings"]
 
 
 class PrincipalScoresMixin:
@@ -109,3 +113,27 @@ def _principal_scores(p_mixed, p_pure):
     return scores
 
 
+def count_crossings(oriented, n_samples):
+    """Rows whose fitted survival models contradict monotonicity, with the warning.
+
+    Crossings within rounding (``VIOLATION_TOLERANCE``: two arms fitted to the same shares) are
+    no contradiction. Small reversals are estimation noise where the arms' survival is close;
+    the warning needs more than 5% of rows reversed by more than 0.05 (thresholds: common
+    practice, shared with diagnostics.diagnostic_warnings).
+    """
+    violations = int(np.sum(oriented.p_pure - oriented.p_mixed > VIOLATION_TOLERANCE))
+    marked = int(np.sum(oriented.p_pure - oriented.p_mixed > SCORE_FLOOR))
+    if marked > ROW_SHARE_TOLERANCE * n_samples:
+        warnings.warn(
+            f"For {marked} of {n_samples} rows ({marked / n_samples:.1%}) the fitted survival "
+            f"probability under {'treatment' if oriented.increasing else 'control'} is more "
+            f"than {SCORE_FLOOR} below that under the other arm ({violations} rows are reversed "
+            f"by more than {VIOLATION_TOLERANCE:g}), contradicting the monotonicity "
+            "assumption. The estimates use the fitted survival probabilities as they are "
+            "(unclipped); only the principal scores that predict_proba reports are clipped "
+            "at zero there so that each row's scores add to one. Check the survival model, "
+            "and see the sensitivity analysis for monotonicity.",
+            MonotonicityWarning,
+            stacklevel=4,
+        )
+    return violations

@@ -95,6 +95,7 @@ def fit_nuisance(
     sandwich=True,
     monotonicity=None,
     check_separation=True,
+    zero_cells=False,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -128,6 +129,10 @@ def fit_nuisance(
     check_separation : bool, default=True
         Look for separated binary models (:mod:`._separation`) and warn with
         :class:`~pscore_strata.exceptions.SeparationWarning`; bootstrap refits skip it.
+    zero_cells : bool, default=False
+        Also fit the outcome model among each arm's units with intermediate 0 (stored under
+        ``outcome[(arm, 0)]`` and ``models[("outcome", arm, 0)]``): the strata other than the
+        always-survivors need ``E[Y | T=t, S=0, X]`` (docs/guide/derivations/strata.md).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -173,9 +178,14 @@ def fit_nuisance(
     survival = {0: np.empty(n), 1: np.empty(n)}
     outcome = {0: np.empty(n), 1: np.empty(n)} if fit_outcome else None
     fitted = {"treatment": [], ("survival", 0): [], ("survival", 1): []}
+    zero_cells = zero_cells and fit_outcome
     if fit_outcome:
         fitted[("outcome", 0)] = []
         fitted[("outcome", 1)] = []
+    if zero_cells:
+        for arm in (0, 1):
+            outcome[(arm, 0)] = np.empty(n)
+            fitted[("outcome", arm, 0)] = []
     for train, test in splits:
         if known_probability:
             pi[test] = float(treatment_model)
@@ -207,6 +217,12 @@ def fit_nuisance(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
                 fitted[("outcome", arm)].append(model)
+            if zero_cells:
+                rows = arm_rows[S[arm_rows] == 0]
+                model, outcome[(arm, 0)][test] = fit_predict(
+                    models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
+                )
+                fitted[("outcome", arm, 0)].append(model)
 
     result = NuisanceFit(
         treatment_probability=pi,

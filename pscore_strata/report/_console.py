@@ -38,7 +38,11 @@ def print_key_results(results, out_dir):
     level = f"{results['settings']['level']:.0%}"
     words = results["wording"]
     outcome = words.get("outcome_label") or results["columns"]["outcome"]
-    print(f"Survivor average causal effect of {words['treated_arm']} "
+    target = results.get("stratum") or {"name": "always_survivor"}
+    other = target["name"] != "always_survivor"
+    title = (f"Effect in the {target['label']} stratum" if other
+             else "Survivor average causal effect")  # fmt: skip
+    print(f"{title} of {words['treated_arm']} "
           f"('{words['treated_condition']}') against {words['control_arm']} "
           f"('{words['control_condition']}') on '{outcome}' "
           f"({results['data_overview']['n_rows_analyzed']} {words['units']} "
@@ -76,11 +80,14 @@ def print_key_results(results, out_dir):
             shown = "none to report (the CI covers 0 with no shift)"
         print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
     naive = results["naive_survivor_contrast"]
-    print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
-          "(biased; comparison)")  # fmt: skip
+    print(f"  {'Naive cell contrast' if other else 'Naive survivor contrast':<27} "
+          f"{number(naive['estimate']):>10}   (biased; comparison)")  # fmt: skip
     if not results["columns"]["covariates"]:
         print("  Unadjusted (no covariates): the estimators equal the naive contrast because "
               "principal ignorability without covariates says so; the bounds drop it.")
+    for row in (results.get("strata") or {}).get("rows", []):
+        print(f"  All strata: {row['label']:<27} share {row['share']:.1%}, effect "
+              f"{number(row['effect'])}, {level} CI {interval(row['ci_low'], row['ci_high'])}")
     for record in results["estimates"]:
         if record["ci_low"] is None:
             print(f"  {record['label']}: {record['interval_note']}")
@@ -118,6 +125,7 @@ def print_key_results(results, out_dir):
 
     print_visits(results)
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
-    print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
+    stratum = f"the {target['label']} stratum" if other else "the always-survivor stratum"
+    print(f"Caution: {stratum} is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "
           "qualified statistician review the analysis.")  # fmt: skip

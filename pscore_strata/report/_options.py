@@ -17,7 +17,6 @@ __all__ = [
     "number",
     "parse_levels",
     "add_trial_arguments",
-    "check_seed",
     "trial_settings",
 ]
 
@@ -74,6 +73,9 @@ class AnalysisOptions:
     # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
     # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
+    # The principal stratum whose effect the report is about (--stratum; derivation in
+    # docs/guide/derivations/strata.md).
+    stratum: str = "always_survivor"
     # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
     visit_population: str = "each"
     # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
@@ -157,7 +159,8 @@ def build_estimator(method, options, n_rows=None):
     """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed, missing=options.missing)  # fmt: skip
+                  random_state=options.seed, missing=options.missing,
+                  stratum=options.stratum)  # fmt: skip
     boosting = options.learner != "linear"
     if method != "weighting" and boosting:
         from sklearn.ensemble import HistGradientBoostingRegressor
@@ -204,20 +207,8 @@ def add_trial_arguments(parser):
     )  # fmt: skip
 
 
-def check_seed(seed):
-    # scikit-learn's random_state (folds, boosting, bootstrap) takes 0 .. 2**32 - 1.
-    if not 0 <= seed < 2**32:
-        raise ValueError(f"--seed must be an integer from 0 to {2**32 - 1}; got {seed}.")
-
-
 def trial_settings(args):
-    """``AnalysisOptions`` fields from the options of :func:`add_trial_arguments`, checked
-    (after ``--seed``, ``--folds`` and ``--level``, in that order)."""
-    check_seed(args.seed)
-    if args.folds is not None and args.folds < 2:
-        raise ValueError(f"--folds must be at least 2; got {args.folds}.")
-    if not 0 < args.level < 1:
-        raise ValueError(f"--level must lie strictly between 0 and 1; got {args.level}.")
+    """``AnalysisOptions`` fields from the options of :func:`add_trial_arguments`, checked."""
     probability = args.treatment_probability
     return {
         "treatment_probability": None if probability is None

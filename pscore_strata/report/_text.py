@@ -5,7 +5,9 @@ Nouns come from the study's wording record (:mod:`._wording`): the event, the un
 
 from __future__ import annotations
 
-__all__ = ["CAUTIONS", "cautions", "estimand", "assumptions"]
+__all__ = [
+    "CAUTIONS", "cautions", "estimand", "assumptions", "in_command_line_words", "plain_warning",
+]  # fmt: skip
 
 _DEFAULT_WORDS = {
     "event": "death", "unit": "unit", "units": "units",
@@ -120,3 +122,41 @@ def assumptions(roles, monotonicity, words=None):
             "checked_by": "Untestable; the bounds drop it and the sensitivity analysis relaxes it.",
         },
     ]
+
+
+# numpy's floating-point warnings ("invalid value encountered in scalar divide") say nothing
+# to a reader of the report; the numbers they concern print as n/a.
+_NUMPY_TEXTS = ("encountered in", "Mean of empty slice", "Degrees of freedom <= 0",
+                "divide by zero", "overflow")  # fmt: skip
+
+
+def plain_warning(warning):
+    """A warning's text for the report: numpy's texts and Python names in plain words."""
+    text = " ".join(str(warning.message).split())
+    if issubclass(warning.category, RuntimeWarning) and any(p in text for p in _NUMPY_TEXTS):
+        return ("a computation gave an undefined value (a division by zero or an overflow); "
+                "the numbers it concerns are shown as n/a")  # fmt: skip
+    return in_command_line_words(text)
+
+
+# A reader of the report runs the command line, not Python: the library's argument names in a
+# message become the quantities they stand for.
+_PYTHON_WORDS = (
+    ("; returning NaN.", "; shown as n/a."),
+    ("for harmed_ratio in", "for the harmed / protected stratum-size ratio in"),
+    ("for pi_difference in", "for the principal-ignorability difference in"),
+    ("at harmed_ratio=", "at a harmed / protected stratum-size ratio of "),
+    ("at pi_difference=", "at a principal-ignorability difference of "),
+    ("see sensitivity_grid around that value", "see the sensitivity table around that value"),
+    ("only the principal scores that predict_proba reports are clipped",
+     "only the principal scores shown in the figures are clipped"),
+    ("see sensitivity_grid(outcome_shift=...)",
+     "see the outcome-shift sensitivity analysis under Missing data"),
+)
+
+
+def in_command_line_words(text):
+    """Python argument and function names in a message, as the command line says them."""
+    for python, words in _PYTHON_WORDS:
+        text = text.replace(python, words)
+    return text
