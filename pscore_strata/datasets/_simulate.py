@@ -32,7 +32,7 @@ def _survival_bend(x1, x2):
 
 
 def _outcome_bend(x1, x2):
-    return 1.5 * (x1**2 - 1.0)
+    return 2.0 * (np.abs(x1) - 0.8)
 
 
 def _active_columns(X):

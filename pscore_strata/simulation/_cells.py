@@ -11,8 +11,11 @@ from __future__ import annotations
 import json
 import numbers
 import zlib
+from collections.abc import Mapping
 
 import numpy as np
+from sklearn.utils import Bunch
+from threadpoolctl import threadpool_limits
 
 from ..datasets import make_scenario
 from ._checks import check_params, check_scenarios, root_seed
@@ -59,7 +62,9 @@ def draw(spec, n, params, seed):
         data = make_scenario(spec, n, random_state=rng, **settings)
     else:
         data = spec(n_samples=n, random_state=rng, **settings)
-    missing = [f for f in _FIELDS if not hasattr(data, "__contains__") or f not in data]
+    if isinstance(data, Mapping) and not isinstance(data, Bunch):
+        data = Bunch(**data)
+    missing = [f for f in _FIELDS if not isinstance(data, Mapping) or f not in data]
     if missing:
         raise ValueError(
             f"A scenario callable returned an object without {', '.join(missing)}; it must "
@@ -74,6 +79,13 @@ def draw(spec, n, params, seed):
 
 
 def run_cell(estimators, scenario, spec, n, params, replicate, entropy, level):
+    # A study parallelizes over cells; a multithreaded BLAS inside each fit only competes with
+    # the other workers (and is many times slower on a busy machine), so each cell runs with one.
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _run_cell(estimators, scenario, spec, n, params, replicate, entropy, level)
+
+
+def _run_cell(estimators, scenario, spec, n, params, replicate, entropy, level):
     data = draw(spec, n, params, cell_seed(entropy, scenario, n, params, replicate, 0))
     truth_lower, truth_upper = data.get("true_bounds") or (np.nan, np.nan)
     rows = []

@@ -50,8 +50,21 @@ def _source_digest(obj):
     try:
         return "source:" + _sha(inspect.getsource(obj))
     except (OSError, TypeError):
-        code = getattr(obj, "__code__", None)
-        return "code:" + _code_digest(code) if code is not None else "unavailable"
+        pass
+    code = getattr(obj, "__code__", None)
+    if code is not None:
+        return "code:" + _code_digest(code)
+    if inspect.isclass(obj):
+        # A class typed at a prompt or made by exec: digest the code of its own functions.
+        functions = {
+            name: _code_digest(member.__code__)
+            for name, member in sorted(vars(obj).items())
+            if inspect.isfunction(getattr(member, "__func__", member))
+            and hasattr(getattr(member, "__func__", member), "__code__")
+            for member in [getattr(member, "__func__", member)]
+        }
+        return "code:" + _sha(json.dumps(functions, sort_keys=True))
+    return "unavailable"
 
 
 def _name(obj):
