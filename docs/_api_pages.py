@@ -19,7 +19,7 @@ import pscore_strata
 
 # Reading order of the families; a subpackage missing here is appended alphabetically.
 ORDER = ["estimators", "assumptions", "distributions", "inference", "diagnostics", "plotting",
-         "datasets", "simulation", "nuisance", "report"]  # fmt: skip
+         "datasets", "simulation", "nuisance", "report", "tables"]  # fmt: skip
 
 
 def _families():

@@ -12,6 +12,7 @@ from . import (
     nuisance,
     plotting,
     simulation,
+    tables,
 )
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
@@ -67,6 +68,7 @@ __all__ = [
     "distributions",
     "datasets",
     "simulation",
+    "tables",
     "diagnostics",
     "plotting",
     "assumptions",

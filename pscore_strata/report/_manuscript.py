@@ -1,0 +1,316 @@
+"""The analysis as manuscript tables: results, balance, weights, sensitivity, subgroups, quantiles.
+
+Every table is built from the ``results`` dictionary (the contents of results.json), with the
+report's number formats (:mod:`._format`), so a table, the report and the JSON file agree at the
+printed precision. The footnotes state the assumptions and the cautions in the study's words.
+"""
+
+from __future__ import annotations
+
+import math
+
+import pandas as pd
+
+from ..tables import Table, write_tables
+from ._format import count, number
+
+__all__ = ["manuscript_tables", "write_manuscript_tables", "TABLE_FORMATS"]
+
+TABLE_FORMATS = ("docx", "tex", "md")
+_RIGHT = "right"
+MAX_GRID_ROWS = 21
+
+
+def _interval(record, low="ci_low", high="ci_high"):
+    if record.get(low) is None or record.get(high) is None:
+        return None
+    return (record[low], record[high])
+
+
+def _numbers(frame, columns):
+    """Pre-formatted cells: the report's text for each number, "—" where there is none."""
+    for column in columns:
+        frame[column] = [_cell(v) for v in frame[column]]
+    return frame
+
+
+def _cell(value):
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "—"
+    if isinstance(value, tuple):
+        return f"{number(value[0])} to {number(value[1])}"
+    return number(value)
+
+
+def _words(results):
+    words = results["wording"]
+    outcome = words.get("outcome_label") or results["columns"]["outcome"]
+    return words, outcome
+
+
+def assumptions_note(results):
+    """One footnote naming the assumptions (in the study's words) and the cautions."""
+    parts = [f"{a['name']}: {a['statement'].rstrip('.')}" for a in results["assumptions"]]
+    words, _ = _words(results)
+    return (
+        "Assumptions of the point estimates — " + "; ".join(parts) + ". The bounds drop "
+        "principal ignorability. The always-survivor stratum is latent and these assumptions "
+        "cannot be tested; the estimates describe a population, not any individual "
+        f"{words['unit']}, and are to be read under the study protocol with a qualified "
+        "statistician."
+    )
+
+
+def short_assumptions_note(results):
+    words, _ = _words(results)
+    return (
+        "Estimates assume monotonicity and principal ignorability (stated in the note to the "
+        "results table); the always-survivor stratum is latent and these assumptions cannot be "
+        f"tested. Population-level summaries, not for decisions about an individual "
+        f"{words['unit']}."
+    )
+
+
+def _level(results):
+    return f"{results['settings']['level']:.0%} CI"
+
+
+def results_table(results):
+    words, outcome = _words(results)
+    level = _level(results)
+    rows, notes = [], []
+    effect_group = "Survivor average causal effect"
+    for record in results["estimates"]:
+        label = record["label"] + (" (primary)" if record["primary"] else "")
+        rows.append((effect_group, label, record["effect"], record["std_error"],
+                     _interval(record), record["std_error_method"]))  # fmt: skip
+        if record.get("interval_note"):
+            notes.append(f"{record['label']}: {record['interval_note']}")
+    boot = results.get("bootstrap")
+    if boot:
+        primary = next(r for r in results["estimates"] if r["primary"])
+        rows.append((effect_group, f"{primary['label']}, bootstrap", boot["estimate"],
+                     boot["std_error"], _interval(boot),
+                     f"{boot['n_resamples']} resamples, {boot['interval']} interval"))  # fmt: skip
+    bounds = results.get("bounds") or {}
+    if "lower" in bounds:
+        rows.append(("Without principal ignorability", "Bounds (lower to upper)",
+                     (bounds["lower"], bounds["upper"]), None, _interval(bounds),
+                     "Imbens-Manski interval"))  # fmt: skip
+        if bounds.get("interval_note"):
+            notes.append(f"Bounds: {bounds['interval_note']}")
+    naive = results["naive_survivor_contrast"]
+    rows.append(("For comparison", "Survivors only, treated minus control (biased)",
+                 naive["estimate"], naive["std_error"], _interval(naive),
+                 "influence function"))  # fmt: skip
+    for name, share in results["stratum_shares"].items():
+        rows.append(("Principal strata (share of all units)", name.replace("_", "-"),
+                     share["estimate"], share["std_error"], _interval(share),
+                     "influence function"))  # fmt: skip
+    frame = pd.DataFrame(rows, columns=["group", "Analysis", "Estimate", "SE", level,
+                                        "Standard error"])  # fmt: skip
+    _numbers(frame, ["Estimate", "SE", level])
+    caption = (f"Effect of {words['treated_arm']} versus {words['control_arm']} on {outcome} "
+               f"among always-survivors (n = {count(results['data_overview']['n_rows_analyzed'])}"
+               f" {words['units']})")  # fmt: skip
+    footnote = [
+        f"SACE: survivor average causal effect, the mean difference in {outcome} between "
+        f"{words['treated_arm']} ('{words['treated_condition']}') and {words['control_arm']} "
+        f"('{words['control_condition']}') among {words['units']} who would survive "
+        f"(no {words['event']}) under either arm. SE: standard error; CI: confidence interval.",
+        *notes,
+        assumptions_note(results),
+    ]
+    right = {c: _RIGHT for c in ("Estimate", "SE", level)}
+    return Table(frame, caption, footnote=footnote, group_column="group", align=right,
+                 label="tab:sace")
+
+
+BALANCE_COLUMNS = {
+    "covariate": "Covariate",
+    "raw_smd_treated_vs_control": "Survivors, unweighted: treated vs control",
+    "smd_treated_vs_control": "Weighted: treated vs control",
+    "smd_treated_vs_everyone": "Treated vs everyone",
+    "smd_control_vs_everyone": "Control vs everyone",
+}
+
+
+def balance_table(results):
+    diagnostics = results.get("diagnostics") or {}
+    if not diagnostics.get("balance"):
+        return None
+    words, _ = _words(results)
+    frame = pd.DataFrame(diagnostics["balance"])[list(BALANCE_COLUMNS)].rename(
+        columns=BALANCE_COLUMNS
+    )
+    numeric = list(BALANCE_COLUMNS.values())[1:]
+    _numbers(frame, numeric)
+    ess = diagnostics.get("effective_sample_size") or {}
+    footnote = [
+        "Standardized mean differences of the covariates between the three weighted "
+        "reconstructions of the always-survivors (treated survivors weighted by "
+        "p0 / (pi p1), control survivors by 1 / (1 - pi), everyone by p0; Ding and Lu, 2017); "
+        "when the models are right they agree. The first column is the unweighted comparison of "
+        "the survivors, which shows the imbalance the analysis removes. An absolute value "
+        "below 0.1 is a common rule of thumb.",
+    ]
+    if ess:
+        footnote.append("Effective sample sizes: " + "; ".join(
+            f"{name.replace('_', ' ')} {count(value)}" for name, value in ess.items()) + ".")
+    footnote.append(short_assumptions_note(results))
+    return Table(frame, f"Covariate balance of the always-survivor reconstructions "
+                 f"({words['treated_arm']} versus {words['control_arm']})", footnote=footnote,
+                 align={c: _RIGHT for c in numeric}, label="tab:balance")  # fmt: skip
+
+
+WEIGHT_COLUMNS = {"weights": "Weights", "n_rows": "Rows", "median": "Median", "max": "Maximum",
+                  "max_over_median": "Maximum / median",
+                  "effective_sample_size": "Effective sample size"}  # fmt: skip
+
+
+def weights_table(results):
+    diagnostics = results.get("diagnostics") or {}
+    if not diagnostics.get("weights"):
+        return None
+    frame = pd.DataFrame(diagnostics["weights"])[list(WEIGHT_COLUMNS)].rename(
+        columns=WEIGHT_COLUMNS
+    )
+    frame["Weights"] = [str(v).replace("_", " ") for v in frame["Weights"]]
+    frame["Rows"] = [count(v) for v in frame["Rows"]]
+    frame["Effective sample size"] = [count(v) for v in frame["Effective sample size"]]
+    _numbers(frame, ["Median", "Maximum", "Maximum / median"])
+    return Table(frame, "Weights of the principal score weighting estimator", footnote=[
+        "Effective sample size: (sum of weights)^2 / sum of squared weights (Kish). A maximum "
+        "far above the median means a few rows carry the estimate.",
+    ], align={c: _RIGHT for c in list(WEIGHT_COLUMNS.values())[1:]}, label="tab:weights")
+
+
+def _grid_table(results, key, parameter, caption, label):
+    sens = results.get("sensitivity") or {}
+    if key not in sens:
+        return None
+    _, outcome = _words(results)
+    level = _level(results)
+    record = sens[key]
+    grid, every = record["grid"], 1
+    while len(grid[::every]) > MAX_GRID_ROWS:
+        every += 1
+    # Every k-th value, counted from the null value (0) so that it stays in the table.
+    null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
+    shown = [r for i, r in enumerate(grid) if (i - null) % every == 0]
+    frame = pd.DataFrame(
+        [(r["value"], r["effect"], r["std_error"], _interval(r)) for r in shown],
+        columns=[parameter, "SACE", "SE", level],
+    )
+    _numbers(frame, ["SACE", "SE", level])
+    tip = record.get("tipping_point")
+    tip_text = ("not reached within the grid" if tip is None else number(tip))
+    footnote = [f"{parameter}: {record['description']}",
+                f"Tipping point ({sens.get('criterion', 'the interval first covers 0')}): "
+                f"{tip_text}."]  # fmt: skip
+    if every > 1:
+        footnote.append(f"One grid value in {every} is shown; results.json holds all "
+                        f"{len(grid)}.")
+    if sens.get("interval_note"):
+        footnote.append(sens["interval_note"])
+    footnote.append(short_assumptions_note(results))
+    return Table(frame, caption.format(outcome=outcome), footnote=footnote,
+                 formats={parameter: ".4g"}, align={c: _RIGHT for c in frame.columns},
+                 label=label)  # fmt: skip
+
+
+def subgroup_table(results):
+    record = results.get("subgroups") or {}
+    if not record.get("rows"):
+        return None
+    _, outcome = _words(results)
+    level = _level(results)
+    frame = pd.DataFrame(
+        [(str(r["label"]), r["n"], r["effect"], r["std_error"], _interval(r))
+         for r in record["rows"]],
+        columns=[record["column"], "Rows", "SACE", "SE", level],
+    )  # fmt: skip
+    frame["Rows"] = [count(v) for v in frame["Rows"]]
+    _numbers(frame, ["SACE", "SE", level])
+    footnote = [note for note in [record.get("interval_note")] if note]
+    footnote += [*record.get("notes", []), short_assumptions_note(results)]
+    return Table(frame, f"Survivor average causal effect on {outcome} by {record['column']}",
+                 footnote=footnote, align={c: _RIGHT for c in frame.columns[1:]},
+                 label="tab:subgroups")  # fmt: skip
+
+
+def quantile_table(results):
+    record = results.get("distributions") or {}
+    if not record.get("available") or not record.get("quantile_effects"):
+        return None
+    words, outcome = _words(results)
+    level = _level(results)
+    bounds = {b["quantile"]: b for b in record.get("quantile_bounds") or []}
+    rows = []
+    for q in record["quantile_effects"]:
+        b = bounds.get(q["quantile"])
+        rows.append((q["quantile"], q["treated"], q["control"], q["effect"], q["std_error"],
+                     _interval(q), (b["lower"], b["upper"]) if b else None,
+                     _interval(b) if b else None))  # fmt: skip
+    columns = ["Quantile", words["treated_arm"], words["control_arm"], "Difference", "SE", level,
+               "Bounds", f"Bounds, {level}"]  # fmt: skip
+    frame = pd.DataFrame(rows, columns=columns)
+    _numbers(frame, columns[1:])
+    footnote = [
+        f"Quantiles of {outcome} among always-survivors under each arm and their difference "
+        "(quantile effects); bounds without principal ignorability from trimming.",
+        *record.get("notes", []),
+        short_assumptions_note(results),
+    ]
+    return Table(frame, f"Quantile effects on {outcome} among always-survivors",
+                 footnote=footnote, formats={"Quantile": ".2f"},
+                 align={c: _RIGHT for c in columns}, label="tab:quantiles")  # fmt: skip
+
+
+def manuscript_tables(analysis):
+    """The tables of an analysis, ready for a manuscript.
+
+    Parameters
+    ----------
+    analysis : Analysis or dict
+        What :func:`run_analysis` returned, or its ``results`` (the contents of results.json).
+
+    Returns
+    -------
+    dict of str to pscore_strata.tables.Table
+        ``"results"`` (estimators, SACE, SE, interval, bounds, naive contrast, stratum shares)
+        and, when the analysis has them, ``"balance"``, ``"weights"``,
+        ``"sensitivity_ignorability"``, ``"sensitivity_monotonicity"``, ``"subgroups"`` and
+        ``"quantiles"``. Numbers print as in the HTML report.
+    """
+    results = getattr(analysis, "results", analysis)
+    tables = {
+        "results": results_table(results),
+        "balance": balance_table(results),
+        "weights": weights_table(results),
+        "sensitivity_ignorability": _grid_table(
+            results, "pi_difference", "Difference in mean outcome",
+            "Sensitivity of the SACE on {outcome} to principal ignorability", "tab:sens-pi"),
+        "sensitivity_monotonicity": _grid_table(
+            results, "harmed_ratio", "Stratum ratio",
+            "Sensitivity of the SACE on {outcome} to monotonicity", "tab:sens-mono"),
+        "subgroups": subgroup_table(results),
+        "quantiles": quantile_table(results),
+    }  # fmt: skip
+    return {name: table for name, table in tables.items() if table is not None}
+
+
+def write_manuscript_tables(analysis, out_dir, formats=TABLE_FORMATS):
+    """Write ``tables.<format>`` (every table of the analysis, in order) into ``out_dir``.
+
+    Returns
+    -------
+    list of pathlib.Path
+    """
+    import pathlib
+
+    tables = manuscript_tables(analysis)
+    results = getattr(analysis, "results", analysis)
+    title = f"Tables: survivor average causal effect on {_words(results)[1]}"
+    return [write_tables(tables, pathlib.Path(out_dir) / f"tables.{fmt}", fmt, title=title)
+            for fmt in formats]  # fmt: skip
