@@ -154,12 +154,15 @@ def statistical_benchmark(n_reps, n_jobs, checkpoint, figure):
         "",
         "Read: bias should be within about 2 MC s.e. of 0 and coverage near 0.95 (within about 2 "
         "MC s.e.) where the assumptions hold and the models are right (`linear`, `binary`, "
-        "`clustered`, `weak_overlap` at large n); `nonlinear` misspecifies the working models, "
-        "`pi_violated` and `monotonicity_violated` break an identifying assumption, so bias "
-        "there shows what the violation costs. 'failed' counts fits that raised or returned a "
-        "non-finite estimate.",
+        "`clustered`, `weak_overlap` at large n); `nonlinear` misspecifies every working model "
+        "and the `*_misspecified` scenarios one model family each (so only the estimators that "
+        "rely on that model are biased), `pi_violated` and `monotonicity_violated` break an "
+        "identifying assumption, so bias there shows what the violation costs. Each "
+        "scenario's stated bias directions are in `list_scenarios()` (and checked by "
+        "`scenario_bias.py`). 'failed' counts fits that raised or returned a non-finite "
+        "estimate.",
         "",
-        markdown_table(described[["name", "truth", "description"]]),
+        markdown_table(described[["name", "truth", "bias", "description"]]),
         "",
         markdown_table(table, floats),
         "",

@@ -14,6 +14,7 @@ from . import (
     simulation,
     tables,
 )
+from ._version import __version__
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
     balance_table,
@@ -33,8 +34,6 @@ from .distributions import (
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
-
-__version__ = "0.1.0"
 
 
 def __getattr__(name):

@@ -46,8 +46,9 @@ def test_each_scenario_shows_its_stated_bias(name):
     estimators = {k: v for k, v in ESTIMATORS.items() if k in stated}
     if "complete_cases" in stated:
         estimators["complete_cases"] = CompleteCases()
-    results = ps.simulation.run_study(estimators, name, SMALLER.get(name, N), n_reps=REPS_FOR.get(name, REPS),
-                                      random_state=29, n_jobs=1)  # fmt: skip
+    results = ps.simulation.run_study(estimators, name, SMALLER.get(name, N),
+                                      n_reps=REPS_FOR.get(name, REPS), random_state=29,
+                                      n_jobs=1)  # fmt: skip
     summary = ps.simulation.summarize(results).set_index("estimator")
     assert (summary["n_failed"] == 0).all()
     for estimator, direction in stated.items():
@@ -75,3 +76,15 @@ def test_survival_misspecified_truth_matches_gauss_hermite_quadrature():
 def test_each_scenario_states_a_bias_for_every_built_in_estimator(name):
     assert set(ESTIMATORS) <= set(SCENARIOS[name].bias)
     assert SCENARIOS[name].truth in ("exact", "quadrature", "monte_carlo")
+
+
+def test_the_guide_lists_every_scenario_with_its_stated_biases():
+    from pathlib import Path
+
+    page = (Path(__file__).parents[1] / "docs" / "guide" / "simulation.md").read_text()
+    rows = {line.split("|")[1].strip().strip("`"): line.split("|")[3].strip()
+            for line in page.splitlines() if line.startswith("| `")}  # fmt: skip
+    for name, record in SCENARIOS.items():
+        assert name in rows, name
+        stated = " / ".join(record.bias[k] for k in ESTIMATORS)
+        assert rows[name] == stated, (name, rows[name], stated)

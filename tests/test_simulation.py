@@ -112,8 +112,8 @@ def test_summary_matches_hand_computation():
     # Source: hand arithmetic. Errors 0.2, -0.1, 0.5 -> bias 0.6/3 = 0.2. Mean estimate 1.2;
     # squared deviations 0, 0.09, 0.09 -> SD sqrt(0.18/2) = 0.3. RMSE sqrt((0.04+0.01+0.25)/3)
     # = sqrt(0.1). Mean SE 0.3; model SE sqrt((0.04+0.16+0.09)/3) (root mean squared SE,
-    # Morris, White & Crowther 2019) -> SE/SD sqrt(0.29/3)/0.3. Intervals [0.8,1.6] and [0.1,1.7] hold 1.0, [1.1,1.9]
-    # does not -> coverage 2/3; widths 0.8, 1.6, 0.8 -> mean 3.2/3.
+    # Morris, White & Crowther 2019) -> SE/SD sqrt(0.29/3)/0.3. Intervals [0.8,1.6] and
+    # [0.1,1.7] hold 1.0, [1.1,1.9] does not -> coverage 2/3; widths 0.8, 1.6, 0.8 -> mean 3.2/3.
     assert (row.n_reps, row.n_failed) == (4, 1)
     assert row.bias == pytest.approx(0.2)
     assert row.mean_estimate == pytest.approx(1.2)

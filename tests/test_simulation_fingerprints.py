@@ -127,7 +127,7 @@ def test_estimator_parameters_library_version_and_version_tag_are_fingerprinted(
     run_study(**STUDY, scenarios={"trial": trial}, checkpoint=tmp_path, version="data v1")
     refused(tmp_path, "version= tag 'data v1' -> 'data v2'", scenarios={"trial": trial},
             version="data v2")
-    monkeypatch.setattr(ps, "__version__", "99.0")
+    monkeypatch.setattr("pscore_strata._version.__version__", "99.0")
     refused(tmp_path, "pscore_strata version", "-> '99.0'", scenarios={"trial": trial},
             version="data v1")
 

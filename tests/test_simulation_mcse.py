@@ -83,7 +83,8 @@ def test_relative_efficiency_and_paired_difference_match_morris():
     shared = rng.standard_normal(60)
     a = 1.0 + 0.1 * shared + 0.05 * rng.standard_normal(60)
     b = 1.0 + 0.1 * shared + 0.12 * rng.standard_normal(60)
-    table = pd.concat([_table(list(a), [0.1] * 60, 1.0, "ref"), _table(list(b), [0.1] * 60, 1.0, "new")])
+    table = pd.concat([_table(list(a), [0.1] * 60, 1.0, "ref"),
+                       _table(list(b), [0.1] * 60, 1.0, "new")])  # fmt: skip
     summary = summarize(table, reference="ref").set_index("estimator")
     n = 60
     mean_a, mean_b = sum(a) / n, sum(b) / n
@@ -205,3 +206,33 @@ def test_plot_draws_monte_carlo_error_bars_on_every_panel():
         halves = [abs(seg[1][1] - seg[0][1]) / 2 for seg in segments]
         np.testing.assert_allclose(halves, 2 * summary[f"{column}_mcse"], rtol=1e-8)
     matplotlib.pyplot.close(fig)
+
+
+def test_summary_table_prints_every_measure_with_its_mcse_in_every_format(tmp_path):
+    from _table_readers import read_latex, read_markdown
+
+    rng = np.random.default_rng(5)
+    table = pd.concat([
+        _table(list(1 + 0.1 * rng.standard_normal(30)), [0.1] * 30, 1.0, name).assign(scenario=s)
+        for s in ("first", "second") for name in ("ref", "new")
+    ])  # fmt: skip
+    summary = summarize(table, reference="ref")
+    written = ps.simulation.summary_table(summary, caption="Monte Carlo study", label="tab:mc")
+    written.write(tmp_path / "mc.tex")
+    written.write(tmp_path / "mc.md")
+    for read, path in ((read_latex, "mc.tex"), (read_markdown, "mc.md")):
+        header, rows = read((tmp_path / path).read_text())["Monte Carlo study"]
+        assert header[:3] == ["Estimator", "n", "Bias"]
+        body = [r for r in rows if r[0] not in ("first", "second", "**first**", "**second**")]
+        assert len(body) == 4
+        for printed, row in zip(body, summary.itertuples(), strict=True):
+            # Source: the summary's own numbers, formatted to three decimals by hand.
+            assert printed[2] == f"{row.bias:.3f} ({row.bias_mcse:.3f})".replace("-0.000", "0.000")
+            assert printed[6] == f"{row.coverage:.3f} ({row.coverage_mcse:.3f})"
+            assert printed[7] == (f"{row.relative_efficiency:.3f} "
+                                  f"({row.relative_efficiency_mcse:.3f})")  # fmt: skip
+    assert "Morris, White & Crowther" in (tmp_path / "mc.md").read_text()
+    with pytest.raises(ValueError, match="`measures` must name columns.*'power'"):
+        ps.simulation.summary_table(summary, measures=["power"])
+    with pytest.raises(TypeError, match="`summary` must be"):
+        ps.simulation.summary_table(table)

@@ -86,7 +86,8 @@ def describe_value(value, depth=0):
         return f"<{_name(type(value))}>"
     if isinstance(value, np.ndarray):
         array = np.ascontiguousarray(value)
-        return {"array": _sha(array.tobytes()), "shape": list(array.shape), "dtype": str(array.dtype)}
+        return {"array": _sha(array.tobytes()), "shape": list(array.shape),
+                "dtype": str(array.dtype)}  # fmt: skip
     if isinstance(value, list | tuple):
         return [describe_value(v, depth + 1) for v in value]
     if isinstance(value, dict):
@@ -112,7 +113,7 @@ def callable_fingerprint(func, depth=0):
             "keywords": describe_value(dict(func.keywords), depth + 1),
         }
     target = func if inspect.isfunction(func) or inspect.ismethod(func) else None
-    if target is None and not inspect.isclass(func) and hasattr(type(func), "__call__"):
+    if target is None and not inspect.isclass(func) and callable(func):
         # A callable object: its class's code and its state.
         state = getattr(func, "__dict__", {})
         return {

@@ -39,7 +39,8 @@ def seeded_clone(estimator, seed):
 
 def is_bounds(fitted):
     """Whether a fitted estimator reports bounds rather than a point estimate."""
-    return not hasattr(fitted, "effect_") and hasattr(fitted, "lower_") and hasattr(fitted, "upper_")
+    has_bounds = hasattr(fitted, "lower_") and hasattr(fitted, "upper_")
+    return has_bounds and not hasattr(fitted, "effect_")
 
 
 def _wald(center, std_error, level):

@@ -12,6 +12,7 @@ from __future__ import annotations
 import pandas as pd
 from joblib import Parallel, delayed, effective_n_jobs
 
+from .. import _version
 from ._cells import run_cell
 from ._checks import (
     check_count,
@@ -31,10 +32,8 @@ __all__ = ["run_study"]
 
 
 def _fingerprints(estimators, scenarios, version):
-    from .. import __version__
-
     return {
-        "library": __version__,
+        "library": _version.__version__,
         "version": version,
         "estimators": {name: estimator_fingerprint(est) for name, est in estimators.items()},
         "scenarios": {name: scenario_fingerprint(name, spec) for name, spec in scenarios.items()},
@@ -201,8 +200,9 @@ def run_study(
     entropy = root.entropy
 
     cells = [
-        (s, n, p, r) for s in named_scenarios for n in sizes for p in settings for r in range(n_reps)
-    ]
+        (s, n, p, r)
+        for s in named_scenarios for n in sizes for p in settings for r in range(n_reps)
+    ]  # fmt: skip
     done = store.load() if store is not None else tidy([])
     finished = set(zip(*(done[k] for k in KEY), strict=True))
     pending = [c for c in cells if c not in finished]
