@@ -83,10 +83,19 @@ def test_a_partial_of_make_truncation_is_a_scenario_and_its_arguments_are_finger
     same(run_study(**study, scenarios=new, checkpoint=tmp_path), redone)  # now stored
 
 
-def test_a_closure_value_is_fingerprinted(tmp_path):
+def test_a_closure_value_and_the_scenario_code_are_fingerprinted(tmp_path):
     run_study(**STUDY, scenarios={"trial": make_trial(0.5)}, checkpoint=tmp_path)
     refused(tmp_path, "scenario 'trial': closure.effect 0.5 -> 0.8",
             scenarios={"trial": make_trial(0.8)})
+    # Code typed at a prompt has no source file: its compiled code is fingerprinted instead.
+    namespace = {"trial": trial}
+    for shift in ("0.5", "0.9"):
+        exec(f"def typed(n_samples, random_state):\n    return trial(n_samples, random_state, "
+             f"effect={shift})\n", namespace)  # fmt: skip
+        if shift == "0.5":
+            run_study(**STUDY, scenarios={"typed": namespace["typed"]}, checkpoint=tmp_path / "p")
+    refused(tmp_path / "p", "scenario 'typed': the code of the callable changed",
+            scenarios={"typed": namespace["typed"]})
 
 
 def test_changed_fit_code_with_the_same_repr_is_refused(tmp_path):
@@ -112,7 +121,7 @@ def test_changed_fit_code_with_the_same_repr_is_refused(tmp_path):
         mine = importlib.reload(mine)
         assert repr(mine.MyEstimator()) == before
         study["estimators"] = {"mine": mine.MyEstimator()}
-        with pytest.raises(ValueError, match="estimator 'mine': the code of sources"):
+        with pytest.raises(ValueError, match="estimator 'mine': the code of class my_estimators.MyEstimator changed"):
             run_study(**study, scenarios={"trial": trial}, checkpoint=tmp_path / "ck")
         redone = run_study(**study, scenarios={"trial": trial}, checkpoint=tmp_path / "ck",
                            overwrite="changed")  # fmt: skip

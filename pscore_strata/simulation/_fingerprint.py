@@ -190,8 +190,11 @@ def differences(stored, current, limit=4):
     for key in sorted(set(a) | set(b)):
         if a.get(key, "<absent>") != b.get(key, "<absent>"):
             old, new = a.get(key, "<absent>"), b.get(key, "<absent>")
-            if "source" in key or "sources" in key:
-                changed.append(f"the code of {key.rsplit('.', 1)[0] or 'it'} changed")
+            if key.startswith("sources."):
+                changed.append(f"the code of class {key.removeprefix('sources.')} changed")
+            elif key.endswith("source"):
+                where = key.removesuffix("source").rstrip(".") or "the callable"
+                changed.append(f"the code of {where} changed")
             else:
                 changed.append(f"{key or 'value'} {_short(old)} -> {_short(new)}")
     if len(changed) > limit:
