@@ -162,31 +162,54 @@ def test_study_with_unknown_truth_and_without_conf_int():
         run_study([PointOnly()], {"inf": infinite_truth}, 80, n_reps=1, random_state=0)
 
 
-def trial_with_bounds(n_samples, random_state):
+def own_trial(n_samples, random_state):
     data = ps.datasets.make_truncation(n_samples, design="randomized", pi_difference=1.0,
                                        random_state=random_state)  # fmt: skip
-    # The identified set of the unadjusted bounds at these settings, from 10^6 simulated
-    # potential outcomes (benchmarks/README.md, trimming bounds table): [0.591, 2.242].
-    data.true_bounds = (0.591, 2.242)
+    data.true_bounds = (0.5, 2.0)  # a scenario may state its identified set itself
     return data
 
 
+def test_the_identified_set_matches_the_trimming_recipe_on_potential_outcomes():
+    # Source: the population bounds written out as in benchmarks/bounds_sensitivity_coverage.py
+    # (Zhang & Rubin 2003; Lee 2009): trim Y(1) of the S(1) = 1 units by q = P(S(0)=1)/P(S(1)=1)
+    # and subtract the S(0) = 1 units' mean Y(0), on 10^6 units of another seed. (TrimmingBounds
+    # on one randomized sample of 300,000 gave 0.592 and 2.147: the estimator's limit.)
+    from pscore_strata.datasets._identified import identified_set
+
+    big = ps.datasets.make_truncation(1_000_000, design="randomized", pi_difference=1.0,
+                                      random_state=99)  # fmt: skip
+    q = big.s0.mean() / big.s1.mean()
+    y1 = np.sort(big.y1[big.s1 == 1])
+    k = int(round(q * y1.size))
+    control = big.y0[big.s0 == 1].mean()
+    lower, upper = identified_set(design="randomized", pi_difference=1.0)
+    assert lower == pytest.approx(y1[:k].mean() - control, abs=0.01)
+    assert upper == pytest.approx(y1[-k:].mean() - control, abs=0.01)
+
+
 def test_bounds_estimators_are_studied():
-    results = run_study({"bounds": ps.TrimmingBounds(), "weighting": ps.PrincipalScoreWeighting()},
-                        {"randomized": trial_with_bounds}, 1500, n_reps=4, random_state=1)
+    estimators = {"bounds": ps.TrimmingBounds(), "weighting": ps.PrincipalScoreWeighting()}
+    results = run_study(estimators, "pi_violated", 1500, n_reps=4, random_state=1,
+                        params=[{"design": "randomized"}])  # fmt: skip
     bounds = results[results["estimator"] == "bounds"]
     assert (bounds["kind"] == "bounds").all() and bounds["estimate"].isna().all()
     assert (bounds["lower"] < bounds["upper"]).all()
     assert (bounds["set_low"] <= bounds["ci_low"]).all()  # the set's interval is the wider
-    assert (bounds["truth_lower"] == 0.591).all()
+    from pscore_strata.datasets._identified import identified_set
+
+    true_lower, true_upper = identified_set(pi_difference=1.0, design="randomized")
+    assert (bounds["truth_lower"] == true_lower).all() and (bounds["truth_upper"] == true_upper).all()
     summary = summarize(results).set_index("estimator")
     row = summary.loc["bounds"]
     assert row.kind == "bounds" and row.coverage == 1.0 and row.set_coverage == 1.0
-    assert row.lower_bias == pytest.approx(bounds["lower"].mean() - 0.591)
+    assert row.lower_bias == pytest.approx(bounds["lower"].mean() - true_lower)
     assert row.mean_bounds_width == pytest.approx((bounds["upper"] - bounds["lower"]).mean())
     assert summary.loc["weighting", "kind"] == "point"
     fig = plot_summary(summarize(results))  # bounds rows are left out of the point panels
     assert len(fig.axes) == 4
+    own = run_study({"bounds": ps.TrimmingBounds()}, {"own": own_trial}, 600, n_reps=1,
+                    random_state=0)  # fmt: skip
+    assert own[["truth_lower", "truth_upper"]].iloc[0].tolist() == [0.5, 2.0]
 
 
 def test_plot_draws_monte_carlo_error_bars_on_every_panel():

@@ -23,7 +23,8 @@ class Scenario:
     (``"weighting"``, ``"regression"``, ``"multiply_robust"``; ``"complete_cases"`` for the
     multiply robust estimator on complete cases where data are missing), the direction of the
     large-sample bias: ``"none"``, ``"up"`` or ``"down"``. The statements are checked by
-    simulation in the test suite.
+    simulation in the test suite. ``bounds(**params)``, when given, returns the identified set
+    ``(lower, upper)`` that covariate-free trimming bounds estimate, for studies of bounds.
     """
 
     make: object
@@ -32,6 +33,7 @@ class Scenario:
     bias: dict = field(default_factory=dict)
     params: dict = field(default_factory=dict)
     family: str = "truncation"
+    bounds: object = None
 
     def __post_init__(self):
         wrong = {k: v for k, v in self.bias.items() if v not in BIAS_DIRECTIONS}

@@ -4,6 +4,7 @@ import functools
 
 from ._checks import check_choice, check_positive_int, check_real
 from ._family import Scenario
+from ._identified import identified_set
 from ._missing import apply_missingness, check_missingness
 from ._simulate import (
     DESIGNS,
@@ -88,6 +89,7 @@ def _truncation(description, bias, **params):
     return Scenario(
         make=functools.partial(_draw), description=description,
         truth="exact" if exact else "monte_carlo", bias=bias, params=params,
+        bounds=identified_set,
     )
 
 

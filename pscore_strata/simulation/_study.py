@@ -96,7 +96,8 @@ def run_study(
         :func:`~pscore_strata.datasets.make_truncation` works) returning a Bunch with ``X``,
         ``y``, ``treatment``, ``survival``, ``true_effect`` (finite, or NaN for an unknown
         truth) and optionally ``groups`` (passed to ``fit``, so standard errors are
-        cluster-robust) and ``true_bounds`` (the identified set, for bounds estimators).
+        cluster-robust) and ``true_bounds`` (the identified set, for bounds estimators; the
+        named truncation scenarios compute theirs by a large simulation).
     n_samples : int or list of int
         Sample size(s) to simulate.
     n_reps : int
