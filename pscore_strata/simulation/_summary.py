@@ -216,8 +216,8 @@ def summarize(results, *, reference=None):
     ...     {"weighting": ps.PrincipalScoreWeighting(), "robust": ps.MultiplyRobust()},
     ...     "linear", 400, n_reps=4, random_state=0)
     >>> summary = ps.simulation.summarize(results, reference="weighting")
-    >>> summary[["estimator", "relative_efficiency"]].iloc[0].tolist()
-    ['weighting', 1.0]
+    >>> float(summary["relative_efficiency"].iloc[0])  # the reference against itself
+    1.0
     """
     if not isinstance(results, pd.DataFrame):
         raise TypeError(
