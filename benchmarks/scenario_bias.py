@@ -56,6 +56,8 @@ def main():
     start = time.perf_counter()
     rows = []
     for name, record in ps.datasets.SCENARIOS.items():
+        if not record.bias:
+            continue
         chosen = {k: v for k, v in estimators.items() if k in record.bias}
         results = ps.simulation.run_study(
             chosen, name, args.n, reps, n_jobs=args.n_jobs, random_state=2029,

@@ -13,6 +13,7 @@ from . import (
     plotting,
     simulation,
     tables,
+    visits,
 )
 from ._version import __version__
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
@@ -34,6 +35,7 @@ from .distributions import (
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
+from .visits import visit_effects
 
 
 def __getattr__(name):
@@ -79,5 +81,7 @@ __all__ = [
     "monotonicity_check",
     "survival_fit_check",
     "diagnostic_warnings",
+    "visit_effects",
+    "visits",
     "__version__",
 ]

@@ -16,6 +16,8 @@ from pathlib import Path
 __all__ = ["main", "build_parser"]
 
 USER_ERRORS = (ValueError, TypeError, FileNotFoundError, ImportError, OSError, RuntimeError)
+# Where both commands write their report unless told otherwise.
+DEFAULT_OUT = "pscore_report"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -83,7 +85,31 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        stratum=_stratum(args),
+        visit_population=args.visit_population or "each",
     )
+
+
+def _survival_columns(args):
+    """--intermediate is --survival under its general name: exactly one of the two is given."""
+    if (args.survival is None) == (args.intermediate is None):
+        raise ValueError(
+            "Give the binary post-treatment column with --survival COL or --intermediate COL "
+            "(the same role under two names); got "
+            + ("both." if args.survival is not None else "neither.")
+        )
+    return args.survival if args.survival is not None else args.intermediate
+
+
+def _stratum(args):
+    from .estimators._stratum_formulas import resolve_stratum
+
+    try:
+        resolve_stratum(args.stratum, args.monotonicity)
+    except ValueError as error:
+        raise ValueError(str(error).replace("`stratum`", "--stratum").replace(
+            "monotonicity=", "--monotonicity ")) from None  # fmt: skip
+    return args.stratum
 
 
 def _print_survival_model(results):
@@ -105,7 +131,11 @@ def _print_key_results(results, out_dir):
 
     level = f"{results['settings']['level']:.0%}"
     words = results["wording"]
-    print(f"Survivor average causal effect of {words['treated_arm']} "
+    target = results.get("stratum") or {"name": "always_survivor"}
+    other = target["name"] != "always_survivor"
+    title = (f"Effect in the {target['label']} stratum" if other
+             else "Survivor average causal effect")  # fmt: skip
+    print(f"{title} of {words['treated_arm']} "
           f"('{words['treated_condition']}') against {words['control_arm']} "
           f"('{words['control_condition']}') on '{results['columns']['outcome']}' "
           f"({results['data_overview']['n_rows_analyzed']} {words['units']} "
@@ -138,8 +168,11 @@ def _print_key_results(results, out_dir):
         shown = "not within the grid" if value is None else f"{value:.3g}"
         print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
     naive = results["naive_survivor_contrast"]
-    print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
-          "(biased; comparison)")  # fmt: skip
+    print(f"  {'Naive cell contrast' if other else 'Naive survivor contrast':<27} "
+          f"{number(naive['estimate']):>10}   (biased; comparison)")  # fmt: skip
+    for row in (results.get("strata") or {}).get("rows", []):
+        print(f"  All strata: {row['label']:<27} share {row['share']:.1%}, effect "
+              f"{number(row['effect'])}, {level} CI {interval(row['ci_low'], row['ci_high'])}")
     for record in results["estimates"]:
         if record["ci_low"] is None:
             print(f"  {record['label']}: {record['interval_note']}")
@@ -164,24 +197,32 @@ def _print_key_results(results, out_dir):
     for message in results.get("warnings", []):
         if message.startswith("data: "):
             print(f"  warning: {message[6:]}")
+    from .report._visits import print_visits
+
+    print_visits(results)
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
-    print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
+    stratum = f"the {target['label']} stratum" if other else "the always-survivor stratum"
+    print(f"Caution: {stratum} is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "
           "qualified statistician review the analysis.")  # fmt: skip
 
 
 def _analyze(args):
     from .report import ColumnRoles, analyze_frame, read_table
+    from .report._visit_data import visit_pairs
 
+    args.survival = _survival_columns(args)
     options = _options(args)
     _check_out_dir(args.out)
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
+    visits = visit_pairs(args.outcome, args.survival, args.visit_population)
     roles = ColumnRoles(
-        outcome=args.outcome,
+        outcome=args.outcome[-1],
         treatment=args.treatment,
-        survival=args.survival,
+        survival=args.survival[-1],
+        visits=visits,
         covariates=tuple(args.covariates),
         categorical=tuple(args.categorical),
         cluster=args.cluster,
@@ -217,7 +258,11 @@ def _demo(args):
     options = AnalysisOptions(
         bootstrap=args.bootstrap, unit_name="patient",
         arm_names=("protective ventilation", "conventional ventilation"),
-        survival_model="by_fit",  # fits both survival sides, keeps the better (AIC)
+        # Pre-specified, as an analysis plan would: the stratum model, the side whose AIC on the
+        # registry's survival statuses is smaller (2331.8 against 2335.4 for the arm-wise
+        # models). A choice made by fit is invisible to the standard errors
+        # (benchmarks/bench_model_choice.py; docs/guide/cli-report.md).
+        survival_model="strata",
     )  # fmt: skip
     analysis = analyze_frame(
         load_demo(), roles, options, args.out,
@@ -301,11 +346,11 @@ def build_parser():
         "unit",
     )  # fmt: skip
     analyze.add_argument(
-        "--outcome",
-        required=True,
-        metavar="COL",
-        help="outcome column (may be empty for non-survivors)",
-    )
+        "--outcome", required=True, action="append", metavar="COL",
+        help="outcome column (may be empty for non-survivors); repeated with as many "
+        "--survival columns, one per follow-up visit in time order, it adds the section "
+        "'Over visits' (the other sections analyse the last visit)",
+    )  # fmt: skip
     analyze.add_argument(
         "--treatment", required=True, metavar="COL",
         help="treatment column: 0/1, or two levels with --treated-value",
@@ -315,12 +360,16 @@ def build_parser():
         help="level of --treatment that means treated (for text-coded arms, e.g. program)",
     )  # fmt: skip
     analyze.add_argument(
-        "--survival",
-        required=True,
-        metavar="COL",
+        "--survival", action="append", metavar="COL",
         help="0/1 column: 1 if the unit survived (its outcome exists); or two levels with "
-        "--survived-value",
-    )
+        "--survived-value; repeated: survival to each visit, matching the --outcome columns",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--intermediate", action="append", metavar="COL",
+        help="the same role as --survival under its general name: a binary post-treatment "
+        "variable (treatment received under noncompliance, an intercurrent event); give "
+        "--survival or --intermediate, not both",
+    )  # fmt: skip
     analyze.add_argument(
         "--survived-value", default=None, metavar="VALUE",
         help="level of --survival that means survived / no event (e.g. yes)",
@@ -388,6 +437,16 @@ def build_parser():
         help="increasing: treatment can only help survival (default)",
     )
     analyze.add_argument(
+        "--stratum",
+        choices=("always_survivor", "protected", "doomed", "harmed", "always_taker", "complier",
+                 "never_taker"),
+        default="always_survivor",
+        help="principal stratum whose effect the report is about (default always_survivor, the "
+        "SACE). The others need the outcome of units with intermediate 0 (not truncation by "
+        "death): protected/complier and doomed/never_taker under --monotonicity increasing, "
+        "harmed and doomed under decreasing; always_taker = always_survivor",
+    )  # fmt: skip
+    analyze.add_argument(
         "--missing",
         choices=("error", "at_random"),
         default="error",
@@ -402,14 +461,18 @@ def build_parser():
         "both arms, monotone by construction (also with --learner boosting, which then "
         "applies to the treatment and outcome models)",
     )  # fmt: skip
+    analyze.add_argument(
+        "--visit-population", choices=("each", "last"), default=None,
+        help="with several visits: each = the always-survivors to each visit (a different "
+        "group per visit; default); last = the always-survivors to the last visit at every "
+        "visit (one group)",
+    )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")
     analyze.add_argument(
-        "--out",
-        default="pscore_report",
-        metavar="DIR",
-        help="output directory (default: pscore_report)",
-    )
+        "--out", default=DEFAULT_OUT, metavar="DIR",
+        help=f"output directory (default: {DEFAULT_OUT})",
+    )  # fmt: skip
     analyze.add_argument(
         "--event-name", default="death", metavar="TEXT",
         help="what the event that truncates the outcome is called (default: death)",
@@ -431,8 +494,9 @@ def build_parser():
 
     demo = commands.add_parser("demo", help="analyse the bundled, invented demo registry")
     demo.add_argument(
-        "--out", default="report", metavar="DIR", help="output directory (default: report)"
-    )
+        "--out", default=DEFAULT_OUT, metavar="DIR",
+        help=f"output directory (default: {DEFAULT_OUT})",
+    )  # fmt: skip
     demo.add_argument(
         "--bootstrap", type=int, default=0, metavar="N", help="bootstrap resamples (default: 0)"
     )

@@ -40,7 +40,11 @@ class CompleteCases(BaseEstimator):
 
 @pytest.mark.slow
 @pytest.mark.filterwarnings("ignore::UserWarning")
-@pytest.mark.parametrize("name", list(SCENARIOS))
+STATED = [name for name, record in SCENARIOS.items() if record.bias]
+TRUNCATION = [name for name, record in SCENARIOS.items() if record.family == "truncation"]
+
+
+@pytest.mark.parametrize("name", STATED)
 def test_each_scenario_shows_its_stated_bias(name):
     stated = SCENARIOS[name].bias
     estimators = {k: v for k, v in ESTIMATORS.items() if k in stated}
@@ -72,7 +76,7 @@ def test_survival_misspecified_truth_matches_gauss_hermite_quadrature():
     assert data.true_effect_mc_error < 1e-3
 
 
-@pytest.mark.parametrize("name", list(SCENARIOS))
+@pytest.mark.parametrize("name", TRUNCATION)
 def test_each_scenario_states_a_bias_for_every_built_in_estimator(name):
     assert set(ESTIMATORS) <= set(SCENARIOS[name].bias)
     assert SCENARIOS[name].truth in ("exact", "quadrature", "monte_carlo")
@@ -82,9 +86,12 @@ def test_the_guide_lists_every_scenario_with_its_stated_biases():
     from pathlib import Path
 
     page = (Path(__file__).parents[1] / "docs" / "guide" / "simulation.md").read_text()
-    rows = {line.split("|")[1].strip().strip("`"): line.split("|")[3].strip()
-            for line in page.splitlines() if line.startswith("| `")}  # fmt: skip
+    rows = {name.strip().strip("`"): line.split("|")[3].strip()
+            for line in page.splitlines() if line.startswith("| `")
+            for name in line.split("|")[1].split(",")}  # fmt: skip
     for name, record in SCENARIOS.items():
         assert name in rows, name
+        if not record.bias:
+            continue
         stated = " / ".join(record.bias[k] for k in ESTIMATORS)
         assert rows[name] == stated, (name, rows[name], stated)

@@ -32,6 +32,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._validation import check_level
 from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from ..estimators._stratum_formulas import require_always_survivor
 from ..estimators._summary import CAUTIONS
 from ..inference._influence import estimator_dof, normal_interval
 from ._paths import SensitivityPath
@@ -193,8 +194,10 @@ def _robust(o, st, parametric, cache=None):
         + st.e_always * o.observed_pure * pieces["gap_pure"] / pieces["denominator_pure"]
     )  # fmt: skip
     share = o.weighted_mean(phi_e)
-    mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
-    return mu_m, mu_p, (phi_mixed - mu_m * phi_e) / share, (phi_pure - mu_p * phi_e) / share
+    # A harmed ratio that empties the always-survivor stratum (share 0) has no effect: NaN.
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
+        return mu_m, mu_p, (phi_mixed - mu_m * phi_e) / share, (phi_pure - mu_p * phi_e) / share
 
 
 _FORMULAS = {
@@ -212,6 +215,8 @@ def _check_estimator(estimator):
             f"MultiplyRobust; got {type(estimator).__name__}."
         )
     check_is_fitted(estimator, "nuisance_")
+    # The sensitivity formulas relax the always-survivor assumptions only (docs/sensitivity.md).
+    require_always_survivor(estimator, "The sensitivity analysis (sensitivity_grid, tipping_point)")
     return formula
 
 

@@ -6,8 +6,10 @@ registry whose true effect is ``DEMO_TRUE_EFFECT``.
 """
 
 from ._demo import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
+from ._intermediate import make_intermediate
 from ._registry import SCENARIOS, list_scenarios, make_scenario
 from ._simulate import make_truncation
+from ._visits import make_visits
 
 __all__ = [
     "DEMO_ROLES",
@@ -15,6 +17,8 @@ __all__ = [
     "SCENARIOS",
     "list_scenarios",
     "load_demo",
+    "make_intermediate",
     "make_scenario",
     "make_truncation",
+    "make_visits",
 ]

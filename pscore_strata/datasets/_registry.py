@@ -7,12 +7,14 @@ module and is registered below with one line.
 import pandas as pd
 
 from ._checks import check_choice, resolve_rng
+from ._intermediate import INTERMEDIATE_SCENARIOS
 from ._scenarios import TRUNCATION_SCENARIOS
 
 __all__ = ["SCENARIOS", "list_scenarios", "make_scenario"]
 
 SCENARIOS = {}
 SCENARIOS.update(TRUNCATION_SCENARIOS)
+SCENARIOS.update(INTERMEDIATE_SCENARIOS)  # an outcome after a binary intermediate (every stratum)
 # Other families register here, one line each: SCENARIOS.update(FAMILY_SCENARIOS)
 
 
@@ -76,6 +78,15 @@ def make_scenario(name, n_samples=2000, random_state=None, **params):
         - ``"lost_to_follow_up"``, ``"missing_outcomes"``: survival status (and outcomes)
           missing at random given x2, differently by arm, with ``effect_heterogeneity=0.5``;
           fit with ``missing="at_random"``. Complete-case analysis is biased there.
+
+        The intermediate family (:func:`make_intermediate`):
+
+        - ``"intermediate_always_survivor"``, ``"intermediate_protected"``,
+          ``"intermediate_doomed"``, ``"intermediate_harmed"``: an outcome observed for every
+          unit after a binary intermediate; the truth is the named stratum's effect (fit with
+          ``stratum=`` set to it). ``"intermediate_exclusion"``: randomized noncompliance
+          where the exclusion restriction holds too; the truth is the complier effect.
+          Their parameters are the arguments of :func:`make_intermediate`.
     n_samples : int, default=2000
         Number of units.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState

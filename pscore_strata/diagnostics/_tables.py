@@ -21,6 +21,7 @@ from ._arrays import (
     ROW_SHARE_TOLERANCE,
     SCORE_FLOOR,
     SMD_THRESHOLD,
+    VIOLATION_TOLERANCE,
     balancing_weights,
     effective_sample_size,
     fitted_scores,
@@ -128,6 +129,12 @@ def _moments(Z, observed, weights):
     return mean, np.maximum(variance, 0.0)
 
 
+NO_COVARIATES_NOTE = (
+    "The analysis has no covariates, so there is no covariate balance to check (pass `X` to "
+    "check covariates the models did not use)."
+)
+
+
 @cached_diagnostic(always)
 def balance_table(estimator, X):
     """Covariate balance of the always-survivor reconstructions (the balancing property).
@@ -152,7 +159,8 @@ def balance_table(estimator, X):
         ``raw_variance_ratio_treated_vs_control``: the survivor-only comparison without
         balancing weights (what a naive survivor analysis compares); ``pooled_sd``.
         ``attrs["effective_sample_size"]`` holds the Kish effective sample size of each weight
-        set.
+        set. For an estimator fitted without covariates and ``X=None`` the table has no rows
+        and ``attrs["notes"]`` says so.
 
     Notes
     -----
@@ -163,7 +171,12 @@ def balance_table(estimator, X):
     0.1 is the common-practice signal of imbalance.
     """
     o = oriented_predictions(estimator)
-    names, Z = _covariate_matrix(X, o.weight.shape[0])
+    unadjusted = X is None and getattr(estimator, "n_features_in_", None) == 0
+    if unadjusted:
+        # No covariates: no row to balance; an empty table says so instead of failing.
+        names, Z = [], np.zeros((0, o.weight.shape[0]))
+    else:
+        names, Z = _covariate_matrix(X, o.weight.shape[0])
     missing = np.isnan(Z)
     observed = (~missing).astype(float)
     Z[missing] = 0.0  # Z is a fresh matrix built from X, never the caller's array
@@ -204,6 +217,7 @@ def balance_table(estimator, X):
         **{f"raw_{group}": effective_sample_size(w) for group, w in raw.items()},
     }
     table.attrs["smd_threshold"] = SMD_THRESHOLD
+    table.attrs["notes"] = [NO_COVARIATES_NOTE] if unadjusted else []
     return table
 
 
@@ -280,6 +294,11 @@ def overlap_summary(estimator):
     return table
 
 
+#: Below this many rows a more flexible learner is not the advice (common practice: flexible
+#: learners with cross-fitting need thousands of rows).
+FLEXIBLE_ROWS = 2000
+
+
 @cached_diagnostic(always)
 def diagnostic_warnings(estimator, X=None):
     """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
@@ -292,7 +311,10 @@ def diagnostic_warnings(estimator, X=None):
     is checked only when ``X`` (the covariates of the fitted rows) is given.
     """
     o = oriented_predictions(estimator)
+    target = getattr(estimator, "stratum_", "always_survivor")
+    words = target.replace("_", "-")
     messages = []
+    n_rows = len(o.p_pure)
     if X is not None:
         smd = balance_table(estimator, X).filter(regex="^smd_").abs().max(axis=1)
         flagged = smd[smd > SMD_THRESHOLD].sort_values(ascending=False)
@@ -301,8 +323,13 @@ def diagnostic_warnings(estimator, X=None):
             messages.append(
                 f"Covariate balance: {len(flagged)} covariate(s) have a weighted |SMD| above "
                 f"{SMD_THRESHOLD} (common rule of thumb): {listed}. The reconstructions of the "
-                "always-survivors disagree, so the treatment or survival model is probably "
-                "misspecified; try interactions, transformations or a more flexible learner."
+                f"{words} stratum disagree, so the treatment or survival model is probably "
+                "misspecified; "
+                + ("try interactions, transformations or a more flexible learner."
+                   if n_rows >= FLEXIBLE_ROWS else
+                   f"with {n_rows} rows, prefer fewer covariates or merged levels to a more "
+                   "flexible model, and read the bounds, which do not need the outcome "
+                   "model.")  # fmt: skip
             )
     low, high = PROBABILITY_BOUNDS
     scores = fitted_scores(o)
@@ -317,17 +344,16 @@ def diagnostic_warnings(estimator, X=None):
             "mean SE / SD was about 0.8 for weighting and multiply robust, and the same with the "
             "refitting bootstrap)."
         )
-    rare = float(np.mean(scores["always_survivor"] < SCORE_FLOOR))
+    rare = float(np.mean(scores[target] < SCORE_FLOOR))
     if rare > ROW_SHARE_TOLERANCE:
         messages.append(
-            f"Overlap: {rare:.1%} of rows have a fitted always-survivor score below "
+            f"Overlap: {rare:.1%} of rows have a fitted {words} score below "
             f"{SCORE_FLOOR} (common practice allows about {ROW_SHARE_TOLERANCE:.0%}). The "
-            "always-survivor stratum is nearly absent there, so the estimate rests on few rows."
+            f"{words} stratum is nearly absent there, so the estimate rests on few rows."
         )
     # Small fitted reversals arise from estimation noise where the arms' survival is close, so
     # only reversals larger than the probability floor count.
     marked = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))
-    n_rows = len(o.p_pure)
     check = monotonicity_check(estimator)
     if marked > ROW_SHARE_TOLERANCE * n_rows:
         helped, other = ("treatment", "control") if o.increasing else ("control", "treatment")
@@ -335,12 +361,13 @@ def diagnostic_warnings(estimator, X=None):
         messages.append(
             f"Monotonicity: for {marked} of {n_rows} rows ({marked / n_rows:.1%}) the fitted "
             f"survival probability under {helped} is more than {SCORE_FLOOR} below that under "
-            f"{other} ({int(np.sum(o.p_mixed < o.p_pure))} rows are reversed at all), "
+            f"{other} ({int(np.sum(o.p_pure - o.p_mixed > VIOLATION_TOLERANCE))} rows are "
+            "reversed by any amount), "
             f"contradicting monotonicity ('{check.attrs['monotonicity']}'). Check the survival "
             "model and run the sensitivity analysis for monotonicity."
         )
-    strict = monotonicity_check(estimator, level=1 - 0.05 / len(check))
-    wrong = strict.index[strict["contradicts_monotonicity"]].tolist()
+    # The table's own flag: Bonferroni-adjusted 95% intervals over its rows.
+    wrong = check.index[check["contradicts_monotonicity"]].tolist()
     if wrong:
         messages.append(
             f"Monotonicity: survival differs between arms in the direction the assumption "

@@ -11,9 +11,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._options import fit_arguments, model_settings, number
+from ._options import METHOD_LABELS, fit_arguments, model_settings, number
+from ._wording import outcome_label
 
-__all__ = ["distributions_section", "distribution_figures", "QUANTILES"]
+__all__ = ["distributions_section", "distribution_figures", "level_labels", "QUANTILES"]
 
 QUANTILES = (0.1, 0.25, 0.5, 0.75, 0.9)
 
@@ -22,16 +23,54 @@ def _numbers(values):
     return [number(v) for v in np.asarray(values, dtype=float)]
 
 
+def level_labels(data, options):
+    """``{level: label}`` from ``--levels``, else the data file's value labels, else ``None``."""
+    given = getattr(options, "levels", None)
+    if given:
+        return dict(given)
+    return (getattr(data, "levels", None) or {}).get("outcome")
+
+
+def _level_text(level, labels):
+    whole = f"{level:.0f}" if float(level).is_integer() else f"{level:g}"
+    if labels and float(level) in labels:
+        return f"{whole} = {labels[float(level)]}"
+    return whole
+
+
+def _levels_record(result, labels, options):
+    keys = ("level", "treated", "control", "std_error_treated", "std_error_control",
+            "difference", "std_error_difference", "ci_low_difference", "ci_high_difference")
+    return {
+        "available": True,
+        "kind": "levels",
+        "levels": [{**{key: number(row[key]) for key in keys},
+                    "label": _level_text(row["level"], labels)}
+                   for _, row in result.levels.iterrows()],
+        "better_level_probability": {
+            "estimate": number(result.probability),
+            "std_error": number(result.std_error),
+            "ci_low": number(result.ci_low),
+            "ci_high": number(result.ci_high),
+            "better": "higher",
+        },
+        "estimator": METHOD_LABELS[options.method],
+        "notes": list(result.notes),
+    }  # fmt: skip
+
+
 def distributions_section(collector, primary, data, options):
     """JSON-ready record of the section (``available: False`` with a reason when impossible)."""
     from ..distributions import ordinal_comparison, quantile_effects, survivor_distribution
     from ..distributions._conditional import MAX_LEVELS
 
     label = "outcome distributions"
-    if getattr(primary, "missing", "error") != "error":
-        return {"available": False, "reason": "Distributions are not yet computed with "
-                "missing data handled as missing at random."}
+    if not getattr(options, "distributions", True):
+        return {"available": False, "skipped": True, "reason": "Not computed: the analysis was "
+                "run with --no-distributions."}
+    quantiles = tuple(getattr(options, "quantiles", QUANTILES))
     survivors = data.outcome[data.survival == 1]
+    survivors = survivors[~np.isnan(survivors)]  # missing at random: observed outcomes only
     levels = np.unique(survivors)
     X = data.design
     try:
@@ -40,25 +79,10 @@ def distributions_section(collector, primary, data, options):
                 return {"available": False, "reason": "The outcome has few distinct values that "
                         "are not integer levels; code them as integers for the level analysis."}
             result = collector.run(label, ordinal_comparison, primary, X=X, level=options.level)
-            return {
-                "available": True,
-                "kind": "levels",
-                "levels": [{key: number(row[key]) for key in
-                            ("level", "treated", "control", "std_error_treated",
-                             "std_error_control")}
-                           for _, row in result.levels.iterrows()],
-                "better_level_probability": {
-                    "estimate": number(result.probability),
-                    "std_error": number(result.std_error),
-                    "ci_low": number(result.ci_low),
-                    "ci_high": number(result.ci_high),
-                    "better": "higher",
-                },
-                "notes": list(result.notes),
-            }  # fmt: skip
+            return _levels_record(result, level_labels(data, options), options)
         distribution = collector.run(label, survivor_distribution, primary, X=X,
                                      level=options.level, random_state=options.seed)
-        table = collector.run(label, quantile_effects, primary, QUANTILES, options.level, X=X)
+        table = collector.run(label, quantile_effects, primary, quantiles, options.level, X=X)
     except ValueError as error:
         return {"available": False, "reason": f"Distributions could not be computed: {error}"}
     frame = distribution.to_frame()
@@ -73,13 +97,13 @@ def distributions_section(collector, primary, data, options):
              ("quantile", "treated", "control", "effect", "std_error", "ci_low", "ci_high")}
             for _, row in table.iterrows()
         ],
-        "quantile_bounds": _quantile_bounds(collector, options, data, primary),
+        "quantile_bounds": _quantile_bounds(collector, options, data, primary, quantiles),
         "notes": list(distribution.notes[:1]) + list(table.attrs["notes"]),
     }  # fmt: skip
     return record
 
 
-def _quantile_bounds(collector, options, data, primary):
+def _quantile_bounds(collector, options, data, primary, quantiles=QUANTILES):
     from ..assumptions import TrimmingBounds
     from ..assumptions._quantile_bounds import quantile_intervals
     from ..inference._influence import estimator_dof
@@ -87,7 +111,8 @@ def _quantile_bounds(collector, options, data, primary):
     models, _ = model_settings(options)
     if options.survival_model == "arm-wise":
         models.pop("survival_model", None)  # unused without score strata
-    bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=QUANTILES, **models)
+    bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=quantiles,
+                            missing=options.missing, **models)  # fmt: skip
     # With the default models the bounds reuse the analysis' one fit (never a cross-fitted one).
     shared = primary.nuisance_
     nuisance = None if options.learner != "linear" or shared.cross_fitted else shared
@@ -126,7 +151,7 @@ def _cdf_figure(results):
         influence_treated=None, influence_control=None, level=level,
         dof=reference_dof(results["data_overview"]["n_clusters"]),
     )  # fmt: skip
-    axes = plot_survivor_distribution(distribution, outcome=results["columns"]["outcome"])
+    axes = plot_survivor_distribution(distribution, outcome=outcome_label(results))
     return axes[0].figure
 
 
@@ -139,13 +164,34 @@ def _quantile_figure(results):
     table = pd.DataFrame(record["quantile_effects"]).astype(float)
     bounds = record.get("quantile_bounds")
     bounds = None if not bounds else pd.DataFrame(bounds).astype(float)
-    ax = plot_quantile_effects(table, outcome=results["columns"]["outcome"], bounds=bounds)
+    ax = plot_quantile_effects(table, outcome=outcome_label(results), bounds=bounds)
+    return ax.figure
+
+
+def _level_figure(results):
+    import pandas as pd
+
+    from ..plotting import plot_level_shares
+
+    record = results["distributions"]
+    table = pd.DataFrame(record["levels"])
+    wording = results.get("wording") or {}
+    arms = (wording.get("treated_arm", "treated"), wording.get("control_arm", "control"))
+    outcome = outcome_label(results)
+    ax = plot_level_shares(table, labels=list(table["label"]), arm_names=arms, outcome=outcome)
     return ax.figure
 
 
 def distribution_figures(results):
     """``(name, title, draw, args, caption)`` entries for :func:`._figures.draw_figures`."""
     record = results.get("distributions") or {}
+    if record.get("kind") == "levels":
+        return [
+            ("level_shares.png", "Level shares among always-survivors", _level_figure,
+             (results,), "Estimated share of the always-survivors at each level under each "
+             "arm (the stratum is latent: these are estimates for a group nobody can list). "
+             "The difference between the bars is the per-level difference in the table."),
+        ]  # fmt: skip
     if record.get("kind") != "continuous":
         return []
     return [
