@@ -38,12 +38,12 @@ class CompleteCases(BaseEstimator):
         return self
 
 
-@pytest.mark.slow
-@pytest.mark.filterwarnings("ignore::UserWarning")
 STATED = [name for name, record in SCENARIOS.items() if record.bias]
 TRUNCATION = [name for name, record in SCENARIOS.items() if record.family == "truncation"]
 
 
+@pytest.mark.slow
+@pytest.mark.filterwarnings("ignore::UserWarning")
 @pytest.mark.parametrize("name", STATED)
 def test_each_scenario_shows_its_stated_bias(name):
     stated = SCENARIOS[name].bias

@@ -121,7 +121,8 @@ def test_changed_fit_code_with_the_same_repr_is_refused(tmp_path):
         mine = importlib.reload(mine)
         assert repr(mine.MyEstimator()) == before
         study["estimators"] = {"mine": mine.MyEstimator()}
-        with pytest.raises(ValueError, match="estimator 'mine': the code of class my_estimators.MyEstimator changed"):
+        changed = "estimator 'mine': the code of class my_estimators.MyEstimator changed"
+        with pytest.raises(ValueError, match=changed):
             run_study(**study, scenarios={"trial": trial}, checkpoint=tmp_path / "ck")
         redone = run_study(**study, scenarios={"trial": trial}, checkpoint=tmp_path / "ck",
                            overwrite="changed")  # fmt: skip

@@ -198,7 +198,8 @@ def test_bounds_estimators_are_studied():
     from pscore_strata.datasets._identified import identified_set
 
     true_lower, true_upper = identified_set(pi_difference=1.0, design="randomized")
-    assert (bounds["truth_lower"] == true_lower).all() and (bounds["truth_upper"] == true_upper).all()
+    assert (bounds["truth_lower"] == true_lower).all()
+    assert (bounds["truth_upper"] == true_upper).all()
     summary = summarize(results).set_index("estimator")
     row = summary.loc["bounds"]
     assert row.kind == "bounds" and row.coverage == 1.0 and row.set_coverage == 1.0
