@@ -174,8 +174,7 @@ def test_the_identified_set_matches_the_trimming_recipe_on_potential_outcomes():
     # (Zhang & Rubin 2003; Lee 2009): trim Y(1) of the S(1) = 1 units by q = P(S(0)=1)/P(S(1)=1)
     # and subtract the S(0) = 1 units' mean Y(0), on 10^6 units of another seed. (TrimmingBounds
     # on one randomized sample of 300,000 gave 0.592 and 2.147: the estimator's limit.)
-    from pscore_strata.datasets._identified import identified_set
-
+    identified_set = ps.datasets.SCENARIOS["pi_violated"].bounds
     big = ps.datasets.make_truncation(1_000_000, design="randomized", pi_difference=1.0,
                                       random_state=99)  # fmt: skip
     q = big.s0.mean() / big.s1.mean()
@@ -195,8 +194,7 @@ def test_bounds_estimators_are_studied():
     assert (bounds["kind"] == "bounds").all() and bounds["estimate"].isna().all()
     assert (bounds["lower"] < bounds["upper"]).all()
     assert (bounds["set_low"] <= bounds["ci_low"]).all()  # the set's interval is the wider
-    from pscore_strata.datasets._identified import identified_set
-
+    identified_set = ps.datasets.SCENARIOS["pi_violated"].bounds
     true_lower, true_upper = identified_set(pi_difference=1.0, design="randomized")
     assert (bounds["truth_lower"] == true_lower).all()
     assert (bounds["truth_upper"] == true_upper).all()

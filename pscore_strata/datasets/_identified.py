@@ -23,9 +23,13 @@ _SET_DRAWS = 1_000_000
 _SET_CELLS = 20_000_000  # rows x covariates drawn at most
 
 
-def identified_set(**params):
-    """``(lower, upper)``: the population bounds on the SACE of a truncation setting."""
-    return _cached(json.dumps(params, sort_keys=True, default=list))
+def identified_set(draw, n_features, **params):
+    """``(lower, upper)``: the population bounds on the SACE of a truncation setting.
+
+    ``draw(n_samples, rng, **params)`` simulates the setting (the truncation family's drawer).
+    """
+    draws = min(_SET_DRAWS, _SET_CELLS // n_features)
+    return _cached(draw, draws, json.dumps(params, sort_keys=True, default=list))
 
 
 def _trimmed_means(values, share):
@@ -35,15 +39,11 @@ def _trimmed_means(values, share):
 
 
 @functools.lru_cache(maxsize=32)
-def _cached(key):
-    from ._scenarios import TRUNCATION_PARAMS, _draw
-
+def _cached(draw, draws, key):
     params = json.loads(key)
     params.pop("follow_up", None)
     params.pop("response", None)
-    n_features = params.get("n_features", TRUNCATION_PARAMS["n_features"])
-    draws = min(_SET_DRAWS, _SET_CELLS // n_features)
-    data = _draw(draws, np.random.default_rng(_SET_SEED), **params)
+    data = draw(draws, np.random.default_rng(_SET_SEED), **params)
     s1, s0 = data.s1 == 1, data.s0 == 1
     if params.get("monotonicity", "increasing") == "increasing":
         low, high = _trimmed_means(data.y1[s1], s0.mean() / s1.mean())

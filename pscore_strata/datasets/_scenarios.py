@@ -82,6 +82,11 @@ def _draw(n_samples, rng, **params):
     return data
 
 
+def _identified_set(**params):
+    """The identified set of the covariate-free trimming bounds (see ``_identified.py``)."""
+    return identified_set(_draw, _check_params(params)["n_features"], **params)
+
+
 def _truncation(description, bias, **params):
     _check_params(params)
     p = {**TRUNCATION_PARAMS, **params}
@@ -89,7 +94,7 @@ def _truncation(description, bias, **params):
     return Scenario(
         make=functools.partial(_draw), description=description,
         truth="exact" if exact else "monte_carlo", bias=bias, params=params,
-        bounds=identified_set,
+        bounds=_identified_set,
     )
 
 
