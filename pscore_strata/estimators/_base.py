@@ -327,7 +327,11 @@ class SurvivorEffectEstimator(BaseEstimator):
         the helped stratum's score the difference of the arms' survival probabilities, and the
         doomed score the rest. Where the fitted models contradict monotonicity (survival in the
         mixed arm below that in the pure arm) the helped score is 0 and the always-survivor
-        score the smaller of the two survival probabilities. With
+        score the smaller of the two survival probabilities, so that each row sums to one. The
+        estimates do not use these clipped scores: their formulas take the pure arm's survival
+        probability itself as the always-survivor score on every row (``p0`` under increasing
+        monotonicity, even where it exceeds ``p1``), so on crossing rows the estimate's score is
+        larger than the one reported here; elsewhere the two agree. With
         cross-fitting, the predictions average every fold model (of every repeat).
 
         Returns
