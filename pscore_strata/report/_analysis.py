@@ -29,6 +29,7 @@ from ._options import (
 )
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
 from ._text import assumptions, cautions, estimand
+from ._visits import visits_section
 from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
@@ -45,6 +46,7 @@ class Analysis:
     primary: object = None
     covariates: object = None
     bounds: object = None
+    visits: object = None  # the visit_effects table of repeated visits
 
 
 class _Collector:
@@ -284,6 +286,9 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["subgroups"] = subgroups_section(
             collector, primary, data, roles, options.level, InputError
         )
+    results["visits"], analysis.visits = visits_section(
+        collector, data, options, options.visit_population
+    )
     results["assumptions"] = assumptions(roles, options.monotonicity, words)
     if results["missing_data"]:
         from ._missing import MISSING_ASSUMPTION_TEXT

@@ -8,6 +8,7 @@ import numpy as np
 
 from ._distributions import distribution_figures
 from ._format import number
+from ._visits import visit_figures
 
 __all__ = ["draw_figures"]
 
@@ -188,11 +189,12 @@ def draw_figures(analysis):
              "covers zero.")
         )  # fmt: skip
     figures.extend(distribution_figures(results))
+    figures.extend(visit_figures(analysis))
     drawn = []
     words = results.get("wording")
     for name, title, draw, args, caption in figures:
         figure = draw(*args)
-        if name in ("balance.png", "overlap.png", "weights.png"):
+        if name in ("balance.png", "overlap.png", "weights.png", "visits.png"):
             figure = _in_study_words(figure, words)
             caption = _in_study_words_text(caption, words)
         drawn.append({"name": name, "title": title, "caption": caption, "png": _png(figure)})

@@ -20,6 +20,7 @@ SECTIONS = (
     "missing",
     "estimates",
     "subgroups",
+    "visits",
     "diagnostics",
     "model_checks",
     "bounds",
@@ -67,7 +68,8 @@ def _view(results, figures):
         selected_harmed = _every_few(sens["harmed_ratio"]["grid"], 7)
     return {
         "r": results,
-        "sections": SECTIONS,
+        # "Over visits" appears only for an analysis of several visits.
+        "sections": tuple(s for s in SECTIONS if s != "visits" or results.get("visits")),
         "level": level,
         "primary": primary,
         "balance": balance,

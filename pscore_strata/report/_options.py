@@ -63,6 +63,8 @@ class AnalysisOptions:
     # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
     # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
+    # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
+    visit_population: str = "each"
     # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
     # and their bounds (--quantiles), or the whole section skipped (--no-distributions).
     quantiles: tuple = (0.1, 0.25, 0.5, 0.75, 0.9)
