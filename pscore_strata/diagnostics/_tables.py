@@ -3,7 +3,7 @@
 Everything here is a function of the per-row nuisance predictions stored by a fitted estimator
 (``nuisance_`` and ``training_data_``), so no model is refitted (DESIGN.md sections 4 and 6).
 
-Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
+Balancing property (Ding & Lu 2017, JRSSB): under monotonicity
 "increasing" and correct models, for any covariate function ``h(X)`` the always-survivor mean
 ``E[h(X) | always-survivor]`` is the weighted mean of ``h`` among treated survivors with weights
 ``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with
@@ -21,6 +21,7 @@ from ._arrays import (
     ROW_SHARE_TOLERANCE,
     SCORE_FLOOR,
     SMD_THRESHOLD,
+    VIOLATION_TOLERANCE,
     balancing_weights,
     effective_sample_size,
     fitted_scores,
@@ -29,6 +30,8 @@ from ._arrays import (
     treated_indicator,
 )
 from ._cache import always, cached_diagnostic
+from ._covariates import covariate_matrix, moments
+from ._missing import missing_data_warnings
 from ._monotonicity import monotonicity_check
 
 __all__ = [
@@ -44,88 +47,10 @@ _GROUPS = ("treated_survivors", "control_survivors", "everyone")
 _PAIRS = (("treated", "control"), ("treated", "everyone"), ("control", "everyone"))
 
 
-def _categorical_indicators(name, column):
-    levels = pd.Categorical(column)
-    names, values = [], []
-    for code, level in enumerate(levels.categories):
-        names.append(f"{name}={level}")
-        values.append((levels.codes == code).astype(float))
-    if (levels.codes < 0).any():
-        names.append(f"{name}=(missing)")
-        values.append((levels.codes < 0).astype(float))
-    return names, values
-
-
-def _covariate_matrix(X, n_rows):
-    """Expand covariates into balance rows: (names, covariates x rows matrix, NaN if missing)."""
-    if X is None:
-        raise ValueError(
-            "`X` is required for covariate balance: pass the covariates of the fitted rows "
-            "(the estimator does not keep them)."
-        )
-    if isinstance(X, pd.Series):
-        X = X.to_frame()
-    if isinstance(X, pd.DataFrame) and X.columns.duplicated().any():
-        raise ValueError(
-            f"`X` has duplicated column name(s) "
-            f"{sorted({str(c) for c in X.columns[X.columns.duplicated()]})}; each balance row "
-            "needs its own name. Rename or drop the copies."
-        )
-    if not isinstance(X, pd.DataFrame):
-        array = np.asarray(X)
-        if array.ndim != 2:
-            raise ValueError(
-                f"`X` must be two-dimensional (rows x covariates); got shape {array.shape}."
-            )
-        X = pd.DataFrame(array, columns=[f"x{j}" for j in range(array.shape[1])], copy=False)
-    if len(X) != n_rows:
-        raise ValueError(
-            f"`X` has {len(X)} rows but the estimator was fitted on {n_rows}; pass the "
-            "covariates of the fitted rows, in the same order."
-        )
-    if X.shape[1] == 0:
-        raise ValueError("`X` has no columns; pass at least one covariate.")
-    names, values = [], []
-    for label in X.columns:
-        column, name = X[label], str(label)
-        if column.dtype == object:
-            converted = pd.to_numeric(column, errors="coerce")
-            if converted.notna().sum() == column.notna().sum():
-                column = converted
-        numeric = pd.api.types.is_numeric_dtype(column) or pd.api.types.is_bool_dtype(column)
-        if not numeric or isinstance(column.dtype, pd.CategoricalDtype):
-            more_names, more_values = _categorical_indicators(name, column)
-            names += more_names
-            values += more_values
-            continue
-        array = column.to_numpy(dtype=float, na_value=np.nan)
-        if np.isinf(array).any():
-            raise ValueError(
-                f"`X` column {name!r} has infinite values; replace them before checking balance."
-            )
-        names.append(name)
-        values.append(array)
-        missing = np.isnan(array)
-        if missing.any():
-            # Means use the rows where the covariate is observed; the missingness indicator gets
-            # its own balance row so the dropped rows stay visible.
-            names.append(f"{name} (missing)")
-            values.append(missing.astype(float))
-    # Covariates x rows: each covariate is one contiguous row, cheap to stack and to reduce.
-    return names, np.vstack(values)
-
-
-def _moments(Z, observed, weights):
-    """Weighted means and variances per covariate (rows of ``Z``) over the observed entries.
-
-    ``Z`` is centered beforehand and zero where missing, so ``E[Z^2] - E[Z]^2`` loses no
-    precision; einsum avoids a covariates-by-rows temporary.
-    """
-    with np.errstate(divide="ignore", invalid="ignore"):
-        total = observed @ weights
-        mean = (Z @ weights) / total
-        variance = np.einsum("ji,ji,i->j", Z, Z, weights) / total - mean**2
-    return mean, np.maximum(variance, 0.0)
+NO_COVARIATES_NOTE = (
+    "The analysis has no covariates, so there is no covariate balance to check (pass `X` to "
+    "check covariates the models did not use)."
+)
 
 
 @cached_diagnostic(always)
@@ -152,7 +77,8 @@ def balance_table(estimator, X):
         ``raw_variance_ratio_treated_vs_control``: the survivor-only comparison without
         balancing weights (what a naive survivor analysis compares); ``pooled_sd``.
         ``attrs["effective_sample_size"]`` holds the Kish effective sample size of each weight
-        set.
+        set. For an estimator fitted without covariates and ``X=None`` the table has no rows
+        and ``attrs["notes"]`` says so.
 
     Notes
     -----
@@ -163,7 +89,12 @@ def balance_table(estimator, X):
     0.1 is the common-practice signal of imbalance.
     """
     o = oriented_predictions(estimator)
-    names, Z = _covariate_matrix(X, o.weight.shape[0])
+    unadjusted = X is None and getattr(estimator, "n_features_in_", None) == 0
+    if unadjusted:
+        # No covariates: no row to balance; an empty table says so instead of failing.
+        names, Z = [], np.zeros((0, o.weight.shape[0]))
+    else:
+        names, Z = covariate_matrix(X, o.weight.shape[0])
     missing = np.isnan(Z)
     observed = (~missing).astype(float)
     Z[missing] = 0.0  # Z is a fresh matrix built from X, never the caller's array
@@ -174,12 +105,12 @@ def balance_table(estimator, X):
     raw = survivor_weights(o)
     mean, variance = {}, {}
     for group, w in weights.items():
-        mean[group], variance[group] = _moments(Z, observed, w)
+        mean[group], variance[group] = moments(Z, observed, w)
     raw_mean, raw_variance = {}, {}
     for group, w in raw.items():
-        raw_mean[group], raw_variance[group] = _moments(Z, observed, w)
+        raw_mean[group], raw_variance[group] = moments(Z, observed, w)
     pooled = np.sqrt((raw_variance["treated_survivors"] + raw_variance["control_survivors"]) / 2)
-    overall = np.sqrt(_moments(Z, observed, o.weight)[1])
+    overall = np.sqrt(moments(Z, observed, o.weight)[1])
     pooled = np.where(pooled > 0, pooled, overall)
     table = pd.DataFrame(index=pd.Index(names, name="covariate"))
     for group in _GROUPS:
@@ -204,6 +135,7 @@ def balance_table(estimator, X):
         **{f"raw_{group}": effective_sample_size(w) for group, w in raw.items()},
     }
     table.attrs["smd_threshold"] = SMD_THRESHOLD
+    table.attrs["notes"] = [NO_COVARIATES_NOTE] if unadjusted else []
     return table
 
 
@@ -280,6 +212,11 @@ def overlap_summary(estimator):
     return table
 
 
+#: Below this many rows a more flexible learner is not the advice (common practice: flexible
+#: learners with cross-fitting need thousands of rows).
+FLEXIBLE_ROWS = 2000
+
+
 @cached_diagnostic(always)
 def diagnostic_warnings(estimator, X=None):
     """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
@@ -292,7 +229,10 @@ def diagnostic_warnings(estimator, X=None):
     is checked only when ``X`` (the covariates of the fitted rows) is given.
     """
     o = oriented_predictions(estimator)
+    target = getattr(estimator, "stratum_", "always_survivor")
+    words = target.replace("_", "-")
     messages = []
+    n_rows = len(o.p_pure)
     if X is not None:
         smd = balance_table(estimator, X).filter(regex="^smd_").abs().max(axis=1)
         flagged = smd[smd > SMD_THRESHOLD].sort_values(ascending=False)
@@ -301,8 +241,13 @@ def diagnostic_warnings(estimator, X=None):
             messages.append(
                 f"Covariate balance: {len(flagged)} covariate(s) have a weighted |SMD| above "
                 f"{SMD_THRESHOLD} (common rule of thumb): {listed}. The reconstructions of the "
-                "always-survivors disagree, so the treatment or survival model is probably "
-                "misspecified; try interactions, transformations or a more flexible learner."
+                f"{words} stratum disagree, so the treatment or survival model is probably "
+                "misspecified; "
+                + ("try interactions, transformations or a more flexible learner."
+                   if n_rows >= FLEXIBLE_ROWS else
+                   f"with {n_rows} rows, prefer fewer covariates or merged levels to a more "
+                   "flexible model, and read the bounds, which do not need the outcome "
+                   "model.")  # fmt: skip
             )
     low, high = PROBABILITY_BOUNDS
     scores = fitted_scores(o)
@@ -317,17 +262,16 @@ def diagnostic_warnings(estimator, X=None):
             "mean SE / SD was about 0.8 for weighting and multiply robust, and the same with the "
             "refitting bootstrap)."
         )
-    rare = float(np.mean(scores["always_survivor"] < SCORE_FLOOR))
+    rare = float(np.mean(scores[target] < SCORE_FLOOR))
     if rare > ROW_SHARE_TOLERANCE:
         messages.append(
-            f"Overlap: {rare:.1%} of rows have a fitted always-survivor score below "
+            f"Overlap: {rare:.1%} of rows have a fitted {words} score below "
             f"{SCORE_FLOOR} (common practice allows about {ROW_SHARE_TOLERANCE:.0%}). The "
-            "always-survivor stratum is nearly absent there, so the estimate rests on few rows."
+            f"{words} stratum is nearly absent there, so the estimate rests on few rows."
         )
     # Small fitted reversals arise from estimation noise where the arms' survival is close, so
     # only reversals larger than the probability floor count.
     marked = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))
-    n_rows = len(o.p_pure)
     check = monotonicity_check(estimator)
     if marked > ROW_SHARE_TOLERANCE * n_rows:
         helped, other = ("treatment", "control") if o.increasing else ("control", "treatment")
@@ -335,7 +279,8 @@ def diagnostic_warnings(estimator, X=None):
         messages.append(
             f"Monotonicity: for {marked} of {n_rows} rows ({marked / n_rows:.1%}) the fitted "
             f"survival probability under {helped} is more than {SCORE_FLOOR} below that under "
-            f"{other} ({int(np.sum(o.p_mixed < o.p_pure))} rows are reversed at all), "
+            f"{other} ({int(np.sum(o.p_pure - o.p_mixed > VIOLATION_TOLERANCE))} rows are "
+            "reversed by any amount), "
             f"contradicting monotonicity ('{check.attrs['monotonicity']}'). Check the survival "
             "model and run the sensitivity analysis for monotonicity."
         )
@@ -347,6 +292,4 @@ def diagnostic_warnings(estimator, X=None):
             f"forbids in {', '.join(map(str, wrong))} (95% intervals, Bonferroni-adjusted). "
             "Reconsider the monotonicity direction or use the sensitivity analysis."
         )
-    from ._missing import missing_data_warnings
-
     return messages + missing_data_warnings(estimator, o, X)

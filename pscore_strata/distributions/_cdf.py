@@ -8,7 +8,8 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_level
-from ..inference._influence import estimator_dof, gaussian_draws, reference_quantile, spawn_seeds
+from ..inference._resampling import gaussian_draws, spawn_seeds
+from ..inference._standard_errors import estimator_dof, reference_quantile
 from ._expansion import expansion_covariance
 from ._paths import cdf_path, prepare
 
@@ -162,7 +163,8 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
     with the estimator's cross-fitting folds setting. Every estimate is monotonized by
     rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010). The treatment and survival
     predictions are the estimator's own (with ``n_repeats > 1``, those of the repeat closest to
-    the median); no such model is refitted. Methods and checks: ``docs/distributions.md``.
+    the median); no such model is refitted. Methods and checks:
+    ``docs/guide/derivations/distributions.md``.
 
     Parameters
     ----------

@@ -2,7 +2,7 @@
 
 The ``u``-quantile ``Q_t(u) = inf{v : F_t(v) >= u}`` inverts the always-survivor CDF of
 :mod:`._paths`. Its influence function is ``-IF_F(Q_t(u)) / f_t(Q_t(u))`` (the Bahadur
-representation; van der Vaart 1998, Asymptotic Statistics, section 21.2), where ``IF_F`` are the
+representation; van der Vaart 1998, Asymptotic Statistics, chapter 21), where ``IF_F`` are the
 CDF's influence values at the estimated quantile (nuisance terms included as for the mean) and
 ``f_t`` the always-survivor density, estimated by a Gaussian kernel over the masses of the
 estimated CDF with Silverman's bandwidth ``0.9 min(sd, IQR/1.34) n_eff^(-1/5)`` (Silverman 1986,
@@ -21,14 +21,8 @@ from scipy import stats
 from sklearn.base import clone
 
 from .._validation import check_level
-from ..inference._influence import (
-    estimator_dof,
-    influence_std_error,
-    reference_quantile,
-    resample_rows,
-    spawn_seeds,
-)
-from ..inference._refits import _seed_models
+from ..inference._resampling import resample_rows, seed_models, spawn_seeds
+from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
 from ._cdf import CAUTION, default_values, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
@@ -192,15 +186,22 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     sizes = effective_sizes(prepared.oriented)
     w, groups = data.sample_weight, data.groups
     z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
-    influence, density, bandwidth = {}, {}, {}
+    influence, density, bandwidth, single = {}, {}, {}, {}
     # One pass gives both arms' influence values at every quantile of either arm.
     at_quantiles = cdf_path(prepared, np.unique(np.concatenate([point["treated"],
                                                                 point["control"]])))
     for arm in ("treated", "control"):
         mass = masses(getattr(path, arm))
         bandwidth[arm] = silverman_bandwidth(path.values, mass, sizes[arm])
-        density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
         columns = np.searchsorted(at_quantiles.values, point[arm])
+        if not bandwidth[arm] > 0:
+            # One outcome value carries the arm: every quantile is that value, a point mass
+            # with no density, so no density-based standard error exists.
+            single[arm] = float(path.values[np.argmax(mass)])
+            density[arm] = np.full(len(quantiles), np.nan)
+            influence[arm] = np.full((data.n_samples, len(quantiles)), np.nan)
+            continue
+        density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
         influence[arm] = -getattr(at_quantiles, f"influence_{arm}")[:, columns] / density[arm]
     effect_influence = influence["treated"] - influence["control"]
     se = influence_std_error(effect_influence, w, groups)
@@ -227,6 +228,15 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         "contrast), not the quantile of individual effects, which the data cannot identify.",
         CAUTION,
     ]
+    for arm, value in single.items():
+        message = (
+            f"The {arm} always-survivor distribution is a single value ({value:g}: the "
+            f"{arm} survivors' outcome does not vary), so its quantiles are that value and have "
+            "no density-based standard error; the quantile effects get no interval. Compare the "
+            "means, or use ps.ordinal_comparison for an outcome with few levels."
+        )
+        notes.insert(1, message)
+        warnings.warn(message, UserWarning, stacklevel=2)
     if n_bootstrap:
         replicates = _bootstrap(estimator, X, cdf_model, quantiles, n_bootstrap, random_state)
         low, high = np.quantile(replicates, [(1 - level) / 2, (1 + level) / 2], axis=0)
@@ -254,7 +264,7 @@ def _bootstrap(estimator, X, cdf_model, quantiles, n_resamples, random_state):
         rows = resample_rows(data.treatment, seed, data.groups)
         X_b = None if X is None else (X.iloc[rows] if isinstance(X, pd.DataFrame) else
                                       np.asarray(X)[rows])  # fmt: skip
-        fitted = _seed_models(clone(template), seed)
+        fitted = seed_models(clone(template), seed)
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")

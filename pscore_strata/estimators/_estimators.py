@@ -7,7 +7,7 @@ fit and result logic (:mod:`._base`).
 
 from __future__ import annotations
 
-from . import _formulas
+from ..estimands._formulas import regression_means, robust_means, weighting_means
 from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
@@ -25,6 +25,22 @@ _COMMON_PARAMETERS = """
     monotonicity : {"increasing", "decreasing"}, default="increasing"
         ``"increasing"``: treatment can only help survival (no harmed units);
         ``"decreasing"``: it can only harm survival (no protected units).
+    stratum : str, default="always_survivor"
+        The principal stratum whose effect is estimated: ``"always_survivor"`` (the SACE),
+        ``"protected"`` and ``"doomed"`` under ``monotonicity="increasing"``, ``"harmed"`` and
+        ``"doomed"`` under ``"decreasing"``. The noncompliance names ``"always_taker"``,
+        ``"complier"`` and ``"never_taker"`` are the always-survivor, protected and doomed
+        strata (increasing monotonicity: no defiers). Strata other than the always-survivors
+        need the outcome of units whose intermediate (``survival``) is 0, so they are refused
+        under truncation by death. Their effect is identified under principal ignorability in
+        mean form for each observed cell that mixes two strata: with increasing monotonicity,
+        ``E[Y(1) | always_survivor, X] = E[Y(1) | protected, X]`` (treated, intermediate 1;
+        needed by the always-survivor and protected strata) and
+        ``E[Y(0) | protected, X] = E[Y(0) | doomed, X]`` (control, intermediate 0; needed by the
+        protected and doomed strata); with decreasing monotonicity,
+        ``E[Y(0) | always_survivor, X] = E[Y(0) | harmed, X]`` and
+        ``E[Y(1) | harmed, X] = E[Y(1) | doomed, X]``. Formulas and sources:
+        docs/guide/derivations/strata.md.
     scale : {"difference", "ratio", "odds_ratio"}, default="difference"
         Scale of the effect. Ratio scales need positive (``"ratio"``) or binary
         (``"odds_ratio"``) outcomes; their intervals are computed on the log scale.
@@ -42,7 +58,8 @@ _COMMON_PARAMETERS = """
         survivors independent of the outcome given X and arm), fits a follow-up model
         ``c_t(X)`` on each arm's rows and a response model ``r_t(X)`` among each arm's known
         survivors, and weights every observed residual by the inverse probability of being
-        observed (docs/missing-data.md). An arm with nothing missing gets no such model.
+        observed (docs/guide/derivations/missing-data.md). An arm with nothing missing gets no such
+        model.
     response_model : classifier or None, default=None
         Model for ``c_t`` and ``r_t`` (cloned per model and arm); ``None`` is unpenalized
         logistic regression. Used only when something is missing.
@@ -68,10 +85,13 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     Attributes
     ----------
     effect_ : float
-        The survivor average causal effect on the chosen scale.
+        The effect in the target stratum on the chosen scale (the survivor average causal
+        effect by default).
+    stratum_ : str
+        The target stratum's name (aliases resolved: ``"complier"`` gives ``"protected"``).
     std_error_ : float
     mean_treated_, mean_control_ : float
-        Always-survivor means under treatment and under control.
+        The target stratum's means under treatment and under control.
     influence_ : ndarray of shape (n_samples,)
         Per-row influence values of ``effect_``.
     std_error_method_ : str
@@ -108,7 +128,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     True
     """
 
-    _formula = staticmethod(_formulas.weighting_means)
+    _formula = staticmethod(weighting_means)
 
     def __init__(
         self,
@@ -116,6 +136,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         treatment_model=None,
         survival_model=None,
         monotonicity="increasing",
+        stratum="always_survivor",
         scale="difference",
         n_folds=None,
         n_bootstrap=200,
@@ -127,6 +148,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.monotonicity = monotonicity
+        self.stratum = stratum
         self.scale = scale
         self.n_folds = n_folds
         self.n_bootstrap = n_bootstrap
@@ -166,7 +188,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
     array([0.9, 1.8, 1.2])
     """
 
-    _formula = staticmethod(_formulas.regression_means)
+    _formula = staticmethod(regression_means)
     _uses_outcome_model = True
     _treatment_enters_estimate = False
 
@@ -177,6 +199,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         survival_model=None,
         outcome_model=None,
         monotonicity="increasing",
+        stratum="always_survivor",
         scale="difference",
         n_folds=None,
         n_bootstrap=200,
@@ -189,6 +212,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.survival_model = survival_model
         self.outcome_model = outcome_model
         self.monotonicity = monotonicity
+        self.stratum = stratum
         self.scale = scale
         self.n_folds = n_folds
         self.n_bootstrap = n_bootstrap
@@ -241,7 +265,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
     [False, True]
     """
 
-    _formula = staticmethod(_formulas.robust_means)
+    _formula = staticmethod(robust_means)
     _uses_outcome_model = True
     n_bootstrap = 0
 
@@ -252,6 +276,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         survival_model=None,
         outcome_model=None,
         monotonicity="increasing",
+        stratum="always_survivor",
         scale="difference",
         n_folds=None,
         n_repeats=1,
@@ -263,6 +288,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.survival_model = survival_model
         self.outcome_model = outcome_model
         self.monotonicity = monotonicity
+        self.stratum = stratum
         self.scale = scale
         self.n_folds = n_folds
         self.n_repeats = n_repeats

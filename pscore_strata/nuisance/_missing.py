@@ -9,7 +9,7 @@ missingness at random given X within each arm, two more nuisance functions ident
 
 An arm in which nothing is missing gets no model: its probability is exactly 1 (a logistic fit
 on a constant target would separate perfectly). The derivation of the estimators that use these
-models is in docs/missing-data.md.
+models is in docs/guide/derivations/missing-data.md.
 """
 
 from __future__ import annotations
@@ -19,6 +19,8 @@ import warnings
 import numpy as np
 
 from .._validation import EXTREME_PROBABILITY
+from ..exceptions import OverlapWarning
+from ._models import ConstantModel, fit_predict
 
 __all__ = ["fit_missingness", "missingness_counts"]
 
@@ -62,8 +64,6 @@ def fit_missingness(data, model, splits, design, parametric_builder):
     parametric : dict
         :class:`ParametricFit` per fitted model (empty when ``parametric_builder`` is None).
     """
-    from ._fit import _ConstantModel, _fit_predict
-
     n, w = data.n_samples, data.sample_weight
     predictions = {"follow_up": {}, "response": {}}
     fitted, parametric = {}, {}
@@ -79,10 +79,10 @@ def fit_missingness(data, model, splits, design, parametric_builder):
                 fit_rows = train[mask[train]]
                 if np.unique(target[fit_rows]).size < 2:
                     # A fold whose rows are all observed: the share is 1 there, not a separated fit.
-                    model_fit = _ConstantModel(target[fit_rows].mean())
+                    model_fit = ConstantModel(target[fit_rows].mean())
                     values[test] = model_fit.predict(np.empty(test.size))
                 else:
-                    model_fit, values[test] = _fit_predict(
+                    model_fit, values[test] = fit_predict(
                         model, data.X, target, fit_rows, test, w, data.weighted, True
                     )
                 fitted[(kind, arm)].append(model_fit)
@@ -107,8 +107,6 @@ def _warn_small(predictions, data):
                     f"{'treatment' if arm else 'control'} below {EXTREME_PROBABILITY}"
                 )
     if messages:
-        from ._fit import OverlapWarning
-
         warnings.warn(
             "; ".join(messages)
             + ". Inverse-probability-of-observation weights built from them are unstable: check "
@@ -151,3 +149,33 @@ def missingness_counts(data):
             ),
         })  # fmt: skip
     return records
+
+
+#: Fewer observed survivor outcomes than this in an arm and a few rows carry its mean.
+FEW_OUTCOMES = 5
+
+
+def few_outcomes_message(data):
+    """The warning text when an arm has fewer than ``FEW_OUTCOMES`` observed survivor outcomes.
+
+    With one such row, that row alone is the arm's always-survivor mean: the trimming bounds
+    coincide and the standard error describes the models, not the one row's chance.
+    """
+    observed = (
+        data.survival == 1 if data.outcome_observed is None else data.outcome_observed == 1
+    )
+    parts = []
+    for arm, label in ((1, "treated"), (0, "control")):
+        count = int(np.sum(observed & (data.treatment == arm) & (data.sample_weight > 0)))
+        if 0 < count < FEW_OUTCOMES:
+            carried = ("one row carries the arm's always-survivor mean (the bounds then "
+                       "coincide)") if count == 1 else f"{count} rows carry its mean"  # fmt: skip
+            parts.append(f"the {label} arm has {count} survivor(s) with an observed outcome: "
+                         f"{carried}")  # fmt: skip
+    if not parts:
+        return None
+    return (
+        "; ".join(parts).capitalize()
+        + ". Standard errors and intervals this small are not reliable (large-sample "
+        "approximations). Report the counts, and treat the estimate as descriptive."
+    )

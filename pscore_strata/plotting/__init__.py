@@ -4,7 +4,7 @@ matplotlib is imported inside each function, so ``import pscore_strata`` never l
 """
 
 from ._diagnostics import plot_balance, plot_overlap, plot_weights
-from ._distributions import plot_quantile_effects, plot_survivor_distribution
+from ._distributions import plot_level_shares, plot_quantile_effects, plot_survivor_distribution
 from ._sensitivity import plot_sensitivity, plot_sensitivity_contour
 from ._visits import plot_visit_effects
 
@@ -16,5 +16,6 @@ __all__ = [
     "plot_sensitivity_contour",
     "plot_survivor_distribution",
     "plot_quantile_effects",
+    "plot_level_shares",
     "plot_visit_effects",
 ]

@@ -12,16 +12,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..exceptions import InputError
 from . import _coding, _readers
 from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
 
 __all__ = [
     "InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data", "check_folds",
 ]
-
-
-class InputError(ValueError):
-    """A problem with the user's data or options, reported without a traceback."""
 
 
 @dataclass(frozen=True)
@@ -307,7 +304,10 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         used, roles.survival, "--survival", survived_value, allow_blank=bool(modelled)
     )
     messages = ()
-    outcome = pd.to_numeric(used[roles.outcome], errors="coerce")
+    outcome_column, outcome_labels = _coding.labelled_outcome(
+        frame, used[roles.outcome], roles.outcome, InputError
+    )
+    outcome = pd.to_numeric(outcome_column, errors="coerce")
     bad = outcome.isna() & used[roles.outcome].notna()
     if bad.any():
         raise InputError(
@@ -319,12 +319,23 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
     if names:
         covariates = used[list(names)]
         _coding.check_dates(covariates, InputError)
+        _coding.check_identifiers(covariates, roles.categorical, InputError)
         messages = tuple(_coding.many_levels_messages(covariates, roles.categorical))
         text = [
             c
             for c in names
             if c not in roles.categorical and not pd.api.types.is_numeric_dtype(covariates[c])
         ]
+        separated = _coding.separated_numbers(covariates, text)
+        if separated:
+            name, example = next(iter(separated.items()))
+            raise InputError(
+                f"Covariate(s) {', '.join(separated)} hold numbers written with thousands "
+                f"separators (e.g. {example!r} in '{name}'), which are read as text. Save the "
+                "file with plain numbers (no thousands separators; a decimal point, or a "
+                "decimal comma in a semicolon-separated file), or in Python read it with "
+                "pandas.read_csv(..., thousands=',') and write it back."
+            )
         if text:
             raise InputError(
                 f"Covariate(s) {', '.join(text)} are not numeric; list them with --categorical "
@@ -363,7 +374,8 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         n_rows_read=n_read,
         n_rows_dropped=int(incomplete.sum()),
         missing_counts=counts,
-        levels={"treatment": treatment_levels, "survival": survival_levels},
+        levels={"treatment": treatment_levels, "survival": survival_levels,
+                "outcome": outcome_labels},
         messages=messages,
         visits=visits,
     )

@@ -9,6 +9,7 @@ import numpy as np
 from ._distributions import distribution_figures
 from ._format import number
 from ._visits import visit_figures
+from ._wording import outcome_label
 
 __all__ = ["draw_figures"]
 
@@ -45,7 +46,9 @@ def _estimates_figure(results):
         rows.append(("Bounds (no principal ignorability)", None, bounds["lower"],
                      bounds["upper"], "#b5651d"))  # fmt: skip
     naive = results["naive_survivor_contrast"]
-    rows.append(("Naive survivor contrast (biased)", naive["estimate"], naive["ci_low"],
+    other = (results.get("stratum") or {}).get("name", "always_survivor") != "always_survivor"
+    rows.append(("Naive cell contrast (biased)" if other else "Naive survivor contrast (biased)",
+                 naive["estimate"], naive["ci_low"],
                  naive["ci_high"], _GREY))  # fmt: skip
     figure, ax = plt.subplots(figsize=(7.2, 0.55 * len(rows) + 1.2), layout="constrained")
     positions = np.arange(len(rows))[::-1]
@@ -59,8 +62,9 @@ def _estimates_figure(results):
     ax.axvline(0, color="0.3", linewidth=1, linestyle="--")
     ax.set_yticks(positions, [label for label, *_ in rows])
     level = results["settings"]["level"]
-    ax.set_xlabel(f"effect on '{results['columns']['outcome']}' ({level:.0%} intervals)")
-    ax.set_title("Survivor average causal effect", fontsize=10)
+    ax.set_xlabel(f"effect on {outcome_label(results)} ({level:.0%} intervals)")
+    ax.set_title(f"Effect in the {results['stratum']['label']} stratum" if other
+                 else "Survivor average causal effect", fontsize=10)  # fmt: skip
     ax.grid(axis="x", color="0.92")
     return figure
 
@@ -74,7 +78,7 @@ def _sensitivity_figure(results):
                     else ("harmed", "protected"))  # fmt: skip
     panels = (
         ("pi_difference", f"{mixed} minus always-survivor mean of "
-         f"'{results['columns']['outcome']}'\n(0 = principal ignorability)"),
+         f"{outcome_label(results)}\n(0 = principal ignorability)"),
         ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
          "informative)"),
     )  # fmt: skip
@@ -149,6 +153,11 @@ def draw_figures(analysis):
          "drop principal ignorability. The naive comparison of survivors is biased when "
          "treatment changes who survives; it is shown only for contrast."),
     ]  # fmt: skip
+    if "lower" not in results.get("bounds", {}) and results.get("stratum"):
+        figures[0] = figures[0][:4] + (
+            "Points and lines: estimates and confidence intervals. The naive contrast of the "
+            "stratum's observed cells is biased when treatment changes the intermediate; it is "
+            "shown only for contrast.",)  # fmt: skip
     diagnostics = results.get("diagnostics", {})
     if diagnostics.get("available", True):
         from .. import plotting
@@ -166,6 +175,11 @@ def draw_figures(analysis):
                     "practice) the reconstructions agree.",
                 )  # fmt: skip
             )
+    # Without covariates every unit shares one treatment probability, one set of principal
+    # scores and one weight per arm: the overlap, weight, score and calibration figures would
+    # show single bars (the tables say it in numbers).
+    unadjusted = analysis.primary is not None and analysis.primary.n_features_in_ == 0
+    if diagnostics.get("available", True) and not unadjusted:
         figures.append(
             ("overlap.png", "Overlap of the treatment probability", plotting.plot_overlap,
              (analysis.primary,),
@@ -180,7 +194,8 @@ def draw_figures(analysis):
 
     # In report order: subgroups follow the estimates, the model checks the diagnostics.
     figures[1:1] = subgroup_figures(results)
-    figures += model_check_figures(analysis)
+    figures += [f for f in model_check_figures(analysis)
+                if not (unadjusted and f[0] in ("principal_scores.png", "calibration.png"))]
     if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
         figures.append(
             ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),

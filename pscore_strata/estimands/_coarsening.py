@@ -1,7 +1,7 @@
 """The oriented view of missing-at-random data: observation indicators over their probabilities.
 
-Monotone coarsening (Tsiatis 2006, *Semiparametric Theory and Missing Data*, ch. 7 and 10;
-derivation in docs/missing-data.md): the full-data estimating functions are kept, and each
+Monotone coarsening (Tsiatis 2006, *Semiparametric Theory and Missing Data*; derivation in
+docs/guide/derivations/missing-data.md): the full-data estimating functions are kept, and each
 full-data residual is multiplied by the indicator that it is observed over the probability of
 that, given X and what came before. For the SACE formulas this means, in each arm,
 
@@ -84,19 +84,3 @@ def weight_derivatives(o, f, role):
     c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
     return {f"c_{role}": -_over(f, c), f"r_{role}": -_over(f, r)}
 
-
-def missing_data_note(estimator):
-    """The summary's note on missing data: counts by arm and the assumption made."""
-    from .._validation import MISSING_AT_RANDOM_ASSUMPTION
-    from ..nuisance._missing import missingness_counts
-
-    parts = [
-        f"{r['arm']}: {r['n_status_unknown']} of {r['n']} with unknown survival status, "
-        f"{r['n_outcome_missing']} of {r['n_known_survivors']} known survivors without an outcome"
-        for r in missingness_counts(estimator.training_data_)
-    ]
-    return (
-        "Missing data (" + "; ".join(parts) + ") were handled by inverse probability of "
-        f"observation weighting under the assumption that they are {MISSING_AT_RANDOM_ASSUMPTION}"
-        ". This cannot be checked from the data; see sensitivity_grid(outcome_shift=...)."
-    )
