@@ -229,9 +229,15 @@ class TrimmingBounds(BaseEstimator):
     def conf_int(self, level=0.95, coverage="effect"):
         """Confidence interval for a partially identified SACE.
 
+        The same call and shape as the point estimators' ``conf_int(level)``: a ``(low, high)``
+        pair for the SACE. It differs in what it covers: the effect is only known to lie in
+        ``[lower_, upper_]``, so the interval widens the bounds by their sampling error instead
+        of surrounding one estimate.
+
         Parameters
         ----------
         level : float, default=0.95
+            Confidence level, strictly between 0 and 1.
         coverage : {"effect", "identified_set"}, default="effect"
             ``"effect"`` covers the true SACE (every point of the identified set) with
             probability ``level`` (Imbens & Manski 2004); ``"identified_set"`` covers the whole
@@ -258,7 +264,20 @@ class TrimmingBounds(BaseEstimator):
         )
 
     def summary(self, level=0.95):
-        """Bounds, standard errors and intervals as a DataFrame (cautions in ``attrs``)."""
+        """Bounds, standard errors and intervals as a DataFrame (cautions in ``attrs``).
+
+        Parameters
+        ----------
+        level : float, default=0.95
+            Level of the Imbens-Manski interval.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Rows ``SACE lower bound`` and ``SACE upper bound``: ``estimate``, ``std_error`` and
+            ``interval_end`` (the interval's end on that side); ``attrs["notes"]`` holds the
+            notes and cautions.
+        """
         check_is_fitted(self, "lower_")
         low, high = self.conf_int(level)
         table = pd.DataFrame(

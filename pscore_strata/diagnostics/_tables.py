@@ -143,6 +143,11 @@ def balance_table(estimator, X):
 def weight_summary(estimator):
     """Distribution of the balancing weights of each reconstruction.
 
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        A fitted estimator; its stored nuisance predictions are read, nothing is refitted.
+
     Returns
     -------
     table : DataFrame indexed by weight set (``treated_survivors``, ``control_survivors``,
@@ -177,6 +182,11 @@ def weight_summary(estimator):
 @cached_diagnostic(always, takes_x=False)
 def overlap_summary(estimator):
     """Distribution of the treatment probability and the principal scores in each arm.
+
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        A fitted estimator; its stored nuisance predictions are read, nothing is refitted.
 
     Returns
     -------
@@ -227,6 +237,19 @@ def diagnostic_warnings(estimator, X=None):
     monotonicity direction for more than 5% of rows, or an
     adjusted survival comparison on the wrong side of zero (Bonferroni over the strata). Balance
     is checked only when ``X`` (the covariates of the fitted rows) is given.
+
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        A fitted estimator; its stored nuisance predictions are read, nothing is refitted.
+
+    X : array-like of shape (n_samples, n_features), optional
+        The covariates the estimator was fitted with, for the balance checks.
+
+    Returns
+    -------
+    list of str
+        One sentence per problem found, saying what to check or change; empty when none.
     """
     o = oriented_predictions(estimator)
     target = getattr(estimator, "stratum_", "always_survivor")

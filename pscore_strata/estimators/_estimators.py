@@ -8,7 +8,8 @@ fit and result logic (:mod:`._base`).
 from __future__ import annotations
 
 from ..estimands._formulas import regression_means, robust_means, weighting_means
-from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
+from ._base import SurvivorEffectEstimator
+from ._heterogeneity import ConditionalEffectMixin
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
 

@@ -55,6 +55,11 @@ class PrincipalScoresMixin:
         larger than the one reported here; elsewhere the two agree. With
         cross-fitting, the predictions average every fold model (of every repeat).
 
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+            Covariates, in the columns (and, for a DataFrame, the names) seen in ``fit``.
+
         Returns
         -------
         ndarray of shape (n_rows, 3), or DataFrame
@@ -84,7 +89,19 @@ class PrincipalScoresMixin:
         return result
 
     def predict(self, X):
-        """The most probable principal stratum per row."""
+        """The most probable principal stratum per row.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+            As in :meth:`predict_proba`.
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+            Labels from ``classes_``. The strata are latent: this is the stratum the fitted
+            scores make most probable, not a classification of the person.
+        """
         return self.classes_[np.argmax(np.asarray(self.predict_proba(X)), axis=1)]
 
 
