@@ -23,7 +23,13 @@ except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
         return estimator._check_feature_names(X, reset=reset)
 
 from .._arguments import check_estimator_arguments, check_n_folds
-from .._validation import check_choice, check_features, check_level, check_truncation_data
+from .._validation import (
+    check_choice,
+    check_features,
+    check_level,
+    check_truncation_data,
+    intermediate_alias,
+)
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ..inference._influence import (
     count_clusters,
@@ -514,16 +520,6 @@ _STRATUM_FORMULAS = {
     _formulas.regression_means: _stratum_formulas.stratum_regression_means,
     _formulas.robust_means: _stratum_formulas.stratum_robust_means,
 }
-
-
-def intermediate_alias(survival, intermediate):
-    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
-    if (survival is None) == (intermediate is None):
-        raise TypeError(
-            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
-            "variable under two names); got " + ("both." if survival is not None else "neither.")
-        )
-    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")
 
 
 class _Roles:
