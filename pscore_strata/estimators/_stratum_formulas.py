@@ -25,8 +25,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _formulas
-from ._formulas import MeanParts, _ratio
+from ..estimands._formulas import MeanParts, Oriented
+from ..estimands._formulas import ratio as _ratio
 
 __all__ = [
     "Stratum",
@@ -217,8 +217,8 @@ class StratumView:
         return arm * (p if s == 1 else 1 - p)
 
     # The same normalized mean and nuisance-estimation terms as the SACE's oriented view.
-    weighted_mean = _formulas.Oriented.weighted_mean
-    corrections = _formulas.Oriented.corrections
+    weighted_mean = Oriented.weighted_mean
+    corrections = Oriented.corrections
 
 
 def stratum_view(data, nuisance, monotonicity, stratum):
