@@ -19,7 +19,7 @@ from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_positive_integer
-from .._validation import check_choice, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
 from ..estimands._formulas import orient
 from ..inference._standard_errors import (
@@ -142,8 +142,8 @@ class TrimmingBounds(BaseEstimator):
         self.response_model = response_model
         self.quantiles = quantiles
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None,
-            nuisance=None):  # fmt: skip
+    def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
+            groups=None, cells=None, nuisance=None):  # fmt: skip
         """Estimate the bounds.
 
         Parameters
@@ -152,6 +152,8 @@ class TrimmingBounds(BaseEstimator):
             Covariates for the treatment (and survival) models; ``None`` gives unadjusted
             bounds.
         y, treatment, survival, sample_weight, groups
+            As in the estimators' ``fit``; ``intermediate`` is ``survival`` under its general
+            name (give exactly one).
             As in :meth:`PrincipalScoreWeighting.fit`.
         cells : array-like of shape (n_samples,), optional
             Covariate cell labels (functions of pre-treatment covariates only). Bounds are
@@ -173,8 +175,9 @@ class TrimmingBounds(BaseEstimator):
         check_positive_integer(self.n_strata, "n_strata")
         if self.quantiles is not None:
             check_quantiles(self.quantiles)
+        survival, name = intermediate_alias(survival, intermediate)
         data = check_truncation_data(
-            X, y, treatment, survival, sample_weight, groups,
+            X, y, treatment, survival, sample_weight, groups, survival_name=name,
             models=(self.treatment_model, self.survival_model, self.response_model),
             missing=self.missing,
         )  # fmt: skip

@@ -15,7 +15,7 @@ from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_n_folds
-from .._validation import check_choice, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ..estimands._formulas import (
     orient,
@@ -34,7 +34,7 @@ from ..inference._standard_errors import (
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import record_settings, shared_nuisance
 from . import _stratum_formulas
-from ._fallback import bootstrap_std_errors, intermediate_alias
+from ._fallback import bootstrap_std_errors
 from ._heterogeneity import subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._scores import PrincipalScoresMixin, check_feature_names
