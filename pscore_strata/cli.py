@@ -85,7 +85,23 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        quantiles=_quantiles(args.quantiles),
+        distributions=args.distributions,
     )
+
+
+def _quantiles(text):
+    """``--quantiles 0.1,0.5,0.9`` -> sorted distinct probabilities strictly inside (0, 1)."""
+    try:
+        values = [float(part) for part in str(text).split(",") if part.strip()]
+    except ValueError:
+        values = None
+    if not values or not all(0 < v < 1 for v in values):
+        raise ValueError(
+            "--quantiles must be comma-separated probabilities strictly between 0 and 1, "
+            f"e.g. 0.1,0.25,0.5,0.75,0.9; got {text!r}."
+        )
+    return tuple(sorted(set(values)))
 
 
 def _print_survival_model(results):
@@ -409,6 +425,16 @@ def build_parser():
         "applies to the treatment and outcome models)",
     )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
+    analyze.add_argument(
+        "--quantiles", default="0.1,0.25,0.5,0.75,0.9", metavar="LIST",
+        help="comma-separated probabilities of the quantile effects and their bounds in the "
+        "distributions section (default: 0.1,0.25,0.5,0.75,0.9)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--no-distributions", dest="distributions", action="store_false",
+        help="skip the distributions section (CDFs, quantile effects, level shares); the "
+        "report says it was skipped",
+    )  # fmt: skip
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")
     analyze.add_argument(
         "--out", default=DEFAULT_OUT, metavar="DIR",

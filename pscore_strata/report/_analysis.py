@@ -231,6 +231,8 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "seed": options.seed,
             "missing": options.missing,
             "survival_model": options.survival_model,
+            "quantiles": list(options.quantiles),
+            "distributions": options.distributions,
         },
         "survival_model": survival_model_record(options, choice),
         "wording": words,
