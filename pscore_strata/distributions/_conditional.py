@@ -30,7 +30,7 @@ import numpy as np
 from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 
-from ..nuisance._fit import _fit, _rows, default_binary_model
+from ..nuisance._models import default_binary_model, fit_model, take_rows
 from ._threshold_fits import ThresholdSandwich, fit_thresholds
 
 __all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "MAX_LEVELS"]
@@ -199,9 +199,9 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
                 failed = fitted_here[~converged]
             for j in failed:
                 labels = (y_rows <= thresholds[j]).astype(float)
-                fitted = _fit(clone(model), _rows(X, rows), labels,
+                fitted = fit_model(clone(model), take_rows(X, rows), labels,
                               w_rows if data.weighted else None)  # fmt: skip
-                grid[arm][test, j] = fitted.predict_proba(_rows(X, test))[:, 1]
+                grid[arm][test, j] = fitted.predict_proba(take_rows(X, test))[:, 1]
         # Rearrangement over the thresholds, row by row where the fitted curves cross.
         raw = grid[arm]
         crossing = np.flatnonzero(np.any(raw[:, 1:] < raw[:, :-1], axis=1))

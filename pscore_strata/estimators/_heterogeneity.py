@@ -13,10 +13,11 @@ import numpy as np
 import pandas as pd
 from sklearn.base import is_classifier
 
-from .._validation import _one_dimensional, check_features
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
-from ..nuisance._fit import predict_models
-from . import _formulas
+from .._validation import check_features
+from .._vectors import one_dimensional
+from ..estimands._formulas import scale_effect
+from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
+from ..nuisance._models import predict_models
 from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
@@ -91,7 +92,7 @@ def _check_labels(labels, n_samples, estimator=None):
     if labels is None:
         raise ValueError("`labels` is required: pass one subgroup label per training row.")
     labels = _aligned(labels, estimator, n_samples)
-    array = _one_dimensional(labels, "labels")
+    array = one_dimensional(labels, "labels")
     if array.shape[0] != n_samples:
         raise ValueError(
             f"`labels` has {array.shape[0]} rows but the estimator was fitted on {n_samples}; "
@@ -137,7 +138,7 @@ def subgroup_effects(estimator, labels, level):
         formula = estimator._formula_for(oriented)
         for code in range(len(names)):
             parts = formula(oriented, (codes == code).astype(float))
-            effect, influence = _formulas.scale_effect(parts, estimator.scale)
+            effect, influence = scale_effect(parts, estimator.scale)
             effects[r, code] = effect
             errors[r, code] = influence_std_error(influence, w, data.groups)
     effect, std_error = median_aggregate(effects, errors)

@@ -12,16 +12,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..exceptions import InputError
 from . import _coding, _readers
 from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
 
 __all__ = [
     "InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data", "check_folds",
 ]
-
-
-class InputError(ValueError):
-    """A problem with the user's data or options, reported without a traceback."""
 
 
 @dataclass(frozen=True)
