@@ -73,6 +73,8 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        quantiles=_quantiles(args.quantiles),
+        distributions=args.distributions,
         stratum=_stratum(args),
         visit_population=args.visit_population or "each",
         **trial_settings(args),
@@ -88,6 +90,20 @@ def _survival_columns(args):
             + ("both." if args.survival is not None else "neither.")
         )
     return args.survival if args.survival is not None else args.intermediate
+
+
+def _quantiles(text):
+    """``--quantiles 0.1,0.5,0.9`` -> sorted distinct probabilities strictly inside (0, 1)."""
+    try:
+        values = [float(part) for part in str(text).split(",") if part.strip()]
+    except ValueError:
+        values = None
+    if not values or not all(0 < v < 1 for v in values):
+        raise ValueError(
+            "--quantiles must be comma-separated probabilities strictly between 0 and 1, "
+            f"e.g. 0.1,0.25,0.5,0.75,0.9; got {text!r}."
+        )
+    return tuple(sorted(set(values)))
 
 
 def _stratum(args):
@@ -215,11 +231,18 @@ def simulate_command(args):
         frame["cluster"] = data.groups
     replaced = _write_simulated(frame, out)
     covariates = " ".join(c for c in frame.columns if c.startswith("x"))
+    # The intermediate_* scenarios (datasets/_intermediate.py) know every stratum's effect.
+    stratum = data.get("target_stratum")
+    truth = "true SACE" if stratum in (None, "always_survivor") else f"true {stratum} effect"
     print(f"Wrote {len(frame)} rows of scenario '{args.scenario}' to {out}"
-          f"{' (replacing the file there)' if replaced else ''}; true SACE "
+          f"{' (replacing the file there)' if replaced else ''}; {truth} "
           f"{data.true_effect:.4f}.")  # fmt: skip
+    role = "--survival survival" if stratum is None else "--intermediate survival"
+    if stratum is not None:
+        role += f" --stratum {stratum}" + (
+            " --monotonicity decreasing" if data.params["monotonicity"] == "decreasing" else "")
     print(f"Analyse it with: pscore-strata analyze {out} --outcome outcome --treatment treatment "
-          f"--survival survival --covariates {covariates}"
+          f"{role} --covariates {covariates}"
           + (" --cluster cluster" if "cluster" in frame else "")
           + (" --missing at_random" if frame[["survival", "outcome"]].isna().any().any()
              and "status_known" in data else ""))  # fmt: skip

@@ -9,12 +9,14 @@ import pandas as pd
 from ._checks import check_choice, resolve_rng
 from ._intermediate import INTERMEDIATE_SCENARIOS
 from ._scenarios import TRUNCATION_SCENARIOS
+from ._visits import VISIT_SCENARIOS
 
 __all__ = ["SCENARIOS", "list_scenarios", "make_scenario"]
 
 SCENARIOS = {}
 SCENARIOS.update(TRUNCATION_SCENARIOS)
 SCENARIOS.update(INTERMEDIATE_SCENARIOS)  # an outcome after a binary intermediate (every stratum)
+SCENARIOS.update(VISIT_SCENARIOS)  # repeated visits with deaths between them
 # Other families register here, one line each: SCENARIOS.update(FAMILY_SCENARIOS)
 
 
@@ -87,6 +89,11 @@ def make_scenario(name, n_samples=2000, random_state=None, **params):
           ``stratum=`` set to it). ``"intermediate_exclusion"``: randomized noncompliance
           where the exclusion restriction holds too; the truth is the complier effect.
           Their parameters are the arguments of :func:`make_intermediate`.
+
+        The visits family: ``"visits"``, the last visit of :func:`make_visits` as a
+        single-visit study (its parameters are those of :func:`make_visits`); the visit
+        matrices are in ``y_visits`` and ``survival_visits``, their truths in
+        ``true_effects``.
     n_samples : int, default=2000
         Number of units.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState

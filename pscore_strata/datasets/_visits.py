@@ -17,8 +17,9 @@ from scipy.special import expit, logit
 from sklearn.utils import Bunch
 
 from ._checks import check_choice, check_positive_int, check_real, resolve_rng
+from ._family import Scenario
 
-__all__ = ["make_visits", "VISIT_LABELS"]
+__all__ = ["make_visits", "last_visit_view", "VISIT_LABELS", "VISIT_SCENARIOS"]
 
 VISIT_LABELS = ("month_3", "month_6", "month_12")
 _LIFT = 1.0
@@ -214,3 +215,13 @@ def last_visit_view(n_samples, rng, **params):
         y_visits=data.y, survival_visits=data.survival, true_effects=data.true_effects,
         visits=data.visits, params=data.params, DESCR=data.DESCR,
     )  # fmt: skip
+
+
+VISIT_SCENARIOS = {
+    "visits": Scenario(
+        make=last_visit_view, family="visits", truth="quadrature", params={},
+        bias={"weighting": "none", "regression": "none", "multiply_robust": "none"},
+        description="Three visits with deaths between them (make_visits); the last visit as a "
+                    "single-visit study, the visit matrices in y_visits and survival_visits.",
+    ),
+}

@@ -16,7 +16,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._features import feature_fingerprint
-from .._validation import check_choice, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..estimands._formulas import (
     orient,
     regression_means,
@@ -36,13 +36,13 @@ from ..nuisance._fit import fit_nuisance
 from ..nuisance._missing import few_outcomes_message
 from ..nuisance._share import record_settings, shared_nuisance
 from . import _stratum_formulas
-from ._fallback import bootstrap_std_errors, intermediate_alias
-from ._heterogeneity import conditional_effect, subgroup_effects
+from ._fallback import bootstrap_std_errors
+from ._heterogeneity import subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._scores import PrincipalScoresMixin, check_feature_names, count_crossings
 from ._summary import summary_table
 
-__all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
+__all__ = ["SurvivorEffectEstimator"]
 
 _SCALES = ("difference", "ratio", "odds_ratio")
 
@@ -317,10 +317,19 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
 
         With fewer than 30 clusters in ``groups`` the reference is Student's t with
         ``n_clusters_ - 1`` degrees of freedom (a :class:`FewClustersWarning` is raised at fit).
+        :class:`~pscore_strata.TrimmingBounds` and a one-effect :class:`BootstrapResult` answer
+        ``conf_int(level)`` with the same ``(low, high)`` pair; for the bounds it covers the
+        partially identified effect rather than surrounding one estimate.
+
+        Parameters
+        ----------
+        level : float, default=0.95
+            Confidence level, strictly between 0 and 1.
 
         Returns
         -------
         (low, high) : tuple of float
+            The interval's ends.
         """
         check_is_fitted(self, "effect_")
         return normal_interval(
@@ -335,6 +344,17 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         principal stratum shares, and the naive survivor-only contrast (biased when treatment
         changes who survives; shown for comparison). ``attrs["notes"]`` explains how the
         standard errors were obtained and states the cautions that go with every SACE.
+
+        Parameters
+        ----------
+        level : float, default=0.95
+            Level of the confidence intervals.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``estimate``, ``std_error``, ``ci_low``, ``ci_high``, one row per quantity;
+            ``attrs["notes"]`` holds the notes and cautions.
         """
         check_is_fitted(self, "effect_")
         return summary_table(self, level)
@@ -364,26 +384,6 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         check_is_fitted(self, "effect_")
         check_level(level)
         return subgroup_effects(self, labels, level)
-
-
-class ConditionalEffectMixin:
-    def predict_effect(self, X):
-        """The always-survivor effect given ``X``: ``m1(X) - m0(X)`` (ratio scales: their ratio).
-
-        Valid under principal ignorability, which makes the survivors' outcome mean in each arm
-        equal the always-survivors' mean given ``X``. With cross-fitting, each ``m_t`` averages
-        the fold models (of every repeat). A classifier outcome model gives risks.
-
-        Parameters
-        ----------
-        X : array-like of shape (n_rows, n_features)
-
-        Returns
-        -------
-        ndarray of shape (n_rows,)
-        """
-        check_is_fitted(self, "effect_")
-        return conditional_effect(self, X)
 
 
 # The formula of each method for the strata other than the always-survivors.

@@ -8,7 +8,8 @@ fit and result logic (:mod:`._base`).
 from __future__ import annotations
 
 from ..estimands._formulas import regression_means, robust_means, weighting_means
-from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
+from ._base import SurvivorEffectEstimator
+from ._heterogeneity import ConditionalEffectMixin
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
 
@@ -58,7 +59,8 @@ _COMMON_PARAMETERS = """
         survivors independent of the outcome given X and arm), fits a follow-up model
         ``c_t(X)`` on each arm's rows and a response model ``r_t(X)`` among each arm's known
         survivors, and weights every observed residual by the inverse probability of being
-        observed (docs/missing-data.md). An arm with nothing missing gets no such model.
+        observed (docs/guide/derivations/missing-data.md). An arm with nothing missing gets no such
+        model.
     response_model : classifier or None, default=None
         Model for ``r_t`` (outcome observed among known survivors; cloned per arm); ``None`` is
         unpenalized logistic regression. Used only when outcomes are missing.

@@ -17,7 +17,7 @@ from sklearn.base import clone
 from ..inference._failures import MAX_FAILURE_SHARE, describe_failures
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 
-__all__ = ["bootstrap_std_errors", "intermediate_alias"]
+__all__ = ["bootstrap_std_errors"]
 
 
 def bootstrap_std_errors(estimator, data):
@@ -84,13 +84,3 @@ def _one_replicate(estimator, data, seed):
     if not np.all(np.isfinite(values)):
         return None, "a fitted probability reached 0 or 1 where the formula divides by it"
     return values, None
-
-
-def intermediate_alias(survival, intermediate):
-    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
-    if (survival is None) == (intermediate is None):
-        raise TypeError(
-            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
-            "variable under two names); got " + ("both." if survival is not None else "neither.")
-        )
-    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")

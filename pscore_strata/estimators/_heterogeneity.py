@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 from sklearn.base import is_classifier
+from sklearn.utils.validation import check_is_fitted
 
 from .._validation import check_features
 from .._vectors import one_dimensional
@@ -22,7 +23,7 @@ from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
 
-__all__ = ["conditional_effect", "subgroup_effects"]
+__all__ = ["conditional_effect", "subgroup_effects", "ConditionalEffectMixin"]
 
 
 def _on_scale(mean_treated, mean_control, scale):
@@ -184,3 +185,23 @@ def subgroup_effects(estimator, labels, level):
     table.attrs["small_subgroups"] = sorted(map(str, small))
     table.attrs["notes"] = notes
     return table
+
+
+class ConditionalEffectMixin:
+    def predict_effect(self, X):
+        """The always-survivor effect given ``X``: ``m1(X) - m0(X)`` (ratio scales: their ratio).
+
+        Valid under principal ignorability, which makes the survivors' outcome mean in each arm
+        equal the always-survivors' mean given ``X``. With cross-fitting, each ``m_t`` averages
+        the fold models (of every repeat). A classifier outcome model gives risks.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+        """
+        check_is_fitted(self, "effect_")
+        return conditional_effect(self, X)

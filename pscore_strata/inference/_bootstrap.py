@@ -16,7 +16,7 @@ import pandas as pd
 from joblib import delayed
 from sklearn.base import clone
 
-from .._validation import check_choice, check_level
+from .._validation import check_choice, check_level, intermediate_alias
 from ._failures import _check_failures, failure_reasons
 from ._intervals import bca_interval, influence_acceleration, percentile_interval
 from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
@@ -36,7 +36,8 @@ def bootstrap(
     y,
     *,
     treatment,
-    survival,
+    survival=None,
+    intermediate=None,
     n_resamples=999,
     method="resample",
     multiplier="rademacher",
@@ -59,6 +60,8 @@ def bootstrap(
         ``n_bootstrap=0`` where that parameter exists, so no bootstrap runs inside another.
     X, y, treatment, survival : array-like
         As in the estimator's ``fit``.
+    intermediate : array-like, optional
+        ``survival`` under its general name (give exactly one of the two).
     n_resamples : int, default=999
     method : {"resample", "multiplier"}, default="resample"
         ``"resample"`` redraws rows and refits every model (valid for any learner).
@@ -113,6 +116,7 @@ def bootstrap(
     _check_params(
         estimator, n_resamples, method, multiplier, stratify, progress, n_jackknife_groups
     )
+    survival, _ = intermediate_alias(survival, intermediate)
     inputs = Inputs(X, y, treatment, survival, sample_weight, groups)
     template = clone(estimator)
     if "n_bootstrap" in template.get_params(deep=False):

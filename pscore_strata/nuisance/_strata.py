@@ -19,7 +19,6 @@ from sklearn.pipeline import Pipeline
 from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted
 
-from .._features import check_feature_names, check_features
 from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
@@ -30,6 +29,8 @@ from ._mixture import (
 )
 from ._stratum_fitting import (
     check_cells,
+    check_fit_input,
+    check_prediction_input,
     check_stratum_params,
     newton_maximize,
     starting_strata,
@@ -188,10 +189,7 @@ class PrincipalScoreModel(BaseEstimator):
         if X is None:
             self.n_features_in_ = 0
         else:
-            # The checks (and messages) of the estimators: NaN or text that the model cannot
-            # take, and scikit-learn's feature names for predict_proba to compare.
-            X, _, _ = check_features(X, (self.estimator,), n_rows=treatment.size)
-            check_feature_names(self, X, reset=True)
+            X = check_fit_input(self, X, treatment.size)
         self.classes_ = np.array(
             ["always_survivor", "protected" if self._increasing else "harmed", "doomed"]
         )
@@ -362,14 +360,7 @@ class PrincipalScoreModel(BaseEstimator):
         ndarray of shape (n_rows, 3)
         """
         check_is_fitted(self, "classes_")
-        if X is not None and self.n_features_in_ == 0:
-            raise ValueError(
-                "This PrincipalScoreModel was fitted without covariates (X=None), so its "
-                "principal scores are the same for every row: call predict_proba(None), or "
-                "refit it with the covariates."
-            )
-        if X is not None:
-            check_feature_names(self, X, reset=False)
+        check_prediction_input(self, X)
         if self.estimator is None:
             if X is None:
                 return strata_probabilities(np.tile(self._coef_standardized[:, 0], (1, 1)))
@@ -384,7 +375,18 @@ class PrincipalScoreModel(BaseEstimator):
         return self._classifier_strata(self.estimator_, self._classifier_input(X, n))
 
     def predict(self, X):
-        """The most probable principal stratum per row."""
+        """The most probable principal stratum per row.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+            As in :meth:`predict_proba`.
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+            Labels from ``classes_``: the most probable (latent) stratum, not a diagnosis.
+        """
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
 
     def survival_probability(self, X):

@@ -7,8 +7,10 @@ import numpy as np
 from sklearn.pipeline import Pipeline
 from sklearn.utils.validation import has_fit_parameter
 
+from .._features import check_feature_names, check_features
+
 __all__ = ["check_stratum_params", "check_cells", "starting_strata", "newton_maximize",
-           "weighted_fit"]  # fmt: skip
+           "weighted_fit", "check_fit_input", "check_prediction_input"]  # fmt: skip
 
 
 def check_stratum_params(model):
@@ -150,3 +152,23 @@ def weighted_fit(model, X, labels, weights):
     if isinstance(model, Pipeline):
         return model.fit(X, labels, **{f"{model.steps[-1][0]}__sample_weight": weights})
     return model.fit(X, labels, sample_weight=weights)
+
+
+def check_fit_input(model, X, n_rows):
+    """The estimators' checks of ``X`` (NaN or text the classifier cannot take, with their
+    messages) and scikit-learn's feature names, recorded for ``predict_proba`` to compare."""
+    X, _, _ = check_features(X, (model.estimator,), n_rows=n_rows)
+    check_feature_names(model, X, reset=True)
+    return X
+
+
+def check_prediction_input(model, X):
+    """Covariates at prediction: none after a fit without them, else the fitted names."""
+    if X is not None and model.n_features_in_ == 0:
+        raise ValueError(
+            "This PrincipalScoreModel was fitted without covariates (X=None), so its "
+            "principal scores are the same for every row: call predict_proba(None), or "
+            "refit it with the covariates."
+        )
+    if X is not None:
+        check_feature_names(model, X, reset=False)
