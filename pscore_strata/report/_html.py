@@ -8,6 +8,7 @@ from importlib import resources
 from pathlib import Path
 
 from ._format import count, interval, number, percent
+from ._glance import FOLD_TITLES, FOLDED, headlines, main_warnings, tipping_text
 
 __all__ = ["write_report", "render_html", "schema"]
 
@@ -65,15 +66,23 @@ def _view(results, figures):
     if "pi_difference" in sens:
         selected = _every_few(sens["pi_difference"]["grid"], 7)
         selected_harmed = _every_few(sens["harmed_ratio"]["grid"], 7)
+    words = results.get("wording") or _DEFAULT_WORDING
+    shown, more = main_warnings(results)
     return {
         "r": results,
         "sections": SECTIONS,
+        "folded": FOLDED,
+        "fold_titles": FOLD_TITLES,
+        "headlines": headlines(results, words),
+        "tipping": tipping_text(results),
+        "glance_warnings": shown,
+        "more_warnings": more,
         "level": level,
         "primary": primary,
         "balance": balance,
         "selected_grid": selected,
         "selected_harmed": selected_harmed,
-        "w": results.get("wording") or _DEFAULT_WORDING,
+        "w": words,
         "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
         "fmt": number,
         "pct": percent,

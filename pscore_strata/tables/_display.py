@@ -124,17 +124,17 @@ class SummaryTable(pd.DataFrame):
         if {"ci_low", "ci_high"} <= set(frame.columns):
             position = frame.columns.get_loc("ci_low")
             name = f"{self.level:.0%} CI" if self.level is not None else "CI"
-            intervals = [None if pd.isna(lo) or pd.isna(hi) else (lo, hi)
-                         for lo, hi in zip(frame["ci_low"], frame["ci_high"], strict=True)]  # fmt: skip
+            pairs = zip(frame["ci_low"], frame["ci_high"], strict=True)
+            intervals = [None if pd.isna(lo) or pd.isna(hi) else (lo, hi) for lo, hi in pairs]
             frame = frame.drop(columns=["ci_low", "ci_high"])
             frame.insert(position, name, intervals)
         if frame.index.name:
             labels[frame.index.name] = frame.index.name.replace("_", " ").capitalize()
         floats = {c: ".3f" for c in frame.columns if frame[c].dtype.kind == "f" or
                   any(isinstance(v, tuple) for v in frame[c])}  # fmt: skip
+        known = {k: v for k, v in labels.items() if k in frame.columns or k == frame.index.name}
         table = Table(frame, caption or self.title or "Summary", footnote=self.notes,
-                      formats=floats, labels={k: v for k, v in labels.items()
-                                              if k in frame.columns or k == frame.index.name})  # fmt: skip
+                      formats=floats, labels=known)
         if path is not None:
             return table.write(path, format)
         return table if format is None else table.render(format)
