@@ -34,6 +34,8 @@ from ..inference._influence import (
 )
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import shared_nuisance
+from ..tables import SummaryTable
+from ._display import BoundsDisplay
 from ._quantile_bounds import add_quantile_bounds
 
 __all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
@@ -96,7 +98,7 @@ def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95, dof=Non
     return float(lower - c * se_lower), float(upper + c * se_upper)
 
 
-class TrimmingBounds(BaseEstimator):
+class TrimmingBounds(BoundsDisplay, BaseEstimator):
     """Bounds on the survivor average causal effect that drop principal ignorability.
 
     Parameters
@@ -476,7 +478,7 @@ class TrimmingBounds(BaseEstimator):
             "Interpret them under the study protocol, local regulation and with a qualified "
             "statistician.",
         ]
-        return table
+        return SummaryTable(table, title="TrimmingBounds: bounds on the SACE", level=level)
 
 
 def shared_bounds_nuisance(bounds, nuisance, data):

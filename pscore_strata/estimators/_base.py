@@ -38,6 +38,7 @@ from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
 from ..nuisance._strata import StratumArm
 from . import _formulas
+from ._display import EstimatorDisplay
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._summary import summary_table
@@ -47,7 +48,7 @@ __all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
 _SCALES = ("difference", "ratio", "odds_ratio")
 
 
-class SurvivorEffectEstimator(BaseEstimator):
+class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
     """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
 
     _uses_outcome_model = False

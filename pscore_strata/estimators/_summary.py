@@ -7,6 +7,7 @@ import pandas as pd
 
 from ..diagnostics._tables import diagnostic_warnings
 from ..inference._influence import estimator_dof, influence_std_error, normal_interval
+from ..tables import SummaryTable
 from ._repeats import median_aggregate
 
 __all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
@@ -69,7 +70,8 @@ def summary_table(estimator, level):
     table = table.set_index("quantity")
     table.attrs["scale"] = estimator.scale
     table.attrs["notes"] = _notes(estimator) + diagnostic_warnings(estimator)
-    return table
+    title = f"{type(estimator).__name__}: survivor average causal effect"
+    return SummaryTable(table, title=title, level=level)
 
 
 def _stratum_shares(estimator):

@@ -17,6 +17,8 @@ from joblib import delayed
 from sklearn.base import clone
 
 from .._validation import check_choice, check_level
+from ..tables import SummaryTable
+from ._display import BootstrapDisplay
 from ._influence import (
     bca_interval,
     influence_acceleration,
@@ -197,7 +199,7 @@ def bootstrap(
     )
 
 
-class BootstrapResult:
+class BootstrapResult(BootstrapDisplay):
     """Replicates of a bootstrap and the intervals they give.
 
     With one statistic (``"effect"``) ``estimate`` and ``std_error`` are floats and
@@ -303,7 +305,7 @@ class BootstrapResult:
             "about individual patients on them; follow the study protocol and local "
             "regulation, and have a qualified statistician review the analysis.",
         ]
-        return table
+        return SummaryTable(table, title="Bootstrap", level=level)
 
     def __repr__(self):
         # What an analyst wants at a glance: each statistic's estimate, SE and 95% percentile

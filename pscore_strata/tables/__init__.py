@@ -5,7 +5,7 @@ Every format prints the same formatted cells, so the digits agree between a Word
 paper and the report. python-docx is imported only when a Word file is written.
 """
 
-from ._display import SummaryTable, number_text, result_card
+from ._display import NotebookDisplay, SummaryTable, number_text, result_card
 from ._files import write_tables
 from ._table import FORMATS, Table, format_cell
 from ._text import latex_escape
@@ -17,6 +17,7 @@ __all__ = [
     "latex_escape",
     "FORMATS",
     "SummaryTable",
+    "NotebookDisplay",
     "result_card",
     "number_text",
 ]

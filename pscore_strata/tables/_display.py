@@ -11,7 +11,7 @@ import pandas as pd
 
 from ._table import Table
 
-__all__ = ["SummaryTable", "result_card", "number_text"]
+__all__ = ["SummaryTable", "NotebookDisplay", "result_card", "number_text"]
 
 _WIDTH = 100
 _CARD_STYLE = (
@@ -143,6 +143,35 @@ class SummaryTable(pd.DataFrame):
         return self.to_table().to_html()
 
 
+class NotebookDisplay:
+    """Mixin for results shown in notebooks: a fitted object displays as its result card.
+
+    A subclass sets ``_fitted_attribute`` (present once fitted) and defines ``_card()``
+    returning HTML (see :func:`result_card`). Before fitting, a scikit-learn estimator keeps
+    scikit-learn's own display (its parameter diagram).
+    """
+
+    _fitted_attribute = "effect_"
+
+    def _card(self):  # pragma: no cover - every subclass defines it
+        raise NotImplementedError
+
+    def _is_fitted_for_display(self):
+        return hasattr(self, self._fitted_attribute)
+
+    @property
+    def _repr_html_(self):
+        # A property, as scikit-learn's: notebooks call what it returns.
+        if self._is_fitted_for_display():
+            return self._card
+        return super()._repr_html_
+
+    def _repr_mimebundle_(self, **kwargs):
+        if self._is_fitted_for_display():
+            return {"text/plain": repr(self), "text/html": self._card()}
+        return super()._repr_mimebundle_(**kwargs)
+
+
 def _four_decimals(value):
     return f"{value:.4f}"
 
@@ -190,8 +219,11 @@ def result_card(title, fields, *, warnings=(), notes=(), details=None):
     return "\n".join(parts)
 
 
-def number_text(value, digits=4):
-    """A compact number for a card: ``digits`` significant digits, "n/a" when not finite."""
+def number_text(value, digits=3):
+    """A number for a card: ``digits`` decimals (fewer above 100), "n/a" when not finite."""
     if value is None or not np.isfinite(value):
         return "n/a"
-    return f"{value:.{digits}g}"
+    size = abs(value)
+    places = digits if size < 100 else (1 if size < 1000 else 0)
+    text = f"{value:,.{places}f}"
+    return text[1:] if text.lstrip("-0.,") == "" and text.startswith("-") else text
