@@ -14,7 +14,7 @@ import warnings
 import numpy as np
 import pandas as pd
 
-__all__ = ["FormulaDesign", "check_formula"]
+__all__ = ["FormulaDesign", "check_formula", "variables_in"]
 
 _INTERCEPT = "Intercept"
 
@@ -32,14 +32,15 @@ def _formulaic():
 
 def check_formula(covariates, name="covariates"):
     """``covariates`` as a right-hand-side formula string (a clear error otherwise)."""
+    label = name if name.startswith("--") else f"`{name}`"
     if not isinstance(covariates, str) or not covariates.strip():
         raise TypeError(
-            f"`{name}` must be a formula string such as \"age + severity + C(site)\"; got "
+            f"{label} must be a formula string such as \"age + severity + C(site)\"; got "
             f"{covariates!r}."
         )
     if "~" in covariates:
         raise ValueError(
-            f"`{name}` is the right-hand side only (the covariates): drop the outcome and '~' "
+            f"{label} is the right-hand side only (the covariates): drop the outcome and '~' "
             f"from {covariates!r}; the outcome, treatment and survival are passed to fit."
         )
     return covariates.strip()
@@ -60,12 +61,14 @@ class FormulaDesign:
     def __init__(self, formula, name="covariates"):
         self.formula = check_formula(formula, name)
         self.name = name
+        # An option of the command line is named as typed, an argument in backquotes.
+        self.label = name if name.startswith("--") else f"`{name}`"
         self.spec = None
 
     def _check_frame(self, X, where):
         if not isinstance(X, pd.DataFrame):
             raise TypeError(
-                f"`X` must be a pandas DataFrame when `{self.name}` is a formula "
+                f"`X` must be a pandas DataFrame when {self.label} is a formula "
                 f"({self.formula!r}) {where}; got {type(X).__name__}."
             )
 
@@ -98,7 +101,7 @@ class FormulaDesign:
         missing = self._missing_columns(X)
         if missing:
             raise ValueError(
-                f"`{self.name}` formula {self.formula!r} uses column(s) {missing} that `X` does "
+                f"{self.label} formula {self.formula!r} uses column(s) {missing} that `X` does "
                 f"not have; its columns are {list(map(str, X.columns))}."
             )
         from formulaic.errors import FormulaicError
@@ -111,7 +114,7 @@ class FormulaDesign:
             except Warning as error:
                 levels = re.search(r"\{.*\}", str(error))
                 raise ValueError(
-                    f"`X` has categories not seen at fit in the `{self.name}` formula "
+                    f"`X` has categories not seen at fit in the {self.label} formula "
                     f"{self.formula!r}: {levels.group(0) if levels else error}. Map them to "
                     "known levels or refit on data that contain them."
                 ) from None
@@ -119,26 +122,26 @@ class FormulaDesign:
                 # formulaic's first line says what is wrong; the rest is a colored excerpt.
                 reason = str(error).splitlines()[0] if str(error) else type(error).__name__
                 raise ValueError(
-                    f"cannot build the `{self.name}` formula {self.formula!r}: {reason}"
+                    f"cannot build {self.label} {self.formula!r}: {reason}"
                 ) from None
             except ValueError as error:
                 if "null values" in str(error):
                     column = re.search(r"`([^`]+)`", str(error))
                     shown = column.group(1) if column else "a variable"
                     raise ValueError(
-                        f"`{self.name}` formula {self.formula!r}: {shown} has missing values "
+                        f"{self.label} formula {self.formula!r}: {shown} has missing values "
                         "in X. Impute them or drop those rows first (nothing is dropped "
                         "silently)."
                     ) from None
                 raise ValueError(
-                    f"cannot build the `{self.name}` formula {self.formula!r}: {error}"
+                    f"cannot build {self.label} {self.formula!r}: {error}"
                 ) from None
 
     def _missing_columns(self, X):
         if self.spec is not None:
             needed = self.variables
         else:
-            needed = _names_in(self.formula)
+            needed = variables_in(self.formula)
         return [v for v in needed if v not in X.columns]
 
     def _without_intercept(self, matrix, index):
@@ -147,14 +150,18 @@ class FormulaDesign:
         frame = frame.drop(columns=[_INTERCEPT], errors="ignore")
         if frame.shape[1] == 0:
             raise ValueError(
-                f"the `{self.name}` formula {self.formula!r} has no covariate term; for no "
+                f"the {self.label} formula {self.formula!r} has no covariate term; for no "
                 "covariates leave it out."
             )
         return frame
 
 
-def _names_in(formula):
-    """The plain names a formula mentions, before formulaic parses it (for the first message)."""
-    words = set(re.findall(r"(?<![\w.])([A-Za-z_]\w*)\b(?!\s*\()", formula))
-    return sorted(w for w in words if w not in {"np", "C", "I", "bs", "cs", "cr", "poly",
-                                                  "center", "scale", "lag"})  # fmt: skip
+def variables_in(formula):
+    """The data columns a formula names (call names, modules, keywords and quoted text excluded).
+
+    Read from the text, before any data are seen, so the checks of a data file (missing values,
+    unknown columns) can run first.
+    """
+    text = re.sub(r"'[^']*'|\"[^\"]*\"", " ", formula)
+    words = re.findall(r"(?<![\w.])([A-Za-z_]\w*)\b(?!\s*(?:[(.]|=(?!=)))", text)
+    return list(dict.fromkeys(words))

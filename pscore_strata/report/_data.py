@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .._formula import FormulaDesign, check_formula, variables_in
 from . import _coding, _readers
 
 __all__ = [
@@ -35,9 +36,13 @@ class ColumnRoles:
     cluster: str | None = None
     weights: str | None = None
     by: str | None = None  # subgroup column (--by): effects within each of its values
+    formula: str | None = None  # --formula: covariates as a formula (formulaic's grammar)
 
     def all_covariates(self):
-        """Covariates in the order given, categorical columns included (added if unlisted)."""
+        """Covariates in the order given, categorical columns included (added if unlisted);
+        with a formula, the columns it names."""
+        if self.formula is not None:
+            return tuple(variables_in(self.formula))
         listed = list(self.covariates)
         return tuple(listed + [c for c in self.categorical if c not in listed])
 
@@ -56,6 +61,7 @@ class ColumnRoles:
             "cluster": self.cluster,
             "weights": self.weights,
             "by": self.by,
+            "formula": self.formula,
         }
 
 
@@ -86,7 +92,28 @@ def read_table(path):
     return _readers.read_table(path, InputError)
 
 
+def _check_formula(frame, roles):
+    if roles.formula is None:
+        return
+    if roles.covariates or roles.categorical:
+        raise InputError(
+            "--formula gives the covariates itself: leave out --covariates and --categorical "
+            "(write C(column) in the formula for a categorical column)."
+        )
+    try:
+        check_formula(roles.formula, "--formula")
+    except (TypeError, ValueError) as error:
+        raise InputError(str(error)) from None
+    unknown = [name for name in variables_in(roles.formula) if name not in frame.columns]
+    if unknown:
+        raise InputError(
+            f"--formula {roles.formula!r} names unknown column(s) {', '.join(unknown)}. "
+            f"Available columns: {', '.join(map(str, frame.columns))}."
+        )
+
+
 def _check_columns(frame, roles):
+    _check_formula(frame, roles)
     available = [str(c) for c in frame.columns]
     options = {
         "--outcome": [roles.outcome],
@@ -236,6 +263,18 @@ def _missing_rows(frame, roles, modelled=(), survived_value=None):
     return counts, incomplete
 
 
+def _formula_design(used, roles):
+    """The --formula design of the analysed rows; balance is checked on its columns."""
+    _coding.check_dates(used[list(roles.all_covariates())], InputError)
+    try:
+        design = FormulaDesign(roles.formula, "--formula").fit_transform(used)
+    except (TypeError, ValueError) as error:
+        raise InputError(str(error)) from None
+    text = [c for c in roles.all_covariates() if not pd.api.types.is_numeric_dtype(used[c])]
+    messages = tuple(_coding.many_levels_messages(used, text))
+    return design, design, messages
+
+
 def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treated_value=None,
                  survived_value=None):
     """Check the columns and build the analysis arrays; the caller's frame is not modified.
@@ -302,7 +341,9 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         )
     covariates = design = None
     names = roles.all_covariates()
-    if names:
+    if roles.formula is not None:
+        covariates, design, messages = _formula_design(used, roles)
+    elif names:
         covariates = used[list(names)]
         _coding.check_dates(covariates, InputError)
         messages = tuple(_coding.many_levels_messages(covariates, roles.categorical))
