@@ -21,7 +21,8 @@ class ReadingOrder:
     """Gallery order: from a first analysis to method development; other scripts after, by name."""
 
     ORDER = ("quickstart.py", "demo_analysis.py", "nsw_job_training.py", "cross_fitting.py",
-             "bounds_sensitivity.py", "missing_data.py", "simulation_study.py")  # fmt: skip
+             "bounds_sensitivity.py", "planning_bounds.py", "missing_data.py",
+             "simulation_study.py")  # fmt: skip
 
     def __init__(self, src_dir):
         self.src_dir = src_dir

@@ -99,7 +99,7 @@ ps.plotting.plot_sensitivity_contour(primary)
 # The shareable report
 # --------------------
 # ``report.write_report`` writes ``report.html``, ``results.json`` and the figures; here into a
-# temporary folder. ``results.json`` follows the schema in :doc:`/results-json`.
+# temporary folder. ``results.json`` follows the schema in :doc:`/guide/results-json`.
 with tempfile.TemporaryDirectory() as folder:
     report.write_report(analysis, folder)
     print(sorted(p.name for p in Path(folder).iterdir()))

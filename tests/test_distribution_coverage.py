@@ -120,7 +120,8 @@ def test_simultaneous_band_covers_the_whole_curve():
     # is the noise of the estimated SE under the heavy weights p0 / (pi p1), which the sup-t
     # statistic amplifies (with the Monte Carlo SD in place of the SE the same critical values
     # cover 94.1-94.7%). Over 150 replicates the Monte Carlo SE of a coverage is 1.8 points,
-    # that of an SD ratio about 6%. The check accepts 88-99% (docs/distributions.md).
+    # that of an SD ratio about 6%. The check accepts 88-99%
+    # (docs/guide/derivations/distributions.md).
     # Multiplier bands: Chernozhukov, Fernandez-Val & Melly (2013).
     big = make_truncation(1_000_000, n_features=3, random_state=12345)
     always = big.stratum == "always_survivor"

@@ -185,20 +185,41 @@ def test_every_example_is_a_gallery_page_with_figures(html):
     assert not (html / "auto_examples" / "_common.html").exists()
 
 
-def test_guide_pages_render_math_and_carry_the_cautions(html):
+def test_guide_pages_render_math_and_link_the_cautions(html):
     guide = html / "guide"
-    names = ("problem", "assumptions", "estimators", "diagnostics", "bounds-sensitivity",
-             "missing-data", "inference", "cli-report", "simulation", "performance")  # fmt: skip
+    names = ("problem", "assumptions", "cautions", "estimators", "stratum-model", "inference",
+             "small-trials", "diagnostics", "separation", "bounds-sensitivity", "planning",
+             "missing-data", "distributions", "ordinal-bounded", "survey-designs", "cli-report",
+             "results-json", "reporting-checklist", "simulation", "performance", "glossary",
+             "derivations/bounds-sensitivity", "derivations/missing-data",
+             "derivations/distributions", "derivations/stratum-model")  # fmt: skip
     for name in names:
         assert (guide / f"{name}.html").exists(), name
-    derivations = (html / "sensitivity.html").read_text()
-    assert 'class="math' in derivations and "mathjax" in derivations.lower()
-    assert "\\frac" in derivations  # the formulas went to MathJax as TeX, not as code
-    for name in ("problem", "assumptions", "bounds-sensitivity", "cli-report"):
-        text = (guide / f"{name}.html").read_text().lower()
-        assert "latent" in text and "statistician" in text, name
+    for name in ("bounds-sensitivity", "missing-data", "distributions", "stratum-model"):
+        derivation = (guide / "derivations" / f"{name}.html").read_text()
+        assert 'class="math' in derivation and "mathjax" in derivation.lower(), name
+        assert "\\frac" in derivation or "\\sum" in derivation, name  # TeX for MathJax
+        # The practical page links its derivation.
+        assert f"derivations/{name}.html" in (guide / f"{name}.html").read_text(), name
+    # The cautions stand in full on one page, and the pages that interpret results link to it.
+    cautions = (guide / "cautions.html").read_text().lower()
+    for words in ("latent", "cannot be tested", "individual patients", "statistician",
+                  "protocol"):  # fmt: skip
+        assert words in cautions, words
+    for name in ("problem", "assumptions", "bounds-sensitivity", "cli-report", "diagnostics",
+                 "missing-data", "stratum-model"):  # fmt: skip
+        assert 'href="cautions.html' in (guide / f"{name}.html").read_text(), name
     index = (html / "index.html").read_text().lower()
     assert "individual patients" in index and "latent" in index
+    assert "guide/cautions.html" in index
+
+
+def test_guide_references_no_design_notes_outside_the_repository():
+    # DESIGN.md lives outside the repository; the guide must stand on its own.
+    sources = sorted((ROOT / "docs").rglob("*.md")) + sorted((ROOT / "docs").rglob("*.rst"))
+    offending = [str(p.relative_to(ROOT)) for p in sources
+                 if "_build" not in p.parts and "DESIGN.md" in p.read_text()]  # fmt: skip
+    assert not offending
 
 
 def _chromium():

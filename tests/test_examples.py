@@ -147,3 +147,17 @@ def test_stratum_model():
     assert int(crossings) == 0  # the stratum model's scores are monotone by construction
     assert re.search(r"arm-wise\s+[-\d.]+\s+[\d.]+\s+[-\d.]+ to\s+[-\d.]+\s+[1-9]\d*", out)
     assert "converged: True" in out and "chi-square" in out
+
+
+def test_planning_bounds():
+    out = run_example("planning_bounds.py")
+    # Independent references: the normal-mixture trimming formula (the set printed first)
+    # against the bounds of one large simulated trial, and the planned probability against the
+    # share of simulated trials whose Imbens-Manski interval excludes 0.
+    low, high = map(float, re.search(r"identified set for the SACE: ([-\d.]+) to ([-\d.]+)",
+                                     out).groups())  # fmt: skip
+    big_low, big_high = map(float, re.search(r"bounds ([-\d.]+) to ([-\d.]+)", out).groups())
+    assert abs(big_low - low) < 0.4 and abs(big_high - high) < 0.4
+    share, mcse = map(float, re.search(r"simulated: ([\d.]+) of \d+ trials .*SE ([\d.]+)",
+                                       out).groups())  # fmt: skip
+    assert abs(share - 0.80) < 4 * mcse

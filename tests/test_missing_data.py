@@ -179,8 +179,8 @@ def test_nothing_missing_gives_todays_results_exactly(cls):
 @pytest.mark.parametrize("monotonicity", ["increasing", "decreasing"])
 def test_coarsened_formulas_with_probabilities_one_are_the_full_data_formulas(formula,
                                                                               monotonicity):
-    # Identity (docs/missing-data.md): C = R = 1 and c = r = 1 turn every coarsened term into
-    # the full-data term of DESIGN.md section 3.
+    # Identity (docs/guide/derivations/missing-data.md): C = R = 1 and c = r = 1 turn every
+    # coarsened term into the full-data term of the estimator without missing data.
     from pscore_strata._validation import check_truncation_data
 
     data = make_truncation(1000, random_state=4)

@@ -122,9 +122,9 @@ def test_outcome_shift_recovers_a_known_departure_from_missing_at_random(cls):
 @pytest.mark.slow
 def test_multiply_robust_survives_a_wrong_response_model():
     # Simulated truth. With correct survival and outcome models the multiply robust terms keep
-    # mean zero whatever r_t is (docs/missing-data.md, section 2), so an intercept-only response
-    # model (DummyClassifier: the arm's response share) leaves it unbiased, while weighting,
-    # which rests on r_t alone, is biased.
+    # mean zero whatever r_t is (docs/guide/derivations/missing-data.md, section 2), so an
+    # intercept-only response model (DummyClassifier: the arm's response share) leaves it
+    # unbiased, while weighting, which rests on r_t alone, is biased.
     from sklearn.dummy import DummyClassifier
 
     wrong = DummyClassifier(strategy="prior")

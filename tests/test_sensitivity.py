@@ -128,7 +128,8 @@ def test_true_ratio_recovers_truth(name):
 
 def test_robust_influence_function_matches_monte_carlo_spread():
     # Monte Carlo check of the derived adjusted efficient influence function
-    # (docs/sensitivity.md): mean standard error against the spread of the estimates.
+    # (docs/guide/derivations/bounds-sensitivity.md): mean standard error against the spread of
+    # the estimates.
     effects, errors = [], []
     for seed in range(60):
         data = ps.datasets.make_truncation(
