@@ -27,5 +27,6 @@ class BoundsDisplay(NotebookDisplay):
                                 f"{number_text(self.std_error_upper_)}"),  # fmt: skip
             ("Trimmed share of the mixed arm's survivors", f"{self.trimming_share_:.1%}"),
         ]
+        details = self.summary(0.95)._repr_html_()
         return result_card("TrimmingBounds: bounds without principal ignorability", fields,
-                           notes=[CARD_CAUTION], details=self.summary(0.95)._repr_html_())  # fmt: skip
+                           notes=[CARD_CAUTION], details=details)

@@ -303,6 +303,17 @@ def manuscript_tables(analysis):
 def write_manuscript_tables(analysis, out_dir, formats=TABLE_FORMATS):
     """Write ``tables.<format>`` (every table of the analysis, in order) into ``out_dir``.
 
+    Parameters
+    ----------
+    analysis : Analysis or dict
+        What :func:`run_analysis` returned, or its ``results``.
+    out_dir : str or path-like
+        An existing folder (the report's, usually).
+    formats : sequence of {"docx", "tex", "md"}, default=("docx", "tex", "md")
+        One file per format: ``tables.docx`` (Word, one document with every table),
+        ``tables.tex`` (a fragment for ``\\input``, one booktabs ``table`` float per table),
+        ``tables.md`` (pipe tables).
+
     Returns
     -------
     list of pathlib.Path
