@@ -15,6 +15,8 @@ from pathlib import Path
 
 __all__ = ["main", "build_parser"]
 
+TABLES_HELP = ("also write the tables for a manuscript: comma-separated formats among docx, tex "
+               "and md (tables.docx, tables.tex, tables.md in --out)")
 USER_ERRORS = (ValueError, TypeError, FileNotFoundError, ImportError, OSError, RuntimeError)
 
 
@@ -175,6 +177,7 @@ def _analyze(args):
 
     options = _options(args)
     _check_out_dir(args.out)
+    formats = _table_formats(args)
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
@@ -187,6 +190,7 @@ def _analyze(args):
         cluster=args.cluster,
         weights=args.weights,
         by=args.by,
+        formula=args.formula,
     )
     analysis = analyze_frame(
         frame, roles, options, args.out, drop_incomplete=args.drop_incomplete,
@@ -196,8 +200,24 @@ def _analyze(args):
     dropped = analysis.results["data_overview"]["n_rows_dropped"]
     if dropped:
         print(f"Dropped {dropped} incomplete row(s) (--drop-incomplete).", file=sys.stderr)
+    _write_tables(analysis, args.out, formats, progress)
     _print_key_results(analysis.results, args.out)
     return 0
+
+
+def _table_formats(args):
+    from .report._manuscript import table_formats
+
+    return () if args.tables is None else table_formats(args.tables)
+
+
+def _write_tables(analysis, out, formats, progress):
+    if formats:
+        from .report import write_manuscript_tables
+
+        progress("writing the tables")
+        paths = write_manuscript_tables(analysis, out, formats)
+        print(f"Tables: {', '.join(str(p) for p in paths)}.")
 
 
 def _demo(args):
@@ -213,16 +233,19 @@ def _demo(args):
     )
     _check_bootstrap(args.bootstrap)
     _check_out_dir(args.out)
+    formats = _table_formats(args)
     print("Invented critical-care registry (simulated patients, not real people).")
     options = AnalysisOptions(
         bootstrap=args.bootstrap, unit_name="patient",
         arm_names=("protective ventilation", "conventional ventilation"),
         survival_model="by_fit",  # fits both survival sides, keeps the better (AIC)
     )  # fmt: skip
+    progress = _Progress(args.quiet)
     analysis = analyze_frame(
         load_demo(), roles, options, args.out,
-        source="bundled demo registry (invented)", progress=_Progress(args.quiet),
+        source="bundled demo registry (invented)", progress=progress,
     )  # fmt: skip
+    _write_tables(analysis, args.out, formats, progress)
     _print_key_results(analysis.results, args.out)
     print(f"(The data were simulated with a true SACE of {DEMO_TRUE_EFFECT:+.1f} points.)")
     return 0
@@ -426,6 +449,12 @@ def build_parser():
         "--by", default=None, metavar="COL",
         help="subgroup effects by this column (from the fitted models, no refit)",
     )  # fmt: skip
+    analyze.add_argument(
+        "--formula", metavar="FORMULA",
+        help='covariates as a formula instead of --covariates/--categorical, e.g. "age + '
+        'severity + C(site) + bs(bmi, 4)" (C(): categorical, bs(): B-spline; needs formulaic)',
+    )  # fmt: skip
+    analyze.add_argument("--tables", metavar="FORMATS", help=TABLES_HELP)
     analyze.add_argument("--quiet", action="store_true", help="no progress messages")
     analyze.set_defaults(handler=_analyze)  # fmt: skip
 
@@ -436,6 +465,7 @@ def build_parser():
     demo.add_argument(
         "--bootstrap", type=int, default=0, metavar="N", help="bootstrap resamples (default: 0)"
     )
+    demo.add_argument("--tables", metavar="FORMATS", help=TABLES_HELP)
     demo.add_argument("--quiet", action="store_true", help="no progress messages")
     demo.set_defaults(handler=_demo)  # fmt: skip
 

@@ -100,3 +100,65 @@ def test_bad_data(frame):
     holes = frame.assign(age=frame["age"].where(frame.index != 4))
     with pytest.raises(ValueError, match="age has missing values"):
         FormulaDesign(FORMULA).fit_transform(holes)
+
+
+# -- on the estimators ----------------------------------------------------------------------------
+import pscore_strata as ps  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def study():
+    data = ps.datasets.make_truncation(800, random_state=11)
+    X = data.X
+    frame = pd.DataFrame({
+        "age": X[:, 0], "severity": X[:, 1],
+        "site": np.array(["north", "harbour", "valley"])[np.digitize(X[:, 2], [-0.5, 0.5])],
+        "bmi": X[:, 3] if X.shape[1] > 3 else X[:, 2] ** 2,
+    })  # fmt: skip
+    return data, frame
+
+
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.OutcomeRegression,
+                                 ps.MultiplyRobust])  # fmt: skip
+def test_estimator_on_a_formula_equals_the_hand_built_design(study, cls):
+    data, frame = study
+    arguments = dict(treatment=data.treatment, survival=data.survival)
+    by_formula = cls(covariates=FORMULA).fit(frame, data.y, **arguments)
+    by_hand = cls().fit(_hand_built(frame, frame), data.y, **arguments)
+    assert by_formula.effect_ == pytest.approx(by_hand.effect_, rel=1e-9)
+    assert by_formula.std_error_ == pytest.approx(by_hand.std_error_, rel=1e-7)
+    assert by_formula.design_.feature_names == list(by_formula.feature_names_in_)
+    new = frame.iloc[:25]
+    np.testing.assert_allclose(np.asarray(by_formula.predict_proba(new)),
+                               by_hand.predict_proba(_hand_built(new, frame)), atol=1e-9)  # fmt: skip
+    groups = frame["site"].to_numpy()
+    pd.testing.assert_frame_equal(by_formula.effect_by(groups), by_hand.effect_by(groups))
+    if hasattr(by_formula, "predict_effect"):
+        np.testing.assert_allclose(by_formula.predict_effect(new),
+                                   by_hand.predict_effect(_hand_built(new, frame)), atol=1e-9)  # fmt: skip
+
+
+def test_fit_estimators_learns_the_design_once(study):
+    data, frame = study
+    fits = ps.fit_estimators(frame, data.y, treatment=data.treatment, survival=data.survival,
+                             covariates=FORMULA)  # fmt: skip
+    assert fits["weighting"].design_ is fits["robust"].design_ is fits["regression"].design_
+    alone = ps.PrincipalScoreWeighting(covariates=FORMULA).fit(
+        frame, data.y, treatment=data.treatment, survival=data.survival)
+    assert fits["weighting"].effect_ == pytest.approx(alone.effect_, rel=1e-12)
+
+
+def test_formula_estimator_errors(study):
+    data, frame = study
+    arguments = dict(treatment=data.treatment, survival=data.survival)
+    with pytest.raises(TypeError, match="must be a pandas DataFrame"):
+        ps.MultiplyRobust(covariates=FORMULA).fit(frame.to_numpy(), data.y, **arguments)
+    with pytest.raises(TypeError, match="got None"):
+        ps.MultiplyRobust(covariates=FORMULA).fit(None, data.y, **arguments)
+    est = ps.OutcomeRegression(covariates="age + C(site)").fit(frame, data.y, **arguments)
+    new = frame.iloc[:2].assign(site="summit")
+    with pytest.raises(ValueError, match="categories not seen at fit"):
+        est.predict_proba(new)
+    # Without a formula nothing changes, and a refit without it forgets the design.
+    est.set_params(covariates=None).fit(frame[["age", "severity"]], data.y, **arguments)
+    assert not hasattr(est, "design_")

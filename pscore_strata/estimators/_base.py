@@ -38,6 +38,7 @@ from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
 from ..nuisance._strata import StratumArm
 from . import _formulas
+from ._design import design_at_fit, design_for_new_rows
 from ._display import EstimatorDisplay
 from ._heterogeneity import conditional_effect, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -132,6 +133,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         self
         """
         n_repeats = self._check_params()
+        X = design_at_fit(self, X)
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups, models=self._models(),
             missing=self.missing,
@@ -339,6 +341,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
             an ndarray otherwise.
         """
         check_is_fitted(self, "effect_")
+        X = design_for_new_rows(self, X)
         index = X.index if isinstance(X, pd.DataFrame) else None
         X = _match_feature_names(self, X)
         X, n_features, _ = check_features(X, self._models())
@@ -418,7 +421,7 @@ class ConditionalEffectMixin:
         ndarray of shape (n_rows,)
         """
         check_is_fitted(self, "effect_")
-        return conditional_effect(self, X)
+        return conditional_effect(self, design_for_new_rows(self, X))
 
 
 def _one_replicate(estimator, data, seed):

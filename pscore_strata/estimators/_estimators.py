@@ -13,6 +13,14 @@ from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
 
 _COMMON_PARAMETERS = """
+    covariates : str or None, default=None
+        The covariates as a formula over the DataFrame ``X`` given to :meth:`fit`, in the
+        formulaic library's grammar: ``"age + severity + C(site) + bs(bmi, 4)"`` (``C()``
+        categorical, ``bs()`` B-spline, ``a:b`` interaction, ``np.log(a)``). The design is
+        learned at fit (``design_``: levels, knots; no intercept, categorical terms coded
+        against their first level) and applied to the ``X`` of :meth:`predict_proba` and
+        :meth:`predict_effect`. ``None``: ``X`` is the design itself. Needs the ``formula``
+        extra.
     treatment_model : estimator, float in (0, 1) or None, default=None
         Model of ``P(T=1|X)``: a scikit-learn classifier or pipeline, or a known randomization
         probability. ``None`` is unpenalized logistic regression.
@@ -89,6 +97,9 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     n_clusters_ : int or None
         Number of clusters in ``groups`` (``None`` without them); below 30 the intervals use
         Student's t with ``n_clusters_ - 1`` degrees of freedom.
+    design_ : FormulaDesign
+        Only with ``covariates``: the learned design (``feature_names``, ``variables``,
+        ``transform(X)``).
 
     See Also
     --------
@@ -113,6 +124,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     def __init__(
         self,
         *,
+        covariates=None,
         treatment_model=None,
         survival_model=None,
         monotonicity="increasing",
@@ -124,6 +136,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         missing="error",
         response_model=None,
     ):
+        self.covariates = covariates
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.monotonicity = monotonicity
@@ -173,6 +186,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
     def __init__(
         self,
         *,
+        covariates=None,
         treatment_model=None,
         survival_model=None,
         outcome_model=None,
@@ -185,6 +199,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         missing="error",
         response_model=None,
     ):
+        self.covariates = covariates
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.outcome_model = outcome_model
@@ -248,6 +263,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
     def __init__(
         self,
         *,
+        covariates=None,
         treatment_model=None,
         survival_model=None,
         outcome_model=None,
@@ -259,6 +275,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         missing="error",
         response_model=None,
     ):
+        self.covariates = covariates
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.outcome_model = outcome_model
