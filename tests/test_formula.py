@@ -129,13 +129,14 @@ def test_estimator_on_a_formula_equals_the_hand_built_design(study, cls):
     assert by_formula.std_error_ == pytest.approx(by_hand.std_error_, rel=1e-7)
     assert by_formula.design_.feature_names == list(by_formula.feature_names_in_)
     new = frame.iloc[:25]
+    new_by_hand = _hand_built(new, frame)
     np.testing.assert_allclose(np.asarray(by_formula.predict_proba(new)),
-                               by_hand.predict_proba(_hand_built(new, frame)), atol=1e-9)  # fmt: skip
+                               by_hand.predict_proba(new_by_hand), atol=1e-9)
     groups = frame["site"].to_numpy()
     pd.testing.assert_frame_equal(by_formula.effect_by(groups), by_hand.effect_by(groups))
     if hasattr(by_formula, "predict_effect"):
         np.testing.assert_allclose(by_formula.predict_effect(new),
-                                   by_hand.predict_effect(_hand_built(new, frame)), atol=1e-9)  # fmt: skip
+                                   by_hand.predict_effect(new_by_hand), atol=1e-9)
 
 
 def test_fit_estimators_learns_the_design_once(study):

@@ -47,8 +47,9 @@ def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None
     >>> fits["weighting"].std_error_method_
     'sandwich'
     """
-    common = dict(covariates=covariates, treatment_model=treatment_model, survival_model=survival_model,
-                  monotonicity=monotonicity, scale=scale, n_folds=n_folds,
+    common = dict(covariates=covariates, treatment_model=treatment_model,
+                  survival_model=survival_model, monotonicity=monotonicity, scale=scale,
+                  n_folds=n_folds,
                   random_state=random_state)  # fmt: skip
     arguments = dict(treatment=treatment, survival=survival, sample_weight=sample_weight,
                      groups=groups)  # fmt: skip
