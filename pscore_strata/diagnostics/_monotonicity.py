@@ -32,7 +32,11 @@ def _score_bin_labels(bins):
 def _strata_labels(o, X, strata):
     """Row masks per stratum label, the labels in display order, and a description."""
     n = o.weight.shape[0]
-    if strata is None:
+    if strata is None and np.unique(np.minimum(o.p_pure, o.p_mixed)).size < 2:
+        # No covariates: one score for every row, so one stratum (quantiles would be empty).
+        strata = np.full(n, "all rows", dtype=object)
+        description = "all rows (the fitted always-survivor score is the same for every row)"
+    elif strata is None:
         # Quintiles of the fitted always-survivor score: rows alike in the latent stratum share.
         strata = pd.qcut(np.minimum(o.p_pure, o.p_mixed), 5, duplicates="drop")
         strata = strata.rename_categories(_score_bin_labels(strata.categories))
