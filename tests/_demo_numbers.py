@@ -28,7 +28,7 @@ def demo_results():
     options = AnalysisOptions(
         bootstrap=0, unit_name="patient",
         arm_names=("protective ventilation", "conventional ventilation"),
-        survival_model="by_fit",
+        survival_model="strata",
     )  # fmt: skip
     return analyze_frame(load_demo(), roles, options, None,
                          source="bundled demo registry (invented)").results  # fmt: skip

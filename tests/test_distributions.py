@@ -323,15 +323,6 @@ def test_quantile_bounds_refuse_a_discrete_outcome(sample):
     assert fit(ps.TrimmingBounds, sample).quantile_bounds_ is None
 
 
-def test_missing_at_random_is_refused_clearly(sample):
-    # Not yet checked under coarsening: a clear refusal rather than unchecked numbers.
-    est = fit(ps.PrincipalScoreWeighting, sample, missing="at_random")
-    with pytest.raises(ValueError, match="missing='at_random'"):
-        ps.survivor_distribution(est)
-    with pytest.raises(ValueError, match="missing='at_random'"):
-        fit(ps.TrimmingBounds, sample, missing="at_random", quantiles=[0.5])
-
-
 def test_few_clusters_give_t_intervals_with_g_minus_1_degrees_of_freedom():
     # Reference: Student's t quantile with G - 1 degrees of freedom (scipy.stats.t), the rule
     # the estimators' own intervals follow under fewer than 30 clusters (common practice).

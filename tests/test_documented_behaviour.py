@@ -114,3 +114,48 @@ def test_readme_and_guide_name_every_package_of_the_report_extra():
         assert name in guide, name
     # Installed from a checkout, never by a published name.
     assert "pip install 'pscore_strata[" not in guide
+
+
+def test_analyze_and_demo_write_to_the_same_default_directory():
+    # docs/guide/cli-report.md: "without --out, both demo and analyze write into pscore_report/".
+    from pscore_strata.cli import build_parser
+
+    parser = build_parser()
+    analyze = parser.parse_args(["analyze", "data.csv", "--outcome", "y", "--treatment", "t",
+                                 "--survival", "s"])  # fmt: skip
+    demo = parser.parse_args(["demo"])
+    assert analyze.out == demo.out == "pscore_report"
+
+
+def test_monotonicity_flags_are_bonferroni_adjusted_and_match_the_warning():
+    # docs/guide/diagnostics.md, "Monotonicity". Source: statsmodels' Wald interval for two
+    # independent proportions at alpha = 0.05 / k (crude shares, adjust=False), and the warning
+    # of diagnostic_warnings naming exactly the flagged rows.
+    from statsmodels.stats.proportion import confint_proportions_2indep
+
+    data = ps.datasets.make_truncation(2500, monotonicity="decreasing", random_state=8)
+    strata = np.where(data.X[:, 0] > 0.5, "high", np.where(data.X[:, 0] < -0.5, "low", "mid"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = ps.PrincipalScoreWeighting(treatment_model=0.5).fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival)
+    table = ps.monotonicity_check(est, strata=strata, adjust=False)
+    k = len(table)
+    assert table.attrs["flag_level"] == pytest.approx(1 - 0.05 / k)
+    T, S = data.treatment, data.survival
+    for name in table.index:
+        rows = np.ones(T.size, bool) if name == "overall" else strata == name
+        counts = [S[rows & (T == 1)].sum(), S[rows & (T == 0)].sum()]
+        sizes = [(rows & (T == 1)).sum(), (rows & (T == 0)).sum()]
+        low, high = confint_proportions_2indep(counts[0], sizes[0], counts[1], sizes[1],
+                                               method="wald", alpha=0.05 / k)  # fmt: skip
+        assert table.loc[name, "contradicts_monotonicity"] == (high < 0), name
+    assert table["contradicts_monotonicity"].any()
+    # The warning uses the default table (score quintiles, inverse-probability weighted) and
+    # names exactly its flagged rows.
+    default = ps.monotonicity_check(est)
+    flagged = default.index[default["contradicts_monotonicity"]].tolist()
+    messages = [m for m in ps.diagnostic_warnings(est) if "Bonferroni" in m]
+    assert bool(messages) == bool(flagged)
+    for name in flagged:
+        assert str(name) in messages[0]

@@ -28,6 +28,7 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_level
+from ..distributions._cdf import observed_survivors
 from ..distributions._conditional import MAX_LEVELS
 from ..distributions._quantiles import (
     check_quantiles,
@@ -46,12 +47,7 @@ def add_quantile_bounds(bounds, o, labels, data):
     if bounds.quantiles is None:
         return
     quantiles = check_quantiles(bounds.quantiles)
-    if getattr(bounds, "missing", "error") != "error":
-        raise ValueError(
-            "`quantiles` is not yet supported with `missing='at_random'`; use quantiles=None "
-            "(the mean bounds) or complete cases."
-        )
-    if np.unique(data.outcome[data.survival == 1]).size <= MAX_LEVELS:
+    if np.unique(data.outcome[observed_survivors(data)]).size <= MAX_LEVELS:
         raise ValueError(
             f"`quantiles` needs a continuous outcome; the survivors' outcome takes at most "
             f"{MAX_LEVELS} values, where quantiles sit on point masses. Use quantiles=None."
@@ -87,10 +83,19 @@ def _kept(values, weights, share, highest):
     return kept
 
 
+def _weights(o):
+    """Inverse-probability weights of each arm: for survival shares (rows of known status,
+    ``A C / (pi c)``) and for outcome distributions (observed survivors, ``A C S R /
+    (pi c r)``), as in the mean bounds; without missing data ``A / pi`` and ``A S / pi``."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (o.known_mixed / o.pi, o.known_pure / (1 - o.pi), o.observed_mixed / o.pi,
+                o.observed_pure / (1 - o.pi))  # fmt: skip
+
+
 def _cells(o, labels):
     """Per-cell quantities of the mean bounds, recomputed (same formulas as ``_bounds``)."""
-    w, A, S = o.weight, o.mixed, o.survival
-    mixed_weight, pure_weight = A / o.pi, (1 - A) / (1 - o.pi)
+    w, S = o.weight, o.survival
+    mixed_weight, pure_weight, mixed_observed, pure_observed = _weights(o)
     total = w.sum()
     cells = []
     for code in np.unique(labels):
@@ -105,13 +110,17 @@ def _cells(o, labels):
             if_q = q * (C * pure_weight * (S - p_p) / (n_p * p_p)
                         - C * mixed_weight * (S - p_m) / (n_m * p_m))  # fmt: skip
         share = np.sum(w * C) / total
-        cells.append(dict(C=C, s_m=s_m, s_p=s_p, q=q, if_q=if_q, alpha=share * p_p,
+        # Normalizers of the cell's outcome distributions (= s_m, s_p without missing data).
+        o_m = np.sum(w * C * mixed_observed) / total
+        o_p = np.sum(w * C * pure_observed) / total
+        cells.append(dict(C=C, s_m=s_m, s_p=s_p, o_m=o_m, o_p=o_p, q=q, if_q=if_q,
+                          alpha=share * p_p,
                           alpha_free=C * p_p,
                           alpha_weighted=share * C * pure_weight * (S - p_p) / n_p))  # fmt: skip
     alpha_total = sum(c["alpha"] for c in cells)
     for c in cells:
         c["omega"] = c["alpha"] / alpha_total
-    return cells, alpha_total, mixed_weight, pure_weight
+    return cells, alpha_total, mixed_observed, pure_observed
 
 
 def trimmed_mixtures(o, labels):
@@ -120,35 +129,58 @@ def trimmed_mixtures(o, labels):
     Each array sums to 1; the means of ``G_L`` and ``G_U`` are the mean bounds' mixed-arm
     always-survivor means.
     """
-    cells, _, mixed_weight, pure_weight = _cells(o, labels)
+    cells, _, mixed_observed, pure_observed = _cells(o, labels)
     Y = o.outcome
     masses = {"lower": np.zeros(Y.size), "upper": np.zeros(Y.size)}
     for c in cells:
-        rows = (c["C"] * o.mixed * o.survival) > 0
-        cell_weight = (o.weight * mixed_weight)[rows]
+        rows = (c["C"] * mixed_observed) > 0
+        cell_weight = (o.weight * mixed_observed)[rows]
         for key, highest in (("lower", False), ("upper", True)):
             kept = _kept(Y[rows], cell_weight, c["q"], highest)
             masses[key][rows] += c["omega"] * kept / (c["q"] * cell_weight.sum())
-    pure = o.weight * pure_weight * o.survival
+    pure = o.weight * pure_observed
     masses["pure"] = np.zeros(Y.size)
     for c in cells:
         masses["pure"] += c["omega"] * c["C"] * pure / np.sum(c["C"] * pure)
     return masses
 
 
-def _cell_cdf(key, c, below, o, mixed_weight, pure_weight, total):
-    """A cell's trimmed (or pure-arm) CDF at one value and its influence values."""
-    w, S = o.weight, o.survival
+def _cell_cdf(key, c, below, o, mixed_observed, pure_observed, total):
+    """A cell's trimmed (or pure-arm) CDF at one value and its influence values, split into
+    the outcome part (proportional to ``1 / r`` under missing data) and the survival part."""
+    w = o.weight
     if key == "pure":
-        F = np.sum(w * c["C"] * pure_weight * S * below) / total / c["s_p"]
-        return F, c["C"] * pure_weight * S * (below - F) / c["s_p"]
-    F = np.sum(w * c["C"] * mixed_weight * S * below) / total / c["s_m"]
-    if_F = c["C"] * mixed_weight * S * (below - F) / c["s_m"]
+        F = np.sum(w * c["C"] * pure_observed * below) / total / c["o_p"]
+        return F, c["C"] * pure_observed * (below - F) / c["o_p"], 0.0
+    F = np.sum(w * c["C"] * mixed_observed * below) / total / c["o_m"]
+    if_F = c["C"] * mixed_observed * (below - F) / c["o_m"]
     q, if_q = c["q"], c["if_q"]
     if key == "lower":  # L_c = min(F / q, 1)
-        return min(F / q, 1.0), (if_F / q - F * if_q / q**2) if F < q else 0.0
+        if F >= q:
+            return 1.0, 0.0, 0.0
+        return F / q, if_F / q, -F * if_q / q**2
     # U_c = max((F - 1 + q) / q, 0)
-    return max((F - 1 + q) / q, 0.0), (if_F / q + (1 - F) * if_q / q**2) if F > 1 - q else 0.0
+    if F <= 1 - q:
+        return 0.0, 0.0, 0.0
+    return (F - 1 + q) / q, if_F / q, (1 - F) * if_q / q**2
+
+
+def _derivatives(o, weighted, outcome_part):
+    """Derivatives of the influence pieces in the treatment (and, with missing data, the
+    follow-up and response) predictions, as in the mean bounds: every weighted piece is
+    proportional to ``1 / pi`` and ``1 / c`` of its arm, the outcome pieces also to ``1 / r``."""
+    A = o.mixed
+    derivatives = {"pi": np.where(A == 1, -weighted / o.pi, weighted / (1 - o.pi))}
+    co = o.coarsening
+    if co is not None:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            derivatives.update({
+                "c_mixed": np.where(A == 1, -weighted / co.c_mixed, 0.0),
+                "c_pure": np.where(A == 0, -weighted / co.c_pure, 0.0),
+                "r_mixed": np.where(A == 1, -outcome_part / co.r_mixed, 0.0),
+                "r_pure": np.where(A == 0, -outcome_part / co.r_pure, 0.0),
+            })  # fmt: skip
+    return derivatives
 
 
 def _effective_size(mass):
@@ -166,7 +198,7 @@ def quantile_bounds(o, labels, quantiles):
     influence : dict
         ``"lower"``, ``"upper"``: arrays of shape (n_rows, n_quantiles).
     """
-    cells, alpha_total, mixed_weight, pure_weight = _cells(o, labels)
+    cells, alpha_total, mixed_observed, pure_observed = _cells(o, labels)
     masses = trimmed_mixtures(o, labels)
     Y, S, w = o.outcome, o.survival, o.weight
     total = w.sum()
@@ -183,26 +215,30 @@ def quantile_bounds(o, labels, quantiles):
     free_alpha = sum(c["alpha_free"] for c in cells)
     pieces = {}
     for key in ("lower", "upper", "pure"):
+        outcome_part = np.zeros((Y.size, quantiles.size))
         weighted = np.zeros((Y.size, quantiles.size))
         free = np.zeros((Y.size, quantiles.size))
         for j, v in enumerate(point[key]):
             below = (Y <= v).astype(float)
             for c in cells:
-                value, if_value = _cell_cdf(key, c, below, o, mixed_weight, pure_weight, total)
+                value, if_outcome, if_survival = _cell_cdf(key, c, below, o, mixed_observed,
+                                                           pure_observed, total)  # fmt: skip
                 om = c["omega"]
-                weighted[:, j] += om * if_value + value / alpha_total * (
+                outcome_part[:, j] += om * if_outcome
+                weighted[:, j] += om * (if_outcome + if_survival) + value / alpha_total * (
                     c["alpha_weighted"] - om * weighted_alpha)
                 free[:, j] += value / alpha_total * (c["alpha_free"] - om * free_alpha)
-        pieces[key] = (-weighted / density[key], -free / density[key])
+        pieces[key] = (-weighted / density[key], -free / density[key],
+                       -outcome_part / density[key])
     influence = {}
     for key in ("lower", "upper"):
         raw_w = pieces[key][0] - pieces["pure"][0]
         raw = raw_w + pieces[key][1] - pieces["pure"][1]
-        derivative = np.where((o.mixed == 1)[:, None], -raw_w / o.pi[:, None],
-                              raw_w / (1 - o.pi)[:, None])  # fmt: skip
+        raw_outcome = pieces[key][2] - pieces["pure"][2]
         centered = raw - (w @ raw) / total
         influence[key] = centered + np.column_stack(
-            [np.broadcast_to(o.corrections({"pi": derivative[:, j]}), Y.shape)
+            [np.broadcast_to(o.corrections(_derivatives(o, raw_w[:, j], raw_outcome[:, j])),
+                             Y.shape)
              for j in range(quantiles.size)])  # fmt: skip
     lower = point["lower"] - point["pure"]
     upper = point["upper"] - point["pure"]

@@ -132,7 +132,8 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
         Weight rows by ``1/pi`` (treated) and ``1/(1-pi)`` (control) so each arm stands for the
         stratum's population (needed in observational data); ``False`` compares crude shares.
     level : float, default=0.95
-        Confidence level of the intervals.
+        Confidence level of the intervals. The flag ``contradicts_monotonicity`` uses the
+        Bonferroni-adjusted level ``1 - (1 - level) / k`` over the ``k`` rows of the table.
 
     Returns
     -------
@@ -140,7 +141,11 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
         Arm sizes and survival shares, ``difference`` (treated - control) with a Wald interval,
         the pooled two-proportion ``z`` and two-sided ``p_value``, ``n_fitted_violations``
         (rows whose fitted survival models contradict monotonicity) and
-        ``contradicts_monotonicity`` (the interval lies entirely on the wrong side of zero).
+        ``contradicts_monotonicity``: the Bonferroni-adjusted interval (level in
+        ``attrs["flag_level"]``) lies entirely on the wrong side of zero. The table makes one
+        comparison per row, so unadjusted flags would fire by chance in up to one table in seven
+        of a correct model with the default six rows;
+        :func:`~pscore_strata.diagnostic_warnings` warns about exactly the flagged rows.
     """
     o = oriented_predictions(estimator)
     z_crit = stats.norm.ppf(0.5 + check_level(level) / 2)
@@ -168,12 +173,21 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
         },
         orient="index",
     ).rename_axis("stratum")
-    wrong_side = table["ci_high"] < 0 if o.increasing else table["ci_low"] > 0
+    # Bonferroni over the table's rows (the overall comparison and one per stratum), the rule of
+    # diagnostic_warnings: the row's Wald interval at level 1 - (1 - level) / k.
+    flag_level = 1 - (1 - level) / len(table)
+    std_error = (table["ci_high"] - table["ci_low"]) / (2 * z_crit)
+    half_width = stats.norm.ppf(0.5 + flag_level / 2) * std_error
+    if o.increasing:
+        wrong_side = table["difference"] + half_width < 0
+    else:
+        wrong_side = table["difference"] - half_width > 0
     table["contradicts_monotonicity"] = wrong_side.to_numpy()
     table.attrs.update(
         strata=description,
         adjusted=adjust,
         level=level,
+        flag_level=flag_level,
         monotonicity="increasing" if o.increasing else "decreasing",
         n_fitted_violations=int(violations.sum()),
         notes=[

@@ -8,20 +8,16 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_level
-from ..inference._influence import (
-    estimator_dof,
-    influence_std_error,
-    multiplier_contributions,
-    multiplier_draws,
-    reference_quantile,
-    spawn_seeds,
-)
+from ..inference._influence import estimator_dof, gaussian_draws, reference_quantile, spawn_seeds
+from ._expansion import expansion_covariance
 from ._paths import cdf_path, prepare
 
-__all__ = ["survivor_distribution", "SurvivorDistribution", "default_values", "CAUTION"]
+__all__ = ["survivor_distribution", "SurvivorDistribution", "default_values", "observed_survivors",
+           "CAUTION"]
 
-# Default evaluation points: every distinct survivor outcome up to this many, else this many at
-# evenly spaced ranks (the band's multiplier draws cost O(n_rows x values^2)).
+# Default evaluation points (the grid): every distinct survivor outcome up to this many, else this
+# many at evenly spaced ranks of the pooled survivor outcomes. The covariance of the band costs
+# O(values^2) memory and O(n_rows x bases^2 + values^2 x bases) time (``_expansion``).
 MAX_DEFAULT_VALUES = 200
 
 CAUTION = (
@@ -32,9 +28,18 @@ CAUTION = (
 )
 
 
+def observed_survivors(data):
+    """Rows whose outcome is observed: survivors (with missing data, of known status who
+    responded)."""
+    rows = data.survival == 1
+    if data.outcome_observed is not None:
+        rows = rows & (data.outcome_observed == 1)
+    return rows
+
+
 def default_values(data, limit=MAX_DEFAULT_VALUES):
     """The distinct observed survivor outcomes (``limit`` of them at evenly spaced ranks)."""
-    y = np.sort(data.outcome[data.survival == 1])
+    y = np.sort(data.outcome[observed_survivors(data)])
     distinct = np.unique(y)
     if distinct.size <= limit:
         return distinct
@@ -71,7 +76,9 @@ class SurvivorDistribution:
         Empirical CDFs of the survivors in each arm (sample-weighted, no principal score
         weights): what a survivor-only comparison shows, biased when treatment changes who
         survives.
-    influence_treated, influence_control : ndarray of shape (n_rows, n_values)
+    influence_treated, influence_control : array-like of shape (n_rows, n_values)
+        Influence values in factored form (:class:`~pscore_strata.distributions._expansion.
+        Expansion`): ``np.asarray`` gives the explicit matrix, ``[:, j]`` one column.
     level : float
     method : str
     notes : list of str
@@ -89,8 +96,8 @@ class SurvivorDistribution:
     band_critical_control: float
     naive_treated: np.ndarray
     naive_control: np.ndarray
-    influence_treated: np.ndarray = field(repr=False)
-    influence_control: np.ndarray = field(repr=False)
+    influence_treated: object = field(repr=False)
+    influence_control: object = field(repr=False)
     level: float = 0.95
     method: str = ""
     notes: list = field(default_factory=list)
@@ -117,21 +124,29 @@ class SurvivorDistribution:
         return frame
 
 
-def _band_critical(influence, standard_errors, data, level, n_draws, random_state):
-    """``level`` quantile of the sup-t statistic over the values (multiplier bootstrap)."""
-    keep = standard_errors > 0
+def _band_critical(covariance, standard_errors, level, n_draws, random_state):
+    """``level`` quantile of the sup-t statistic over the values (multiplier bootstrap).
+
+    The Gaussian multiplier draws come from the ``values x values`` covariance of the
+    influence values, so memory is values x draws, never rows x values x draws.
+    """
+    # A value where the CDF is pinned at 0 or 1 has no variance; its standard error is then
+    # rounding noise (a cumulative sum's), and noise over noise would decide the band.
+    keep = standard_errors > 1e-6 * np.max(standard_errors, initial=0.0)
     if not keep.any():
         return float("nan")
-    contributions = multiplier_contributions(influence[:, keep], data.sample_weight, data.groups)
-    draws = multiplier_draws(contributions, spawn_seeds(random_state, n_draws), kind="gaussian")
+    draws = gaussian_draws(covariance[np.ix_(keep, keep)], spawn_seeds(random_state, n_draws))
     sup = np.max(np.abs(draws) / standard_errors[keep], axis=1)
     return float(np.quantile(sup, level))
 
 
 def naive_cdf(data, values, arm):
-    rows = (data.treatment == arm) & (data.survival == 1)
+    """Weighted empirical CDF of the arm's observed survivors at sorted ``values``."""
+    rows = (data.treatment == arm) & observed_survivors(data)
     y, w = data.outcome[rows], data.sample_weight[rows]
-    return np.array([np.sum(w * (y <= v)) for v in values]) / w.sum()
+    order = np.argsort(y, kind="stable")
+    cumulative = np.concatenate([[0.0], np.cumsum(w[order])])
+    return cumulative[np.searchsorted(y[order], values, side="right")] / w.sum()
 
 
 def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_model=None,
@@ -199,13 +214,11 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
     values = default_values(data) if values is None else check_values(values)
     path = cdf_path(prepared, values)
     w, groups = data.sample_weight, data.groups
-    se = {arm: influence_std_error(getattr(path, f"influence_{arm}"), w, groups)
-          for arm in ("treated", "control")}  # fmt: skip
-    critical = {
-        arm: _band_critical(getattr(path, f"influence_{arm}"), se[arm], data, level, n_draws,
-                            random_state)
-        for arm in ("treated", "control")
-    }  # fmt: skip
+    se, critical = {}, {}
+    for arm in ("treated", "control"):
+        covariance = expansion_covariance(getattr(path, f"influence_{arm}"), w, groups)
+        se[arm] = np.sqrt(np.clip(np.diag(covariance), 0.0, None))
+        critical[arm] = _band_critical(covariance, se[arm], level, n_draws, random_state)
     notes = [_method_note(prepared, estimator), CAUTION]
     return SurvivorDistribution(
         values=values, treated=path.treated, control=path.control,

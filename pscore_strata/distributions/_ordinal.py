@@ -22,7 +22,7 @@ import pandas as pd
 
 from .._validation import check_choice, check_level
 from ..inference._influence import estimator_dof, influence_std_error, reference_quantile
-from ._cdf import CAUTION
+from ._cdf import CAUTION, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
 
@@ -102,7 +102,7 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
     level = check_level(level)
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    levels = np.unique(data.outcome[data.survival == 1]) + 0.0  # no -0.0 level
+    levels = np.unique(data.outcome[observed_survivors(data)]) + 0.0  # no -0.0 level
     if levels.size > MAX_LEVELS or not np.all(levels == np.round(levels)):
         raise ValueError(
             f"`ordinal_comparison` needs an outcome with integer levels (at most {MAX_LEVELS}); "
@@ -118,7 +118,7 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
         cdf = getattr(path, arm)
         cdf[-1] = 1.0  # every always-survivor has a level at or below the largest one
         probabilities[arm] = np.diff(np.concatenate([[0.0], cdf]))
-        infl = getattr(path, f"influence_{arm}").copy()
+        infl = np.asarray(getattr(path, f"influence_{arm}"))  # at most 20 levels: explicit
         infl[:, -1] = 0.0
         influences[arm] = np.diff(np.column_stack([np.zeros(infl.shape[0]), infl]), axis=1)
     theta, gradient_treated, gradient_control = superiority(

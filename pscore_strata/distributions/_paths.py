@@ -1,9 +1,7 @@
 """The always-survivor CDF at given values: the estimators' own formulas with ``1{Y <= v}``.
 
 Replacing the outcome by ``1{Y <= v}`` in an always-survivor mean gives the always-survivor CDF
-at ``v`` (DESIGN.md section 5b), so each estimator's formula in
-:mod:`pscore_strata.estimators._formulas` is called once per value on an :class:`Oriented`
-view whose outcome (and, for the outcome-model estimators, outcome predictions) are swapped:
+at ``v`` (DESIGN.md section 5b):
 
 - weighting: the weighted empirical CDFs of each arm's survivors, with the estimator's weights
   (M-estimation terms of the default GLMs included, as for the mean);
@@ -11,13 +9,19 @@ view whose outcome (and, for the outcome-model estimators, outcome predictions) 
   :mod:`._conditional`;
 - multiply robust: the efficient-influence-function estimator with the same model.
 
-The nuisance predictions (treatment and survival) are the estimator's stored ones; nothing is
-refitted apart from the conditional CDF models.
+All values are evaluated at once (:mod:`._grid_formulas`: one sort of the survivors, cumulative
+weighted sums, influence values in factored form), and the formula of
+:mod:`pscore_strata.estimators._formulas` itself is evaluated at one value per prepared
+estimator as a check (:func:`check_against_formula`). The nuisance predictions (treatment and
+survival) are the estimator's stored ones; the conditional CDF models are fitted once per
+fitted nuisance, covariates and CDF model, and shared by every later call (:func:`prepare`).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+import hashlib
+import weakref
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from sklearn.utils.validation import check_is_fitted
@@ -25,8 +29,10 @@ from sklearn.utils.validation import check_is_fitted
 from .._validation import check_features
 from ..estimators import _formulas
 from ._conditional import fit_conditional_cdf
+from ._expansion import Expansion, ValueGrid
+from ._grid_formulas import regression_grid, robust_grid, weighting_grid
 
-__all__ = ["CDFPath", "prepare", "cdf_path", "method_of"]
+__all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula"]
 
 _METHODS = {
     _formulas.weighting_means: "weighting",
@@ -57,17 +63,53 @@ class Prepared:
     data: object
     conditional: object  # ConditionalCDF or None (weighting)
     cdf_model_name: str = "unpenalized logistic regression"
+    checked: bool = field(default=False, repr=False)
+
+
+# Conditional CDF models by fitted nuisance: {id(nuisance): (weakref, {key: ConditionalCDF})}.
+# Entries die with the nuisance fit (a refit makes a new one), and are never pickled with the
+# estimator.
+_FITTED = {}
+
+
+def _fingerprint(X):
+    """A digest of the covariates' values (the cache must not serve other covariates)."""
+    if X is None:
+        return None
+    try:
+        values = np.ascontiguousarray(np.asarray(X, dtype=float))
+    except (TypeError, ValueError):
+        return None
+    return (values.shape, hashlib.blake2b(values.data, digest_size=16).hexdigest())
+
+
+def _conditional_cdf(estimator, data, X, cdf_model, seed):
+    nuisance = estimator.nuisance_
+    fingerprint = _fingerprint(X)
+    key = (fingerprint, estimator.n_folds, seed, "default" if cdf_model is None else
+           (id(cdf_model), repr(cdf_model)))  # fmt: skip
+    entry = _FITTED.get(id(nuisance))
+    if entry is None or entry[0]() is not nuisance:
+        entry = (weakref.ref(nuisance), {})
+        _FITTED[id(nuisance)] = entry
+        weakref.finalize(nuisance, _FITTED.pop, id(nuisance), None)
+    cached = entry[1].get(key)
+    if cached is not None and cached[0] is data and (cdf_model is None or cached[1] is cdf_model):
+        return cached[2]
+    conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed)
+    if X is None or fingerprint is not None:
+        entry[1][key] = (data, cdf_model, conditional)
+    return conditional
 
 
 def prepare(estimator, X=None, cdf_model=None):
-    """The oriented nuisance view and, for outcome-model estimators, the conditional CDF model."""
+    """The oriented nuisance view and, for outcome-model estimators, the conditional CDF model.
+
+    The conditional CDF models are fitted on the first call for a fitted estimator and reused
+    by later calls with the same covariates and ``cdf_model`` (and by the other estimators
+    sharing the same nuisance fit).
+    """
     method = method_of(estimator)
-    if getattr(estimator, "missing", "error") != "error":
-        raise ValueError(
-            "The distribution functions do not yet support estimators fitted with "
-            "`missing='at_random'` (their formulas have not been checked under coarsening); "
-            "refit with complete cases, or use the estimator's mean effect."
-        )
     data = estimator.training_data_
     oriented = _formulas.orient(data, estimator.nuisance_, estimator.monotonicity)
     conditional = None
@@ -88,20 +130,29 @@ def prepare(estimator, X=None, cdf_model=None):
             if n_features == 0:
                 X = None
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
-        conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed)
+        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed)
     name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
     return Prepared(method, oriented, data, conditional, name)
 
 
 @dataclass
 class CDFPath:
-    """Always-survivor CDFs at ``values`` and, optionally, their influence values."""
+    """Always-survivor CDFs at ``values`` and, optionally, their influence values.
+
+    The influence values are :class:`~._expansion.Expansion` objects: ``(n_rows, n_values)``
+    arrays in factored form (``np.asarray`` or ``[:, j]`` gives explicit columns).
+    """
 
     values: np.ndarray
     treated: np.ndarray
     control: np.ndarray
-    influence_treated: np.ndarray | None  # (n_rows, n_values)
-    influence_control: np.ndarray | None
+    influence_treated: Expansion | None
+    influence_control: Expansion | None
+
+
+_CHECK_ROWS = 100_000
+_FORMULAS = {"weighting": _formulas.weighting_means, "regression": _formulas.regression_means,
+             "robust": _formulas.robust_means}  # fmt: skip
 
 
 def _view(prepared, value, with_influence):
@@ -121,6 +172,73 @@ def _view(prepared, value, with_influence):
     return replace(o, **changes)
 
 
+def formula_cdf(prepared, value, with_influence=True):
+    """The formula layer's always-survivor means with ``Y -> 1{Y <= value}`` (one value)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return _FORMULAS[prepared.method](_view(prepared, value, with_influence))
+
+
+def _model_expansion(conditional, grid, arm):
+    """``F_arm(v | X)`` at the grid values: constant + sum_j c_j(v) G[:, j] (interpolation)."""
+    k, n_thresholds = grid.size, conditional.thresholds.size
+    coefficients, constant = np.zeros((n_thresholds, k)), np.zeros(k)
+    for t, value in enumerate(grid.values):
+        columns, weights, constant[t] = conditional.position(value)
+        coefficients[columns, t] = weights
+    blocks = [(1.0, grid.ones, constant[None, :])]
+    if n_thresholds:
+        blocks.append((1.0, conditional.grid[arm], coefficients))
+    return Expansion.from_blocks(grid, blocks), coefficients
+
+
+def _grid_parts(prepared, grid, with_influence):
+    o = prepared.oriented
+    indicator = Expansion.indicator(grid, o.survival)
+    if prepared.method == "weighting":
+        return weighting_grid(o, indicator, with_influence)
+    c = prepared.conditional
+    mixed_arm, pure_arm = (1, 0) if o.increasing else (0, 1)
+    m_mixed, c_mixed = _model_expansion(c, grid, mixed_arm)
+    m_pure, c_pure = _model_expansion(c, grid, pure_arm)
+    if prepared.method == "robust":
+        return robust_grid(o, indicator, m_mixed, m_pure, with_influence)
+    blends = {}
+    if c.parametric is not None:
+        for key, arm, coefficients in (("m_mixed", mixed_arm, c_mixed),
+                                       ("m_pure", pure_arm, c_pure)):  # fmt: skip
+            def blend(derivative, arm=arm, coefficients=coefficients):
+                # The interpolated prediction's term: the fits' terms in the same combination.
+                # The derivative (the always-survivor score) is fixed by the nuisance fit and
+                # the direction, so the columns are computed once per conditional CDF model.
+                key = ("corrections", o.increasing, arm)
+                if key not in c.cache:
+                    c.cache[key] = c.parametric[arm].corrections(derivative, o.weight)
+                return [(1.0, c.cache[key], coefficients)]
+            blends[key] = blend
+    return regression_grid(o, m_mixed, m_pure, blends, with_influence)
+
+
+def check_against_formula(prepared, path_values, parts, with_influence):
+    """Refuse a grid path that differs from the formula layer at the middle value (see module)."""
+    j = path_values.size // 2
+    exact = formula_cdf(prepared, path_values[j], with_influence)
+    pairs = [(parts.mean_treated[j], exact.mean_treated), (parts.mean_control[j],
+                                                           exact.mean_control)]  # fmt: skip
+    if with_influence:
+        pairs += [(parts.influence_treated[:, j], exact.influence_treated),
+                  (parts.influence_control[:, j], exact.influence_control)]
+    for fast, slow in pairs:
+        fast, slow = np.asarray(fast, dtype=float), np.asarray(slow, dtype=float)
+        scale = max(1.0, float(np.max(np.abs(slow), initial=0.0)))
+        if np.all(np.isfinite(slow)) and np.max(np.abs(fast - slow), initial=0.0) > 1e-7 * scale:
+            raise RuntimeError(
+                "Internal check failed: the always-survivor CDF computed on the grid differs "
+                f"from the {prepared.method} formula at {path_values[j]:.6g}. Please report "
+                "this with the estimator's settings."
+            )
+    prepared.checked = prepared.checked or with_influence or prepared.data.n_samples > _CHECK_ROWS
+
+
 def cdf_path(prepared, values, with_influence=True):
     """Evaluate the always-survivor CDFs at sorted ``values`` and rearrange them.
 
@@ -130,27 +248,26 @@ def cdf_path(prepared, values, with_influence=True):
     ``values``; Chernozhukov, Fernandez-Val & Galichon 2010) and clipped to [0, 1]; the
     influence values move with the estimates they belong to.
     """
-    formula = {"weighting": _formulas.weighting_means, "regression": _formulas.regression_means,
-               "robust": _formulas.robust_means}[prepared.method]  # fmt: skip
-    k = values.size
-    n = prepared.data.n_samples
-    treated, control = np.empty(k), np.empty(k)
-    influence = (np.empty((n, k)), np.empty((n, k))) if with_influence else (None, None)
+    values = np.asarray(values, dtype=float)
+    grid = ValueGrid.of(values, prepared.oriented.outcome)
     with np.errstate(divide="ignore", invalid="ignore"):
-        for j, value in enumerate(values):
-            parts = formula(_view(prepared, value, with_influence))
-            treated[j], control[j] = parts.mean_treated, parts.mean_control
-            if with_influence:
-                influence[0][:, j] = parts.influence_treated
-                influence[1][:, j] = parts.influence_control
+        parts = _grid_parts(prepared, grid, with_influence)
+    treated, control = parts.mean_treated, parts.mean_control
     if not (np.all(np.isfinite(treated)) and np.all(np.isfinite(control))):
         raise ValueError(
             "The always-survivor CDF is not finite: a fitted probability is 0 or 1 where the "
             "formula divides by it. Refit the estimator with regularized models."
         )
+    if not prepared.checked:
+        # The influence values are compared on data of up to _CHECK_ROWS rows only (the
+        # formula's per-value M-estimation terms cost seconds at a million rows); the test
+        # suite compares them at every grid point.
+        check_against_formula(prepared, values, parts,
+                              with_influence and prepared.data.n_samples <= _CHECK_ROWS)
     curves = []
-    for curve, infl in zip((treated, control), influence, strict=True):
+    for curve, infl in ((treated, parts.influence_treated), (control, parts.influence_control)):
         order = np.argsort(curve, kind="stable")
-        curves.append((np.clip(curve[order], 0.0, 1.0), None if infl is None else infl[:, order]))
+        curves.append((np.clip(curve[order], 0.0, 1.0), None if infl is None else
+                       infl.permuted(order)))  # fmt: skip
     (treated, if_treated), (control, if_control) = curves
     return CDFPath(values, treated, control, if_treated, if_control)

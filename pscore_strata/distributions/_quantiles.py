@@ -29,15 +29,16 @@ from ..inference._influence import (
     spawn_seeds,
 )
 from ..inference._refits import _seed_models
-from ._cdf import CAUTION, default_values
+from ._cdf import CAUTION, default_values, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
 
-__all__ = ["quantile_effects", "quantiles_of", "silverman_bandwidth", "kernel_density"]
+__all__ = ["quantile_effects", "quantiles_of", "interpolated_quantiles", "silverman_bandwidth",
+           "kernel_density"]
 
 # Outcome-model estimators invert their rearranged CDF at the distinct survivor outcomes, at
 # most this many (evenly spaced ranks beyond); weighting inverts its exact weighted ECDF.
-MAX_PATH_VALUES = 1000
+MAX_PATH_VALUES = 4000
 
 
 def check_quantiles(quantiles):
@@ -90,42 +91,43 @@ def effective_sizes(oriented):
 
 
 def _survivor_values(data):
-    return np.unique(data.outcome[data.survival == 1])
+    return np.unique(data.outcome[observed_survivors(data)])
 
 
-def _bisect(prepared, values, quantiles):
-    """Exact inverse of a CDF that is monotone by construction (weighting), by bisection."""
-    out = {"treated": [], "control": []}
-    cache = {}
+def interpolated_quantiles(values, cdf, quantiles):
+    """Quantiles of a CDF known on a grid, interpolated linearly between grid values.
 
-    def cdf(j):
-        if j not in cache:
-            path = cdf_path(prepared, values[j : j + 1], with_influence=False)
-            cache[j] = {"treated": path.treated[0], "control": path.control[0]}
-        return cache[j]
-
-    for arm in out:
-        for u in quantiles:
-            low, high = 0, values.size - 1
-            while low < high:
-                middle = (low + high) // 2
-                if cdf(middle)[arm] >= u - 1e-12:
-                    high = middle
-                else:
-                    low = middle + 1
-            out[arm].append(values[low])
-    return {arm: np.asarray(v) for arm, v in out.items()}
+    For ``u`` with ``F(g_{j-1}) < u <= F(g_j)`` the step inverse would give ``g_j``; the
+    interpolated one ``g_{j-1} + (u - F(g_{j-1})) / (F(g_j) - F(g_{j-1})) (g_j - g_{j-1})``
+    (error of order the squared grid spacing for a smooth CDF; docs/guide/distributions.md).
+    """
+    quantiles = np.asarray(quantiles, dtype=float)
+    index = np.minimum(np.searchsorted(cdf, quantiles - 1e-12, side="left"), values.size - 1)
+    out = values[index].astype(float)
+    inner = index > 0
+    j = index[inner]
+    low, high = cdf[j - 1], cdf[j]
+    share = np.where(high > low, (quantiles[inner] - low) / np.where(high > low, high - low, 1),
+                     1.0)  # fmt: skip
+    out[inner] = values[j - 1] + np.clip(share, 0.0, 1.0) * (values[j] - values[j - 1])
+    return out
 
 
 def _point_quantiles(prepared, quantiles):
-    """Quantiles of the two always-survivor distributions (no influence values)."""
+    """Quantiles of the two always-survivor distributions (no influence values).
+
+    Weighting inverts its weighted ECDF exactly (every distinct survivor outcome: one sort and
+    a cumulative sum). The outcome-model estimators invert their rearranged CDF at the
+    distinct survivor outcomes when there are at most ``MAX_PATH_VALUES`` (exactly), else at
+    that many evenly spaced ranks, interpolating linearly between them.
+    """
     values = _survivor_values(prepared.data)
-    if prepared.method == "weighting":
-        return _bisect(prepared, values, quantiles)
-    if values.size > MAX_PATH_VALUES:
+    invert = quantiles_of
+    if prepared.method != "weighting" and values.size > MAX_PATH_VALUES:
         values = default_values(prepared.data, limit=MAX_PATH_VALUES)
+        invert = interpolated_quantiles
     path = cdf_path(prepared, values, with_influence=False)
-    return {arm: quantiles_of(path.values, getattr(path, arm), quantiles)
+    return {arm: invert(path.values, getattr(path, arm), quantiles)
             for arm in ("treated", "control")}  # fmt: skip
 
 
@@ -178,7 +180,7 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         raise ValueError(f"`n_bootstrap` must be 0 or an integer >= 2; got {n_bootstrap!r}.")
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    if np.unique(data.outcome[data.survival == 1]).size <= MAX_LEVELS:
+    if _survivor_values(data).size <= MAX_LEVELS:
         raise ValueError(
             f"The survivors' outcome takes at most {MAX_LEVELS} distinct values, so its "
             "quantiles sit on point masses and have no density-based standard error. Use "
@@ -191,11 +193,13 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     w, groups = data.sample_weight, data.groups
     z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
     influence, density, bandwidth = {}, {}, {}
+    # One pass gives both arms' influence values at every quantile of either arm.
+    at_quantiles = cdf_path(prepared, np.unique(np.concatenate([point["treated"],
+                                                                point["control"]])))
     for arm in ("treated", "control"):
         mass = masses(getattr(path, arm))
         bandwidth[arm] = silverman_bandwidth(path.values, mass, sizes[arm])
         density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
-        at_quantiles = cdf_path(prepared, np.unique(point[arm]))
         columns = np.searchsorted(at_quantiles.values, point[arm])
         influence[arm] = -getattr(at_quantiles, f"influence_{arm}")[:, columns] / density[arm]
     effect_influence = influence["treated"] - influence["control"]

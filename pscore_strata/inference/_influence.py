@@ -37,6 +37,7 @@ __all__ = [
     "influence_acceleration",
     "multiplier_contributions",
     "multiplier_draws",
+    "gaussian_draws",
     "run_tasks",
 ]
 
@@ -367,14 +368,7 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
     generators = [np.random.default_rng(seed) for seed in seeds]
     draws = np.zeros((len(generators), k))
     if kind == "gaussian":
-        # With standard normal multipliers, sum_g xi_g c_g is exactly N(0, C'C): draw it from
-        # k normals per replicate and a square root of the k x k matrix C'C. Same distribution
-        # as drawing n multipliers, at O(n k^2 + B k^2) cost instead of O(n B).
-        eigenvalues, eigenvectors = np.linalg.eigh(c.T @ c)
-        root = np.sqrt(np.clip(eigenvalues, 0.0, None))[:, None] * eigenvectors.T
-        for b, rng in enumerate(generators):
-            draws[b] = rng.standard_normal(k) @ root
-        return draws
+        return gaussian_draws(c.T @ c, seeds)
     if kind != "rademacher":
         raise ValueError(f"`multiplier` must be 'rademacher' or 'gaussian'; got {kind!r}.")
     rows_per_chunk = 8 * _RADEMACHER_CHUNK_BYTES
@@ -392,6 +386,29 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
         idx += np.arange(n_bytes) * 256
         for j in range(k):
             draws[:, j] += table[idx, j].sum(axis=1)
+    return draws
+
+
+def gaussian_draws(cross_products, seeds):
+    """Gaussian multiplier draws ``sum_g xi_g c_g`` given only ``C'C`` (one per seed).
+
+    With standard normal multipliers, ``sum_g xi_g c_g`` is exactly ``N(0, C'C)``: each draw is
+    ``k`` normals from its own seed times a square root of the ``k x k`` matrix ``C'C``. Same
+    distribution as drawing ``n`` multipliers, at ``O(B k^2)`` cost once ``C'C`` is known,
+    and ``B x k`` memory.
+    """
+    cross_products = np.asarray(cross_products, dtype=float)
+    k = cross_products.shape[0]
+    eigenvalues, eigenvectors = np.linalg.eigh(cross_products)
+    # Each eigenvector's sign is arbitrary, and rounding-level changes of C'C can flip it,
+    # which changes every draw; fixing it (largest component positive) makes the draws, and
+    # the band built on them, depend on C'C only.
+    largest = np.abs(eigenvectors).argmax(axis=0)
+    eigenvectors = eigenvectors * np.sign(eigenvectors[largest, np.arange(k)] + 0.0)[None, :]
+    root = np.sqrt(np.clip(eigenvalues, 0.0, None))[:, None] * eigenvectors.T
+    draws = np.zeros((len(seeds), k))
+    for b, seed in enumerate(seeds):
+        draws[b] = np.random.default_rng(seed).standard_normal(k) @ root
     return draws
 
 

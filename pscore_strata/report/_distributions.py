@@ -28,10 +28,12 @@ def distributions_section(collector, primary, data, options):
     from ..distributions._conditional import MAX_LEVELS
 
     label = "outcome distributions"
-    if getattr(primary, "missing", "error") != "error":
-        return {"available": False, "reason": "Distributions are not yet computed with "
-                "missing data handled as missing at random."}
+    if not getattr(options, "distributions", True):
+        return {"available": False, "skipped": True, "reason": "Not computed: the analysis was "
+                "run with --no-distributions."}
+    quantiles = tuple(getattr(options, "quantiles", QUANTILES))
     survivors = data.outcome[data.survival == 1]
+    survivors = survivors[~np.isnan(survivors)]  # missing at random: observed outcomes only
     levels = np.unique(survivors)
     X = data.design
     try:
@@ -58,7 +60,7 @@ def distributions_section(collector, primary, data, options):
             }  # fmt: skip
         distribution = collector.run(label, survivor_distribution, primary, X=X,
                                      level=options.level, random_state=options.seed)
-        table = collector.run(label, quantile_effects, primary, QUANTILES, options.level, X=X)
+        table = collector.run(label, quantile_effects, primary, quantiles, options.level, X=X)
     except ValueError as error:
         return {"available": False, "reason": f"Distributions could not be computed: {error}"}
     frame = distribution.to_frame()
@@ -73,13 +75,13 @@ def distributions_section(collector, primary, data, options):
              ("quantile", "treated", "control", "effect", "std_error", "ci_low", "ci_high")}
             for _, row in table.iterrows()
         ],
-        "quantile_bounds": _quantile_bounds(collector, options, data, primary),
+        "quantile_bounds": _quantile_bounds(collector, options, data, primary, quantiles),
         "notes": list(distribution.notes[:1]) + list(table.attrs["notes"]),
     }  # fmt: skip
     return record
 
 
-def _quantile_bounds(collector, options, data, primary):
+def _quantile_bounds(collector, options, data, primary, quantiles=QUANTILES):
     from ..assumptions import TrimmingBounds
     from ..assumptions._quantile_bounds import quantile_intervals
     from ..inference._influence import estimator_dof
@@ -87,7 +89,8 @@ def _quantile_bounds(collector, options, data, primary):
     models, _ = model_settings(options)
     if options.survival_model == "arm-wise":
         models.pop("survival_model", None)  # unused without score strata
-    bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=QUANTILES, **models)
+    bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=quantiles,
+                            missing=options.missing, **models)  # fmt: skip
     # With the default models the bounds reuse the analysis' one fit (never a cross-fitted one).
     shared = primary.nuisance_
     nuisance = None if options.learner != "linear" or shared.cross_fitted else shared

@@ -60,8 +60,13 @@ class AnalysisOptions:
     arm_names: tuple | None = None
     missing: str = "error"
     # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
-    # "by_fit" (fit both, keep the better; the demo).
+    # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
+    # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
+    # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
+    # and their bounds (--quantiles), or the whole section skipped (--no-distributions).
+    quantiles: tuple = (0.1, 0.25, 0.5, 0.75, 0.9)
+    distributions: bool = True
 
 
 def model_settings(options, n_rows=None):

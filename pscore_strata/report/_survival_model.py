@@ -2,10 +2,11 @@
 
 ``--survival-model arm-wise`` (the default) fits a survival model in each arm, the scores being
 differences of the two; ``--survival-model strata`` fits one principal score model of stratum
-membership on both arms (``ps.PrincipalScoreModel``). The demo fits both and keeps the one
-that fits the observed survival statuses better. Both give those statuses the same Bernoulli
-likelihood (a row of arm ``t`` survives with probability ``P(S=1 | T=t, X)``), so their
-log-likelihoods compare directly; with the parameter counts, by AIC (Akaike 1974).
+membership on both arms (``ps.PrincipalScoreModel``). ``survival_model="by_fit"`` (from Python
+only) fits both and keeps the one that fits the observed survival statuses better. Both give
+those statuses the same Bernoulli likelihood (a row of arm ``t`` survives with probability
+``P(S=1 | T=t, X)``), so their log-likelihoods compare directly; with the parameter counts, by
+AIC (Akaike 1974).
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ __all__ = ["SURVIVAL_MODELS", "survival_model_argument", "choose_survival_model"
            "survival_model_record"]  # fmt: skip
 
 SURVIVAL_MODELS = ("arm-wise", "strata")
-# The choice the demo makes; not offered by ``analyze``, whose users say what they want.
+# Fit both and keep the better: from Python only (the demo pre-specifies the stratum model).
 BY_FIT = "by_fit"
 LABELS = {"arm-wise": "arm-wise survival models", "strata": "stratum model"}
 DESCRIPTIONS = {

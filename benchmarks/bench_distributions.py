@@ -1,0 +1,184 @@
+"""Distributions at registry scale: the whole ``analyze`` run, and the library calls.
+
+Two tables, each measured within one run so that the ratios compare work done under the same
+machine load:
+
+1. ``analyze`` (``--analyze-sizes``, default 2,000 / 100,000 / 250,000 / 500,000 rows of
+   ``make_truncation(n, n_features=5)`` as CSV; default settings, so the distributions and
+   quantile bounds are included) in a fresh process, against a fresh process doing the CSV read
+   and the bare scikit-learn fits of the five nuisance models (``bench_analyze.py``'s ``bare``).
+   Peak memory is the child's peak resident set size. The row-proportional ratio subtracts the
+   smallest run from both (start-up, imports, figures). Bytes per row: the least-squares slope
+   of the analyze run's peak RSS over the sizes.
+2. The library at ``--library-size`` rows (default 1,000,000): for each estimator, ``fit``,
+   then ``quantile_effects`` and ``survivor_distribution`` on the fitted estimator, each in a
+   fresh process (the first call fits the conditional CDF models, which the later calls reuse:
+   the "cold" and "warm" columns).
+
+Usage: ``nice -n 5 env OMP_NUM_THREADS=1 python benchmarks/bench_distributions.py``
+       ``[--analyze-sizes 2000 500000] [--library-size 1000000] [--skip-analyze]``
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import tempfile
+import textwrap
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).parent))
+from bench_analyze import _BARE, _child  # noqa: E402
+
+_WRITE = (f"import sys; sys.path.insert(0, {str(Path(__file__).parent)!r}); "
+          "from bench_analyze import _write_csv; _write_csv(int(sys.argv[1]), sys.argv[2])")
+
+_LIBRARY = textwrap.dedent(
+    """
+    import resource, sys, time, warnings
+    import numpy as np
+    import pscore_strata as ps
+    warnings.simplefilter("ignore")
+    n, name, first = int(sys.argv[1]), sys.argv[2], sys.argv[3]
+    data = ps.datasets.make_truncation(n, n_features=5, random_state=0)
+    cls = {"weighting": ps.PrincipalScoreWeighting, "regression": ps.OutcomeRegression,
+           "robust": ps.MultiplyRobust}[name]
+    X = None if name == "weighting" else data.X
+    start = time.perf_counter()
+    est = cls().fit(data.X, data.y, treatment=data.treatment, survival=data.survival)
+    fit = time.perf_counter() - start
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    calls = {"quantiles": lambda: ps.quantile_effects(est, X=X),
+             "distribution": lambda: ps.survivor_distribution(est, X=X)}
+    order = [first] + [k for k in calls if k != first]
+    times = {}
+    for key in order:
+        start = time.perf_counter()
+        calls[key]()
+        times[key] = time.perf_counter() - start
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(fit, times["quantiles"], times["distribution"], before, peak)
+    """
+)
+
+
+_GRID = textwrap.dedent(
+    """
+    import sys, warnings
+    import numpy as np
+    import pscore_strata as ps
+    from pscore_strata.distributions._cdf import default_values
+    from pscore_strata.distributions._paths import cdf_path, prepare
+    from pscore_strata.distributions._quantiles import interpolated_quantiles, quantiles_of
+    warnings.simplefilter("ignore")
+    n = int(sys.argv[1])
+    u = np.array([0.1, 0.25, 0.5, 0.75, 0.9])
+    data = ps.datasets.make_truncation(n, n_features=5, random_state=1)
+    for name, cls in (("weighting", ps.PrincipalScoreWeighting), ("robust", ps.MultiplyRobust)):
+        est = cls().fit(data.X, data.y, treatment=data.treatment, survival=data.survival)
+        X = None if name == "weighting" else data.X
+        prepared = prepare(est, X)
+        se = ps.quantile_effects(est, u, X=X)["std_error_treated"].to_numpy()
+        fine = default_values(prepared.data, limit=20000)
+        path = cdf_path(prepared, fine, with_influence=False)
+        reference = interpolated_quantiles(fine, path.treated, u)
+        coarse = default_values(prepared.data, limit=4000)
+        path = cdf_path(prepared, coarse, with_influence=False)
+        step = quantiles_of(coarse, path.treated, u)
+        line = interpolated_quantiles(coarse, path.treated, u)
+        for label, q in (("step, 4000 ranks", step), ("interpolated, 4000 ranks", line)):
+            error = np.max(np.abs(q - reference))
+            print(name, label, error, np.max(np.abs(q - reference) / se))
+    """
+)
+
+
+def grid_table(n, env):
+    print(f"\nquantiles from a 4,000-value grid against a 20,000-value grid, {n:,} rows (treated "
+          "arm, quantiles 0.1 ... 0.9; max over the quantiles)\n")
+    print("| estimator | inverse | max abs error | max error / SE |")
+    print("|---|---|---|---|")
+    _, _, stdout = _child([sys.executable, "-c", _GRID, str(n)], env)
+    for line in stdout.strip().splitlines():
+        name, *label, error, ratio = line.split()
+        print(f"| {name} | {' '.join(label)} | {float(error):.2e} | {float(ratio):.3f} |")
+
+
+def analyze_table(sizes, tmp, env):
+    rows = []
+    for n in sizes:
+        csv = Path(tmp) / f"data_{n}.csv"
+        # Written by a child: a forked child's peak RSS counts the parent's pages at the fork,
+        # so the parent must stay small (no pandas or pscore_strata imported here).
+        _child([sys.executable, "-c", _WRITE, str(n), str(csv)], env)
+        command = [sys.executable, "-m", "pscore_strata", "analyze", str(csv), "--outcome",
+                   "outcome", "--treatment", "treatment", "--survival", "survival",
+                   "--covariates", *[f"x{j}" for j in range(5)],
+                   "--out", str(Path(tmp) / f"report_{n}"), "--quiet"]  # fmt: skip
+        analyze_s, analyze_mb, _ = _child(command, env)
+        bare_s, bare_mb, _ = _child([sys.executable, "-c", _BARE, str(csv)], env)
+        results = json.loads((Path(tmp) / f"report_{n}" / "results.json").read_text())
+        record = results.get("distributions") or {}
+        rows.append((n, analyze_s, bare_s, analyze_mb, bare_mb, bool(record.get("available"))))
+        csv.unlink()
+    print("analyze end to end (default settings: distributions and quantile bounds included)\n")
+    print("| rows | analyze (s) | bare: read + 5 fits (s) | analyze / bare | "
+          "row-proportional ratio | peak RSS MB | bare peak RSS MB | distributions |")
+    print("|---|---|---|---|---|---|---|---|")
+    n0, a0, b0 = rows[0][0], rows[0][1], rows[0][2]
+    for n, a, b, mb, bare_mb, available in rows:
+        proportional = "" if n == n0 else f"{(a - a0) / (b - b0):.2f}"
+        print(f"| {n:,} | {a:.1f} | {b:.1f} | {a / b:.2f} | {proportional} | {mb:.0f} | "
+              f"{bare_mb:.0f} | {'yes' if available else 'NO'} |")  # fmt: skip
+    import numpy as np
+
+    ns = np.array([r[0] for r in rows], dtype=float)
+    mbs = np.array([r[3] for r in rows])
+    slope, intercept = np.polyfit(ns, mbs * 2**20, 1)
+    print(f"\npeak RSS = {intercept / 2**20:.0f} MB + {slope:.0f} bytes per row "
+          "(least squares over the sizes)")
+
+
+def library_table(n, env):
+    print(f"\nlibrary calls at {n:,} rows x 5 covariates (each row of the table: one fresh "
+          "process; cold = first call after fit)\n")
+    print("| estimator | fit (s) | quantile_effects cold (s) | / fit | survivor_distribution "
+          "warm (s) | / fit | survivor_distribution cold (s) | / fit | quantile_effects warm "
+          "(s) | peak RSS MB |")
+    print("|---|---|---|---|---|---|---|---|---|---|")
+    for name in ("weighting", "regression", "robust"):
+        out = {}
+        for first in ("quantiles", "distribution"):
+            _, _, stdout = _child([sys.executable, "-c", _LIBRARY, str(n), name, first], env)
+            out[first] = [float(v) for v in stdout.split()]
+        fit_q, q_cold, d_warm, _, peak = out["quantiles"]
+        fit_d, q_warm, d_cold, _, peak_d = out["distribution"]
+        print(f"| {name} | {fit_q:.2f} | {q_cold:.2f} | {q_cold / fit_q:.2f} | {d_warm:.2f} | "
+              f"{d_warm / fit_q:.2f} | {d_cold:.2f} | {d_cold / fit_d:.2f} | {q_warm:.2f} | "
+              f"{max(peak, peak_d):.0f} |")  # fmt: skip
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--analyze-sizes", type=int, nargs="+",
+                        default=[2_000, 100_000, 250_000, 500_000])
+    parser.add_argument("--library-size", type=int, default=1_000_000)
+    parser.add_argument("--skip-analyze", action="store_true")
+    parser.add_argument("--skip-library", action="store_true")
+    args = parser.parse_args(argv)
+    env = dict(os.environ)
+    print(f"load average at start: {os.getloadavg()[0]:.1f} (2 cores); "
+          f"OMP_NUM_THREADS={env.get('OMP_NUM_THREADS', 'unset')}\n")
+    with tempfile.TemporaryDirectory() as tmp:
+        if not args.skip_analyze:
+            analyze_table(args.analyze_sizes, tmp, env)
+    if not args.skip_library:
+        library_table(args.library_size, env)
+        grid_table(args.library_size, env)
+    print(f"\nload average at end: {os.getloadavg()[0]:.1f}")
+
+
+if __name__ == "__main__":
+    main()

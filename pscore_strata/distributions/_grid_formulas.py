@@ -1,0 +1,179 @@
+"""The estimators' formulas with ``Y -> 1{Y <= v}``, at every grid value at once.
+
+Each ``*_grid`` function is the formula of the same name in
+:mod:`pscore_strata.estimators._formulas`, line for line, with the outcome (and, for the
+outcome-model estimators, the conditional CDF predictions) replaced by
+:class:`~._expansion.Expansion` objects over a grid of values, so one pass over the rows serves
+every value (cost O(n x bases), not O(n x values)). The formula layer stays the definition:
+:func:`pscore_strata.distributions._paths.cdf_path` evaluates the layer's own formula at one
+grid value on every call and refuses a mismatch, and ``tests/test_distribution_reference.py``
+checks these functions against the per-value path at every grid point to 1e-8.
+
+Nuisance-estimation terms: a GLM fit's term ``mask r_i Xd_i . H^-1 mean_w(d * slope * Xd)`` is
+linear in the derivative ``d``, so for an expanded ``d`` its gradient is a small
+``(parameters x values)`` matrix (:meth:`Expansion.cross`) and the term one more block.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._expansion import Expansion
+
+__all__ = ["GridParts", "weighting_grid", "regression_grid", "robust_grid"]
+
+
+@dataclass
+class GridParts:
+    """Always-survivor CDFs at the grid values and their influence values (expanded)."""
+
+    mean_treated: np.ndarray
+    mean_control: np.ndarray
+    influence_treated: Expansion | None
+    influence_control: Expansion | None
+
+
+def _reciprocal(x):
+    """``1 / x`` with 0 where ``x`` is 0 (the formulas' ``_ratio`` on rows without weight)."""
+    x = np.asarray(x, dtype=float)
+    out = np.zeros(x.shape)
+    np.divide(1.0, x, out=out, where=x != 0)
+    return out
+
+
+def _fit_factors(fit, weights, ones):
+    """``(rights, lefts, h_inverse)`` with ``correction(d) = sum_l f_l (B_l @ direction_l)``,
+    ``direction = h_inverse @ [B_r' (f_r d)]_r`` (the two fit classes' ``correction``)."""
+    total = weights.sum()
+    if hasattr(fit, "strata"):  # StratumScoreFit: one block of parameters per free stratum
+        e, design = fit.strata, fit.design
+        p = e[:, list(fit.members)].sum(axis=1)
+        free = range(fit.residual.shape[1])
+        rights = [(weights * e[:, j] * ((j in fit.members) - p) / total, design) for j in free]
+        lefts = [(fit.residual[:, j], design) for j in free]
+        return rights, lefts, fit.h_inverse
+    factor = weights * fit.slope / total
+    row = fit.mask * fit.residual
+    bases = [ones] if fit.design is None else [ones, fit.design]
+    return [(factor, B) for B in bases], [(row, B) for B in bases], fit.h_inverse
+
+
+def _correction_blocks(fit, derivative, weights):
+    rights, lefts, h_inverse = _fit_factors(fit, weights, derivative.grid.ones)
+    gradient = np.vstack([derivative.cross(np.broadcast_to(f, weights.shape), B)
+                          for f, B in rights])  # fmt: skip
+    direction = h_inverse @ gradient
+    blocks, start = [], 0
+    for f, B in lefts:
+        blocks.append((f, B, direction[start : start + B.shape[1]]))
+        start += B.shape[1]
+    return blocks
+
+
+def _corrected(o, expansion, derivatives):
+    """``expansion`` plus ``o.corrections``: ``derivatives`` maps a nuisance name to
+    ``(per-row factor, expanded array)``, the derivative being their product."""
+    if o.parametric is None:
+        return expansion
+    blocks = []
+    for name, (factor, base) in derivatives.items():
+        fit = o.parametric.get(name)
+        if fit is not None:
+            blocks += _correction_blocks(fit, base.scaled(factor), o.weight)
+    return Expansion(expansion.grid, expansion.D, expansion.blocks + blocks, expansion.index)
+
+
+def _weighted_mean(o, expansion):
+    return expansion.weighted_sum(o.weight) / np.sum(o.weight)
+
+
+def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
+    if o.increasing:
+        return GridParts(mu_mixed, mu_pure, if_mixed, if_pure)
+    return GridParts(mu_pure, mu_mixed, if_pure, if_mixed)
+
+
+def _coarsening_factors(o, role):
+    """Per-row factors of the coarsening's ``weight_derivatives``: an estimating function
+    proportional to ``1 / (c r)`` has derivatives ``-f / c`` and ``-f / r``."""
+    co = o.coarsening
+    if co is None:
+        return {}
+    c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
+    return {f"c_{role}": -_reciprocal(c), f"r_{role}": -_reciprocal(r)}
+
+
+def weighting_grid(o, indicator, with_influence=True):
+    """:func:`~pscore_strata.estimators._formulas.weighting_means` on ``indicator``."""
+    w_mixed = _reciprocal(o.pi * o.p_mixed) * (o.observed_mixed * o.p_pure)
+    normalizer = o.weighted_mean(w_mixed)
+    weighted = indicator.scaled(w_mixed)
+    mu_mixed = _weighted_mean(o, weighted) / normalizer
+    w_pure = _reciprocal(1 - o.pi) * o.observed_pure
+    normalizer_pure = o.weighted_mean(w_pure)
+    weighted_pure = indicator.scaled(w_pure)
+    mu_pure = _weighted_mean(o, weighted_pure) / normalizer_pure
+    if not with_influence:
+        return _unorient(o, mu_mixed, mu_pure, None, None)
+    f = weighted.plus_outer(w_mixed, -mu_mixed)
+    derivatives = {"pi": (-_reciprocal(o.pi), f), "p_mixed": (-_reciprocal(o.p_mixed), f),
+                   "p_pure": (_reciprocal(o.p_pure), f)}  # fmt: skip
+    derivatives.update({k: (v, f) for k, v in _coarsening_factors(o, "mixed").items()})
+    if_mixed = _corrected(o, f, derivatives).scaled(1 / normalizer)
+    f = weighted_pure.plus_outer(w_pure, -mu_pure)
+    derivatives = {"pi": (_reciprocal(1 - o.pi), f)}
+    derivatives.update({k: (v, f) for k, v in _coarsening_factors(o, "pure").items()})
+    if_pure = _corrected(o, f, derivatives).scaled(1 / normalizer_pure)
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
+    """:func:`~pscore_strata.estimators._formulas.regression_means` on expanded ``m``.
+
+    ``blends`` maps ``"m_mixed"`` / ``"m_pure"`` to a function giving the conditional CDF
+    fits' correction blocks for a per-row derivative (or to ``None``).
+    """
+    always = o.p_pure
+    normalizer = o.weighted_mean(always)
+    result = []
+    for key, m in (("m_mixed", m_mixed), ("m_pure", m_pure)):
+        weighted = m.scaled(always)
+        mu = _weighted_mean(o, weighted) / normalizer
+        if not with_influence:
+            result.append((mu, None))
+            continue
+        f = weighted.plus_outer(always, -mu)
+        influence = _corrected(o, f, {"p_pure": (1.0, m.plus_outer(np.ones_like(always), -mu))})
+        if o.parametric is not None and blends.get(key) is not None:
+            influence = Expansion(influence.grid, influence.D,
+                                  influence.blocks + blends[key](always), influence.index)
+        result.append((mu, influence.scaled(1 / normalizer)))
+    (mu_mixed, if_mixed), (mu_pure, if_pure) = result
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def robust_grid(o, indicator, m_mixed, m_pure, with_influence=True):
+    """:func:`~pscore_strata.estimators._formulas.robust_means` on expanded ``Y`` and ``m``."""
+    S = o.survival
+    pure_residual = _reciprocal(1 - o.pi) * (o.known_pure * (S - o.p_pure))
+    phi_e = pure_residual + o.p_pure
+    # phi_mixed = pure_residual m + p_pure A_obs (Y - m) / (pi p_mixed) + p_pure m
+    b = _reciprocal(o.pi * o.p_mixed) * (o.p_pure * o.observed_mixed)
+    phi_mixed = indicator.scaled(b) + m_mixed.scaled(pure_residual - b + o.p_pure)
+    if o.coarsening is None:
+        # (1 - A)(S Y - p_pure m) / (1 - pi) + p_pure m; the indicator already carries S.
+        a = _reciprocal(1 - o.pi) * (1 - o.mixed)
+        phi_pure = indicator.scaled(a) + m_pure.scaled(o.p_pure - a * o.p_pure)
+    else:
+        a = _reciprocal(1 - o.pi) * o.observed_pure
+        phi_pure = indicator.scaled(a) + m_pure.scaled(-a + pure_residual + o.p_pure)
+    share = o.weighted_mean(phi_e)
+    mu_mixed = _weighted_mean(o, phi_mixed) / share
+    mu_pure = _weighted_mean(o, phi_pure) / share
+    if not with_influence:
+        return _unorient(o, mu_mixed, mu_pure, None, None)
+    if_mixed = phi_mixed.plus_outer(phi_e, -mu_mixed).scaled(1 / share)
+    if_pure = phi_pure.plus_outer(phi_e, -mu_pure).scaled(1 / share)
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
