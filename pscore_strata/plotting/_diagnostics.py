@@ -121,7 +121,7 @@ def plot_balance(
     if len(order) < len(raw):
         title += f"\n({len(order)} of {len(raw)} covariates: the largest differences)"
     ax.set_title(title, fontsize=10, pad=10)
-    _legend_below(ax, ncol=2)
+    _legend_below(ax, ncol=1)  # one entry a line: the study's arm names can be long
     return figure
 
 
