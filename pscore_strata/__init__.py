@@ -13,6 +13,7 @@ from . import (
     plotting,
     simulation,
     tables,
+    visits,
 )
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
@@ -33,6 +34,7 @@ from .distributions import (
 from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting, fit_estimators
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
+from .visits import visit_effects
 
 __version__ = "0.1.0"
 
@@ -80,5 +82,7 @@ __all__ = [
     "monotonicity_check",
     "survival_fit_check",
     "diagnostic_warnings",
+    "visit_effects",
+    "visits",
     "__version__",
 ]

@@ -15,7 +15,7 @@ try:
 except ImportError:  # scikit-learn < 1.6 (the declared minimum is 1.4): legacy tag dictionaries
     get_tags = None
 
-__all__ = ["check_features", "reject_sparse"]
+__all__ = ["check_features", "feature_fingerprint", "reject_sparse"]
 
 
 def _accepts_missing(model):
@@ -135,3 +135,29 @@ def reject_sparse(X):
             "(X.toarray(), or DataFrame.sparse.to_dense()); with very many sparse columns, "
             "reduce them first (for example with TruncatedSVD)."
         )
+
+
+def feature_fingerprint(X):
+    """A digest of ``X``'s values (and column names): the rows a model was fitted on.
+
+    Functions that take the training covariates again (``quantile_effects(est, X=...)``) compare
+    it, so that a shuffled or different table with the right number of rows is refused instead
+    of silently pairing rows with other rows' predictions. ``None`` for ``X=None``.
+    """
+    import hashlib
+
+    if X is None:
+        return None
+    digest = hashlib.sha1()
+    if isinstance(X, pd.DataFrame):
+        digest.update(repr([str(c) for c in X.columns]).encode())
+        values = pd.util.hash_pandas_object(X, index=False).to_numpy()
+    else:
+        array = np.asarray(X)
+        if array.dtype == object:
+            values = pd.util.hash_pandas_object(pd.DataFrame(array), index=False).to_numpy()
+        else:
+            values = np.ascontiguousarray(array, dtype=float)
+    digest.update(np.ascontiguousarray(values).tobytes())
+    digest.update(repr(np.shape(X)).encode())
+    return digest.hexdigest()

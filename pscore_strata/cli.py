@@ -87,6 +87,7 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        visit_population=args.visit_population or "each",
     )
 
 
@@ -168,6 +169,9 @@ def _print_key_results(results, out_dir):
     for message in results.get("warnings", []):
         if message.startswith("data: "):
             print(f"  warning: {message[6:]}")
+    from .report._visits import print_visits
+
+    print_visits(results)
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
     print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "
@@ -176,6 +180,7 @@ def _print_key_results(results, out_dir):
 
 def _analyze(args):
     from .report import ColumnRoles, analyze_frame, read_table
+    from .report._visit_data import visit_pairs
 
     options = _options(args)
     _check_out_dir(args.out)
@@ -183,10 +188,12 @@ def _analyze(args):
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
+    visits = visit_pairs(args.outcome, args.survival, args.visit_population)
     roles = ColumnRoles(
-        outcome=args.outcome,
+        outcome=args.outcome[-1],
         treatment=args.treatment,
-        survival=args.survival,
+        survival=args.survival[-1],
+        visits=visits,
         covariates=tuple(args.covariates),
         categorical=tuple(args.categorical),
         cluster=args.cluster,
@@ -330,11 +337,11 @@ def build_parser():
         "unit",
     )  # fmt: skip
     analyze.add_argument(
-        "--outcome",
-        required=True,
-        metavar="COL",
-        help="outcome column (may be empty for non-survivors)",
-    )
+        "--outcome", required=True, action="append", metavar="COL",
+        help="outcome column (may be empty for non-survivors); repeated with as many "
+        "--survival columns, one per follow-up visit in time order, it adds the section "
+        "'Over visits' (the other sections analyse the last visit)",
+    )  # fmt: skip
     analyze.add_argument(
         "--treatment", required=True, metavar="COL",
         help="treatment column: 0/1, or two levels with --treated-value",
@@ -344,12 +351,10 @@ def build_parser():
         help="level of --treatment that means treated (for text-coded arms, e.g. program)",
     )  # fmt: skip
     analyze.add_argument(
-        "--survival",
-        required=True,
-        metavar="COL",
+        "--survival", required=True, action="append", metavar="COL",
         help="0/1 column: 1 if the unit survived (its outcome exists); or two levels with "
-        "--survived-value",
-    )
+        "--survived-value; repeated: survival to each visit, matching the --outcome columns",
+    )  # fmt: skip
     analyze.add_argument(
         "--survived-value", default=None, metavar="VALUE",
         help="level of --survival that means survived / no event (e.g. yes)",
@@ -430,6 +435,12 @@ def build_parser():
         "(default); strata: one multinomial logistic model of stratum membership fitted on "
         "both arms, monotone by construction (also with --learner boosting, which then "
         "applies to the treatment and outcome models)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--visit-population", choices=("each", "last"), default=None,
+        help="with several visits: each = the always-survivors to each visit (a different "
+        "group per visit; default); last = the always-survivors to the last visit at every "
+        "visit (one group)",
     )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")

@@ -494,7 +494,7 @@ def test_more_than_one_percent_failures_raise():
     s = np.r_[rng.integers(0, 2, 170), np.zeros(29, int), 1]  # one control survivor
     X = rng.standard_normal((n, 2))
     y = rng.standard_normal(n)
-    with pytest.raises(RuntimeError, match=r"could not be fitted.*no survivors"):
+    with pytest.raises(RuntimeError, match=r"could not be estimated.*no survivors"):
         bootstrap(
             ps.PrincipalScoreWeighting(),
             X,

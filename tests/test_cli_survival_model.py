@@ -61,7 +61,7 @@ def test_strata_option_reaches_every_estimator(strata_run, prepared):
     status, stdout, out, results = strata_run
     assert status == 0
     jsonschema.validate(results, report.schema(), cls=jsonschema.Draft202012Validator)
-    assert results["schema_version"] == report.SCHEMA_VERSION == "1.3.0"
+    assert results["schema_version"] == report.SCHEMA_VERSION == "1.4.0"
     assert results["settings"]["survival_model"] == "strata"
     chosen = results["survival_model"]
     assert (chosen["model"], chosen["chosen_by"], chosen["comparison"]) == ("strata", "option",

@@ -43,7 +43,7 @@ def test_continuous_record_matches_the_public_functions(continuous):
     frame, analysis, out = continuous
     results = json.loads((out / "results.json").read_text())
     validate(results)
-    assert results["schema_version"] == report.SCHEMA_VERSION == "1.3.0"
+    assert results["schema_version"] == report.SCHEMA_VERSION == "1.4.0"
     record = results["distributions"]
     assert record["kind"] == "continuous"
     est = ps.PrincipalScoreWeighting().fit(frame[["x1", "x2", "x3"]], frame["score"],

@@ -193,8 +193,10 @@ def _robust(o, st, parametric, cache=None):
         + st.e_always * o.observed_pure * pieces["gap_pure"] / pieces["denominator_pure"]
     )  # fmt: skip
     share = o.weighted_mean(phi_e)
-    mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
-    return mu_m, mu_p, (phi_mixed - mu_m * phi_e) / share, (phi_pure - mu_p * phi_e) / share
+    # A harmed ratio that empties the always-survivor stratum (share 0) has no effect: NaN.
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
+        return mu_m, mu_p, (phi_mixed - mu_m * phi_e) / share, (phi_pure - mu_p * phi_e) / share
 
 
 _FORMULAS = {

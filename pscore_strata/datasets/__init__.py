@@ -8,6 +8,7 @@ registry whose true effect is ``DEMO_TRUE_EFFECT``.
 from ._demo import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
 from ._scenarios import SCENARIOS, list_scenarios, make_scenario
 from ._simulate import make_truncation
+from ._visits import make_visits
 
 __all__ = [
     "DEMO_ROLES",
@@ -17,4 +18,5 @@ __all__ = [
     "load_demo",
     "make_scenario",
     "make_truncation",
+    "make_visits",
 ]

@@ -97,6 +97,16 @@ def survival_parameter_count(estimator):
     return None if None in counts else int(sum(counts))
 
 
+# A fitted probability this close to 0 or 1 is a perfect prediction (separation).
+CERTAIN = 1e-6
+
+
+def _arm_parameters(estimator):
+    """Coefficients of one arm's survival model with the default logistic model (intercept
+    included): at most this many distinct fitted values are reproduced exactly."""
+    return int(estimator.n_features_in_) + 1
+
+
 def _reference_df(n_groups, quantile_groups):
     """Degrees of freedom of the chi-square reference (see survival_fit_check)."""
     return n_groups - 2 if quantile_groups else n_groups - 1
@@ -138,10 +148,13 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         ``observed`` (weighted survival share, ``O / sum w``), ``std_error`` (binomial standard
         error of the observed share under the fitted model, ``sqrt(V) / sum w``) and ``z``
         (``(O - E) / sqrt(V)``). ``table.attrs["tests"]`` holds, for ``"treated"``,
-        ``"control"`` and ``"both arms"`` (the sum of the two), the ``statistic``, its ``df``
-        and ``p_value``; ``attrs`` also gives ``survival_model`` (``"arm-wise"`` or
-        ``"strata"``: a stratum model), ``grouping``, ``reference``, ``log_likelihood`` (see
-        :func:`survival_log_likelihood`), ``n_parameters``, ``aic`` and ``notes``.
+        ``"control"`` and ``"both arms"`` (the sum of the assessable arms), the
+        ``statistic``, its ``df``, ``p_value``, ``assessable`` and ``reason`` (why not: rows
+        predicted within ``1e-6`` of 0 or 1, as under separation, or no more distinct fitted
+        values than coefficients; the ``p_value`` is then NaN); ``attrs`` also gives
+        ``survival_model`` (``"arm-wise"`` or ``"strata"``: a stratum model), ``grouping``,
+        ``reference``, ``log_likelihood`` (see :func:`survival_log_likelihood`),
+        ``n_parameters``, ``aic`` and ``notes``.
 
     Notes
     -----
@@ -219,10 +232,15 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         expected = np.bincount(ids, weights=w * predicted, minlength=size)
         variance = np.bincount(ids, weights=w**2 * predicted * (1 - predicted), minlength=size)
         statistic, used = 0.0, 0
+        # Rows predicted (almost) perfectly, as a separated covariate level makes them, have
+        # (almost) no binomial variance: their groups cannot show a misfit.
+        certain = (predicted < CERTAIN) | (predicted > 1 - CERTAIN)
+        n_certain = int(certain.sum())
         for g in np.flatnonzero(count > 0):
             with np.errstate(divide="ignore", invalid="ignore"):
                 z = (observed[g] - expected[g]) / np.sqrt(variance[g])
-            if variance[g] > 0:
+            in_group = ids == g
+            if variance[g] > 0 and not certain[in_group].all():
                 statistic += z**2
                 used += 1
             records.append({
@@ -232,13 +250,26 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
                 "z": z if variance[g] > 0 else np.nan,
             })  # fmt: skip
         df = max(0, _reference_df(used, masks is None))
+        reason = None
+        distinct = np.unique(np.round(predicted, 10)).size
+        if n_certain:
+            reason = (f"{n_certain} of {rows.sum()} rows have a fitted survival probability "
+                      f"within {CERTAIN:g} of 0 or 1 (a covariate level predicts survival "
+                      "perfectly: separation)")  # fmt: skip
+        elif masks is None and distinct <= _arm_parameters(estimator):
+            reason = (f"the fitted survival probabilities take only {distinct} values, no more "
+                      "than the model has coefficients, so every group reproduces its observed "
+                      "share by construction")  # fmt: skip
+        assessable = reason is None and df > 0
         tests[arm_name] = {
             "statistic": float(statistic),
             "df": int(df),
-            "p_value": float(stats.chi2.sf(statistic, df)) if df > 0 else np.nan,
+            "p_value": float(stats.chi2.sf(statistic, df)) if assessable else np.nan,
             "n_groups": int(used),
+            "assessable": bool(assessable),
+            "reason": reason,
         }
-    testable = [tests[name] for _, name in ARMS if tests[name]["df"] > 0]
+    testable = [tests[name] for _, name in ARMS if tests[name]["assessable"]]
     both = sum(test["statistic"] for test in testable)
     both_df = sum(test["df"] for test in testable)
     tests["both arms"] = {
@@ -246,6 +277,8 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         "df": int(both_df),
         "p_value": float(stats.chi2.sf(both, both_df)) if both_df > 0 else np.nan,
         "n_groups": int(sum(test["n_groups"] for test in testable)),
+        "assessable": bool(both_df > 0),
+        "reason": None if both_df > 0 else "no arm's fit can be assessed",
     }
     table = pd.DataFrame.from_records(records).set_index(["arm", "group"])
     log_likelihood = survival_log_likelihood(estimator)
@@ -259,6 +292,12 @@ def survival_fit_check(estimator, X=None, strata=None, *, n_groups=10):
         notes.append("Too few groups with distinct fitted probabilities for a test in some arm "
                      "(as without covariates): that arm has no p-value and is left out of the "
                      "test of both arms.")  # fmt: skip
+    for _, name in ARMS:
+        if tests[name]["reason"]:
+            notes.append(f"The test cannot assess the fit in the {name} arm: "
+                         f"{tests[name]['reason']}. No p-value is given there (a p-value near "
+                         "1 would look like a perfect fit), and that arm is left out of the "
+                         "test of both arms.")  # fmt: skip
     if data.groups is not None:
         notes.append("Rows are treated as independent; the clusters are ignored, so the test "
                      "is liberal if survival is correlated within clusters.")  # fmt: skip

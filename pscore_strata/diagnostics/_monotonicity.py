@@ -8,6 +8,7 @@ from scipy import stats
 
 from .._validation import check_level
 from ._arrays import (
+    VIOLATION_TOLERANCE,
     effective_sample_size,
     fitted_scores,
     oriented_predictions,
@@ -32,11 +33,11 @@ def _score_bin_labels(bins):
 def _strata_labels(o, X, strata):
     """Row masks per stratum label, the labels in display order, and a description."""
     n = o.weight.shape[0]
-    if strata is None and np.unique(np.minimum(o.p_pure, o.p_mixed)).size < 2:
-        # No covariates: one score for every row, so one stratum (quantiles would be empty).
-        strata = np.full(n, "all rows", dtype=object)
-        description = "all rows (the fitted always-survivor score is the same for every row)"
-    elif strata is None:
+    if strata is None and np.ptp(np.minimum(o.p_pure, o.p_mixed)) <= VIOLATION_TOLERANCE:
+        # No covariates (or none that moves the score): every row shares one score, so the
+        # overall comparison is the only one there is.
+        return {}, [], "none (the always-survivor score is the same for every row)"
+    if strata is None:
         # Quintiles of the fitted always-survivor score: rows alike in the latent stratum share.
         strata = pd.qcut(np.minimum(o.p_pure, o.p_mixed), 5, duplicates="drop")
         strata = strata.rename_categories(_score_bin_labels(strata.categories))
@@ -140,7 +141,8 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
     table : DataFrame indexed by stratum (first row ``"overall"``)
         Arm sizes and survival shares, ``difference`` (treated - control) with a Wald interval,
         the pooled two-proportion ``z`` and two-sided ``p_value``, ``n_fitted_violations``
-        (rows whose fitted survival models contradict monotonicity) and
+        (rows whose fitted survival models contradict monotonicity by more than
+        ``VIOLATION_TOLERANCE``, 1e-8: rounding noise is no contradiction) and
         ``contradicts_monotonicity``: the Bonferroni-adjusted interval (level in
         ``attrs["flag_level"]``) lies entirely on the wrong side of zero. The table makes one
         comparison per row, so unadjusted flags would fire by chance in up to one table in seven
@@ -160,7 +162,7 @@ def monotonicity_check(estimator, X=None, strata=None, *, adjust=True, level=0.9
     if o.coarsening is not None:
         # Unknown survival status (missing at random): known rows carry 1 / c of their arm.
         w = w * (o.coarsening.known_mixed + o.coarsening.known_pure)
-    violations = o.p_mixed < o.p_pure
+    violations = o.p_pure - o.p_mixed > VIOLATION_TOLERANCE
     rows = {"overall": (np.ones(o.weight.shape[0], bool))}
     rows.update(masks)
     table = pd.DataFrame.from_dict(

@@ -21,6 +21,7 @@ from ._arrays import (
     ROW_SHARE_TOLERANCE,
     SCORE_FLOOR,
     SMD_THRESHOLD,
+    VIOLATION_TOLERANCE,
     balancing_weights,
     effective_sample_size,
     fitted_scores,
@@ -128,6 +129,12 @@ def _moments(Z, observed, weights):
     return mean, np.maximum(variance, 0.0)
 
 
+NO_COVARIATES_NOTE = (
+    "The analysis has no covariates, so there is no covariate balance to check (pass `X` to "
+    "check covariates the models did not use)."
+)
+
+
 @cached_diagnostic(always)
 def balance_table(estimator, X):
     """Covariate balance of the always-survivor reconstructions (the balancing property).
@@ -152,7 +159,8 @@ def balance_table(estimator, X):
         ``raw_variance_ratio_treated_vs_control``: the survivor-only comparison without
         balancing weights (what a naive survivor analysis compares); ``pooled_sd``.
         ``attrs["effective_sample_size"]`` holds the Kish effective sample size of each weight
-        set.
+        set. For an estimator fitted without covariates and ``X=None`` the table has no rows
+        and ``attrs["notes"]`` says so.
 
     Notes
     -----
@@ -163,7 +171,12 @@ def balance_table(estimator, X):
     0.1 is the common-practice signal of imbalance.
     """
     o = oriented_predictions(estimator)
-    names, Z = _covariate_matrix(X, o.weight.shape[0])
+    unadjusted = X is None and getattr(estimator, "n_features_in_", None) == 0
+    if unadjusted:
+        # No covariates: no row to balance; an empty table says so instead of failing.
+        names, Z = [], np.zeros((0, o.weight.shape[0]))
+    else:
+        names, Z = _covariate_matrix(X, o.weight.shape[0])
     missing = np.isnan(Z)
     observed = (~missing).astype(float)
     Z[missing] = 0.0  # Z is a fresh matrix built from X, never the caller's array
@@ -204,6 +217,7 @@ def balance_table(estimator, X):
         **{f"raw_{group}": effective_sample_size(w) for group, w in raw.items()},
     }
     table.attrs["smd_threshold"] = SMD_THRESHOLD
+    table.attrs["notes"] = [NO_COVARIATES_NOTE] if unadjusted else []
     return table
 
 
@@ -280,6 +294,11 @@ def overlap_summary(estimator):
     return table
 
 
+#: Below this many rows a more flexible learner is not the advice (common practice: flexible
+#: learners with cross-fitting need thousands of rows).
+FLEXIBLE_ROWS = 2000
+
+
 @cached_diagnostic(always)
 def diagnostic_warnings(estimator, X=None):
     """Plain-language warnings about balance, overlap and monotonicity (empty when none apply).
@@ -293,6 +312,7 @@ def diagnostic_warnings(estimator, X=None):
     """
     o = oriented_predictions(estimator)
     messages = []
+    n_rows = len(o.p_pure)
     if X is not None:
         smd = balance_table(estimator, X).filter(regex="^smd_").abs().max(axis=1)
         flagged = smd[smd > SMD_THRESHOLD].sort_values(ascending=False)
@@ -302,7 +322,12 @@ def diagnostic_warnings(estimator, X=None):
                 f"Covariate balance: {len(flagged)} covariate(s) have a weighted |SMD| above "
                 f"{SMD_THRESHOLD} (common rule of thumb): {listed}. The reconstructions of the "
                 "always-survivors disagree, so the treatment or survival model is probably "
-                "misspecified; try interactions, transformations or a more flexible learner."
+                "misspecified; "
+                + ("try interactions, transformations or a more flexible learner."
+                   if n_rows >= FLEXIBLE_ROWS else
+                   f"with {n_rows} rows, prefer fewer covariates or merged levels to a more "
+                   "flexible model, and read the bounds, which do not need the outcome "
+                   "model.")  # fmt: skip
             )
     low, high = PROBABILITY_BOUNDS
     scores = fitted_scores(o)
@@ -327,7 +352,6 @@ def diagnostic_warnings(estimator, X=None):
     # Small fitted reversals arise from estimation noise where the arms' survival is close, so
     # only reversals larger than the probability floor count.
     marked = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))
-    n_rows = len(o.p_pure)
     check = monotonicity_check(estimator)
     if marked > ROW_SHARE_TOLERANCE * n_rows:
         helped, other = ("treatment", "control") if o.increasing else ("control", "treatment")
@@ -335,7 +359,8 @@ def diagnostic_warnings(estimator, X=None):
         messages.append(
             f"Monotonicity: for {marked} of {n_rows} rows ({marked / n_rows:.1%}) the fitted "
             f"survival probability under {helped} is more than {SCORE_FLOOR} below that under "
-            f"{other} ({int(np.sum(o.p_mixed < o.p_pure))} rows are reversed at all), "
+            f"{other} ({int(np.sum(o.p_pure - o.p_mixed > VIOLATION_TOLERANCE))} rows are "
+            "reversed by any amount), "
             f"contradicting monotonicity ('{check.attrs['monotonicity']}'). Check the survival "
             "model and run the sensitivity analysis for monotonicity."
         )

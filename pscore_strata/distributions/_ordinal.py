@@ -22,7 +22,7 @@ import pandas as pd
 
 from .._validation import check_choice, check_level
 from ..inference._influence import estimator_dof, influence_std_error, reference_quantile
-from ._cdf import CAUTION, observed_survivors
+from ._cdf import CAUTION, _method_note, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
 
@@ -47,8 +47,9 @@ class OrdinalComparison:
     Attributes
     ----------
     levels : DataFrame
-        Per level: ``treated``, ``control`` (probabilities), their standard errors and the
-        difference.
+        Per level: ``treated``, ``control`` (probabilities), their standard errors, the
+        ``difference`` (treated - control) with ``std_error_difference`` and a normal interval
+        (``ci_low_difference``, ``ci_high_difference``).
     probability, std_error, ci_low, ci_high : float
         ``P(Y1 better than Y0) + P(tie)/2`` for independent draws from the two always-survivor
         distributions, with its standard error and normal interval (clipped to [0, 1]).
@@ -138,11 +139,14 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
         "std_error_difference": influence_std_error(
             influences["treated"] - influences["control"], w, groups),
     })  # fmt: skip
+    table["ci_low_difference"] = table["difference"] - z * table["std_error_difference"]
+    table["ci_high_difference"] = table["difference"] + z * table["std_error_difference"]
     notes = [
         f"probability: chance that a treated always-survivor drawn at random has a {better} "
         "level than an independently drawn control always-survivor, ties counted half. It "
         "compares the two marginal distributions; it is not the share of always-survivors "
         "whose own level improves (not identified). 0.5 means no difference in this sense.",
+        _method_note(prepared, estimator).replace("CDFs: ", "Level shares: from the CDFs of ", 1),
         CAUTION,
     ]
     return OrdinalComparison(

@@ -26,6 +26,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from sklearn.utils.validation import check_is_fitted
 
+from .._features import feature_fingerprint
 from .._validation import check_features
 from ..estimators import _formulas
 from ._conditional import fit_conditional_cdf
@@ -102,6 +103,22 @@ def _conditional_cdf(estimator, data, X, cdf_model, seed):
     return conditional
 
 
+def check_training_rows(estimator, X):
+    """Refuse ``X`` that is not the table the estimator was fitted on (same rows, same order).
+
+    The conditional CDF models are fitted on ``X`` next to the stored per-row predictions, so
+    shuffled or other rows would pair each row with another row's predictions.
+    """
+    expected = getattr(estimator, "feature_fingerprint_", None)
+    if expected is None or feature_fingerprint(X) == expected:
+        return
+    raise ValueError(
+        "`X` is not the covariate table the estimator was fitted on (its values or row order "
+        "differ): the distribution models pair each row of `X` with that row's stored "
+        "predictions. Pass exactly the `X` given to fit, rows in the same order."
+    )
+
+
 def prepare(estimator, X=None, cdf_model=None):
     """The oriented nuisance view and, for outcome-model estimators, the conditional CDF model.
 
@@ -121,6 +138,7 @@ def prepare(estimator, X=None, cdf_model=None):
                 "estimator was fitted with (the fitted estimator does not keep them)."
             )
         if X is not None:
+            check_training_rows(estimator, X)
             X, n_features, _ = check_features(X, (cdf_model,), n_rows=data.n_samples)
             if n_features != estimator.n_features_in_:
                 raise ValueError(

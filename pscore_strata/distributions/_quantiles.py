@@ -192,15 +192,22 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     sizes = effective_sizes(prepared.oriented)
     w, groups = data.sample_weight, data.groups
     z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
-    influence, density, bandwidth = {}, {}, {}
+    influence, density, bandwidth, single = {}, {}, {}, {}
     # One pass gives both arms' influence values at every quantile of either arm.
     at_quantiles = cdf_path(prepared, np.unique(np.concatenate([point["treated"],
                                                                 point["control"]])))
     for arm in ("treated", "control"):
         mass = masses(getattr(path, arm))
         bandwidth[arm] = silverman_bandwidth(path.values, mass, sizes[arm])
-        density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
         columns = np.searchsorted(at_quantiles.values, point[arm])
+        if not bandwidth[arm] > 0:
+            # One outcome value carries the arm: every quantile is that value, a point mass
+            # with no density, so no density-based standard error exists.
+            single[arm] = float(path.values[np.argmax(mass)])
+            density[arm] = np.full(len(quantiles), np.nan)
+            influence[arm] = np.full((data.n_samples, len(quantiles)), np.nan)
+            continue
+        density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
         influence[arm] = -getattr(at_quantiles, f"influence_{arm}")[:, columns] / density[arm]
     effect_influence = influence["treated"] - influence["control"]
     se = influence_std_error(effect_influence, w, groups)
@@ -227,6 +234,15 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         "contrast), not the quantile of individual effects, which the data cannot identify.",
         CAUTION,
     ]
+    for arm, value in single.items():
+        message = (
+            f"The {arm} always-survivor distribution is a single value ({value:g}: the "
+            f"{arm} survivors' outcome does not vary), so its quantiles are that value and have "
+            "no density-based standard error; the quantile effects get no interval. Compare the "
+            "means, or use ps.ordinal_comparison for an outcome with few levels."
+        )
+        notes.insert(1, message)
+        warnings.warn(message, UserWarning, stacklevel=2)
     if n_bootstrap:
         replicates = _bootstrap(estimator, X, cdf_model, quantiles, n_bootstrap, random_state)
         low, high = np.quantile(replicates, [(1 - level) / 2, (1 + level) / 2], axis=0)

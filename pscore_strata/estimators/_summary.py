@@ -6,11 +6,16 @@ import numpy as np
 import pandas as pd
 
 from ..diagnostics._tables import diagnostic_warnings
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
+from ..inference._influence import (
+    estimator_dof,
+    influence_std_error,
+    normal_interval,
+    reference_quantile,
+)
 from ..tables import SummaryTable
 from ._repeats import median_aggregate
 
-__all__ = ["summary_table", "SCALE_LABELS", "CAUTIONS"]
+__all__ = ["summary_table", "share_interval", "SCALE_LABELS", "CAUTIONS", "SHARE_INTERVAL_NOTE"]
 
 SCALE_LABELS = {"difference": "difference", "ratio": "ratio", "odds_ratio": "odds ratio"}
 
@@ -21,6 +26,29 @@ CAUTIONS = (
     "decisions about individual patients. Interpret them under the study's protocol and local "
     "regulation, with a qualified statistician."
 )
+
+SHARE_INTERVAL_NOTE = (
+    "Intervals of the stratum shares are computed on the logit scale (delta method) and "
+    "transformed back, so they stay inside [0, 1]."
+)
+
+
+def share_interval(share, std_error, level=0.95, dof=None):
+    """Interval for a share in [0, 1]: Wald on the logit scale, transformed back.
+
+    ``logit(share) +- z se / (share (1 - share))`` (delta method), so both ends stay inside
+    (0, 1). A share estimated at 0 or 1 (or beyond, when the fitted arms cross) has no logit; its
+    Wald interval is then clipped to [0, 1].
+    """
+    z = reference_quantile(level, dof)
+    if not (np.isfinite(share) and np.isfinite(std_error)):
+        return (float("nan"), float("nan"))
+    if 0 < share < 1:
+        logit = np.log(share / (1 - share))
+        half = z * std_error / (share * (1 - share))
+        return (float(1 / (1 + np.exp(-(logit - half)))), float(1 / (1 + np.exp(-(logit + half)))))
+    low, high = share - z * std_error, share + z * std_error
+    return (float(np.clip(low, 0, 1)), float(np.clip(high, 0, 1)))
 
 
 def summary_table(estimator, level):
@@ -62,8 +90,12 @@ def summary_table(estimator, level):
     log_first = estimator.scale != "difference"
     dof = estimator_dof(estimator)
     intervals = [
-        normal_interval(est, se, level, i == 0 and log_first, dof=dof)
-        for i, (est, se) in enumerate(zip(table["estimate"], table["std_error"], strict=True))
+        share_interval(est, se, level, dof=dof)
+        if name.startswith("share ")
+        else normal_interval(est, se, level, i == 0 and log_first, dof=dof)
+        for i, (name, est, se) in enumerate(
+            zip(table["quantity"], table["estimate"], table["std_error"], strict=True)
+        )
     ]
     table.insert(3, "ci_low", [low for low, _ in intervals])
     table.insert(4, "ci_high", [high for _, high in intervals])
@@ -160,6 +192,7 @@ def _notes(estimator):
         from ._coarsening import missing_data_note
 
         notes.append(missing_data_note(estimator))
+    notes.append(SHARE_INTERVAL_NOTE)
     if estimator.n_monotonicity_violations_:
         notes.append(
             f"{estimator.n_monotonicity_violations_} rows contradict monotonicity in the fitted "

@@ -8,9 +8,10 @@ __all__ = ["fit_estimators"]
 
 
 def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None,
-                   covariates=None, treatment_model=None, survival_model=None, outcome_model=None,
-                   monotonicity="increasing", scale="difference", n_folds=None,
-                   n_bootstrap=200, random_state=None):  # fmt: skip
+                   covariates=None, treatment_model=None, survival_model=None,
+                   outcome_model=None, monotonicity="increasing", scale="difference", n_folds=None,
+                   n_bootstrap=200, random_state=None, missing="error",
+                   response_model=None):  # fmt: skip
     """Fit the weighting, outcome regression and multiply robust estimators on one model fit.
 
     The five nuisance models (treatment, survival per arm, outcome per arm) are fitted once,
@@ -29,6 +30,9 @@ def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None
     n_bootstrap : int, default=200
         Refitting bootstrap of the weighting and regression estimators when their models do
         not admit the sandwich standard error (it refits the models in each resample).
+    missing, response_model
+        As in :class:`MultiplyRobust`: ``missing="at_random"`` fits the follow-up and response
+        models once, shared by all three estimators.
 
     Returns
     -------
@@ -49,8 +53,8 @@ def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None
     """
     common = dict(covariates=covariates, treatment_model=treatment_model,
                   survival_model=survival_model, monotonicity=monotonicity, scale=scale,
-                  n_folds=n_folds,
-                  random_state=random_state)  # fmt: skip
+                  n_folds=n_folds, random_state=random_state, missing=missing,
+                  response_model=response_model)  # fmt: skip
     arguments = dict(treatment=treatment, survival=survival, sample_weight=sample_weight,
                      groups=groups)  # fmt: skip
     robust = MultiplyRobust(outcome_model=outcome_model, **common).fit(X, y, **arguments)

@@ -19,6 +19,7 @@ from sklearn.base import clone
 from .._validation import check_choice, check_level
 from ..tables import SummaryTable
 from ._display import BootstrapDisplay
+from ._failures import _check_failures, failure_reasons
 from ._influence import (
     bca_interval,
     influence_acceleration,
@@ -34,9 +35,6 @@ from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acce
 
 __all__ = ["bootstrap", "BootstrapResult"]
 
-# A resample without survivors (or deaths) in an arm cannot be fitted; beyond this share the
-# bootstrap distribution would describe a different sampling scheme (common practice: 1%).
-MAX_FAILURE_SHARE = 0.01
 _RESAMPLE_TASKS = 100  # tasks per run: enough to balance workers and move a progress bar
 _MULTIPLIER_BLOCK = 250  # replicates per multiplier task
 
@@ -329,24 +327,6 @@ class BootstrapResult(BootstrapDisplay):
         )
 
 
-def _check_failures(failures, n_resamples):
-    if not failures:
-        return
-    share = len(failures) / n_resamples
-    message = (
-        f"{len(failures)} of {n_resamples} bootstrap resamples ({share:.1%}) could not be "
-        f"fitted; the first failed with: {failures[0]}"
-    )
-    if share > MAX_FAILURE_SHARE:
-        raise RuntimeError(
-            f"{message}. More than {MAX_FAILURE_SHARE:.0%} failing means resamples often lose "
-            "the survivors (or deaths) of an arm, and the replicates would describe a selected "
-            "subset of resamples. Use method='multiplier', merge sparse clusters, or collect "
-            "more data."
-        )
-    warnings.warn(f"{message}. They are left out of the replicates.", RuntimeWarning, stacklevel=3)
-
-
 def _describe(method, stratify, clustered, failures, extra):
     if method == "multiplier":
         text = (
@@ -364,7 +344,11 @@ def _describe(method, stratify, clustered, failures, extra):
         )
     notes = [text, *extra]
     if failures:
-        notes.append(f"{len(failures)} resamples could not be fitted and are left out.")
+        reasons = "; ".join(f"{count}: {reason}" for reason, count in
+                            list(failure_reasons(failures).items())[:3])  # fmt: skip
+        notes.append(
+            f"{len(failures)} resamples could not be estimated and are left out ({reasons})."
+        )
     return notes
 
 

@@ -151,3 +151,33 @@ def missingness_counts(data):
             ),
         })  # fmt: skip
     return records
+
+
+#: Fewer observed survivor outcomes than this in an arm and a few rows carry its mean.
+FEW_OUTCOMES = 5
+
+
+def few_outcomes_message(data):
+    """The warning text when an arm has fewer than ``FEW_OUTCOMES`` observed survivor outcomes.
+
+    With one such row, that row alone is the arm's always-survivor mean: the trimming bounds
+    coincide and the standard error describes the models, not the one row's chance.
+    """
+    observed = (
+        data.survival == 1 if data.outcome_observed is None else data.outcome_observed == 1
+    )
+    parts = []
+    for arm, label in ((1, "treated"), (0, "control")):
+        count = int(np.sum(observed & (data.treatment == arm) & (data.sample_weight > 0)))
+        if 0 < count < FEW_OUTCOMES:
+            carried = ("one row carries the arm's always-survivor mean (the bounds then "
+                       "coincide)") if count == 1 else f"{count} rows carry its mean"  # fmt: skip
+            parts.append(f"the {label} arm has {count} survivor(s) with an observed outcome: "
+                         f"{carried}")  # fmt: skip
+    if not parts:
+        return None
+    return (
+        "; ".join(parts).capitalize()
+        + ". Standard errors and intervals this small are not reliable (large-sample "
+        "approximations). Report the counts, and treat the estimate as descriptive."
+    )

@@ -6,7 +6,7 @@ import numpy as np
 
 from ._sensitivity import _CAUTION, _pyplot
 
-__all__ = ["plot_survivor_distribution", "plot_quantile_effects"]
+__all__ = ["plot_survivor_distribution", "plot_quantile_effects", "plot_level_shares"]
 
 _ARMS = (("treated", "#1f5f8b"), ("control", "#b5651d"))
 
@@ -90,4 +90,75 @@ def plot_quantile_effects(table, *, ax=None, outcome="outcome", bounds=None):
     ax.set_title("Quantile effects among always-survivors", fontsize=10)
     ax.grid(color="0.92")
     ax.legend(fontsize=8)
+    return ax
+
+
+def plot_level_shares(comparison, *, ax=None, labels=None, arm_names=("treated", "control"),
+                      outcome="outcome"):  # fmt: skip
+    """Stacked bars of the always-survivors' level shares under each arm.
+
+    Parameters
+    ----------
+    comparison : OrdinalComparison or DataFrame
+        From :func:`pscore_strata.ordinal_comparison` (or its ``levels`` table: columns
+        ``level``, ``treated``, ``control``).
+    ax : matplotlib Axes, optional
+    labels : mapping or sequence of str, optional
+        Text for each level (``{level: label}``, or one label per level in order); default:
+        the levels as integers.
+    arm_names : (str, str), default=("treated", "control")
+        Names of the two arms, treated first.
+    outcome : str, default="outcome"
+
+    Returns
+    -------
+    matplotlib Axes
+
+    Examples
+    --------
+    >>> import numpy as np, pscore_strata as ps
+    >>> data = ps.datasets.make_truncation(500, random_state=0)
+    >>> y = np.clip(np.round(data.y), 0, 3)
+    >>> est = ps.PrincipalScoreWeighting().fit(
+    ...     data.X, y, treatment=data.treatment, survival=data.survival)
+    >>> ax = ps.plotting.plot_level_shares(ps.ordinal_comparison(est))
+    >>> len(ax.patches)
+    8
+    """
+    plt = _pyplot()
+    table = getattr(comparison, "levels", comparison)
+    levels = np.asarray(table["level"], dtype=float)
+    if labels is None:
+        names = [f"{v:g}" for v in levels]
+    elif isinstance(labels, dict):
+        names = [str(labels.get(v, labels.get(int(v), f"{v:g}"))) for v in levels]
+    else:
+        names = [str(text) for text in labels]
+        if len(names) != levels.size:
+            raise ValueError(
+                f"`labels` must give one label per level ({levels.size}); got {len(names)}."
+            )
+    if ax is None:
+        _, ax = plt.subplots(figsize=(7, 2.2 + 0.1 * levels.size), layout="constrained")
+    colors = plt.get_cmap("RdYlBu")(np.linspace(0.1, 0.9, levels.size))
+    left = np.zeros(2)
+    for k, name in enumerate(names):
+        shares = np.array([table["treated"].iloc[k], table["control"].iloc[k]], dtype=float)
+        ax.barh([0, 1], shares, left=left, color=colors[k], edgecolor="white", label=name)
+        for row, (start, width) in enumerate(zip(left, shares, strict=True)):
+            if width >= 0.06:
+                ax.text(start + width / 2, row, f"{width:.0%}", ha="center", va="center",
+                        fontsize=8)  # fmt: skip
+        left = left + shares
+    ax.set_yticks([0, 1], list(arm_names))
+    ax.invert_yaxis()
+    ax.set_xlim(0, 1)
+    from matplotlib.ticker import PercentFormatter
+
+    ax.xaxis.set_major_formatter(PercentFormatter(1.0))
+    ax.set_xlabel(f"share of always-survivors at each level of {outcome}")
+    ax.set_title("Level shares among always-survivors (estimated; the stratum is latent)",
+                 fontsize=10)  # fmt: skip
+    ax.legend(fontsize=8, ncol=min(levels.size, 4), loc="upper center",
+              bbox_to_anchor=(0.5, -0.35 - 0.02 * levels.size), frameon=False)  # fmt: skip
     return ax

@@ -29,11 +29,12 @@ from ._options import (
 )
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
 from ._text import assumptions, cautions, estimand
+from ._visits import visits_section
 from ._wording import study_wording
 
 __all__ = ["AnalysisOptions", "Analysis", "run_analysis", "build_estimator", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = "1.3.0"
+SCHEMA_VERSION = "1.4.0"
 
 
 @dataclass
@@ -45,6 +46,35 @@ class Analysis:
     primary: object = None
     covariates: object = None
     bounds: object = None
+    visits: object = None  # the visit_effects table of repeated visits
+
+
+# numpy's floating-point warnings ("invalid value encountered in scalar divide") say nothing
+# to a reader of the report; the numbers they concern print as n/a.
+_NUMPY_TEXTS = ("encountered in", "Mean of empty slice", "Degrees of freedom <= 0",
+                "divide by zero", "overflow")  # fmt: skip
+
+
+def _plain(warning):
+    text = " ".join(str(warning.message).split())
+    if issubclass(warning.category, RuntimeWarning) and any(p in text for p in _NUMPY_TEXTS):
+        return ("a computation gave an undefined value (a division by zero or an overflow); "
+                "the numbers it concerns are shown as n/a")  # fmt: skip
+    for python, words in _PYTHON_WORDS:
+        text = text.replace(python, words)
+    return text
+
+
+# A reader of the report runs the command line, not Python: the library's argument names in a
+# message become the quantities they stand for.
+_PYTHON_WORDS = (
+    ("; returning NaN.", "; shown as n/a."),
+    ("for harmed_ratio in", "for the harmed / protected stratum-size ratio in"),
+    ("for pi_difference in", "for the principal-ignorability difference in"),
+    ("at harmed_ratio=", "at a harmed / protected stratum-size ratio of "),
+    ("at pi_difference=", "at a principal-ignorability difference of "),
+    ("see sensitivity_grid around that value", "see the sensitivity table around that value"),
+)
 
 
 class _Collector:
@@ -63,7 +93,7 @@ class _Collector:
             warnings.simplefilter("always")
             value = step(*args, **kwargs)
         for warning in caught:
-            steps = self.steps.setdefault(" ".join(str(warning.message).split()), [])
+            steps = self.steps.setdefault(_plain(warning), [])
             if label not in steps:
                 steps.append(label)
         return value
@@ -231,6 +261,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "seed": options.seed,
             "missing": options.missing,
             "survival_model": options.survival_model,
+            "treatment_probability": options.treatment_probability,
         },
         "survival_model": survival_model_record(options, choice),
         "wording": words,
@@ -284,6 +315,9 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["subgroups"] = subgroups_section(
             collector, primary, data, roles, options.level, InputError
         )
+    results["visits"], analysis.visits = visits_section(
+        collector, data, options, options.visit_population
+    )
     results["assumptions"] = assumptions(roles, options.monotonicity, words)
     if results["missing_data"]:
         from ._missing import MISSING_ASSUMPTION_TEXT

@@ -16,7 +16,8 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["MANY_LEVELS", "DataWarning", "indicator", "check_dates", "many_levels_messages",
-           "matches_level", "level_hint"]  # fmt: skip
+           "matches_level", "level_hint", "check_identifiers", "separated_numbers",
+           "labelled_outcome"]  # fmt: skip
 
 #: More levels than this make one-hot coding costly and unstable (common practice).
 MANY_LEVELS = 50
@@ -112,6 +113,38 @@ def check_dates(covariates, input_error):
         )
 
 
+# "11,234.5" / "1,234" (comma thousands) and "11.234,5" / "1 234,5" (dot or space thousands,
+# decimal comma).
+_SEPARATED = re.compile(r"^[-+]?\d{1,3}(?:([,. ])\d{3})+(?:(?!\1)[.,]\d+)?$")
+
+
+def check_identifiers(covariates, categorical, input_error):
+    """Refuse a categorical covariate with a level for (nearly) every row: an identifier."""
+    n_rows = len(covariates)
+    for name in categorical:
+        n_levels = int(covariates[name].nunique(dropna=True))
+        if n_rows >= 4 and n_levels > n_rows / 2:
+            raise input_error(
+                f"--categorical column '{name}' has {n_levels} distinct values in {n_rows} rows: "
+                "it looks like an identifier, not a covariate (one-hot coding would give nearly "
+                "every row its own column, and the models could not be fitted). Leave it out; if "
+                "rows share it as a site or family, pass it as --cluster."
+            )
+
+
+def separated_numbers(covariates, names):
+    """Text columns that are numbers written with thousands separators: name -> example."""
+    found = {}
+    for name in names:
+        values = covariates[name]
+        if pd.api.types.is_numeric_dtype(values):
+            continue
+        sample = values.dropna().astype(str).str.strip().head(200)
+        if len(sample) and sample.map(lambda v: bool(_SEPARATED.match(v))).all():
+            found[name] = sample.iloc[0]
+    return found
+
+
 def many_levels_messages(covariates, categorical):
     """Warn (and return the messages) for categorical covariates with many levels."""
     messages = []
@@ -127,3 +160,22 @@ def many_levels_messages(covariates, categorical):
     for message in messages:
         warnings.warn(message, DataWarning, stacklevel=3)
     return messages
+
+
+def labelled_outcome(frame, column, name, input_error):
+    """A Stata/SPSS outcome read as its value labels: back to its codes, with the labels.
+
+    Returns the column (codes where labels were read) and ``{code: label}`` or ``None``.
+    """
+    labels = (frame.attrs.get("value_labels") or {}).get(name)
+    if not labels or not isinstance(column.dtype, pd.CategoricalDtype):
+        return column, None
+    codes = {label: code for code, label in labels.items()}
+    unknown = [v for v in column.dropna().unique() if str(v) not in codes]
+    if unknown:
+        raise input_error(
+            f"--outcome column '{name}' holds labels without a code in the file's value labels "
+            f"({unknown[0]!r}); recode it as numbers."
+        )
+    values = column.astype(object).map(lambda v: codes[str(v)] if pd.notna(v) else np.nan)
+    return values.astype(float), {float(code): str(label) for code, label in labels.items()}

@@ -12,8 +12,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .._formula import FormulaDesign, check_formula, variables_in
+from .._formula import variables_in
 from . import _coding, _readers
+from ._formula_data import check_formula_option, formula_design
+from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
 
 __all__ = [
     "InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data", "check_folds",
@@ -37,6 +39,9 @@ class ColumnRoles:
     weights: str | None = None
     by: str | None = None  # subgroup column (--by): effects within each of its values
     formula: str | None = None  # --formula: covariates as a formula (formulaic's grammar)
+    # Repeated visits: (outcome, survival) column pairs in time order; the last pair is the
+    # outcome and survival above, which the main analysis uses (report/_visit_data.py).
+    visits: tuple = ()
 
     def all_covariates(self):
         """Covariates in the order given, categorical columns included (added if unlisted);
@@ -49,6 +54,7 @@ class ColumnRoles:
     def used_columns(self):
         named = [self.outcome, self.treatment, self.survival, *self.all_covariates()]
         named += [c for c in (self.cluster, self.weights, self.by) if c is not None]
+        named += [c for pair in self.visits for c in pair]
         return list(dict.fromkeys(named))
 
     def as_dict(self):
@@ -83,6 +89,7 @@ class PreparedData:
     # Level names as read: {"treatment": (treated, control), "survival": (survived, event)}.
     levels: dict = field(default_factory=dict)
     messages: tuple = ()  # data warnings, also shown in the report
+    visits: tuple = ()  # VisitColumns of repeated visits (report/_visit_data.py)
 
 
 def read_table(path):
@@ -92,33 +99,13 @@ def read_table(path):
     return _readers.read_table(path, InputError)
 
 
-def _check_formula(frame, roles):
-    if roles.formula is None:
-        return
-    if roles.covariates or roles.categorical:
-        raise InputError(
-            "--formula gives the covariates itself: leave out --covariates and --categorical "
-            "(write C(column) in the formula for a categorical column)."
-        )
-    try:
-        check_formula(roles.formula, "--formula")
-    except (TypeError, ValueError) as error:
-        raise InputError(str(error)) from None
-    unknown = [name for name in variables_in(roles.formula) if name not in frame.columns]
-    if unknown:
-        raise InputError(
-            f"--formula {roles.formula!r} names unknown column(s) {', '.join(unknown)}. "
-            f"Available columns: {', '.join(map(str, frame.columns))}."
-        )
-
-
 def _check_columns(frame, roles):
-    _check_formula(frame, roles)
+    check_formula_option(frame, roles, InputError)
     available = [str(c) for c in frame.columns]
     options = {
-        "--outcome": [roles.outcome],
+        "--outcome": [o for o, _ in roles.visits] or [roles.outcome],
         "--treatment": [roles.treatment],
-        "--survival": [roles.survival],
+        "--survival": [s for _, s in roles.visits] or [roles.survival],
         "--covariates": list(roles.covariates),
         "--categorical": list(roles.categorical),
         "--cluster": [roles.cluster] if roles.cluster else [],
@@ -151,6 +138,7 @@ def _check_columns(frame, roles):
             f"Covariate(s) {', '.join(clash)} are also the outcome, treatment or survival column; "
             "covariates must be measured before treatment."
         )
+    check_visit_roles(roles, InputError)
 
 
 def _indicator(frame, column, option, allow_blank=False):
@@ -250,8 +238,9 @@ def _missing_rows(frame, roles, modelled=(), survived_value=None):
     else:
         survived = _coding.matches_level(frame[roles.survival], survived_value).fillna(False)
     counts, incomplete = {}, np.zeros(len(frame), dtype=bool)
+    earlier_visits = {c for pair in roles.visits[:-1] for c in pair}  # _visit_data counts them
     for column in roles.used_columns():
-        if column in modelled:
+        if column in modelled or column in earlier_visits:
             continue
         missing = frame[column].isna().to_numpy()
         if column == roles.outcome:
@@ -261,18 +250,6 @@ def _missing_rows(frame, roles, modelled=(), survived_value=None):
             counts[column] = int(missing.sum())
             incomplete |= missing
     return counts, incomplete
-
-
-def _formula_design(used, roles):
-    """The --formula design of the analysed rows; balance is checked on its columns."""
-    _coding.check_dates(used[list(roles.all_covariates())], InputError)
-    try:
-        design = FormulaDesign(roles.formula, "--formula").fit_transform(used)
-    except (TypeError, ValueError) as error:
-        raise InputError(str(error)) from None
-    text = [c for c in roles.all_covariates() if not pd.api.types.is_numeric_dtype(used[c])]
-    messages = tuple(_coding.many_levels_messages(used, text))
-    return design, design, messages
 
 
 def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treated_value=None,
@@ -305,12 +282,18 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
     n_read = len(frame)
     modelled = (roles.survival, roles.outcome) if missing == "at_random" else ()
     counts, incomplete = _missing_rows(frame, roles, modelled, survived_value)
+    if roles.visits:
+        visit_counts, visit_incomplete = visit_missing_rows(frame, roles, modelled, survived_value)
+        counts.update(visit_counts)
+        incomplete |= visit_incomplete
     if counts and not drop_incomplete:
+        truncated = {roles.outcome, *(o for o, _ in roles.visits)}
         listed = ", ".join(
-            f"'{c}' {n}" + (" (survivors only)" if c == roles.outcome else "")
+            f"'{c}' {n}" + (" (survivors only)" if c in truncated else "")
             for c, n in counts.items()
         )
-        modelable = [c for c in counts if c in (roles.survival, roles.outcome)]
+        outcome_columns = {roles.survival, roles.outcome, *(c for p in roles.visits for c in p)}
+        modelable = [c for c in counts if c in outcome_columns]
         hint = (
             f" Blank {' and '.join(modelable)} values can instead be analysed with --missing "
             "at_random (blank survival = status unknown, blank outcome of a survivor = not "
@@ -332,7 +315,10 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         used, roles.survival, "--survival", survived_value, allow_blank=bool(modelled)
     )
     messages = ()
-    outcome = pd.to_numeric(used[roles.outcome], errors="coerce")
+    outcome_column, outcome_labels = _coding.labelled_outcome(
+        frame, used[roles.outcome], roles.outcome, InputError
+    )
+    outcome = pd.to_numeric(outcome_column, errors="coerce")
     bad = outcome.isna() & used[roles.outcome].notna()
     if bad.any():
         raise InputError(
@@ -342,16 +328,27 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
     covariates = design = None
     names = roles.all_covariates()
     if roles.formula is not None:
-        covariates, design, messages = _formula_design(used, roles)
+        covariates, design, messages = formula_design(used, roles, InputError)
     elif names:
         covariates = used[list(names)]
         _coding.check_dates(covariates, InputError)
+        _coding.check_identifiers(covariates, roles.categorical, InputError)
         messages = tuple(_coding.many_levels_messages(covariates, roles.categorical))
         text = [
             c
             for c in names
             if c not in roles.categorical and not pd.api.types.is_numeric_dtype(covariates[c])
         ]
+        separated = _coding.separated_numbers(covariates, text)
+        if separated:
+            name, example = next(iter(separated.items()))
+            raise InputError(
+                f"Covariate(s) {', '.join(separated)} hold numbers written with thousands "
+                f"separators (e.g. {example!r} in '{name}'), which are read as text. Save the "
+                "file with plain numbers (no thousands separators; a decimal point, or a "
+                "decimal comma in a semicolon-separated file), or in Python read it with "
+                "pandas.read_csv(..., thousands=',') and write it back."
+            )
         if text:
             raise InputError(
                 f"Covariate(s) {', '.join(text)} are not numeric; list them with --categorical "
@@ -370,6 +367,11 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
                 f"--weights column '{roles.weights}' is zero in every analysed row; at least one "
                 "row needs a positive weight."
             )
+    visits = prepare_visits(
+        used, roles, allow_blank=bool(modelled), survived_value=survived_value,
+        coded_indicator=_coded_indicator, input_error=InputError,
+        row_labels=frame.index[~incomplete],
+    )  # fmt: skip
     groups = None if roles.cluster is None else used[roles.cluster].to_numpy()
     if groups is not None:
         _check_clusters(used[roles.cluster], roles.cluster)
@@ -385,6 +387,8 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         n_rows_read=n_read,
         n_rows_dropped=int(incomplete.sum()),
         missing_counts=counts,
-        levels={"treatment": treatment_levels, "survival": survival_levels},
+        levels={"treatment": treatment_levels, "survival": survival_levels,
+                "outcome": outcome_labels},
         messages=messages,
+        visits=visits,
     )

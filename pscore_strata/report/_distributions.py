@@ -11,15 +11,52 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._options import fit_arguments, model_settings, number
+from ._options import METHOD_LABELS, fit_arguments, model_settings, number
+from ._wording import outcome_label
 
-__all__ = ["distributions_section", "distribution_figures", "QUANTILES"]
+__all__ = ["distributions_section", "distribution_figures", "level_labels", "QUANTILES"]
 
 QUANTILES = (0.1, 0.25, 0.5, 0.75, 0.9)
 
 
 def _numbers(values):
     return [number(v) for v in np.asarray(values, dtype=float)]
+
+
+def level_labels(data, options):
+    """``{level: label}`` from ``--levels``, else the data file's value labels, else ``None``."""
+    given = getattr(options, "levels", None)
+    if given:
+        return dict(given)
+    return (getattr(data, "levels", None) or {}).get("outcome")
+
+
+def _level_text(level, labels):
+    whole = f"{level:.0f}" if float(level).is_integer() else f"{level:g}"
+    if labels and float(level) in labels:
+        return f"{whole} = {labels[float(level)]}"
+    return whole
+
+
+def _levels_record(result, labels, options):
+    keys = ("level", "treated", "control", "std_error_treated", "std_error_control",
+            "difference", "std_error_difference", "ci_low_difference", "ci_high_difference")
+    return {
+        "available": True,
+        "kind": "levels",
+        "levels": [{**{key: number(row[key]) for key in keys},
+                    "label": _level_text(row["level"], labels)}
+                   for _, row in result.levels.iterrows()],
+        "better_level_probability": {
+            "estimate": number(result.probability),
+            "std_error": number(result.std_error),
+            "ci_low": number(result.ci_low),
+            "ci_high": number(result.ci_high),
+            "better": "higher",
+        },
+        "estimator": METHOD_LABELS[options.method],
+        "notes": list(result.notes),
+    }  # fmt: skip
 
 
 def distributions_section(collector, primary, data, options):
@@ -42,22 +79,7 @@ def distributions_section(collector, primary, data, options):
                 return {"available": False, "reason": "The outcome has few distinct values that "
                         "are not integer levels; code them as integers for the level analysis."}
             result = collector.run(label, ordinal_comparison, primary, X=X, level=options.level)
-            return {
-                "available": True,
-                "kind": "levels",
-                "levels": [{key: number(row[key]) for key in
-                            ("level", "treated", "control", "std_error_treated",
-                             "std_error_control")}
-                           for _, row in result.levels.iterrows()],
-                "better_level_probability": {
-                    "estimate": number(result.probability),
-                    "std_error": number(result.std_error),
-                    "ci_low": number(result.ci_low),
-                    "ci_high": number(result.ci_high),
-                    "better": "higher",
-                },
-                "notes": list(result.notes),
-            }  # fmt: skip
+            return _levels_record(result, level_labels(data, options), options)
         distribution = collector.run(label, survivor_distribution, primary, X=X,
                                      level=options.level, random_state=options.seed)
         table = collector.run(label, quantile_effects, primary, quantiles, options.level, X=X)
@@ -129,7 +151,7 @@ def _cdf_figure(results):
         influence_treated=None, influence_control=None, level=level,
         dof=reference_dof(results["data_overview"]["n_clusters"]),
     )  # fmt: skip
-    axes = plot_survivor_distribution(distribution, outcome=results["columns"]["outcome"])
+    axes = plot_survivor_distribution(distribution, outcome=outcome_label(results))
     return axes[0].figure
 
 
@@ -142,13 +164,34 @@ def _quantile_figure(results):
     table = pd.DataFrame(record["quantile_effects"]).astype(float)
     bounds = record.get("quantile_bounds")
     bounds = None if not bounds else pd.DataFrame(bounds).astype(float)
-    ax = plot_quantile_effects(table, outcome=results["columns"]["outcome"], bounds=bounds)
+    ax = plot_quantile_effects(table, outcome=outcome_label(results), bounds=bounds)
+    return ax.figure
+
+
+def _level_figure(results):
+    import pandas as pd
+
+    from ..plotting import plot_level_shares
+
+    record = results["distributions"]
+    table = pd.DataFrame(record["levels"])
+    wording = results.get("wording") or {}
+    arms = (wording.get("treated_arm", "treated"), wording.get("control_arm", "control"))
+    outcome = outcome_label(results)
+    ax = plot_level_shares(table, labels=list(table["label"]), arm_names=arms, outcome=outcome)
     return ax.figure
 
 
 def distribution_figures(results):
     """``(name, title, draw, args, caption)`` entries for :func:`._figures.draw_figures`."""
     record = results.get("distributions") or {}
+    if record.get("kind") == "levels":
+        return [
+            ("level_shares.png", "Level shares among always-survivors", _level_figure,
+             (results,), "Estimated share of the always-survivors at each level under each "
+             "arm (the stratum is latent: these are estimates for a group nobody can list). "
+             "The difference between the bars is the per-level difference in the table."),
+        ]  # fmt: skip
     if record.get("kind") != "continuous":
         return []
     return [

@@ -8,6 +8,8 @@ import numpy as np
 
 from ._distributions import distribution_figures
 from ._format import number
+from ._visits import visit_figures
+from ._wording import outcome_label
 
 __all__ = ["draw_figures"]
 
@@ -58,7 +60,7 @@ def _estimates_figure(results):
     ax.axvline(0, color="0.3", linewidth=1, linestyle="--")
     ax.set_yticks(positions, [label for label, *_ in rows])
     level = results["settings"]["level"]
-    ax.set_xlabel(f"effect on '{results['columns']['outcome']}' ({level:.0%} intervals)")
+    ax.set_xlabel(f"effect on {outcome_label(results)} ({level:.0%} intervals)")
     ax.set_title("Survivor average causal effect", fontsize=10)
     ax.grid(axis="x", color="0.92")
     return figure
@@ -73,7 +75,7 @@ def _sensitivity_figure(results):
                     else ("harmed", "protected"))  # fmt: skip
     panels = (
         ("pi_difference", f"{mixed} minus always-survivor mean of "
-         f"'{results['columns']['outcome']}'\n(0 = principal ignorability)"),
+         f"{outcome_label(results)}\n(0 = principal ignorability)"),
         ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
          "informative)"),
     )  # fmt: skip
@@ -166,6 +168,11 @@ def draw_figures(analysis):
                     "reconstructions agree; the largest unweighted imbalance is on top.",
                 )  # fmt: skip
             )
+    # Without covariates every unit shares one treatment probability, one set of principal
+    # scores and one weight per arm: the overlap, weight, score and calibration figures would
+    # show single bars (the tables say it in numbers).
+    unadjusted = analysis.primary is not None and analysis.primary.n_features_in_ == 0
+    if diagnostics.get("available", True) and not unadjusted:
         figures.append(
             ("overlap.png", "Overlap of the treatment probability", plotting.plot_overlap,
              (analysis.primary,),
@@ -180,7 +187,8 @@ def draw_figures(analysis):
 
     # In report order: subgroups follow the estimates, the model checks the diagnostics.
     figures[1:1] = subgroup_figures(results)
-    figures += model_check_figures(analysis)
+    figures += [f for f in model_check_figures(analysis)
+                if not (unadjusted and f[0] in ("principal_scores.png", "calibration.png"))]
     if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
         figures.append(
             ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),
@@ -189,11 +197,12 @@ def draw_figures(analysis):
              "covers zero.")
         )  # fmt: skip
     figures.extend(distribution_figures(results))
+    figures.extend(visit_figures(analysis))
     drawn = []
     words = results.get("wording")
     for name, title, draw, args, caption in figures:
         figure = draw(*args)
-        if name in ("balance.png", "overlap.png", "weights.png"):
+        if name in ("balance.png", "overlap.png", "weights.png", "visits.png"):
             figure = _in_study_words(figure, words)
             caption = _in_study_words_text(caption, words)
         drawn.append({"name": name, "title": title, "caption": caption, "png": _png(figure)})

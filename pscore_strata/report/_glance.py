@@ -24,14 +24,17 @@ def tipping_text(results):
     sens = (results.get("sensitivity") or {}).get("pi_difference")
     if not sens:
         return "not computed", ""
-    tip = sens.get("tipping_point")
+    status, tip = sens.get("tipping_status"), sens.get("tipping_point")
+    if status == "covers_null":
+        return "none", "the interval covers 0 under principal ignorability itself"
+    if status == "not_available":
+        return "not available", "no valid interval to tip"
     if tip is None:
-        if (results.get("sensitivity") or {}).get("interval_note"):
-            return "not available", "no valid interval to tip"
         return "not reached", "within the grid of outcome shifts"
     sd = sens.get("outcome_sd_survivors") or 0
     in_sd = f"{number(tip / sd)} outcome SDs: " if sd else ""
-    return number(tip), f"{in_sd}the outcome shift at which the interval first covers 0"
+    beyond = " (beyond the outcome's observed range)" if status == "beyond_outcome_range" else ""
+    return number(tip), f"{in_sd}the outcome shift at which the interval first covers 0{beyond}"
 
 
 def main_warnings(results):

@@ -63,9 +63,13 @@ def unavailable_reason(std_error_method, learner):
 
 
 def _bootstrap_record(collector, method, options, data):
+    from ..inference._failures import BootstrapFailureError
     from ._sections import run_bootstrap
 
-    result = run_bootstrap(collector, method, options, data)
+    try:
+        result = run_bootstrap(collector, method, options, data)
+    except BootstrapFailureError:
+        return None, None, None  # refused: too many resamples could not be estimated
     low, high = result.conf_int(options.level, kind="percentile")
     return float(result.std_error), float(low), float(high)
 
@@ -91,6 +95,14 @@ def honest_estimates(records, collector, options, data, primary_bootstrap=None):
             else:
                 values = _bootstrap_record(collector, record["method"], options, data)
             record["std_error"], record["ci_low"], record["ci_high"] = map(number, values)
+            if values[0] is None:
+                record["interval_source"] = None
+                record["interval_note"] = (
+                    "interval not available: the estimator's own standard error ignores the "
+                    "fitted models, and its bootstrap was refused because more than 1% of the "
+                    "resamples could not be estimated (e.g. no deaths in an arm)."
+                )
+                continue
             record["interval_source"] = (
                 f"bootstrap ({options.bootstrap} resamples refitting every model, percentile)"
             )
@@ -171,6 +183,7 @@ def honest_sensitivity(record, primary):
         for row in record[key]["grid"]:
             row["std_error"] = row["ci_low"] = row["ci_high"] = None
         record[key]["tipping_point"] = None
+        record[key]["tipping_status"] = "not_available"
     record["interval_note"] = (
         "intervals and tipping points not available: the primary estimator's standard error "
         f"({method}) does not come from influence values that carry the fitted models, so the "

@@ -7,8 +7,11 @@ import json
 from importlib import resources
 from pathlib import Path
 
+import numpy as np
+
 from ._format import count, interval, number, percent
 from ._glance import FOLD_TITLES, FOLDED, headlines, main_warnings, tipping_text
+from ._wording import outcome_label
 
 __all__ = ["write_report", "render_html", "schema"]
 
@@ -21,6 +24,7 @@ SECTIONS = (
     "missing",
     "estimates",
     "subgroups",
+    "visits",
     "diagnostics",
     "model_checks",
     "bounds",
@@ -46,11 +50,48 @@ _DEFAULT_WORDING = {
 
 
 def _every_few(grid, n_shown):
-    """About ``n_shown`` evenly spaced rows of a grid, its last row included."""
-    selected = grid[:: max(1, len(grid) // (n_shown - 1))]
-    if grid[-1] not in selected:
-        selected.append(grid[-1])
-    return selected
+    """About ``n_shown`` evenly spaced rows of a grid: the null setting (value 0), both ends.
+
+    The spacing is counted from the row at 0, so the assumption itself is always shown.
+    """
+    step = max(1, len(grid) // (n_shown - 1))
+    null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
+    chosen = set(range(null % step, len(grid), step)) | {0, len(grid) - 1}
+    return [grid[i] for i in sorted(chosen)]
+
+
+def finite_or_null(value):
+    """A copy of a JSON-ready record with NaN and infinite floats replaced by ``None``."""
+    if isinstance(value, dict):
+        return {key: finite_or_null(item) for key, item in value.items()}
+    if isinstance(value, list | tuple):
+        return [finite_or_null(item) for item in value]
+    if isinstance(value, float | np.floating) and not np.isfinite(value):
+        return None
+    return value
+
+
+def _outside_bounds(results):
+    """Estimates that fall outside the trimming bounds, with how far and in standard errors."""
+    bounds = results.get("bounds") or {}
+    if bounds.get("lower") is None or bounds.get("upper") is None:
+        return []
+    outside = []
+    for estimate in results["estimates"]:
+        effect = estimate["effect"]
+        if effect is None:
+            continue
+        if effect < bounds["lower"]:
+            side, bound, error = "below the lower", bounds["lower"], bounds.get("std_error_lower")
+        elif effect > bounds["upper"]:
+            side, bound, error = "above the upper", bounds["upper"], bounds.get("std_error_upper")
+        else:
+            continue
+        distance = abs(effect - bound)
+        outside.append({"label": estimate["label"], "effect": effect, "side": side,
+                        "bound": bound, "distance": distance,
+                        "in_std_errors": distance / error if error else None})  # fmt: skip
+    return outside
 
 
 def _view(results, figures):
@@ -70,7 +111,8 @@ def _view(results, figures):
     shown, more = main_warnings(results)
     return {
         "r": results,
-        "sections": SECTIONS,
+        # "Over visits" appears only for an analysis of several visits.
+        "sections": tuple(s for s in SECTIONS if s != "visits" or results.get("visits")),
         "folded": FOLDED,
         "fold_titles": FOLD_TITLES,
         "headlines": headlines(results, words),
@@ -82,6 +124,8 @@ def _view(results, figures):
         "balance": balance,
         "selected_grid": selected,
         "selected_harmed": selected_harmed,
+        "outside_bounds": _outside_bounds(results),
+        "outcome_name": outcome_label(results),
         "w": words,
         "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
         "fmt": number,
@@ -97,7 +141,8 @@ def render_html(results, figures):
         import jinja2
     except ImportError as error:
         raise ImportError(
-            "The HTML report needs jinja2 and matplotlib: pip install 'pscore_strata[report]'."
+            "The HTML report needs jinja2 and matplotlib: pip install jinja2 matplotlib (or, "
+            "from a checkout, pip install '.[report]')."
         ) from error
     environment = jinja2.Environment(
         loader=jinja2.PackageLoader("pscore_strata.report", "templates"),
@@ -130,8 +175,9 @@ def write_report(analysis, out_dir):
         path.write_bytes(figure["png"])
         paths["figures"].append(path)
     paths["json"] = out / "results.json"
-    paths["json"].write_text(json.dumps(results, indent=2, allow_nan=False) + "\n",
-                             encoding="utf-8")  # fmt: skip
+    # Every non-finite number becomes null, as the schema says (json refuses NaN otherwise).
+    paths["json"].write_text(json.dumps(finite_or_null(results), indent=2, allow_nan=False)
+                             + "\n", encoding="utf-8")  # fmt: skip
     paths["html"] = out / "report.html"
     paths["html"].write_text(render_html(results, figures), encoding="utf-8")
     analysis.results = results

@@ -230,8 +230,12 @@ def _grid_table(results, key, parameter, caption, label):
         columns=[parameter, "SACE", "SE", level],
     )
     _numbers(frame, ["SACE", "SE", level])
-    tip = record.get("tipping_point")
-    tip_text = ("not reached within the grid" if tip is None else number(tip))
+    tip, status = record.get("tipping_point"), record.get("tipping_status")
+    tip_text = {"covers_null": "none (the interval covers 0 at the null value itself)",
+                "unchanged": "none (the SACE does not change with this parameter here)",
+                "not_available": "not available"}.get(status)  # fmt: skip
+    if tip_text is None:
+        tip_text = "not reached within the grid" if tip is None else number(tip)
     footnote = [f"{parameter}: {record['description']}",
                 f"Tipping point ({sens.get('criterion', 'the interval first covers 0')}): "
                 f"{tip_text}."]  # fmt: skip

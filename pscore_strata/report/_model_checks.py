@@ -14,6 +14,7 @@ from __future__ import annotations
 import numpy as np
 
 from ._options import number
+from ._wording import outcome_label
 
 __all__ = ["model_checks_section", "model_check_figures"]
 
@@ -33,7 +34,8 @@ def _fit_check_record(table):
         "reference": attrs["reference"],
         "tests": [
             {"arm": "both" if arm == "both arms" else arm, "statistic": number(t["statistic"]),
-             "df": int(t["df"]), "p_value": number(t["p_value"]), "n_groups": int(t["n_groups"])}
+             "df": int(t["df"]), "p_value": number(t["p_value"]), "n_groups": int(t["n_groups"]),
+             "assessable": bool(t["assessable"])}
             for arm, t in attrs["tests"].items()
         ],
         "groups": [
@@ -114,7 +116,7 @@ def _outcome_figure(primary, results):
         rows = survivors & (data.treatment == arm)
         ax.hist(data.outcome[rows], bins=bins, density=True, alpha=0.5, color=_ARM_COLORS[arm],
                 label=f"{names[arm]} survivors (n={rows.sum():,})")
-    ax.set_xlabel(f"'{results['columns']['outcome']}'")
+    ax.set_xlabel(outcome_label(results))
     ax.set_ylabel("density")
     ax.set_title("Outcome of the survivors by arm (unweighted)", fontsize=10)
     ax.legend(fontsize=8)

@@ -8,7 +8,15 @@ import numpy as np
 
 from ..estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 
-__all__ = ["AnalysisOptions", "build_estimator", "fit_arguments", "model_settings", "number"]
+__all__ = [
+    "AnalysisOptions",
+    "build_estimator",
+    "check_treatment_probability",
+    "fit_arguments",
+    "model_settings",
+    "number",
+    "parse_levels",
+]
 
 METHODS = {
     "weighting": PrincipalScoreWeighting,
@@ -63,10 +71,53 @@ class AnalysisOptions:
     # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
     # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
+    # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
+    visit_population: str = "each"
     # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
     # and their bounds (--quantiles), or the whole section skipped (--no-distributions).
     quantiles: tuple = (0.1, 0.25, 0.5, 0.75, 0.9)
     distributions: bool = True
+    # A known randomization probability (--treatment-probability): the treatment model.
+    treatment_probability: float | None = None
+    # Headings and axes name the outcome so (--outcome-label); None: the column name.
+    outcome_label: str | None = None
+    # Labels of the outcome's levels (--levels "1=worse,2=same"): ((code, label), ...).
+    levels: tuple | None = None
+
+
+def parse_levels(text, input_error=ValueError):
+    """``"1=worse,2=same,3=better"`` -> ``((1.0, "worse"), (2.0, "same"), (3.0, "better"))``."""
+    pairs = []
+    for part in str(text).split(","):
+        code, sep, label = part.partition("=")
+        try:
+            value = float(code.strip())
+        except ValueError:
+            value = None
+        if not sep or value is None or not label.strip():
+            raise input_error(
+                f"--levels must list code=label pairs separated by commas, such as "
+                f"\"1=worse,2=same,3=better\"; got {part.strip()!r} in {text!r}."
+            )
+        pairs.append((value, label.strip()))
+    codes = [code for code, _ in pairs]
+    if len(set(codes)) != len(codes):
+        raise input_error(f"--levels gives a code twice in {text!r}; give each level once.")
+    return tuple(pairs)
+
+
+def check_treatment_probability(value, input_error=ValueError):
+    """A known randomization probability strictly between 0 and 1."""
+    try:
+        probability = float(value)
+    except (TypeError, ValueError):
+        probability = float("nan")
+    if not 0 < probability < 1:
+        raise input_error(
+            f"--treatment-probability must be a number strictly between 0 and 1 (the design's "
+            f"chance of being assigned treatment, e.g. 0.5 for 1:1); got {value!r}."
+        )
+    return probability
 
 
 def model_settings(options, n_rows=None):
@@ -76,6 +127,9 @@ def model_settings(options, n_rows=None):
     learner's classifier), the same for the estimators and the bounds.
     """
     models, folds = _learner_settings(options, n_rows)
+    if options.treatment_probability is not None:
+        # The design's known probability replaces the treatment model (treatment_model=P).
+        models["treatment_model"] = float(options.treatment_probability)
     if options.survival_model == "strata":
         from ._survival_model import survival_model_argument
 

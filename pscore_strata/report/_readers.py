@@ -88,12 +88,36 @@ def _read(kind, path):
         return pd.read_parquet(path)
     if kind == "stata":
         # Value labels become categories, as the analyst sees them in Stata.
-        return pd.read_stata(path, convert_categoricals=True)
+        return _with_value_labels(pd.read_stata(path, convert_categoricals=True), path, kind)
     if kind == "sas":
         # The encoding recorded in the file decodes its text (older files: bytes, decoded below).
         frame = pd.read_sas(path, format="sas7bdat", encoding="infer")
         return _decode_bytes(frame)
-    return pd.read_spss(path, convert_categoricals=True)
+    return _with_value_labels(pd.read_spss(path, convert_categoricals=True), path, kind)
+
+
+def _with_value_labels(frame, path, kind):
+    """Record each column's value labels (code -> label) in ``frame.attrs["value_labels"]``.
+
+    The readers turn labelled columns into categories of their labels; an ordinal outcome
+    needs the codes back (its levels) and the labels for the report. Read with pyreadstat's
+    metadata-only pass; without pyreadstat no labels are recorded.
+    """
+    try:
+        import pyreadstat
+    except ImportError:
+        return frame
+    reader = pyreadstat.read_dta if kind == "stata" else pyreadstat.read_sav
+    try:
+        _, meta = reader(str(path), metadataonly=True)
+    except Exception:  # unreadable metadata: the columns are still usable as read
+        return frame
+    frame.attrs["value_labels"] = {
+        str(column): {float(code): str(label) for code, label in labels.items()}
+        for column, labels in meta.variable_value_labels.items()
+        if column in frame.columns
+    }
+    return frame
 
 
 def _decode_bytes(frame):
@@ -127,8 +151,8 @@ def read_table(path, input_error=ValueError):
     except ImportError as error:
         need = {"parquet": "pyarrow", "spss": "pyreadstat"}.get(kind, "pandas' optional readers")
         raise input_error(
-            f"Reading {kind} files needs {need} ({error}); pip install {need} (or "
-            "'pscore_strata[report]')."
+            f"Reading {kind} files needs {need} ({error}); pip install {need} (or, from a "
+            "checkout, pip install '.[report]')."
         ) from None
     except Exception as error:  # the readers raise many types; all mean "not a readable table"
         first_line = str(error).splitlines()[0] if str(error) else type(error).__name__

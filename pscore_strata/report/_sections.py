@@ -33,8 +33,36 @@ def run_bootstrap(collector, method, options, data):
     )
 
 
+def refused_bootstrap(error, options):
+    """The record of a bootstrap whose resamples failed too often: counts, no interval."""
+    from ..inference._failures import MAX_FAILURE_SHARE
+
+    return {
+        "n_resamples": int(error.n_resamples),
+        "n_failed": int(error.n_failed),
+        "method": "resample",
+        "estimate": None,
+        "std_error": None,
+        "ci_low": None,
+        "ci_high": None,
+        "interval": "percentile",
+        "refused": True,
+        "notes": [
+            f"Bootstrap interval refused: {error.counts}. With more than "
+            f"{MAX_FAILURE_SHARE:.0%} of the resamples failing, the replicates would describe "
+            "only the resamples that kept deaths and survivors in every arm. Read the intervals "
+            "above, or merge sparse covariate levels."
+        ],
+    }
+
+
 def bootstrap_section(collector, options, data):
-    result = run_bootstrap(collector, options.method, options, data)
+    from ..inference._failures import BootstrapFailureError
+
+    try:
+        result = run_bootstrap(collector, options.method, options, data)
+    except BootstrapFailureError as error:
+        return refused_bootstrap(error, options)
     low, high = result.conf_int(options.level, kind="percentile")
     return {
         "n_resamples": int(result.n_resamples),
@@ -45,6 +73,7 @@ def bootstrap_section(collector, options, data):
         "ci_low": float(low),
         "ci_high": float(high),
         "interval": "percentile",
+        "refused": False,
         "notes": list(result.notes),
     }
 
@@ -130,16 +159,35 @@ def readable_step(spread):
     return float(min((m * power for m in (1, 2, 5, 10)), key=lambda v: abs(v - target)))
 
 
+def _tipping_status(value, null, parameter, observed_range):
+    """What a tipping point means, for the report's words.
+
+    At the null value the interval covers no effect already, so there is no tipping point to
+    report. A difference between the protected and the always-survivor means larger than the
+    width of the outcome's observed range cannot occur among the values seen.
+    """
+    if value is None:
+        return "not_reached"
+    if value == null:
+        return "covers_null"
+    if parameter == "pi_difference" and abs(value) > observed_range[1] - observed_range[0]:
+        return "beyond_outcome_range"
+    return "reached"
+
+
 def sensitivity_section(collector, primary, data, level):
     from ..assumptions import sensitivity_grid, tipping_point
     from ..diagnostics._arrays import ROW_SHARE_TOLERANCE
 
     spread = float(np.nanstd(data.outcome[data.survival == 1], ddof=1)) or 1.0
     label = "sensitivity analysis"
-    tips = {}
-    for parameter in ("pi_difference", "harmed_ratio"):
+    tips, status = {}, {}
+    survivors = data.outcome[data.survival == 1]
+    observed_range = [float(np.nanmin(survivors)), float(np.nanmax(survivors))]
+    for parameter, null in (("pi_difference", 0.0), ("harmed_ratio", 0.0)):
         value = collector.run(label, tipping_point, primary, parameter, level=level)
         tips[parameter] = number(value)
+        status[parameter] = _tipping_status(tips[parameter], null, parameter, observed_range)
     # Readable values: multiples of a round step near a tenth of the outcome SD, reaching a
     # little past the tipping point so that the figure shows it.
     step = readable_step(spread)
@@ -171,6 +219,11 @@ def sensitivity_section(collector, primary, data, level):
     grid_mono = grid_mono.iloc[: max(last + 1, 3)]
     mixed = "protected" if primary.monotonicity == "increasing" else "harmed"
     other = "harmed" if mixed == "protected" else "protected"
+    effects = grid_mono["effect"].to_numpy(dtype=float)
+    if np.ptp(effects) <= 1e-9 * (1 + abs(primary.effect_)):
+        # Constant principal scores (no covariates): the harmed ratio rescales every score
+        # alike, so the normalized means do not move.
+        status["harmed_ratio"] = "unchanged"
     return {
         "pi_difference": {
             "description": f"Mean outcome under treatment of the {mixed} stratum minus that of "
@@ -180,6 +233,8 @@ def sensitivity_section(collector, primary, data, level):
             "grid_digits": int(max(0, -np.floor(np.log10(step)))),
             "grid": rows(grid_pi, "pi_difference"),
             "tipping_point": tips["pi_difference"],
+            "tipping_status": status["pi_difference"],
+            "outcome_range_survivors": observed_range,
         },
         "harmed_ratio": {
             "description": f"Size of the {other} stratum, which monotonicity rules out, relative "
@@ -187,6 +242,7 @@ def sensitivity_section(collector, primary, data, level):
             "grid": rows(grid_mono, "harmed_ratio"),
             "informative_max": float(grid_mono["harmed_ratio"].iloc[-1]),
             "tipping_point": tips["harmed_ratio"],
+            "tipping_status": status["harmed_ratio"],
         },
         "criterion": f"the {level:.0%} confidence interval first covers 0",
     }

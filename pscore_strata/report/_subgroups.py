@@ -12,6 +12,7 @@ import numpy as np
 
 from ._format import number as number_text
 from ._options import number
+from ._wording import outcome_label
 
 __all__ = ["MAX_SUBGROUPS", "subgroups_section", "subgroup_figures"]
 
@@ -27,7 +28,14 @@ def subgroups_section(collector, primary, data, roles, level, input_error=ValueE
             f"--by column '{roles.by}' has {n_groups} distinct values; subgroup effects need at "
             f"most {MAX_SUBGROUPS} groups. Group its values first (for example age bands)."
         )
-    table = collector.run("subgroup effects", primary.effect_by, labels, level)
+    try:
+        table = collector.run("subgroup effects", primary.effect_by, labels, level)
+    except ValueError as error:
+        # effect_by names its Python argument; on the command line it is the --by column.
+        raise input_error(
+            str(error).replace("of `labels` ", f"of --by column '{roles.by}' ")
+            .replace("`labels`", f"--by column '{roles.by}'")
+        ) from None
     honest = str(primary.std_error_method_) in ("sandwich", "influence function")
     rows = []
     for _, row in table.iterrows():
@@ -69,7 +77,7 @@ def _forest(results):
                label=f"all rows: {number_text(primary['effect'])}")  # fmt: skip
     ax.axvline(0, color="0.3", linewidth=1, linestyle="--")
     ax.set_yticks(positions, [f"{row['label']} (n={row['n']:,})" for row in rows])
-    ax.set_xlabel(f"SACE on '{results['columns']['outcome']}' "
+    ax.set_xlabel(f"SACE on {outcome_label(results)} "
                   f"({results['settings']['level']:.0%} intervals)")  # fmt: skip
     ax.set_title(f"Subgroup effects by {record['column']}", fontsize=10)
     ax.legend(fontsize=8, loc="best")

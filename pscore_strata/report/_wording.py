@@ -27,6 +27,11 @@ def _unit_names(unit_name):
     return singular, given_plural.strip() or plural(singular)
 
 
+def outcome_label(results):
+    """What headings and axes call the outcome: ``--outcome-label``, else its column name."""
+    return (results.get("wording") or {}).get("outcome_label") or results["columns"]["outcome"]
+
+
 def study_wording(options, data, roles):
     """The nouns and level names of one analysis (the ``wording`` record of results.json)."""
     unit, units = _unit_names(options.unit_name or "unit")
@@ -53,4 +58,5 @@ def study_wording(options, data, roles):
         "control_condition": f"{roles.treatment} = {control_level}",
         "survived_condition": f"{roles.survival} = {survived_level}",
         "event_condition": f"{roles.survival} = {event_level}",
+        "outcome_label": str(getattr(options, "outcome_label", None) or roles.outcome),
     }
