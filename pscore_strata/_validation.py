@@ -218,16 +218,20 @@ def _binary_indicator(values, name, allow_missing=False):
 
 def check_truncation_data(
     X, y, treatment, survival, sample_weight=None, groups=None, models=(None, None, None),
-    missing="error",
+    missing="error", *, stratum=None, survival_name="survival",
 ):  # fmt: skip
     """Validate the inputs of every ``fit`` and return a :class:`TruncationData`.
 
     ``missing="at_random"`` accepts NaN survival (status unknown) and NaN outcomes of survivors
-    (not observed); ``"error"`` refuses them with a message naming the option.
+    (not observed); ``"error"`` refuses them with a message naming the option. ``stratum`` (a
+    stratum other than the always-survivors) keeps the outcomes of units with intermediate 0,
+    which its formulas use, and refuses NaN there: under truncation by death only the
+    always-survivor effect exists. ``survival_name`` is the argument name used in messages.
     """
+    all_outcomes = stratum is not None
     check_choice(missing, "missing", ("error", "at_random"))
     treatment = _binary_indicator(treatment, "treatment")
-    survival = _binary_indicator(survival, "survival", allow_missing=missing == "at_random")
+    survival = _binary_indicator(survival, survival_name, allow_missing=missing == "at_random")
     status_known = None
     if survival.dtype.kind == "f":
         status_known = (~np.isnan(survival)).astype(np.int8)
@@ -242,7 +246,7 @@ def check_truncation_data(
         raise ValueError(
             f"`y` has {outcome.shape[0]} rows but `treatment` has {n}; they must match."
         )
-    outcome = _outcome_values(outcome, survival, status_known)
+    outcome = _outcome_values(outcome, survival, status_known, all_outcomes)
     if status_known is not None:
         contradicting = np.flatnonzero((status_known == 0) & ~np.isnan(outcome.astype(float)))
         if contradicting.size:
@@ -251,7 +255,9 @@ def check_truncation_data(
                 f"(NaN), at row positions {contradicting[:5].tolist()}. An outcome exists only "
                 "for survivors: set survival to 1 for those rows if they survived, or blank y."
             )
-    outcome = np.where(survival == 1, outcome.astype(float), np.nan)
+    outcome = np.where((survival == 1) | all_outcomes, outcome.astype(float), np.nan)
+    if all_outcomes:
+        _check_outcomes_exist(outcome, survival, stratum, survival_name)
     unobserved = np.flatnonzero(np.isnan(outcome) & (survival == 1))
     outcome_observed = None
     if unobserved.size and missing == "at_random":
@@ -339,7 +345,7 @@ def check_truncation_data(
                 "instead."
             )
 
-    observed = outcome[(survival == 1) & ~np.isnan(outcome)]
+    observed = outcome[((survival == 1) | all_outcomes) & ~np.isnan(outcome)]
     binary = bool(np.all((observed == 0) | (observed == 1)))
     return TruncationData(
         X=X,
@@ -370,12 +376,25 @@ def _check_observed_arm(in_arm, known, survival, outcome_observed, label):
         )
 
 
-def _outcome_values(outcome, survival, status_known):
+def _check_outcomes_exist(outcome, survival, stratum, name):
+    missing = np.flatnonzero((survival == 0) & np.isnan(outcome))
+    if missing.size:
+        raise ValueError(
+            f"`y` is missing (NaN or not numeric) for {missing.size} unit(s) with `{name}` == 0, "
+            f"at row positions {missing[:5].tolist()}{' ...' if missing.size > 5 else ''}. The "
+            f"effect in the {stratum!r} stratum needs the outcomes of those units. When the "
+            "outcome does not exist for them (truncation by death), only the always-survivor "
+            "effect exists: use stratum='always_survivor'."
+        )
+
+
+def _outcome_values(outcome, survival, status_known, all_outcomes=False):
     """``y`` as floats. Non-survivors' values are ignored: text, '' or missing markers there
     become NaN; a survivor's value must be a number."""
     if outcome.dtype.kind in "biuf":
         return outcome.astype(float)
     may_hold = (survival == 1) | (status_known == 0 if status_known is not None else False)
+    may_hold = may_hold | all_outcomes
     values = np.full(outcome.shape[0], np.nan)
     bad = []
     for i in np.flatnonzero(may_hold):

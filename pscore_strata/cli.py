@@ -87,8 +87,31 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        stratum=_stratum(args),
         visit_population=args.visit_population or "each",
     )
+
+
+def _survival_columns(args):
+    """--intermediate is --survival under its general name: exactly one of the two is given."""
+    if (args.survival is None) == (args.intermediate is None):
+        raise ValueError(
+            "Give the binary post-treatment column with --survival COL or --intermediate COL "
+            "(the same role under two names); got "
+            + ("both." if args.survival is not None else "neither.")
+        )
+    return args.survival if args.survival is not None else args.intermediate
+
+
+def _stratum(args):
+    from .estimators._stratum_formulas import resolve_stratum
+
+    try:
+        resolve_stratum(args.stratum, args.monotonicity)
+    except ValueError as error:
+        raise ValueError(str(error).replace("`stratum`", "--stratum").replace(
+            "monotonicity=", "--monotonicity ")) from None  # fmt: skip
+    return args.stratum
 
 
 def _print_survival_model(results):
@@ -110,7 +133,11 @@ def _print_key_results(results, out_dir):
 
     level = f"{results['settings']['level']:.0%}"
     words = results["wording"]
-    print(f"Survivor average causal effect of {words['treated_arm']} "
+    target = results.get("stratum") or {"name": "always_survivor"}
+    other = target["name"] != "always_survivor"
+    title = (f"Effect in the {target['label']} stratum" if other
+             else "Survivor average causal effect")  # fmt: skip
+    print(f"{title} of {words['treated_arm']} "
           f"('{words['treated_condition']}') against {words['control_arm']} "
           f"('{words['control_condition']}') on '{results['columns']['outcome']}' "
           f"({results['data_overview']['n_rows_analyzed']} {words['units']} "
@@ -143,8 +170,11 @@ def _print_key_results(results, out_dir):
         shown = "not within the grid" if value is None else f"{value:.3g}"
         print(f"  Non-responders' outcome shift at which the CI covers 0: {shown}")
     naive = results["naive_survivor_contrast"]
-    print(f"  {'Naive survivor contrast':<27} {number(naive['estimate']):>10}   "
-          "(biased; comparison)")  # fmt: skip
+    print(f"  {'Naive cell contrast' if other else 'Naive survivor contrast':<27} "
+          f"{number(naive['estimate']):>10}   (biased; comparison)")  # fmt: skip
+    for row in (results.get("strata") or {}).get("rows", []):
+        print(f"  All strata: {row['label']:<27} share {row['share']:.1%}, effect "
+              f"{number(row['effect'])}, {level} CI {interval(row['ci_low'], row['ci_high'])}")
     for record in results["estimates"]:
         if record["ci_low"] is None:
             print(f"  {record['label']}: {record['interval_note']}")
@@ -173,7 +203,8 @@ def _print_key_results(results, out_dir):
 
     print_visits(results)
     print(f"Report: {Path(out_dir) / 'report.html'} (also results.json and the figures).")
-    print("Caution: the always-survivor stratum is latent and the assumptions are untestable; "
+    stratum = f"the {target['label']} stratum" if other else "the always-survivor stratum"
+    print(f"Caution: {stratum} is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "
           "qualified statistician review the analysis.")  # fmt: skip
 
@@ -182,6 +213,7 @@ def _analyze(args):
     from .report import ColumnRoles, analyze_frame, read_table
     from .report._visit_data import visit_pairs
 
+    args.survival = _survival_columns(args)
     options = _options(args)
     _check_out_dir(args.out)
     formats = _table_formats(args)
@@ -351,9 +383,15 @@ def build_parser():
         help="level of --treatment that means treated (for text-coded arms, e.g. program)",
     )  # fmt: skip
     analyze.add_argument(
-        "--survival", required=True, action="append", metavar="COL",
+        "--survival", action="append", metavar="COL",
         help="0/1 column: 1 if the unit survived (its outcome exists); or two levels with "
         "--survived-value; repeated: survival to each visit, matching the --outcome columns",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--intermediate", action="append", metavar="COL",
+        help="the same role as --survival under its general name: a binary post-treatment "
+        "variable (treatment received under noncompliance, an intercurrent event); give "
+        "--survival or --intermediate, not both",
     )  # fmt: skip
     analyze.add_argument(
         "--survived-value", default=None, metavar="VALUE",
@@ -421,6 +459,16 @@ def build_parser():
         default="increasing",
         help="increasing: treatment can only help survival (default)",
     )
+    analyze.add_argument(
+        "--stratum",
+        choices=("always_survivor", "protected", "doomed", "harmed", "always_taker", "complier",
+                 "never_taker"),
+        default="always_survivor",
+        help="principal stratum whose effect the report is about (default always_survivor, the "
+        "SACE). The others need the outcome of units with intermediate 0 (not truncation by "
+        "death): protected/complier and doomed/never_taker under --monotonicity increasing, "
+        "harmed and doomed under decreasing; always_taker = always_survivor",
+    )  # fmt: skip
     analyze.add_argument(
         "--missing",
         choices=("error", "at_random"),

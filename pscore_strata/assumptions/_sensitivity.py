@@ -32,6 +32,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._validation import check_level
 from ..estimators import _coarsening, _formulas
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from ..estimators._stratum_formulas import require_always_survivor
 from ..estimators._summary import CAUTIONS
 from ..inference._influence import estimator_dof, normal_interval
 from ._paths import SensitivityPath
@@ -214,6 +215,8 @@ def _check_estimator(estimator):
             f"MultiplyRobust; got {type(estimator).__name__}."
         )
     check_is_fitted(estimator, "nuisance_")
+    # The sensitivity formulas relax the always-survivor assumptions only (docs/sensitivity.md).
+    require_always_survivor(estimator, "The sensitivity analysis (sensitivity_grid, tipping_point)")
     return formula
 
 

@@ -6,6 +6,7 @@ registry whose true effect is ``DEMO_TRUE_EFFECT``.
 """
 
 from ._demo import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
+from ._intermediate import make_intermediate
 from ._scenarios import SCENARIOS, list_scenarios, make_scenario
 from ._simulate import make_truncation
 from ._visits import make_visits
@@ -16,6 +17,7 @@ __all__ = [
     "SCENARIOS",
     "list_scenarios",
     "load_demo",
+    "make_intermediate",
     "make_scenario",
     "make_truncation",
     "make_visits",

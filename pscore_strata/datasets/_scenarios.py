@@ -3,6 +3,7 @@
 import pandas as pd
 
 from ._checks import check_choice, check_positive_int, resolve_rng
+from ._intermediate import INTERMEDIATE_SCENARIOS
 from ._missing import apply_missingness, check_missingness
 from ._simulate import _simulate, describe
 
@@ -69,6 +70,7 @@ SCENARIOS = {
                     "directions in the two arms.",
     ),
 }
+SCENARIOS.update(INTERMEDIATE_SCENARIOS)  # an outcome after a binary intermediate (every stratum)
 
 
 def list_scenarios():
@@ -117,6 +119,12 @@ def make_scenario(name, n_samples=2000, random_state=None):
         - ``"lost_to_follow_up"``, ``"missing_outcomes"``: survival status (and outcomes)
           missing at random given x2, differently by arm, with ``effect_heterogeneity=0.5``;
           fit with ``missing="at_random"``. Complete-case analysis is biased there.
+        - ``"intermediate_always_survivor"``, ``"intermediate_protected"``,
+          ``"intermediate_doomed"``, ``"intermediate_harmed"``: an outcome observed for every
+          unit after a binary intermediate (:func:`make_intermediate`); the truth is the
+          named stratum's effect (fit with ``stratum=`` set to it).
+          ``"intermediate_exclusion"``: randomized noncompliance where the exclusion
+          restriction holds too; the truth is the complier effect.
     n_samples : int, default=2000
         Number of units.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState
@@ -143,6 +151,10 @@ def make_scenario(name, n_samples=2000, random_state=None):
     n_samples = check_positive_int(n_samples, "n_samples")
     rng = resolve_rng(random_state)
     spec = SCENARIOS[name]
+    if "simulate" in spec:
+        data = spec["simulate"](n_samples, rng)  # its own simulator (datasets/_intermediate.py)
+        data.scenario = name
+        return data
     params = {"n_samples": n_samples, **_BASE, **spec["settings"]}
     knobs = dict(spec["knobs"])
     cluster_size = knobs.pop("cluster_size", None)

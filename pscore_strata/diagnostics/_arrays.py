@@ -4,7 +4,11 @@ Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
 "increasing" and correct models, for any covariate function ``h(X)`` the always-survivor mean
 ``E[h(X) | always-survivor]`` is the weighted mean of ``h`` among treated survivors with weights
 ``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with
-weights ``p0``. Under "decreasing" the arms swap roles.
+weights ``p0``. Under "decreasing" the arms swap roles. For another target stratum ``g``
+(``stratum=``) the same holds with each arm's cell of ``g`` weighted by
+``e_g / (P(arm|X) P(S=s_g(arm)|arm,X))`` and everyone by ``e_g``
+(docs/guide/derivations/strata.md, section 4); the weight sets keep their names
+(``treated_survivors`` is then the treated cell of ``g``).
 """
 
 from __future__ import annotations
@@ -48,6 +52,8 @@ def oriented_predictions(estimator):
             f"OutcomeRegression or MultiplyRobust); got {type(estimator).__name__}."
         )
     monotonicity = getattr(estimator, "monotonicity", "increasing")
+    if getattr(estimator, "stratum_", "always_survivor") != "always_survivor":
+        return estimator._oriented(estimator.training_data_, estimator.nuisance_)
     return _formulas.orient(estimator.training_data_, estimator.nuisance_, monotonicity)
 
 
@@ -57,6 +63,12 @@ def treated_indicator(o):
 
 def balancing_weights(o):
     """Row weights of the three reconstructions, times the sample weights, keyed by group."""
+    if hasattr(o, "cell_weights"):  # another stratum than the always-survivors
+        cells = o.cell_weights()
+        treated, control = ((cells["mixed"], cells["pure"]) if o.increasing
+                            else (cells["pure"], cells["mixed"]))  # fmt: skip
+        return {"treated_survivors": o.weight * treated, "control_survivors": o.weight * control,
+                "everyone": o.weight * o.score}  # fmt: skip
     # Observed survivors; with missing data they carry 1 / (c r) (equal to A S otherwise).
     observed_mixed, observed_pure = o.observed_mixed, o.observed_pure
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -72,6 +84,10 @@ def balancing_weights(o):
 
 def survivor_weights(o):
     T = treated_indicator(o)
+    if hasattr(o, "cell_weights"):  # the target stratum's cells, unweighted
+        treated, control = ((o.cell("mixed"), o.cell("pure")) if o.increasing
+                            else (o.cell("pure"), o.cell("mixed")))  # fmt: skip
+        return {"treated_survivors": o.weight * treated, "control_survivors": o.weight * control}
     observed = o.survival if o.coarsening is None else o.survival * o.coarsening.responded
     return {
         "treated_survivors": o.weight * T * observed,

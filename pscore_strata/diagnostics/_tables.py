@@ -311,6 +311,8 @@ def diagnostic_warnings(estimator, X=None):
     is checked only when ``X`` (the covariates of the fitted rows) is given.
     """
     o = oriented_predictions(estimator)
+    target = getattr(estimator, "stratum_", "always_survivor")
+    words = target.replace("_", "-")
     messages = []
     n_rows = len(o.p_pure)
     if X is not None:
@@ -321,7 +323,7 @@ def diagnostic_warnings(estimator, X=None):
             messages.append(
                 f"Covariate balance: {len(flagged)} covariate(s) have a weighted |SMD| above "
                 f"{SMD_THRESHOLD} (common rule of thumb): {listed}. The reconstructions of the "
-                "always-survivors disagree, so the treatment or survival model is probably "
+                f"{words} stratum disagree, so the treatment or survival model is probably "
                 "misspecified; "
                 + ("try interactions, transformations or a more flexible learner."
                    if n_rows >= FLEXIBLE_ROWS else
@@ -342,12 +344,12 @@ def diagnostic_warnings(estimator, X=None):
             "mean SE / SD was about 0.8 for weighting and multiply robust, and the same with the "
             "refitting bootstrap)."
         )
-    rare = float(np.mean(scores["always_survivor"] < SCORE_FLOOR))
+    rare = float(np.mean(scores[target] < SCORE_FLOOR))
     if rare > ROW_SHARE_TOLERANCE:
         messages.append(
-            f"Overlap: {rare:.1%} of rows have a fitted always-survivor score below "
+            f"Overlap: {rare:.1%} of rows have a fitted {words} score below "
             f"{SCORE_FLOOR} (common practice allows about {ROW_SHARE_TOLERANCE:.0%}). The "
-            "always-survivor stratum is nearly absent there, so the estimate rests on few rows."
+            f"{words} stratum is nearly absent there, so the estimate rests on few rows."
         )
     # Small fitted reversals arise from estimation noise where the arms' survival is close, so
     # only reversals larger than the probability floor count.

@@ -29,6 +29,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._features import feature_fingerprint
 from .._validation import check_features
 from ..estimators import _formulas
+from ..estimators._stratum_formulas import require_always_survivor
 from ._conditional import fit_conditional_cdf
 from ._expansion import Expansion, ValueGrid
 from ._grid_formulas import regression_grid, robust_grid, weighting_grid
@@ -127,6 +128,9 @@ def prepare(estimator, X=None, cdf_model=None):
     sharing the same nuisance fit).
     """
     method = method_of(estimator)
+    require_always_survivor(
+        estimator, "The distribution functions (survivor_distribution, quantile_effects, "
+        "ordinal_comparison)")  # fmt: skip
     data = estimator.training_data_
     oriented = _formulas.orient(data, estimator.nuisance_, estimator.monotonicity)
     conditional = None

@@ -37,7 +37,7 @@ from ..inference._refits import _seed_models
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
 from ..nuisance._share import record_settings, shared_nuisance
 from ..nuisance._strata import StratumArm
-from . import _formulas
+from . import _formulas, _stratum_formulas
 from ._design import design_at_fit, design_for_new_rows
 from ._display import EstimatorDisplay
 from ._heterogeneity import conditional_effect, subgroup_effects
@@ -62,8 +62,24 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         used += (self.outcome_model,) if self._uses_outcome_model else ()
         return used + ((self.response_model,) if self.missing == "at_random" else ())
 
+    def _target_stratum(self):
+        """The canonical name of the stratum targeted (``stratum=``; aliases resolved)."""
+        return _stratum_formulas.resolve_stratum(
+            getattr(self, "stratum", "always_survivor"), self.monotonicity
+        )
+
+    def _other_stratum(self):
+        return _stratum_formulas.needs_zero_cells(self._target_stratum())
+
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
+        if self._other_stratum() and self.missing != "error":
+            raise ValueError(
+                f"`missing`={self.missing!r} is not available with `stratum`="
+                f"{self.stratum!r} yet (the follow-up and response models are fitted for the "
+                "always-survivor formulas only); use missing='error' with complete data, or "
+                "stratum='always_survivor'."
+            )
         check_choice(self.scale, "scale", _SCALES)
         check_choice(self.missing, "missing", ("error", "at_random"))
         check_estimator_arguments(self)
@@ -88,16 +104,30 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
             # The multiply robust influence values never use the sandwich pieces.
             sandwich=sandwich and self._formula is not _formulas.robust_means,
             monotonicity=self.monotonicity,
+            zero_cells=self._other_stratum(),
         )
         return record_settings(fitted, self, data, random_state)
 
-    def _means(self, data, nuisance):
-        oriented = _formulas.orient(data, nuisance, self.monotonicity)
-        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
-            return type(self)._formula(oriented), oriented
+    def _oriented(self, data, nuisance):
+        """The view the formulas read: the SACE's oriented arrays, or the target stratum's."""
+        stratum = self._target_stratum()
+        if _stratum_formulas.needs_zero_cells(stratum):
+            return _stratum_formulas.stratum_view(data, nuisance, self.monotonicity, stratum)
+        return _formulas.orient(data, nuisance, self.monotonicity)
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, nuisance=None):
-        """Estimate the survivor average causal effect.
+    def _formula_for(self, oriented):
+        if isinstance(oriented, _stratum_formulas.StratumView):
+            return _STRATUM_FORMULAS[type(self)._formula]
+        return type(self)._formula
+
+    def _means(self, data, nuisance):
+        oriented = self._oriented(data, nuisance)
+        with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
+            return self._formula_for(oriented)(oriented), oriented
+
+    def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
+            groups=None, nuisance=None):  # fmt: skip
+        """Estimate the effect in the target stratum (by default the SACE).
 
         Parameters
         ----------
@@ -108,6 +138,10 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
             Outcome. Values of non-survivors are ignored (they may be NaN).
         treatment, survival : array-like of shape (n_samples,)
             0/1 indicators.
+        intermediate : array-like of shape (n_samples,), optional
+            The general name of the binary post-treatment variable (treatment received under
+            noncompliance, an intercurrent event): the same as ``survival``. Give exactly one
+            of the two.
         sample_weight : array-like of shape (n_samples,), optional
             Survey (sampling) or frequency weights. Every model is fitted with them and every
             mean in the formulas is weighted, so an integer weight gives the same point
@@ -133,10 +167,13 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         self
         """
         n_repeats = self._check_params()
+        survival, name = intermediate_alias(survival, intermediate)
+        stratum = self._target_stratum()
         X = design_at_fit(self, X)
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups, models=self._models(),
-            missing=self.missing,
+            missing=self.missing, survival_name=name,
+            stratum=stratum if self._other_stratum() else None,
         )
         check_n_folds(self.n_folds, data)
         n_clusters = count_clusters(data.groups)
@@ -158,6 +195,14 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                 )
             ]  # fmt: skip
+            if self._uses_outcome_model and self._other_stratum() and (0, 0) not in (
+                fits[0].outcome or {}
+            ):
+                raise ValueError(
+                    f"`nuisance` was fitted without the outcome models among units with "
+                    f"intermediate 0 that `stratum`={self.stratum!r} needs; share the nuisance "
+                    "of a fit for a stratum other than 'always_survivor', or drop `nuisance`."
+                )
         else:
             fits = [
                 self._fit_nuisance(data, seed)
@@ -200,10 +245,11 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         _, influence, parts, oriented = evaluated[chosen]
         # Only the nuisance arrays are needed from here: drop the oriented copies before the
         # principal scores are built (peak memory at a million rows).
-        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)
+        oriented = _Roles(oriented.p_mixed, oriented.p_pure, oriented.increasing)  # any view
         del evaluated
         self.effect_ = float(effect)
         self.std_error_ = float(std_error)
+        self.stratum_ = self._target_stratum()
         self.mean_treated_ = float(np.median(table["mean_treated"]))
         self.mean_control_ = float(np.median(table["mean_control"]))
         self.repeat_estimates_ = table
@@ -464,6 +510,24 @@ def _principal_scores(p_mixed, p_pure):
     np.subtract(1.0, always, out=doomed)
     doomed -= helped
     return scores
+
+
+# The formula of each method for the strata other than the always-survivors.
+_STRATUM_FORMULAS = {
+    _formulas.weighting_means: _stratum_formulas.stratum_weighting_means,
+    _formulas.regression_means: _stratum_formulas.stratum_regression_means,
+    _formulas.robust_means: _stratum_formulas.stratum_robust_means,
+}
+
+
+def intermediate_alias(survival, intermediate):
+    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
+    if (survival is None) == (intermediate is None):
+        raise TypeError(
+            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
+            "variable under two names); got " + ("both." if survival is not None else "neither.")
+        )
+    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")
 
 
 class _Roles:

@@ -33,6 +33,22 @@ _COMMON_PARAMETERS = """
     monotonicity : {"increasing", "decreasing"}, default="increasing"
         ``"increasing"``: treatment can only help survival (no harmed units);
         ``"decreasing"``: it can only harm survival (no protected units).
+    stratum : str, default="always_survivor"
+        The principal stratum whose effect is estimated: ``"always_survivor"`` (the SACE),
+        ``"protected"`` and ``"doomed"`` under ``monotonicity="increasing"``, ``"harmed"`` and
+        ``"doomed"`` under ``"decreasing"``. The noncompliance names ``"always_taker"``,
+        ``"complier"`` and ``"never_taker"`` are the always-survivor, protected and doomed
+        strata (increasing monotonicity: no defiers). Strata other than the always-survivors
+        need the outcome of units whose intermediate (``survival``) is 0, so they are refused
+        under truncation by death. Their effect is identified under principal ignorability in
+        mean form for each observed cell that mixes two strata: with increasing monotonicity,
+        ``E[Y(1) | always_survivor, X] = E[Y(1) | protected, X]`` (treated, intermediate 1;
+        needed by the always-survivor and protected strata) and
+        ``E[Y(0) | protected, X] = E[Y(0) | doomed, X]`` (control, intermediate 0; needed by the
+        protected and doomed strata); with decreasing monotonicity,
+        ``E[Y(0) | always_survivor, X] = E[Y(0) | harmed, X]`` and
+        ``E[Y(1) | harmed, X] = E[Y(1) | doomed, X]``. Formulas and sources:
+        docs/guide/derivations/strata.md.
     scale : {"difference", "ratio", "odds_ratio"}, default="difference"
         Scale of the effect. Ratio scales need positive (``"ratio"``) or binary
         (``"odds_ratio"``) outcomes; their intervals are computed on the log scale.
@@ -76,10 +92,13 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     Attributes
     ----------
     effect_ : float
-        The survivor average causal effect on the chosen scale.
+        The effect in the target stratum on the chosen scale (the survivor average causal
+        effect by default).
+    stratum_ : str
+        The target stratum's name (aliases resolved: ``"complier"`` gives ``"protected"``).
     std_error_ : float
     mean_treated_, mean_control_ : float
-        Always-survivor means under treatment and under control.
+        The target stratum's means under treatment and under control.
     influence_ : ndarray of shape (n_samples,)
         Per-row influence values of ``effect_``.
     std_error_method_ : str
@@ -128,6 +147,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         treatment_model=None,
         survival_model=None,
         monotonicity="increasing",
+        stratum="always_survivor",
         scale="difference",
         n_folds=None,
         n_bootstrap=200,
@@ -140,6 +160,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.monotonicity = monotonicity
+        self.stratum = stratum
         self.scale = scale
         self.n_folds = n_folds
         self.n_bootstrap = n_bootstrap
@@ -191,6 +212,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         survival_model=None,
         outcome_model=None,
         monotonicity="increasing",
+        stratum="always_survivor",
         scale="difference",
         n_folds=None,
         n_bootstrap=200,
@@ -204,6 +226,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.survival_model = survival_model
         self.outcome_model = outcome_model
         self.monotonicity = monotonicity
+        self.stratum = stratum
         self.scale = scale
         self.n_folds = n_folds
         self.n_bootstrap = n_bootstrap
@@ -268,6 +291,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         survival_model=None,
         outcome_model=None,
         monotonicity="increasing",
+        stratum="always_survivor",
         scale="difference",
         n_folds=None,
         n_repeats=1,
@@ -280,6 +304,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.survival_model = survival_model
         self.outcome_model = outcome_model
         self.monotonicity = monotonicity
+        self.stratum = stratum
         self.scale = scale
         self.n_folds = n_folds
         self.n_repeats = n_repeats

@@ -18,6 +18,7 @@ from ..inference._influence import estimator_dof, influence_std_error, normal_in
 from ..nuisance._fit import predict_models
 from . import _formulas
 from ._repeats import median_aggregate
+from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
 
 __all__ = ["conditional_effect", "subgroup_effects"]
@@ -33,7 +34,12 @@ def _on_scale(mean_treated, mean_control, scale):
 
 
 def conditional_effect(estimator, X):
-    """``m1(X)`` versus ``m0(X)`` on the estimator's scale, averaging every fold model."""
+    """``m1(X)`` versus ``m0(X)`` on the estimator's scale, averaging every fold model.
+
+    For another stratum than the always-survivors, ``m_t`` is the regression of the stratum's
+    cell in arm ``t`` (``E[Y | T=t, S=s_g(t), X]``), its mean given X under principal
+    ignorability (docs/guide/derivations/strata.md section 3).
+    """
     X, n_features, _ = check_features(X, estimator._models())
     if n_features != estimator.n_features_in_:
         raise ValueError(
@@ -41,8 +47,10 @@ def conditional_effect(estimator, X):
             f"{estimator.n_features_in_}."
         )
     means = {}
+    cells = arm_cells(getattr(estimator, "stratum_", "always_survivor"), estimator.monotonicity)
     for arm in (0, 1):
-        models = [m for fit in estimator._repeat_fits for m in fit.models[("outcome", arm)]]
+        key = ("outcome", arm) if cells[arm] == 1 else ("outcome", arm, 0)
+        models = [m for fit in estimator._repeat_fits for m in fit.models[key]]
         # A classifier's predicted probability of Y = 1 is the conditional mean of a 0/1 outcome.
         means[arm] = predict_models(models, X, binary=is_classifier(models[0]))
     return _on_scale(means[1], means[0], estimator.scale)
@@ -105,25 +113,30 @@ def subgroup_effects(estimator, labels, level):
     codes, names = pd.factorize(labels, sort=True)
     names = pd.Index(names).tolist()
     w, T, S = data.sample_weight, data.treatment, data.survival
+    cells = arm_cells(getattr(estimator, "stratum_", "always_survivor"), estimator.monotonicity)
     small = {}
     for code, name in enumerate(names):
         in_group = (codes == code) & (w > 0)
         for arm, arm_name in ((1, "treated"), (0, "control")):
             observed = S == 1 if data.outcome_observed is None else data.outcome_observed == 1
+            if cells[arm] == 0:
+                observed = S == 0
             survivors = int(np.sum(in_group & (T == arm) & observed))
             if 0 < survivors < MIN_SUBGROUP_SURVIVORS and name not in small:
                 small[name] = (survivors, arm_name)
             if not survivors:
+                what = "survivors" if cells[arm] == 1 else "units with intermediate 0"
                 raise ValueError(
-                    f"Subgroup {name!r} of `labels` has no survivors in the {arm_name} arm, so "
-                    "its SACE is not estimable. Merge it with a neighbouring subgroup."
+                    f"Subgroup {name!r} of `labels` has no {what} in the {arm_name} arm, so "
+                    "its effect is not estimable. Merge it with a neighbouring subgroup."
                 )
     effects = np.empty((len(estimator._repeat_fits), len(names)))
     errors = np.empty_like(effects)
     for r, nuisance in enumerate(estimator._repeat_fits):
-        oriented = _formulas.orient(data, nuisance, estimator.monotonicity)
+        oriented = estimator._oriented(data, nuisance)
+        formula = estimator._formula_for(oriented)
         for code in range(len(names)):
-            parts = estimator._formula(oriented, (codes == code).astype(float))
+            parts = formula(oriented, (codes == code).astype(float))
             effect, influence = _formulas.scale_effect(parts, estimator.scale)
             effects[r, code] = effect
             errors[r, code] = influence_std_error(influence, w, data.groups)

@@ -14,6 +14,7 @@ from ..inference._influence import (
 )
 from ..tables import SummaryTable
 from ._repeats import median_aggregate
+from ._stratum_formulas import arm_cells, ignorability_statement, stratum_words
 
 __all__ = ["summary_table", "share_interval", "SCALE_LABELS", "CAUTIONS", "SHARE_INTERVAL_NOTE"]
 
@@ -26,6 +27,26 @@ CAUTIONS = (
     "decisions about individual patients. Interpret them under the study's protocol and local "
     "regulation, with a qualified statistician."
 )
+
+STRATUM_CAUTIONS = (
+    "Principal strata are latent: nobody can be identified as a member of the {words} stratum, "
+    "and its effect rests on untestable assumptions (monotonicity, principal ignorability). "
+    "These are population-level estimates: do not use them for decisions about individual "
+    "patients. Interpret them under the study's protocol and local regulation, with a qualified "
+    "statistician."
+)
+
+
+def _stratum_of(estimator):
+    return getattr(estimator, "stratum_", "always_survivor")
+
+
+def effect_label(estimator):
+    """The first row's name: ``"SACE (difference)"``, ``"protected effect (difference)"``."""
+    stratum = _stratum_of(estimator)
+    name = "SACE" if stratum == "always_survivor" else f"{stratum_words(stratum)} effect"
+    return f"{name} ({SCALE_LABELS[estimator.scale]})"
+
 
 SHARE_INTERVAL_NOTE = (
     "Intervals of the stratum shares are computed on the logit scale (delta method) and "
@@ -58,17 +79,19 @@ def summary_table(estimator, level):
     method = estimator.std_error_method_
     boot = estimator.bootstrap_replicates_
     repeats = estimator.repeat_estimates_
+    stratum = _stratum_of(estimator)
+    words = stratum_words(stratum)
     rows = [
         (
-            f"SACE ({SCALE_LABELS[estimator.scale]})",
+            effect_label(estimator),
             estimator.effect_,
             estimator.std_error_,
             method,
         )
     ]
     for name, value, column in (
-        ("always-survivor mean, treated", estimator.mean_treated_, "mean_treated"),
-        ("always-survivor mean, control", estimator.mean_control_, "mean_control"),
+        (f"{words} mean, treated", estimator.mean_treated_, "mean_treated"),
+        (f"{words} mean, control", estimator.mean_control_, "mean_control"),
     ):
         if boot is not None:
             se = float(boot[column].std(ddof=1))
@@ -77,10 +100,13 @@ def summary_table(estimator, level):
         rows.append((name, value, se, method))
     for name, value, infl in _stratum_shares(estimator):
         rows.append((name, value, influence_std_error(infl, w, groups), "influence function"))
-    naive, naive_influence = _naive_contrast(data)
+    cells = arm_cells(stratum, estimator.monotonicity)
+    naive, naive_influence = _naive_contrast(data, cells)
     rows.append(
         (
-            "naive survivor contrast (biased)",
+            "naive survivor contrast (biased)" if stratum == "always_survivor" else
+            f"naive contrast, treated with intermediate {cells[1]} against control with "
+            f"intermediate {cells[0]} (biased)",
             naive,
             influence_std_error(naive_influence, w, groups),
             "influence function",
@@ -135,15 +161,17 @@ def _stratum_shares(estimator):
     ]
 
 
-def _naive_contrast(data):
-    """Difference of survivor means between arms, with its influence values."""
+def _naive_contrast(data, cells=None):
+    """Difference of the observed cells' means between arms (survivors by default), with its
+    influence values; ``cells`` maps each arm to the intermediate value of its cell."""
     w, T, S = data.sample_weight, data.treatment, data.survival
-    Y = np.where(S == 1, np.nan_to_num(data.outcome), 0.0)
+    cells = {1: 1, 0: 1} if cells is None else cells
+    Y = np.where((S == 1) | (cells[1] == 0) | (cells[0] == 0), np.nan_to_num(data.outcome), 0.0)
     influence = np.zeros(data.n_samples)
     means = {}
     observed = S == 1 if data.outcome_observed is None else data.outcome_observed == 1
     for arm, sign in ((1, 1.0), (0, -1.0)):
-        cell = (T == arm) & observed
+        cell = (T == arm) & (observed if cells[arm] == 1 else S == 0)
         share = np.sum(w * cell) / w.sum()
         means[arm] = np.sum(w * cell * Y) / np.sum(w * cell)
         influence += sign * cell * (Y - means[arm]) / share
@@ -162,7 +190,7 @@ def _notes(estimator):
         from ..nuisance._sandwich import sandwich_reason
 
         notes.append(
-            f"Standard errors of the SACE and the always-survivor means come from "
+            f"Standard errors of the effect and the stratum means come from "
             f"{len(estimator.bootstrap_replicates_)} bootstrap resamples (within arms) that refit "
             "every model, because the sandwich formula needs unpenalized logistic/linear models "
             f"fitted on all rows and here {sandwich_reason(estimator)}."
@@ -198,5 +226,10 @@ def _notes(estimator):
             f"{estimator.n_monotonicity_violations_} rows contradict monotonicity in the fitted "
             "survival models."
         )
-    notes.append(CAUTIONS)
+    stratum = _stratum_of(estimator)
+    if stratum == "always_survivor":
+        notes.append(CAUTIONS)
+    else:
+        notes.append(ignorability_statement(stratum, estimator.monotonicity))
+        notes.append(STRATUM_CAUTIONS.format(words=stratum_words(stratum)))
     return notes

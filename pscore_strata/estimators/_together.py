@@ -7,10 +7,11 @@ from ._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeight
 __all__ = ["fit_estimators"]
 
 
-def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None,
-                   covariates=None, treatment_model=None, survival_model=None,
-                   outcome_model=None, monotonicity="increasing", scale="difference", n_folds=None,
-                   n_bootstrap=200, random_state=None, missing="error",
+def fit_estimators(X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
+                   groups=None, covariates=None,
+                   treatment_model=None, survival_model=None, outcome_model=None,
+                   monotonicity="increasing", stratum="always_survivor", scale="difference",
+                   n_folds=None, n_bootstrap=200, random_state=None, missing="error",
                    response_model=None):  # fmt: skip
     """Fit the weighting, outcome regression and multiply robust estimators on one model fit.
 
@@ -20,12 +21,14 @@ def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None
 
     Parameters
     ----------
-    X, y, treatment, survival, sample_weight, groups
-        As in :meth:`PrincipalScoreWeighting.fit`.
+    X, y, treatment, survival, intermediate, sample_weight, groups
+        As in :meth:`PrincipalScoreWeighting.fit` (exactly one of ``survival`` and
+        ``intermediate``).
     covariates : str or None, default=None
         A covariate formula over the DataFrame ``X`` (as in :class:`MultiplyRobust`): the
         design is learned once and every estimator applies it.
-    treatment_model, survival_model, outcome_model, monotonicity, scale, n_folds, random_state
+    treatment_model, survival_model, outcome_model, monotonicity, stratum, scale, n_folds, \
+random_state
         As in :class:`MultiplyRobust`, shared by all three.
     n_bootstrap : int, default=200
         Refitting bootstrap of the weighting and regression estimators when their models do
@@ -52,11 +55,12 @@ def fit_estimators(X, y, *, treatment, survival, sample_weight=None, groups=None
     'sandwich'
     """
     common = dict(covariates=covariates, treatment_model=treatment_model,
-                  survival_model=survival_model, monotonicity=monotonicity, scale=scale,
-                  n_folds=n_folds, random_state=random_state, missing=missing,
+                  survival_model=survival_model, monotonicity=monotonicity, stratum=stratum,
+                  scale=scale, n_folds=n_folds,
+                  random_state=random_state, missing=missing,
                   response_model=response_model)  # fmt: skip
-    arguments = dict(treatment=treatment, survival=survival, sample_weight=sample_weight,
-                     groups=groups)  # fmt: skip
+    arguments = dict(treatment=treatment, survival=survival, intermediate=intermediate,
+                     sample_weight=sample_weight, groups=groups)  # fmt: skip
     robust = MultiplyRobust(outcome_model=outcome_model, **common).fit(X, y, **arguments)
     shared = robust.nuisance_
     regression = OutcomeRegression(outcome_model=outcome_model, n_bootstrap=n_bootstrap, **common)

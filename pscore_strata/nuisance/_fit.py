@@ -231,6 +231,7 @@ def fit_nuisance(
     response_model=None,
     sandwich=True,
     monotonicity=None,
+    zero_cells=False,
 ):
     """Fit the nuisance models and return a :class:`NuisanceFit`.
 
@@ -259,6 +260,10 @@ def fit_nuisance(
         ``False`` skips them (the multiply robust estimator never uses them).
     monotonicity : {"increasing", "decreasing"} or None
         The estimator's direction; a :class:`PrincipalScoreModel` survival model must share it.
+    zero_cells : bool, default=False
+        Also fit the outcome model among each arm's units with intermediate 0 (stored under
+        ``outcome[(arm, 0)]`` and ``models[("outcome", arm, 0)]``): the strata other than the
+        always-survivors need ``E[Y | T=t, S=0, X]`` (docs/guide/derivations/strata.md).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -304,9 +309,14 @@ def fit_nuisance(
     survival = {0: np.empty(n), 1: np.empty(n)}
     outcome = {0: np.empty(n), 1: np.empty(n)} if fit_outcome else None
     fitted = {"treatment": [], ("survival", 0): [], ("survival", 1): []}
+    zero_cells = zero_cells and fit_outcome
     if fit_outcome:
         fitted[("outcome", 0)] = []
         fitted[("outcome", 1)] = []
+    if zero_cells:
+        for arm in (0, 1):
+            outcome[(arm, 0)] = np.empty(n)
+            fitted[("outcome", arm, 0)] = []
     for train, test in splits:
         if known_probability:
             pi[test] = float(treatment_model)
@@ -338,6 +348,12 @@ def fit_nuisance(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
                 fitted[("outcome", arm)].append(model)
+            if zero_cells:
+                rows = arm_rows[S[arm_rows] == 0]
+                model, outcome[(arm, 0)][test] = _fit_predict(
+                    models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
+                )
+                fitted[("outcome", arm, 0)].append(model)
 
     result = NuisanceFit(
         treatment_probability=pi,

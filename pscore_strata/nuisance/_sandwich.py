@@ -279,6 +279,8 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
         user = given.get(role)
         check = user is not None
         keys = ["treatment"] if role == "treatment" else [(role, 0), (role, 1)]
+        if role == "outcome":
+            keys += [(role, arm, 0) for arm in (0, 1) if (role, arm, 0) in nuisance.models]
         if all(key in memo for key in keys):
             pieces.update({key: memo[key] for key in keys})
             continue
@@ -313,5 +315,14 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
                     design_for(fitted, user), (T == arm) & observed, Y, m, slope, w,
                     check_root=check, role=f"outcome model (arm {arm})",
                 )  # fmt: skip
+                if ("outcome", arm, 0) in nuisance.models:
+                    # The stratum formulas' outcome model among the arm's units with S = 0.
+                    m = nuisance.outcome[(arm, 0)]
+                    pieces[("outcome", arm, 0)] = parametric_piece(
+                        design_for(nuisance.models[("outcome", arm, 0)][0], user),
+                        (T == arm) & (S == 0), np.nan_to_num(Y), m,
+                        m * (1 - m) if binary_outcome else 1.0, w,
+                        check_root=check, role=f"outcome model (arm {arm}, intermediate 0)",
+                    )  # fmt: skip
     memo.update(pieces)
     return pieces

@@ -28,6 +28,7 @@ from ._options import (
     number,
 )
 from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
+from ._strata import outcome_for_everyone, strata_section
 from ._text import assumptions, cautions, estimand
 from ._visits import visits_section
 from ._wording import study_wording
@@ -162,6 +163,13 @@ def _method_notes(estimator, notes):
     from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
 
     repeated = {SUMMARY_CAUTIONS}
+    stratum = getattr(estimator, "stratum_", "always_survivor")
+    if stratum != "always_survivor":  # the stratum's assumptions and cautions have sections
+        from ..estimators._stratum_formulas import ignorability_statement, stratum_words
+        from ..estimators._summary import STRATUM_CAUTIONS
+
+        repeated.add(ignorability_statement(stratum, estimator.monotonicity))
+        repeated.add(STRATUM_CAUTIONS.format(words=stratum_words(stratum)))
     try:
         from ..diagnostics import diagnostic_warnings
 
@@ -183,7 +191,8 @@ def _summary_rows(estimator, level):
         }
     shares = {key.replace("share ", "").replace("-", "_"): value for key, value in rows.items()
               if key.startswith("share ")}  # fmt: skip
-    return shares, rows["naive survivor contrast (biased)"]
+    # The last row is the naive contrast (of the survivors, or of the stratum's cells).
+    return shares, rows[table.index[-1]]
 
 
 def _unavailable(name, error):
@@ -261,6 +270,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "seed": options.seed,
             "missing": options.missing,
             "survival_model": options.survival_model,
+            "stratum": options.stratum,
             "treatment_probability": options.treatment_probability,
         },
         "survival_model": survival_model_record(options, choice),
@@ -278,29 +288,35 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["bootstrap"] = bootstrap_section(collector, options, data)
     else:
         results["bootstrap"] = None
+    other_stratum = options.stratum != "always_survivor"
+    if other_stratum or outcome_for_everyone(data):
+        from ._strata import stratum_estimand, stratum_record
+
+        results["stratum"] = stratum_record(options.stratum, options.monotonicity, words)
+        if other_stratum:
+            results["estimand"] = stratum_estimand(results["estimand"], roles,
+                                                   options.monotonicity, options.stratum, words)
+    results["strata"] = strata_section(collector, options, data)
     honest_estimates(results["estimates"], collector, options, data, results["bootstrap"])
     analysis = Analysis(results, estimators, primary, data.covariates)
     try:
         results["diagnostics"] = diagnostics_section(collector, primary, data.covariates)
     except ImportError as error:
         results["diagnostics"] = _unavailable("Diagnostics", error)
-    try:
-        results["bounds"], analysis.bounds = bounds_section(
-            collector, options, data, None if shared.cross_fitted else shared
-        )
-        honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
-    except (ImportError, ValueError) as error:
-        results["bounds"] = _unavailable("Bounds", error)
-    try:
-        results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
-        honest_sensitivity(results["sensitivity"], primary)
-    except ImportError as error:
-        results["sensitivity"] = _unavailable("Sensitivity analysis", error)
+    if other_stratum:
+        # Both relax the always-survivor assumptions only: not shown for another stratum.
+        results["bounds"] = _unavailable("Bounds", _ALWAYS_SURVIVOR_ONLY)
+        results["sensitivity"] = _unavailable("Sensitivity analysis", _ALWAYS_SURVIVOR_ONLY)
+    else:
+        _bounds_and_sensitivity(results, analysis, collector, options, data, shared, primary)
     try:
         results["missing_data"] = missing_section(collector, primary, data, options.level)
     except ImportError as error:
         results["missing_data"] = _unavailable("Missing-data checks", error)
-    results["distributions"] = distributions_section(collector, primary, data, options)
+    results["distributions"] = (
+        _unavailable("Distributions", _ALWAYS_SURVIVOR_ONLY) if other_stratum
+        else distributions_section(collector, primary, data, options)
+    )
     try:
         from ._model_checks import model_checks_section
 
@@ -319,6 +335,13 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         collector, data, options, options.visit_population
     )
     results["assumptions"] = assumptions(roles, options.monotonicity, words)
+    if other_stratum:
+        from ._strata import stratum_assumption
+
+        results["assumptions"] = [
+            stratum_assumption(options.stratum, options.monotonicity)
+            if a["name"] == "Principal ignorability" else a for a in results["assumptions"]
+        ]
     if results["missing_data"]:
         from ._missing import MISSING_ASSUMPTION_TEXT
 
@@ -333,4 +356,29 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     if bootstrap_warning(options.bootstrap):
         results["warnings"].append(bootstrap_warning(options.bootstrap))
     results["cautions"] = list(cautions(words))
+    if other_stratum:
+        from ._strata import stratum_cautions
+
+        results["cautions"] = list(stratum_cautions(options.stratum, options.monotonicity, words))
     return analysis
+
+
+_ALWAYS_SURVIVOR_ONLY = (
+    "they concern the always-survivor stratum only, and the report is about another stratum "
+    "(--stratum)"
+)
+
+
+def _bounds_and_sensitivity(results, analysis, collector, options, data, shared, primary):
+    try:
+        results["bounds"], analysis.bounds = bounds_section(
+            collector, options, data, None if shared.cross_fitted else shared
+        )
+        honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
+    except (ImportError, ValueError) as error:
+        results["bounds"] = _unavailable("Bounds", error)
+    try:
+        results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
+        honest_sensitivity(results["sensitivity"], primary)
+    except ImportError as error:
+        results["sensitivity"] = _unavailable("Sensitivity analysis", error)

@@ -46,7 +46,9 @@ def _estimates_figure(results):
         rows.append(("Bounds (no principal ignorability)", None, bounds["lower"],
                      bounds["upper"], "#b5651d"))  # fmt: skip
     naive = results["naive_survivor_contrast"]
-    rows.append(("Naive survivor contrast (biased)", naive["estimate"], naive["ci_low"],
+    other = (results.get("stratum") or {}).get("name", "always_survivor") != "always_survivor"
+    rows.append(("Naive cell contrast (biased)" if other else "Naive survivor contrast (biased)",
+                 naive["estimate"], naive["ci_low"],
                  naive["ci_high"], _GREY))  # fmt: skip
     figure, ax = plt.subplots(figsize=(7.2, 0.55 * len(rows) + 1.2), layout="constrained")
     positions = np.arange(len(rows))[::-1]
@@ -61,7 +63,8 @@ def _estimates_figure(results):
     ax.set_yticks(positions, [label for label, *_ in rows])
     level = results["settings"]["level"]
     ax.set_xlabel(f"effect on {outcome_label(results)} ({level:.0%} intervals)")
-    ax.set_title("Survivor average causal effect", fontsize=10)
+    ax.set_title(f"Effect in the {results['stratum']['label']} stratum" if other
+                 else "Survivor average causal effect", fontsize=10)  # fmt: skip
     ax.grid(axis="x", color="0.92")
     return figure
 
@@ -150,6 +153,11 @@ def draw_figures(analysis):
          "drop principal ignorability. The naive comparison of survivors is biased when "
          "treatment changes who survives; it is shown only for contrast."),
     ]  # fmt: skip
+    if "lower" not in results.get("bounds", {}) and results.get("stratum"):
+        figures[0] = figures[0][:4] + (
+            "Points and lines: estimates and confidence intervals. The naive contrast of the "
+            "stratum's observed cells is biased when treatment changes the intermediate; it is "
+            "shown only for contrast.",)  # fmt: skip
     diagnostics = results.get("diagnostics", {})
     if diagnostics.get("available", True):
         from .. import plotting

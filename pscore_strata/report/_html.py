@@ -107,10 +107,18 @@ def _view(results, figures):
     if "pi_difference" in sens:
         selected = _every_few(sens["pi_difference"]["grid"], 7)
         selected_harmed = _every_few(sens["harmed_ratio"]["grid"], 7)
+    # Another stratum than the always-survivors (--stratum; report/_strata.py).
+    target = results.get("stratum")
+    other = target is not None and target["name"] != "always_survivor"
     words = results.get("wording") or _DEFAULT_WORDING
     shown, more = main_warnings(results)
     return {
         "r": results,
+        "other_stratum": other,
+        "effect_name": f"Effect in the {target['label']} stratum" if other else "SACE",
+        "target_share": (results["stratum_shares"].get(target["name"]) if other
+                         else results["stratum_shares"].get("always_survivor")),
+        "strata": results.get("strata"),
         # "Over visits" appears only for an analysis of several visits.
         "sections": tuple(s for s in SECTIONS if s != "visits" or results.get("visits")),
         "folded": FOLDED,

@@ -135,8 +135,11 @@ def results_table(results):
     effects = [i for i in range(len(frame)) if i not in shares]
     _numbers(frame, ["Estimate", "SE", level], effects)
     _numbers(frame, ["Estimate", "SE", level], shares)
+    target = results.get("stratum") or {}
+    among = (target["label"] if target.get("name", "always_survivor") != "always_survivor"
+             else "always-survivors")  # fmt: skip
     caption = (f"Effect of {words['treated_arm']} versus {words['control_arm']} on {outcome} "
-               f"among always-survivors (n = {count(results['data_overview']['n_rows_analyzed'])}"
+               f"among {among} (n = {count(results['data_overview']['n_rows_analyzed'])}"
                f" {words['units']})")  # fmt: skip
     footnote = [
         f"SACE: survivor average causal effect, the mean difference in {outcome} between "

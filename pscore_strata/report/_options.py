@@ -71,6 +71,9 @@ class AnalysisOptions:
     # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
     # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
+    # The principal stratum whose effect the report is about (--stratum; derivation in
+    # docs/guide/derivations/strata.md).
+    stratum: str = "always_survivor"
     # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
     visit_population: str = "each"
     # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
@@ -154,7 +157,8 @@ def build_estimator(method, options, n_rows=None):
     """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
-                  random_state=options.seed, missing=options.missing)  # fmt: skip
+                  random_state=options.seed, missing=options.missing,
+                  stratum=options.stratum)  # fmt: skip
     boosting = options.learner != "linear"
     if method != "weighting" and boosting:
         from sklearn.ensemble import HistGradientBoostingRegressor
