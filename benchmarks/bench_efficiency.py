@@ -35,7 +35,7 @@ from sklearn.ensemble import HistGradientBoostingClassifier, HistGradientBoostin
 from threadpoolctl import threadpool_limits
 
 import pscore_strata as ps
-from pscore_strata.estimators import _formulas
+from pscore_strata.estimands import _formulas
 
 EFFECT = 1.0
 

@@ -22,12 +22,8 @@ from joblib import Parallel, delayed
 from threadpoolctl import threadpool_limits
 
 import pscore_strata as ps
-from pscore_strata.inference import (
-    multiplier_contributions,
-    multiplier_draws,
-    run_tasks,
-    spawn_seeds,
-)
+from pscore_strata.inference import multiplier_contributions, multiplier_draws, spawn_seeds
+from pscore_strata.inference._tasks import run_tasks
 
 BLOCK = 250  # replicates per task, as in ps.bootstrap
 

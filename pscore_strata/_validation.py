@@ -7,13 +7,20 @@ found and says what to do.
 
 from __future__ import annotations
 
-import numbers
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from ._features import check_features, reject_sparse
+from ._vectors import (
+    MISSING_AT_RANDOM_ASSUMPTION,
+    binary_indicator,
+    is_missing,
+    is_real,
+    numbers_or_missing,
+    one_dimensional,
+)
 
 __all__ = ["TruncationData", "check_truncation_data", "check_level", "check_features"]
 
@@ -103,119 +110,6 @@ class TruncationData:
         )
 
 
-def _one_dimensional(values, name):
-    array = _as_vector(values, name)
-    if array.dtype.kind == "c":
-        raise TypeError(
-            f"`{name}` has complex values (dtype {array.dtype}); pass real numbers. Taking the "
-            "real part silently would drop the imaginary part."
-        )
-    if array.dtype.kind in "mM" or _holds_dates(array):
-        raise TypeError(
-            f"`{name}` holds dates or durations (dtype {array.dtype}), which would be read as "
-            "nanoseconds. Convert them to numbers in the unit you mean, for example days: "
-            "(end - start) / pd.Timedelta(days=1)."
-        )
-    return array
-
-
-def _holds_dates(array):
-    if array.dtype.kind != "O" or array.size == 0:
-        return False
-    first = next((v for v in array if not _is_missing(v)), None)
-    return isinstance(first, pd.Timestamp | pd.Timedelta | np.datetime64 | np.timedelta64)
-
-
-def _is_missing(value):
-    return value is None or (not isinstance(value, str) and bool(pd.isna(value)))
-
-
-def _numbers_or_missing(array, name):
-    """An object array of real numbers (and missing markers) as floats; text is refused."""
-    if array.dtype.kind not in "OUS":
-        return array
-    bad = [i for i, v in enumerate(array) if not (_is_missing(v) or _is_real(v))]
-    if bad:
-        raise TypeError(
-            f"`{name}` must be numeric; found non-numeric value(s) such as "
-            f"{[array[i] for i in bad[:5]]} at row position(s) {bad[:5]}. Convert it to numbers "
-            "first (for example with pandas.to_numeric)."
-        )
-    return np.array([np.nan if _is_missing(v) else float(v) for v in array], dtype=float)
-
-
-def _is_real(value):
-    return isinstance(value, numbers.Real) and not isinstance(value, str)
-
-
-def _as_vector(values, name):
-    if values is None:
-        raise ValueError(f"`{name}` is required: pass one value per row of X.")
-    if isinstance(values, pd.DataFrame):
-        if values.shape[1] != 1:
-            raise ValueError(
-                f"`{name}` must be one-dimensional; got a DataFrame with {values.shape[1]} "
-                "columns. Pass a single column (a Series)."
-            )
-        values = values.iloc[:, 0]
-    if isinstance(values, pd.Series):
-        values = values.to_numpy()
-    array = np.asarray(values)
-    if array.ndim == 2 and 1 in array.shape:
-        array = array.ravel()
-    if array.ndim != 1:
-        raise ValueError(f"`{name}` must be one-dimensional; got an array of shape {array.shape}.")
-    return array
-
-
-MISSING_AT_RANDOM_ASSUMPTION = (
-    "missing at random given X within each arm: whether the survival status is known does not "
-    "depend on survival or the outcome, and whether a survivor's outcome is observed does not "
-    "depend on the outcome, once X and the arm are fixed"
-)
-
-
-def _binary_indicator(values, name, allow_missing=False):
-    array = _one_dimensional(values, name)
-    if array.dtype.kind == "O" and all(_is_missing(v) or _is_real(v) for v in array):
-        # Python ints or bools, pandas nullable integers or booleans (pd.NA): NaN floats.
-        array = np.array([np.nan if _is_missing(v) else float(v) for v in array], dtype=float)
-    if array.dtype.kind in "OUS" or isinstance(array.dtype, pd.CategoricalDtype):
-        found = pd.unique(array)[:10]
-        raise TypeError(
-            f"`{name}` must be numeric 0/1 (or boolean); found values {list(found)}. "
-            "Recode it as 1/0 before fitting."
-        )
-    if array.dtype.kind == "f" and np.isnan(array).any():
-        count = int(np.isnan(array).sum())
-        if allow_missing:
-            found = np.unique(array[~np.isnan(array)])
-            if not np.all(np.isin(found, [0, 1])):
-                raise ValueError(
-                    f"`{name}` must contain only 0, 1 and NaN (unknown); found values "
-                    f"{found[:10].tolist()}. Recode it as 1/0."
-                )
-            return array
-        if name == "survival":
-            raise ValueError(
-                f"`survival` has {count} missing value(s) (NaN): survival status unknown "
-                "(lost to follow-up). Pass missing=\"at_random\" to the estimator to model "
-                f"follow-up, which assumes {MISSING_AT_RANDOM_ASSUMPTION}; otherwise resolve "
-                "those rows first."
-            )
-        raise ValueError(
-            f"`{name}` has {count} missing value(s) (NaN). Every row needs a known 0/1 {name}; "
-            "drop or resolve those rows first."
-        )
-    found = np.unique(array)
-    if not np.all(np.isin(found, [0, 1])):
-        raise ValueError(
-            f"`{name}` must contain only 0 and 1; found values {found[:10].tolist()}"
-            f"{' ...' if found.size > 10 else ''}. Recode it as 1/0."
-        )
-    return array.astype(np.int8)
-
-
 def check_truncation_data(
     X, y, treatment, survival, sample_weight=None, groups=None, models=(None, None, None),
     missing="error", *, stratum=None, survival_name="survival",
@@ -230,8 +124,8 @@ def check_truncation_data(
     """
     all_outcomes = stratum is not None
     check_choice(missing, "missing", ("error", "at_random"))
-    treatment = _binary_indicator(treatment, "treatment")
-    survival = _binary_indicator(survival, survival_name, allow_missing=missing == "at_random")
+    treatment = binary_indicator(treatment, "treatment")
+    survival = binary_indicator(survival, survival_name, allow_missing=missing == "at_random")
     status_known = None
     if survival.dtype.kind == "f":
         status_known = (~np.isnan(survival)).astype(np.int8)
@@ -241,7 +135,7 @@ def check_truncation_data(
         raise ValueError(
             f"`treatment` has {n} rows but `survival` has {survival.shape[0]}; they must match."
         )
-    outcome = _one_dimensional(y, "y")
+    outcome = one_dimensional(y, "y")
     if outcome.shape[0] != n:
         raise ValueError(
             f"`y` has {outcome.shape[0]} rows but `treatment` has {n}; they must match."
@@ -288,7 +182,7 @@ def check_truncation_data(
         weights = np.ones(n)
         weighted = False
     else:
-        weights = _numbers_or_missing(_one_dimensional(sample_weight, "sample_weight"),
+        weights = numbers_or_missing(one_dimensional(sample_weight, "sample_weight"),
                                       "sample_weight").astype(float)  # fmt: skip
         if weights.shape[0] != n:
             raise ValueError(
@@ -309,7 +203,7 @@ def check_truncation_data(
         weighted = True
 
     if groups is not None:
-        groups = _one_dimensional(groups, "groups")
+        groups = one_dimensional(groups, "groups")
         if groups.shape[0] != n:
             raise ValueError(f"`groups` has {groups.shape[0]} rows but `treatment` has {n}.")
         if pd.isna(groups).any():
@@ -399,9 +293,9 @@ def _outcome_values(outcome, survival, status_known, all_outcomes=False):
     bad = []
     for i in np.flatnonzero(may_hold):
         v = outcome[i]
-        if _is_real(v):
+        if is_real(v):
             values[i] = float(v)
-        elif not _is_missing(v) and survival[i] == 1:
+        elif not is_missing(v) and survival[i] == 1:
             bad.append(i)
     if bad:
         raise TypeError(

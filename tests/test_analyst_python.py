@@ -56,7 +56,7 @@ def test_bootstrap_result_repr_shows_estimate_se_and_interval():
 def test_progress_bar_is_tqdm_auto_in_a_notebook(monkeypatch):
     from tqdm.auto import tqdm as auto_tqdm
 
-    from pscore_strata.inference import _influence
+    from pscore_strata.inference import _tasks as _influence
 
     monkeypatch.setattr(_influence, "_in_notebook", lambda: True)
     bar = _influence._progress_bar(None, 10, "bootstrap")

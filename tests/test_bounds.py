@@ -9,7 +9,7 @@ from scipy import stats
 from sklearn.base import clone
 
 import pscore_strata as ps
-from pscore_strata.assumptions._bounds import (
+from pscore_strata.assumptions._trimming import (
     binary_trimmed_means,
     imbens_manski_interval,
     trimmed_means,

@@ -6,6 +6,7 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import ALL_ESTIMATORS, ESTIMATORS, fit_any, fitted_numbers
 from sklearn.base import clone
 from sklearn.compose import make_column_transformer
 from sklearn.linear_model import LinearRegression, LogisticRegression
@@ -15,7 +16,6 @@ from sklearn.preprocessing import OneHotEncoder, StandardScaler
 import pscore_strata as ps
 from pscore_strata.datasets import make_truncation
 
-ESTIMATORS = [ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust]
 DATA = make_truncation(1500, n_features=3, random_state=21)
 
 
@@ -138,3 +138,73 @@ def test_stratum_model_conventions():
     pd.testing.assert_frame_equal(X, before)
     again = pickle.loads(pickle.dumps(fitted))
     np.testing.assert_array_equal(again.predict_proba(X), fitted.predict_proba(X))
+
+
+# -- the same checks over every estimator class, the bounds and the stratum model included -----
+def _fit_any(est, X=DATA.X, y=DATA.y, treatment=DATA.treatment, survival=DATA.survival):
+    return fit_any(est, X, y, treatment, survival)
+
+
+@pytest.mark.parametrize("cls", ALL_ESTIMATORS)
+def test_every_estimator_clones_and_sets_params(cls):
+    est = cls(monotonicity="decreasing")
+    params = est.get_params()
+    copy = clone(est)
+    assert copy.get_params() == params
+    copy.set_params(monotonicity="increasing")
+    assert copy.monotonicity == "increasing" and est.monotonicity == "decreasing"
+    fitted = _fit_any(cls())
+    assert clone(fitted).get_params() == fitted.get_params()
+    assert not hasattr(clone(fitted), "n_features_in_")
+
+
+@pytest.mark.parametrize("cls", ALL_ESTIMATORS)
+def test_every_estimator_checks_parameters_in_fit(cls):
+    est = cls(monotonicity="sideways")  # stored as given by __init__
+    assert est.monotonicity == "sideways"
+    with pytest.raises(ValueError, match="`monotonicity`"):
+        _fit_any(est)
+
+
+@pytest.mark.parametrize("cls", ALL_ESTIMATORS)
+def test_every_estimator_pickles(cls):
+    est = _fit_any(cls())
+    again = pickle.loads(pickle.dumps(est))
+    np.testing.assert_array_equal(fitted_numbers(again, DATA.X), fitted_numbers(est, DATA.X))
+
+
+@pytest.mark.parametrize("cls", ALL_ESTIMATORS)
+def test_every_estimator_leaves_its_inputs_alone(cls):
+    X = pd.DataFrame(DATA.X, columns=["a", "b", "c"])
+    y, t, s = pd.Series(DATA.y), DATA.treatment.copy(), list(DATA.survival)
+    before = (X.copy(), y.copy(), t.copy(), list(s))
+    _fit_any(cls(), X=X, y=y, treatment=t, survival=s)
+    pd.testing.assert_frame_equal(X, before[0])
+    pd.testing.assert_series_equal(y, before[1])
+    np.testing.assert_array_equal(t, before[2])
+    assert s == before[3]
+
+
+def _scaled_logistic():
+    return make_pipeline(StandardScaler(), LogisticRegression(C=np.inf, tol=1e-10, max_iter=1000))
+
+
+@pytest.mark.parametrize("cls", ALL_ESTIMATORS)
+def test_every_estimator_takes_pipelines(cls):
+    # A standardized unpenalized logistic regression is a reparametrization of the default
+    # model: the same fitted probabilities, so the same numbers.
+    if cls is ps.PrincipalScoreModel:
+        # EM around the pipeline reaches the maximum the default finds directly (Dempster,
+        # Laird & Rubin 1977: EM's fixed point maximizes the observed-data likelihood).
+        est = _fit_any(cls(_scaled_logistic(), max_iter=400, tol=1e-10, init="shares"))
+        reference = _fit_any(cls())
+        np.testing.assert_allclose(fitted_numbers(est, DATA.X),
+                                   fitted_numbers(reference, DATA.X), atol=2e-3)  # fmt: skip
+        return
+    params = dict(treatment_model=_scaled_logistic(), survival_model=_scaled_logistic())
+    if "n_bootstrap" in cls().get_params():
+        params["n_bootstrap"] = 0
+    est = _fit_any(cls(**params))
+    reference = _fit_any(cls())
+    assert fitted_numbers(est, DATA.X)[0] == pytest.approx(fitted_numbers(reference, DATA.X)[0],
+                                                           abs=1e-4)  # fmt: skip

@@ -135,12 +135,13 @@ def test_equals_the_per_value_path(current, quantity):
 
 @pytest.mark.parametrize("name", ["weighting-weighted", "regression-small", "robust-decreasing"])
 def test_band_covariance_equals_explicit_contributions(name):
-    # Source: C'C of inference._influence.multiplier_contributions on the explicit influence
+    # Source: C'C of inference._resampling.multiplier_contributions on the explicit influence
     # matrix (rows x values), the covariance the Gaussian multiplier draws used before.
     from pscore_strata.distributions._cdf import _band_critical, default_values
     from pscore_strata.distributions._expansion import expansion_covariance
     from pscore_strata.distributions._paths import cdf_path, prepare
-    from pscore_strata.inference._influence import influence_std_error, multiplier_contributions
+    from pscore_strata.inference._resampling import multiplier_contributions
+    from pscore_strata.inference._standard_errors import influence_std_error
 
     est, X, _ = _cases()[name]
     prepared = prepare(est, X)

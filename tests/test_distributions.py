@@ -19,7 +19,7 @@ from statsmodels.stats.weightstats import DescrStatsW
 import pscore_strata as ps
 from pscore_strata.assumptions import imbens_manski_interval
 from pscore_strata.datasets import make_truncation
-from pscore_strata.inference._influence import influence_std_error
+from pscore_strata.inference._standard_errors import influence_std_error
 
 
 def skewed(y):
@@ -270,7 +270,7 @@ def test_quantile_bounds_contain_the_truth(no_pi, strata):
 def test_quantile_bounds_reduce_to_the_mean_bounds_construction(no_pi):
     # Source: the construction documented in assumptions/_quantile_bounds.py, checked by hand.
     from pscore_strata.assumptions._quantile_bounds import trimmed_mixtures
-    from pscore_strata.estimators import _formulas
+    from pscore_strata.estimands import _formulas
     from pscore_strata.nuisance._fit import fit_nuisance
 
     data, u, _ = no_pi

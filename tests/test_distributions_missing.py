@@ -101,7 +101,7 @@ def test_quantile_bounds_mean_of_the_trimmed_mixtures_equals_the_mean_bounds():
     # with the same observation weights): the means of the trimmed mixtures G_L and G_U minus
     # the pure arm's mean are the mean bounds (see assumptions/_quantile_bounds.py).
     from pscore_strata.assumptions._quantile_bounds import trimmed_mixtures
-    from pscore_strata.estimators import _formulas
+    from pscore_strata.estimands import _formulas
 
     data = make_truncation(2500, n_features=3, random_state=5, follow_up=(0.8, 0.5),
                            response=(0.8, -0.5))  # fmt: skip

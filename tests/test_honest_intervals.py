@@ -14,7 +14,8 @@ from threadpoolctl import threadpool_limits
 
 import pscore_strata as ps
 from pscore_strata import report
-from pscore_strata.cli import _print_key_results, main
+from pscore_strata.cli import main
+from pscore_strata.report._console import print_key_results
 from pscore_strata.report._honesty import HONEST_METHODS, accounts_for_nuisance, honest_estimates
 
 IGNORES = "influence function (nuisance ignored)"
@@ -34,7 +35,7 @@ ROLES = report.ColumnRoles(outcome="outcome", treatment="treatment", survival="s
 
 def printed_interval_methods(analysis, capsys, tmp_path):
     """(label, has an interval) for each estimator line the command line prints."""
-    _print_key_results(analysis.results, tmp_path)
+    print_key_results(analysis.results, tmp_path)
     lines = capsys.readouterr().out.splitlines()
     shown = {}
     for record in analysis.results["estimates"]:

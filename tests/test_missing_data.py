@@ -15,8 +15,9 @@ from scipy.optimize import approx_fprime
 from scipy.special import expit
 
 import pscore_strata as ps
+from pscore_strata.assumptions._trimming import trimming_bounds
 from pscore_strata.datasets import make_truncation
-from pscore_strata.estimators import _formulas
+from pscore_strata.estimands import _formulas
 from pscore_strata.nuisance import fit_nuisance
 
 ESTIMATORS = (ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust)
@@ -348,16 +349,15 @@ def test_bounds_terms_of_follow_up_and_response_models_match_numerical_derivativ
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         nuisance = fit_nuisance(d)
-    bounds = ps.TrimmingBounds(missing="at_random")
     cells = np.zeros(d.n_samples, dtype=int)
 
     def compute(nuisance, drop=None):
         o = _formulas.orient(d, nuisance, "increasing")
         if drop is not None:
             o = replace(o, parametric={k: v for k, v in o.parametric.items() if k != drop})
-        bounds._compute(o, cells, d)
-        return np.array([bounds.lower_, bounds.upper_]), (bounds.influence_lower_,
-                                                          bounds.influence_upper_)  # fmt: skip
+        fitted = trimming_bounds(o, cells, d)
+        bounds = np.array([fitted["lower_"], fitted["upper_"]])
+        return bounds, (fitted["influence_lower_"], fitted["influence_upper_"])
 
     _, full = compute(nuisance)
     _, without = compute(nuisance, drop=key)

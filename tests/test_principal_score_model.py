@@ -364,7 +364,8 @@ def test_sandwich_matches_a_numerical_stacked_m_estimation(kind, weighted):
     covariance = bread @ meat @ bread.T
     contrast = np.zeros(params.size)
     contrast[-2:] = [1.0, -1.0]
-    # The library's influence-value SE carries the factor n / (n - 1) (inference/_influence.py).
+    # The library's influence-value SE carries the factor n / (n - 1)
+    # (inference/_standard_errors.py).
     reference = np.sqrt(contrast @ covariance @ contrast * len(X) / (len(X) - 1))
     assert est.std_error_ == pytest.approx(reference, rel=1e-4)
 

@@ -146,7 +146,7 @@ def test_robust_influence_function_matches_monte_carlo_spread():
 @pytest.mark.parametrize("kind", ["difference", "ratio"])
 def test_functional_partials_match_finite_differences(plain, kind):
     est = _fit("robust", plain)
-    from pscore_strata.estimators import _formulas
+    from pscore_strata.estimands import _formulas
 
     o = _formulas.orient(est.training_data_, est.nuisance_, "increasing")
     setting = (0.4, None, 0.2) if kind == "difference" else (0.0, 1.3, 0.2)

@@ -12,7 +12,7 @@ import pscore_strata as ps
 from pscore_strata.assumptions._sensitivity import adjusted_effect
 from pscore_strata.assumptions._tipping import _path
 from pscore_strata.datasets import make_truncation
-from pscore_strata.inference._influence import influence_std_error, normal_interval
+from pscore_strata.inference._standard_errors import influence_std_error, normal_interval
 
 NULL = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
 

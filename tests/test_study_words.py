@@ -100,9 +100,9 @@ def test_sensitivity_grid_is_readable_and_tipping_point_has_units(workplace, cap
     if tip is not None:
         shown = f"{number(tip)} productivity units"
         assert shown in visible_text(html)
-        from pscore_strata.cli import _print_key_results
+        from pscore_strata.report._console import print_key_results
 
-        _print_key_results(results, ".")
+        print_key_results(results, ".")
         assert shown in capsys.readouterr().out  # the same digits on screen and in the report
     harmed = results["sensitivity"]["harmed_ratio"]
     assert harmed["informative_max"] == harmed["grid"][-1]["value"] <= 0.95

@@ -20,10 +20,19 @@ from dataclasses import replace
 import numpy as np
 import pandas as pd
 
-from ..estimators import _formulas
+from ..estimands._formulas import (
+    MeanParts,
+    orient,
+    ratio,
+    robust_means,
+    robust_terms,
+    scale_effect,
+    unorient,
+    weighting_means,
+)
 from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
+from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 
 __all__ = ["outcome_shift_grid", "shifted_effect"]
 
@@ -43,27 +52,27 @@ def _shifted_view(o, shift_mixed, shift_pure):
 def _response_terms(formula, o, shift_mixed, shift_pure):
     """Influence terms of the response models' estimation that the shift adds, by role."""
     co = o.coarsening
-    if formula is _formulas.robust_means:
+    if formula is robust_means:
         # Efficient influence function of E[p_pure (1 - r_t)] adds -p_pure times the response
         # residual among the arm's known survivors over their probability (Hahn 1998).
-        phi_e = _formulas.robust_terms(o)[0]
+        phi_e = robust_terms(o)[0]
         share = o.weighted_mean(phi_e)
         known_survivor = co.known * o.survival
-        mixed = _formulas._ratio(
+        mixed = ratio(
             o.p_pure * o.mixed * known_survivor * (co.responded - co.r_mixed),
             o.pi * co.c_mixed * o.p_mixed,
         )
-        pure = _formulas._ratio(
+        pure = ratio(
             (1 - o.mixed) * known_survivor * (co.responded - co.r_pure),
             (1 - o.pi) * co.c_pure,
         )
         return -shift_mixed * mixed / share, -shift_pure * pure / share
     if o.parametric is None:
         return 0.0, 0.0
-    if formula is _formulas.weighting_means:
+    if formula is weighting_means:
         weights = (
-            _formulas._ratio(co.observed_mixed * o.p_pure, o.pi * o.p_mixed),
-            _formulas._ratio(co.observed_pure, 1 - o.pi),
+            ratio(co.observed_mixed * o.p_pure, o.pi * o.p_mixed),
+            ratio(co.observed_pure, 1 - o.pi),
         )
     else:
         weights = (o.p_pure, o.p_pure)
@@ -78,7 +87,7 @@ def shifted_effect(estimator, nuisance, shift_treated, shift_control):
     """Effect and influence values with non-responders' means shifted by the given amounts."""
     formula = type(estimator)._formula
     data = estimator.training_data_
-    o = _formulas.orient(data, nuisance, estimator.monotonicity)
+    o = orient(data, nuisance, estimator.monotonicity)
     if o.coarsening is None:
         parts = formula(o)
     else:
@@ -89,14 +98,14 @@ def shifted_effect(estimator, nuisance, shift_treated, shift_control):
         with np.errstate(divide="ignore", invalid="ignore"):
             parts = formula(shifted)
             extra_mixed, extra_pure = _response_terms(formula, shifted, shift_mixed, shift_pure)
-        extra = _formulas._unorient(o, 0.0, 0.0, extra_mixed, extra_pure)
-        parts = _formulas.MeanParts(
+        extra = unorient(o, 0.0, 0.0, extra_mixed, extra_pure)
+        parts = MeanParts(
             parts.mean_treated,
             parts.mean_control,
             parts.influence_treated + extra.influence_treated,
             parts.influence_control + extra.influence_control,
         )
-    return _formulas.scale_effect(parts, estimator.scale)
+    return scale_effect(parts, estimator.scale)
 
 
 def _check_shift(value):

@@ -23,9 +23,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ..estimators import _formulas
+from ..estimands._formulas import orient, scale_effect
 from ..estimators._repeats import median_aggregate
-from ..inference._influence import influence_std_error
+from ..inference._standard_errors import influence_std_error
 
 __all__ = ["SensitivityPath"]
 
@@ -63,7 +63,7 @@ class SensitivityPath:
         fits = getattr(estimator, "_repeat_fits", None) or [estimator.nuisance_]
         # Per fit: the oriented view, its sandwich pieces and a cache of parameter-free arrays.
         self.views = [
-            (_formulas.orient(data, nuisance, estimator.monotonicity), nuisance.parametric, {})
+            (orient(data, nuisance, estimator.monotonicity), nuisance.parametric, {})
             for nuisance in fits
         ]
         self._lines = {}
@@ -75,7 +75,7 @@ class SensitivityPath:
         for o, parametric, cache in self.views:
             parts, n_clipped = self.adjust(self.formula, self.estimator, o, parametric,
                                            delta, eps, xi, cache)  # fmt: skip
-            effect, influence = _formulas.scale_effect(parts, self.estimator.scale)
+            effect, influence = scale_effect(parts, self.estimator.scale)
             effects.append(float(effect))
             errors.append(influence_std_error(influence, self.weights, self.groups))
             clipped = max(clipped, n_clipped)

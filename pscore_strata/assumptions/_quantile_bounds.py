@@ -36,7 +36,8 @@ from ..distributions._quantiles import (
     quantiles_of,
     silverman_bandwidth,
 )
-from ..inference._influence import estimator_dof, influence_std_error
+from ..inference._standard_errors import estimator_dof, influence_std_error
+from ._trimming import imbens_manski_interval
 
 __all__ = ["trimmed_mixtures", "quantile_bounds", "add_quantile_bounds", "quantile_intervals"]
 
@@ -62,8 +63,6 @@ def add_quantile_bounds(bounds, o, labels, data):
 def quantile_intervals(table, level=0.95, dof=None):
     """Add Imbens-Manski intervals (``ci_low``, ``ci_high``) at ``level`` to a bounds table
     (t reference with ``dof`` degrees of freedom under few clusters)."""
-    from ._bounds import imbens_manski_interval
-
     level = check_level(level)
     table = table.copy()
     ends = [imbens_manski_interval(r.lower, r.upper, r.std_error_lower, r.std_error_upper, level,

@@ -2,7 +2,7 @@
 
 Every quantity is a formula over the per-row nuisance predictions a fitted estimator stored
 (``est.nuisance_``, ``est.training_data_``), written in the oriented view of
-:func:`pscore_strata.estimators._formulas.orient`: the *mixed* arm's survivors are
+:func:`pscore_strata.estimands._formulas.orient`: the *mixed* arm's survivors are
 always-survivors plus the *helped* stratum (protected units when treatment can only help
 survival), the *pure* arm's are always-survivors plus the *opposite* stratum, which monotonicity
 rules out.
@@ -30,174 +30,17 @@ import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
 from .._validation import check_level
-from ..estimators import _coarsening, _formulas
+from ..estimands._formulas import orient, scale_effect, unorient
 from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
 from ..estimators._stratum_formulas import require_always_survivor
 from ..estimators._summary import CAUTIONS
-from ..inference._influence import estimator_dof, normal_interval
+from ..inference._standard_errors import estimator_dof, normal_interval
+from ._adjusted_means import _regression, _robust, _Stratum, _weighting  # noqa: F401 (_Stratum: tests)
 from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
 
-_NULL = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
-
-
-class _Stratum:
-    """Always-survivor score ``e_a`` and the mixed-arm functional ``G = e_a mu_mixed(X)``.
-
-    ``G`` is linear in the mixed-arm outcome mean ``m``, so the same function applied to an
-    observed ``Y`` gives the weighting estimator's numerator. The partial derivatives in
-    ``p_pure``, ``p_mixed`` and ``m`` feed both the efficient influence function and the
-    M-estimation corrections.
-    """
-
-    def __init__(self, o, delta, eps, xi):
-        self.o, self.delta, self.eps, self.xi = o, delta, eps, xi
-        p_p, p_m = o.p_pure, o.p_mixed
-        self.e_always = (p_p - xi * p_m) / (1 - xi)
-        self.e_helped = (p_m - p_p) / (1 - xi)
-        self.a_pure, self.a_mixed = 1 / (1 - xi), -xi / (1 - xi)
-        self.clipped = self.e_always < 0
-        if self.clipped.any():
-            # A negative always-survivor score is impossible: xi is too large for these rows.
-            self.e_always = np.where(self.clipped, 0.0, self.e_always)
-            self.a_pure = np.where(self.clipped, 0.0, self.a_pure)
-            self.a_mixed = np.where(self.clipped, 0.0, self.a_mixed)
-
-    def g(self, m):
-        """``G`` with its partials ``(G, dG/dp_pure, dG/dp_mixed, dG/dm)``."""
-        e_a, e_h, p_m = self.e_always, self.e_helped, self.o.p_mixed
-        a_p, a_m, h = self.a_pure, self.a_mixed, 1 / (1 - self.xi)
-        if self.eps is not None:
-            eps = self.eps
-            denominator = e_a + eps * e_h
-            d_pp = a_p - eps * h
-            d_pm = a_m + eps * h
-            k = e_a * p_m / denominator
-            k_pp = (a_p * p_m * denominator - e_a * p_m * d_pp) / denominator**2
-            k_pm = ((a_m * p_m + e_a) * denominator - e_a * p_m * d_pm) / denominator**2
-            return k * m, k_pp * m, k_pm * m, k
-        delta = self.delta
-        shift = e_a * e_h / p_m
-        shift_pp = (a_p * e_h - e_a * h) / p_m
-        shift_pm = (a_m * e_h + e_a * h) / p_m - shift / p_m
-        return (
-            e_a * m - delta * shift,
-            a_p * m - delta * shift_pp,
-            a_m * m - delta * shift_pm,
-            e_a,
-        )
-
-
-def _ratio(o, numerator, denominator, derivatives, parametric):
-    """Hajek-type ratio ``sum(w num)/sum(w den)`` with influence values.
-
-    ``derivatives(mu)`` returns d f / d prediction for ``f = num - mu den``; they enter through
-    the M-estimation corrections only when ``parametric`` is true.
-    """
-    normalizer = o.weighted_mean(denominator)
-    mu = o.weighted_mean(numerator) / normalizer
-    f = numerator - mu * denominator
-    correction = o.corrections(derivatives(mu, f)) if parametric else 0.0
-    return mu, (f + correction) / normalizer
-
-
-def _weighting(o, st, parametric):
-    Y, pi = o.outcome, o.pi
-    # Observed survivors; with missing data they also carry 1 / (c r) (docs/missing-data.md).
-    base = o.observed_mixed / (pi * o.p_mixed)
-    g, g_pp, g_pm, _ = st.g(Y)
-
-    def mixed_derivatives(mu, f):
-        return {
-            "pi": -f / pi,
-            "p_pure": base * (g_pp - mu * st.a_pure),
-            "p_mixed": -f / o.p_mixed + base * (g_pm - mu * st.a_mixed),
-            **_coarsening.weight_derivatives(o, f, "mixed"),
-        }
-
-    mu_m, if_m = _ratio(o, base * g, base * st.e_always, mixed_derivatives, parametric)
-    base = o.observed_pure / ((1 - pi) * o.p_pure)
-
-    def pure_derivatives(mu, f):
-        return {
-            "pi": f / (1 - pi),
-            "p_pure": -f / o.p_pure + base * st.a_pure * (Y - mu),
-            "p_mixed": base * st.a_mixed * (Y - mu),
-            **_coarsening.weight_derivatives(o, f, "pure"),
-        }
-
-    mu_p, if_p = _ratio(o, base * st.e_always * Y, base * st.e_always, pure_derivatives, parametric)
-    return mu_m, mu_p, if_m, if_p
-
-
-def _regression(o, st, parametric):
-    g, g_pp, g_pm, g_m = st.g(o.m_mixed)
-
-    def mixed_derivatives(mu, f):
-        return {
-            "p_pure": g_pp - mu * st.a_pure,
-            "p_mixed": g_pm - mu * st.a_mixed,
-            "m_mixed": g_m,
-        }
-
-    def pure_derivatives(mu, f):
-        return {
-            "p_pure": st.a_pure * (o.m_pure - mu),
-            "p_mixed": st.a_mixed * (o.m_pure - mu),
-            "m_pure": st.e_always,
-        }
-
-    mu_m, if_m = _ratio(o, g, st.e_always, mixed_derivatives, parametric)
-    mu_p, if_p = _ratio(o, st.e_always * o.m_pure, st.e_always, pure_derivatives, parametric)
-    return mu_m, mu_p, if_m, if_p
-
-
-def _robust_pieces(o):
-    """The parameter-free arrays of :func:`_robust` (kept by a sensitivity path)."""
-    S, Y, pi = o.survival, o.outcome, o.pi
-    # Missing data: each residual over its observation probability (docs/missing-data.md).
-    return {
-        "resid_pure": o.known_pure * (S - o.p_pure) / (1 - pi),
-        "resid_mixed": o.known_mixed * (S - o.p_mixed) / pi,
-        "gap_mixed": Y - o.m_mixed,
-        "gap_pure": Y - o.m_pure,
-        "denominator_mixed": pi * o.p_mixed,
-        "denominator_pure": (1 - pi) * o.p_pure,
-    }
-
-
-def _robust(o, st, parametric, cache=None):
-    """Efficient-influence-function estimator of the adjusted means (docs/sensitivity.md).
-
-    For a functional ``E[G(p_p, p_m, m)]`` the efficient influence function adds to ``G`` each
-    partial derivative times the residual of that regression, inverse-weighted by the chance of
-    being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022, Theorem 1).
-    ``cache`` (a dict) keeps the parameter-free arrays between calls; the arithmetic is the
-    same with or without it.
-    """
-    if cache is None:
-        cache = {}
-    if "robust" not in cache:
-        cache["robust"] = _robust_pieces(o)
-    pieces = cache["robust"]
-    resid_pure, resid_mixed = pieces["resid_pure"], pieces["resid_mixed"]
-    g, g_pp, g_pm, g_m = st.g(o.m_mixed)
-    phi_mixed = (
-        g + g_pp * resid_pure + g_pm * resid_mixed
-        + g_m * o.observed_mixed * pieces["gap_mixed"] / pieces["denominator_mixed"]
-    )  # fmt: skip
-    score_resid = st.a_pure * resid_pure + st.a_mixed * resid_mixed
-    phi_e = st.e_always + score_resid
-    phi_pure = (
-        st.e_always * o.m_pure + o.m_pure * score_resid
-        + st.e_always * o.observed_pure * pieces["gap_pure"] / pieces["denominator_pure"]
-    )  # fmt: skip
-    share = o.weighted_mean(phi_e)
-    # A harmed ratio that empties the always-survivor stratum (share 0) has no effect: NaN.
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mu_m, mu_p = o.weighted_mean(phi_mixed) / share, o.weighted_mean(phi_pure) / share
-        return mu_m, mu_p, (phi_mixed - mu_m * phi_e) / share, (phi_pure - mu_p * phi_e) / share
+NULL_SETTING = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
 
 
 _FORMULAS = {
@@ -270,9 +113,9 @@ def _check_one_scale(pi_ratio, pi_difference):
 
 def _adjusted(formula, estimator, nuisance, delta, eps, xi):
     data = estimator.training_data_
-    o = _formulas.orient(data, nuisance, estimator.monotonicity)
+    o = orient(data, nuisance, estimator.monotonicity)
     parts, clipped = _adjust_view(formula, estimator, o, nuisance.parametric, delta, eps, xi)
-    effect, influence = _formulas.scale_effect(parts, estimator.scale)
+    effect, influence = scale_effect(parts, estimator.scale)
     return float(effect), influence, clipped
 
 
@@ -285,7 +128,7 @@ def _adjust_view(formula, estimator, o, parametric, delta, eps, xi, cache=None):
         mu_m, mu_p, if_m, if_p = _robust(o, st, False, cache)
     else:
         mu_m, mu_p, if_m, if_p = formula(o, st, parametric is not None)
-    return _formulas._unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
+    return unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
 
 
 def sensitivity_path(estimator):

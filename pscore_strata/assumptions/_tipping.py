@@ -12,9 +12,9 @@ import warnings
 import numpy as np
 from scipy import optimize
 
-from ..inference._influence import estimator_dof, normal_interval
+from ..inference._standard_errors import estimator_dof, normal_interval
 from ._sensitivity import (
-    _NULL,
+    NULL_SETTING,
     _check_estimator,
     _check_value,
     _effect_and_error,
@@ -65,8 +65,8 @@ def tipping_point(
     True
     """
     _check_estimator(estimator)
-    if parameter not in _NULL:
-        raise ValueError(f"`parameter` must be one of {list(_NULL)}; got {parameter!r}.")
+    if parameter not in NULL_SETTING:
+        raise ValueError(f"`parameter` must be one of {list(NULL_SETTING)}; got {parameter!r}.")
     if criterion not in ("interval", "estimate"):
         raise ValueError(f"`criterion` must be 'interval' or 'estimate'; got {criterion!r}.")
     data = estimator.training_data_
@@ -87,7 +87,7 @@ def tipping_point(
         setting = {parameter: _check_value(parameter, value)}
         return criterion_gap(*_effect_and_error(estimator, setting, path)[:2])
 
-    null = _NULL[parameter]
+    null = NULL_SETTING[parameter]
     search = _check_search(search, parameter, null)
     if distance(null) <= 0:
         return null

@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 from sklearn.exceptions import NotFittedError
 
-from ..estimators import _formulas
+from ..estimands._formulas import orient
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
 SMD_THRESHOLD = 0.1
@@ -54,7 +54,7 @@ def oriented_predictions(estimator):
     monotonicity = getattr(estimator, "monotonicity", "increasing")
     if getattr(estimator, "stratum_", "always_survivor") != "always_survivor":
         return estimator._oriented(estimator.training_data_, estimator.nuisance_)
-    return _formulas.orient(estimator.training_data_, estimator.nuisance_, monotonicity)
+    return orient(estimator.training_data_, estimator.nuisance_, monotonicity)
 
 
 def treated_indicator(o):

@@ -12,6 +12,8 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from ..nuisance._models import ConstantModel
+from ..nuisance._stratum_arms import StratumArm
 from ._arrays import oriented_predictions
 from ._cache import cached_diagnostic, without_strata
 from ._monotonicity import _strata_labels
@@ -39,8 +41,6 @@ def _quantile_groups(predicted, n_groups):
 
 def _stratum_model(estimator):
     """The fitted PrincipalScoreModel behind the survival side, or None when it is arm-wise."""
-    from ..nuisance._strata import StratumArm
-
     first = estimator.nuisance_.models[("survival", 1)][0]
     return first.strata if isinstance(first, StratumArm) else None
 
@@ -70,7 +70,7 @@ def _coefficient_count(model):
         model = model.steps[-1][1]
     if hasattr(model, "coef_") and hasattr(model, "intercept_"):
         return int(np.size(model.coef_) + np.size(model.intercept_))
-    if type(model).__name__ == "_ConstantModel":
+    if isinstance(model, ConstantModel):
         return 1
     return None
 

@@ -13,7 +13,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..nuisance._missing import missingness_counts
 from ._arrays import PROBABILITY_BOUNDS, ROW_SHARE_TOLERANCE, SMD_THRESHOLD, oriented_predictions
+from ._covariates import covariate_matrix, moments
 
 __all__ = ["missing_data_balance", "missing_data_summary", "missing_data_warnings"]
 
@@ -50,8 +52,6 @@ def missing_data_summary(estimator):
         ``min_follow_up_probability`` and ``min_response_probability`` (over the rows each
         model is fitted on; 1 where the model was not needed), the overlap of the two models.
     """
-    from ..nuisance._missing import missingness_counts
-
     oriented_predictions(estimator)  # a clear error for unfitted estimators
     table = pd.DataFrame(missingness_counts(estimator.training_data_)).set_index("arm")
     missingness = estimator.nuisance_.missingness
@@ -81,20 +81,18 @@ def missing_data_balance(estimator, X):
         weighted by the inverse of the fitted probability). SMDs use the standard deviation of
         the reference group; ``|SMD|`` above 0.1 is the common-practice signal of imbalance.
     """
-    from ._tables import _covariate_matrix, _moments
-
     groups = _groups(estimator)
-    names, Z = _covariate_matrix(X, estimator.training_data_.n_samples)
+    names, Z = covariate_matrix(X, estimator.training_data_.n_samples)
     missing = np.isnan(Z)
     observed = (~missing).astype(float)
     Z[missing] = 0.0
     table = pd.DataFrame(index=pd.Index(names, name="covariate"))
     for (check, arm), (reference, raw, weighted) in groups.items():
-        ref_mean, ref_var = _moments(Z, observed, reference)
+        ref_mean, ref_var = moments(Z, observed, reference)
         sd = np.sqrt(ref_var)
         with np.errstate(divide="ignore", invalid="ignore"):
             for prefix, w in (("raw_smd", raw), ("smd", weighted)):
-                mean = _moments(Z, observed, w)[0]
+                mean = moments(Z, observed, w)[0]
                 table[f"{prefix}_{check}_{arm}"] = np.where(sd > 0, (mean - ref_mean) / sd, 0.0)
     table.attrs["smd_threshold"] = SMD_THRESHOLD
     return table

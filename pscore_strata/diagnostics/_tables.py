@@ -30,6 +30,8 @@ from ._arrays import (
     treated_indicator,
 )
 from ._cache import always, cached_diagnostic
+from ._covariates import covariate_matrix, moments
+from ._missing import missing_data_warnings
 from ._monotonicity import monotonicity_check
 
 __all__ = [
@@ -43,90 +45,6 @@ __all__ = [
 
 _GROUPS = ("treated_survivors", "control_survivors", "everyone")
 _PAIRS = (("treated", "control"), ("treated", "everyone"), ("control", "everyone"))
-
-
-def _categorical_indicators(name, column):
-    levels = pd.Categorical(column)
-    names, values = [], []
-    for code, level in enumerate(levels.categories):
-        names.append(f"{name}={level}")
-        values.append((levels.codes == code).astype(float))
-    if (levels.codes < 0).any():
-        names.append(f"{name}=(missing)")
-        values.append((levels.codes < 0).astype(float))
-    return names, values
-
-
-def _covariate_matrix(X, n_rows):
-    """Expand covariates into balance rows: (names, covariates x rows matrix, NaN if missing)."""
-    if X is None:
-        raise ValueError(
-            "`X` is required for covariate balance: pass the covariates of the fitted rows "
-            "(the estimator does not keep them)."
-        )
-    if isinstance(X, pd.Series):
-        X = X.to_frame()
-    if isinstance(X, pd.DataFrame) and X.columns.duplicated().any():
-        raise ValueError(
-            f"`X` has duplicated column name(s) "
-            f"{sorted({str(c) for c in X.columns[X.columns.duplicated()]})}; each balance row "
-            "needs its own name. Rename or drop the copies."
-        )
-    if not isinstance(X, pd.DataFrame):
-        array = np.asarray(X)
-        if array.ndim != 2:
-            raise ValueError(
-                f"`X` must be two-dimensional (rows x covariates); got shape {array.shape}."
-            )
-        X = pd.DataFrame(array, columns=[f"x{j}" for j in range(array.shape[1])], copy=False)
-    if len(X) != n_rows:
-        raise ValueError(
-            f"`X` has {len(X)} rows but the estimator was fitted on {n_rows}; pass the "
-            "covariates of the fitted rows, in the same order."
-        )
-    if X.shape[1] == 0:
-        raise ValueError("`X` has no columns; pass at least one covariate.")
-    names, values = [], []
-    for label in X.columns:
-        column, name = X[label], str(label)
-        if column.dtype == object:
-            converted = pd.to_numeric(column, errors="coerce")
-            if converted.notna().sum() == column.notna().sum():
-                column = converted
-        numeric = pd.api.types.is_numeric_dtype(column) or pd.api.types.is_bool_dtype(column)
-        if not numeric or isinstance(column.dtype, pd.CategoricalDtype):
-            more_names, more_values = _categorical_indicators(name, column)
-            names += more_names
-            values += more_values
-            continue
-        array = column.to_numpy(dtype=float, na_value=np.nan)
-        if np.isinf(array).any():
-            raise ValueError(
-                f"`X` column {name!r} has infinite values; replace them before checking balance."
-            )
-        names.append(name)
-        values.append(array)
-        missing = np.isnan(array)
-        if missing.any():
-            # Means use the rows where the covariate is observed; the missingness indicator gets
-            # its own balance row so the dropped rows stay visible.
-            names.append(f"{name} (missing)")
-            values.append(missing.astype(float))
-    # Covariates x rows: each covariate is one contiguous row, cheap to stack and to reduce.
-    return names, np.vstack(values)
-
-
-def _moments(Z, observed, weights):
-    """Weighted means and variances per covariate (rows of ``Z``) over the observed entries.
-
-    ``Z`` is centered beforehand and zero where missing, so ``E[Z^2] - E[Z]^2`` loses no
-    precision; einsum avoids a covariates-by-rows temporary.
-    """
-    with np.errstate(divide="ignore", invalid="ignore"):
-        total = observed @ weights
-        mean = (Z @ weights) / total
-        variance = np.einsum("ji,ji,i->j", Z, Z, weights) / total - mean**2
-    return mean, np.maximum(variance, 0.0)
 
 
 NO_COVARIATES_NOTE = (
@@ -176,7 +94,7 @@ def balance_table(estimator, X):
         # No covariates: no row to balance; an empty table says so instead of failing.
         names, Z = [], np.zeros((0, o.weight.shape[0]))
     else:
-        names, Z = _covariate_matrix(X, o.weight.shape[0])
+        names, Z = covariate_matrix(X, o.weight.shape[0])
     missing = np.isnan(Z)
     observed = (~missing).astype(float)
     Z[missing] = 0.0  # Z is a fresh matrix built from X, never the caller's array
@@ -187,12 +105,12 @@ def balance_table(estimator, X):
     raw = survivor_weights(o)
     mean, variance = {}, {}
     for group, w in weights.items():
-        mean[group], variance[group] = _moments(Z, observed, w)
+        mean[group], variance[group] = moments(Z, observed, w)
     raw_mean, raw_variance = {}, {}
     for group, w in raw.items():
-        raw_mean[group], raw_variance[group] = _moments(Z, observed, w)
+        raw_mean[group], raw_variance[group] = moments(Z, observed, w)
     pooled = np.sqrt((raw_variance["treated_survivors"] + raw_variance["control_survivors"]) / 2)
-    overall = np.sqrt(_moments(Z, observed, o.weight)[1])
+    overall = np.sqrt(moments(Z, observed, o.weight)[1])
     pooled = np.where(pooled > 0, pooled, overall)
     table = pd.DataFrame(index=pd.Index(names, name="covariate"))
     for group in _GROUPS:
@@ -374,6 +292,4 @@ def diagnostic_warnings(estimator, X=None):
             f"forbids in {', '.join(map(str, wrong))} (95% intervals, Bonferroni-adjusted). "
             "Reconsider the monotonicity direction or use the sensitivity analysis."
         )
-    from ._missing import missing_data_warnings
-
     return messages + missing_data_warnings(estimator, o, X)

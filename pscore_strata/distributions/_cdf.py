@@ -8,7 +8,8 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_level
-from ..inference._influence import estimator_dof, gaussian_draws, reference_quantile, spawn_seeds
+from ..inference._resampling import gaussian_draws, spawn_seeds
+from ..inference._standard_errors import estimator_dof, reference_quantile
 from ._expansion import expansion_covariance
 from ._paths import cdf_path, prepare
 

@@ -30,7 +30,7 @@ import numpy as np
 from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 
-from ..nuisance._fit import _fit, _rows, default_binary_model
+from ..nuisance._models import default_binary_model, fit_model, take_rows
 from ._threshold_fits import ThresholdSandwich, fit_thresholds
 
 __all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "MAX_LEVELS"]
@@ -196,10 +196,10 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
                 failed = fitted_here[~converged]
             for j in failed:
                 labels = (y_rows <= thresholds[j]).astype(float)
-                fitted = _fit(clone(model), _rows(X, rows), labels,
+                fitted = fit_model(clone(model), take_rows(X, rows), labels,
                               w_rows if data.weighted else None)  # fmt: skip
                 predictions[:, np.searchsorted(fitted_here, j)] = fitted.predict_proba(
-                    _rows(X, test))[:, 1]
+                    take_rows(X, test))[:, 1]
             # No covariates, or one class only among these survivors: the weighted share.
             if every_row:
                 grid[arm][:, constant] = shares[constant]

@@ -175,10 +175,10 @@ def _cluster_contributions(expansion, h, codes, n_clusters):
 def expansion_covariance(expansion, sample_weight=None, groups=None):
     """``C'C`` of the multiplier-bootstrap contributions of ``expansion`` (``k x k``).
 
-    ``C`` are the contributions of :func:`pscore_strata.inference._influence
+    ``C`` are the contributions of :func:`pscore_strata.inference._resampling
     .multiplier_contributions` (``sqrt(G/(G-1)) (d_g - mean(d))``, ``d_g`` the weighted cluster
     sums over the total weight), so the diagonal is the squared standard error of
-    :func:`~pscore_strata.inference._influence.influence_std_error` and the matrix the
+    :func:`~pscore_strata.inference._standard_errors.influence_std_error` and the matrix the
     covariance of the Gaussian multiplier draws. Without clusters it is formed from the factors
     in O(n x bases^2 + k^2 x bases) time; with clusters from the ``G x k`` cluster sums.
     """

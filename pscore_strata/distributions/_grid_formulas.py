@@ -1,7 +1,7 @@
 """The estimators' formulas with ``Y -> 1{Y <= v}``, at every grid value at once.
 
 Each ``*_grid`` function is the formula of the same name in
-:mod:`pscore_strata.estimators._formulas`, line for line, with the outcome (and, for the
+:mod:`pscore_strata.estimands._formulas`, line for line, with the outcome (and, for the
 outcome-model estimators, the conditional CDF predictions) replaced by
 :class:`~._expansion.Expansion` objects over a grid of values, so one pass over the rows serves
 every value (cost O(n x bases), not O(n x values)). The formula layer stays the definition:
@@ -106,7 +106,7 @@ def _coarsening_factors(o, role):
 
 
 def weighting_grid(o, indicator, with_influence=True):
-    """:func:`~pscore_strata.estimators._formulas.weighting_means` on ``indicator``."""
+    """:func:`~pscore_strata.estimands._formulas.weighting_means` on ``indicator``."""
     w_mixed = _reciprocal(o.pi * o.p_mixed) * (o.observed_mixed * o.p_pure)
     normalizer = o.weighted_mean(w_mixed)
     weighted = indicator.scaled(w_mixed)
@@ -130,7 +130,7 @@ def weighting_grid(o, indicator, with_influence=True):
 
 
 def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
-    """:func:`~pscore_strata.estimators._formulas.regression_means` on expanded ``m``.
+    """:func:`~pscore_strata.estimands._formulas.regression_means` on expanded ``m``.
 
     ``blends`` maps ``"m_mixed"`` / ``"m_pure"`` to a function giving the conditional CDF
     fits' correction blocks for a per-row derivative (or to ``None``).
@@ -155,7 +155,7 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
 
 
 def robust_grid(o, indicator, m_mixed, m_pure, with_influence=True):
-    """:func:`~pscore_strata.estimators._formulas.robust_means` on expanded ``Y`` and ``m``."""
+    """:func:`~pscore_strata.estimands._formulas.robust_means` on expanded ``Y`` and ``m``."""
     S = o.survival
     pure_residual = _reciprocal(1 - o.pi) * (o.known_pure * (S - o.p_pure))
     phi_e = pure_residual + o.p_pure

@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_choice, check_level
-from ..inference._influence import estimator_dof, influence_std_error, reference_quantile
+from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
 from ._cdf import CAUTION, _method_note, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare

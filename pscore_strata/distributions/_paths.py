@@ -11,7 +11,7 @@ at ``v`` (DESIGN.md section 5b):
 
 All values are evaluated at once (:mod:`._grid_formulas`: one sort of the survivors, cumulative
 weighted sums, influence values in factored form), and the formula of
-:mod:`pscore_strata.estimators._formulas` itself is evaluated at one value per prepared
+:mod:`pscore_strata.estimands._formulas` itself is evaluated at one value per prepared
 estimator as a check (:func:`check_against_formula`). The nuisance predictions (treatment and
 survival) are the estimator's stored ones; the conditional CDF models are fitted once per
 fitted nuisance, covariates and CDF model, and shared by every later call (:func:`prepare`).
@@ -28,7 +28,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._features import feature_fingerprint
 from .._validation import check_features
-from ..estimators import _formulas
+from ..estimands._formulas import Oriented, orient, regression_means, robust_means, weighting_means
 from ..estimators._stratum_formulas import require_always_survivor
 from ._conditional import fit_conditional_cdf
 from ._expansion import Expansion, ValueGrid
@@ -37,9 +37,9 @@ from ._grid_formulas import regression_grid, robust_grid, weighting_grid
 __all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula"]
 
 _METHODS = {
-    _formulas.weighting_means: "weighting",
-    _formulas.regression_means: "regression",
-    _formulas.robust_means: "robust",
+    weighting_means: "weighting",
+    regression_means: "regression",
+    robust_means: "robust",
 }
 
 
@@ -61,7 +61,7 @@ class Prepared:
     """What every CDF evaluation of one fitted estimator shares."""
 
     method: str
-    oriented: _formulas.Oriented
+    oriented: Oriented
     data: object
     conditional: object  # ConditionalCDF or None (weighting)
     cdf_model_name: str = "unpenalized logistic regression"
@@ -132,7 +132,7 @@ def prepare(estimator, X=None, cdf_model=None):
         estimator, "The distribution functions (survivor_distribution, quantile_effects, "
         "ordinal_comparison)")  # fmt: skip
     data = estimator.training_data_
-    oriented = _formulas.orient(data, estimator.nuisance_, estimator.monotonicity)
+    oriented = orient(data, estimator.nuisance_, estimator.monotonicity)
     conditional = None
     if method != "weighting":
         if X is None and estimator.n_features_in_ > 0:
@@ -173,8 +173,8 @@ class CDFPath:
 
 
 _CHECK_ROWS = 100_000
-_FORMULAS = {"weighting": _formulas.weighting_means, "regression": _formulas.regression_means,
-             "robust": _formulas.robust_means}  # fmt: skip
+_FORMULAS = {"weighting": weighting_means, "regression": regression_means,
+             "robust": robust_means}  # fmt: skip
 
 
 def _view(prepared, value, with_influence):

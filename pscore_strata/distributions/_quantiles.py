@@ -21,14 +21,8 @@ from scipy import stats
 from sklearn.base import clone
 
 from .._validation import check_level
-from ..inference._influence import (
-    estimator_dof,
-    influence_std_error,
-    reference_quantile,
-    resample_rows,
-    spawn_seeds,
-)
-from ..inference._refits import _seed_models
+from ..inference._resampling import resample_rows, seed_models, spawn_seeds
+from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
 from ._cdf import CAUTION, default_values, observed_survivors
 from ._conditional import MAX_LEVELS
 from ._paths import cdf_path, prepare
@@ -270,7 +264,7 @@ def _bootstrap(estimator, X, cdf_model, quantiles, n_resamples, random_state):
         rows = resample_rows(data.treatment, seed, data.groups)
         X_b = None if X is None else (X.iloc[rows] if isinstance(X, pd.DataFrame) else
                                       np.asarray(X)[rows])  # fmt: skip
-        fitted = _seed_models(clone(template), seed)
+        fitted = seed_models(clone(template), seed)
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")

@@ -11,7 +11,7 @@ checks the CDFs built on it to 1e-8); a threshold where Newton does not converge
 
 :class:`ThresholdSandwich` holds what the outcome regression's M-estimation terms need from
 these fits (design, rows, targets, predictions), builds a threshold's
-:class:`~pscore_strata.nuisance._fit.ParametricFit` only when the per-value formula asks for
+:class:`~pscore_strata.nuisance._models.ParametricFit` only when the per-value formula asks for
 it, and gives all thresholds' terms for one derivative in a few matrix products.
 """
 
@@ -20,7 +20,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import expit
 
-from ..nuisance._fit import _parametric
+from ..nuisance._sandwich import parametric_piece
 
 __all__ = ["fit_thresholds", "ThresholdSandwich"]
 
@@ -148,7 +148,7 @@ class ThresholdSandwich:
         if j not in self._fits:
             target = np.where(self.mask, (self.outcome <= self.thresholds[j]).astype(float), 0.0)
             p = self.predictions[:, j]
-            self._fits[j] = _parametric(self.design, self.mask, target, p, p * (1 - p),
+            self._fits[j] = parametric_piece(self.design, self.mask, target, p, p * (1 - p),
                                         self.weights)  # fmt: skip
         return self._fits[j]
 

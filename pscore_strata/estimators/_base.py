@@ -1,7 +1,7 @@
 """Shared machinery of the SACE estimators: fitting, repeats, bootstrap fallback, results.
 
 A concrete estimator (:mod:`pscore_strata.estimators`) only names its estimand formula from
-:mod:`pscore_strata.estimators._formulas` and whether it needs the outcome model.
+:mod:`pscore_strata.estimands._formulas` and whether it needs the outcome model.
 """
 
 from __future__ import annotations
@@ -11,45 +11,43 @@ from dataclasses import replace
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed
 from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
-try:
-    from sklearn.utils.validation import _check_feature_names
-except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
-
-    def _check_feature_names(estimator, X, *, reset):
-        return estimator._check_feature_names(X, reset=reset)
-
 from .._arguments import check_estimator_arguments, check_n_folds
-from .._validation import check_choice, check_features, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
-from ..inference._influence import (
+from ..estimands._formulas import (
+    orient,
+    regression_means,
+    robust_means,
+    scale_effect,
+    weighting_means,
+)
+from ..inference._resampling import seed_models, spawn_seeds
+from ..inference._standard_errors import (
     count_clusters,
     influence_std_error,
     normal_interval,
     reference_dof,
-    resample_rows,
-    spawn_seeds,
 )
-from ..inference._refits import _seed_models
-from ..nuisance._fit import MonotonicityWarning, fit_nuisance, predict_models
+from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import record_settings, shared_nuisance
-from ..nuisance._strata import StratumArm
-from . import _formulas, _stratum_formulas
-from ._design import design_at_fit, design_for_new_rows
+from . import _stratum_formulas
+from ._design import design_at_fit
 from ._display import EstimatorDisplay
-from ._heterogeneity import conditional_effect, subgroup_effects
+from ._fallback import bootstrap_std_errors, intermediate_alias
+from ._heterogeneity import ConditionalEffectMixin, subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
+from ._scores import PrincipalScoresMixin, check_feature_names
 from ._summary import summary_table
 
-__all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]
+__all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]  # the mixin: _heterogeneity.py
 
 _SCALES = ("difference", "ratio", "odds_ratio")
 
 
-class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
+class SurvivorEffectEstimator(EstimatorDisplay, PrincipalScoresMixin, BaseEstimator):
     """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
 
     _uses_outcome_model = False
@@ -88,7 +86,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
     def _fit_nuisance(self, data, random_state, sandwich=True):
         # Learners left at random_state=None are seeded from `random_state` (as the bootstrap
         # seeds them per replicate), so two fits with the same random_state agree.
-        models = self if random_state is None else _seed_models(
+        models = self if random_state is None else seed_models(
             clone(self), spawn_seeds(random_state, 1)[0]
         )  # fmt: skip
         fitted = fit_nuisance(
@@ -102,7 +100,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
             treatment_enters_estimate=self._treatment_enters_estimate,
             response_model=models.response_model,
             # The multiply robust influence values never use the sandwich pieces.
-            sandwich=sandwich and self._formula is not _formulas.robust_means,
+            sandwich=sandwich and self._formula is not robust_means,
             monotonicity=self.monotonicity,
             zero_cells=self._other_stratum(),
         )
@@ -113,7 +111,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         stratum = self._target_stratum()
         if _stratum_formulas.needs_zero_cells(stratum):
             return _stratum_formulas.stratum_view(data, nuisance, self.monotonicity, stratum)
-        return _formulas.orient(data, nuisance, self.monotonicity)
+        return orient(data, nuisance, self.monotonicity)
 
     def _formula_for(self, oriented):
         if isinstance(oriented, _stratum_formulas.StratumView):
@@ -180,7 +178,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         if X is not None:
             # scikit-learn's convention: feature_names_in_ for DataFrames with string names,
             # checked again by predict_proba.
-            _check_feature_names(self, data.X, reset=True)
+            check_feature_names(self, data.X, reset=True)
         if self.scale == "odds_ratio" and not data.binary_outcome:
             raise ValueError("`scale='odds_ratio'` needs a 0/1 outcome; `y` has other values.")
         if self.scale == "ratio" and np.nanmin(data.outcome) < 0:
@@ -191,7 +189,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
             fits = [
                 shared_nuisance(
                     self, nuisance, data, uses_outcome=self._uses_outcome_model,
-                    sandwich=self._formula is not _formulas.robust_means,
+                    sandwich=self._formula is not robust_means,
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                 )
             ]  # fmt: skip
@@ -217,7 +215,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
     def _evaluate(self, data, nuisance):
         """Estimates of one nuisance fit (one cross-fitting repeat)."""
         parts, oriented = self._means(data, nuisance)
-        effect, influence = _formulas.scale_effect(parts, self.scale)
+        effect, influence = scale_effect(parts, self.scale)
         if not (np.isfinite(effect) and np.all(np.isfinite(influence))):
             raise ValueError(
                 "The estimate is not finite: a fitted treatment or survival probability is exactly "
@@ -284,21 +282,8 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         self.std_error_method_ = self._std_error_method(self.nuisance_)
         self.bootstrap_replicates_ = None
 
-    @property
-    def principal_scores_(self):
-        """Principal scores of the training rows, shape (n_samples, 3), ``classes_`` order.
-
-        Computed from the stored survival predictions on each access (not kept, so three
-        estimators sharing one nuisance fit do not hold three n x 3 copies).
-        """
-        if "nuisance_" not in self.__dict__:
-            raise AttributeError("principal_scores_ is set by fit")
-        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
-        survival = self.nuisance_.survival
-        return _principal_scores(survival[mixed], survival[pure])
-
     def _std_error_method(self, nuisance):
-        if self._formula is _formulas.robust_means:
+        if self._formula is robust_means:
             return "influence function"
         if nuisance.parametric is not None:
             return "sandwich"
@@ -310,7 +295,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         seed = self.random_state if random_state is None else random_state
         nuisance = self._fit_nuisance(data, seed, sandwich=False)
         parts, _ = self._means(data, nuisance)
-        effect, _ = _formulas.scale_effect(parts, self.scale)
+        effect, _ = scale_effect(parts, self.scale)
         return effect, parts.mean_treated, parts.mean_control
 
     def _fit_statistic(self, data, n_repeats):
@@ -327,26 +312,7 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
 
     def _bootstrap_std_errors(self, data):
         """Resample rows within arms (clusters, if given) and refit every model."""
-        seeds = spawn_seeds(self.random_state, self.n_bootstrap)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            results = Parallel(n_jobs=self.n_jobs)(
-                delayed(_one_replicate)(self, data, seed) for seed in seeds
-            )
-        table = pd.DataFrame(
-            [r for r in results if r is not None],
-            columns=["effect", "mean_treated", "mean_control"],
-        )
-        self.bootstrap_replicates_ = table
-        self.n_bootstrap_failed_ = len(results) - len(table)
-        if len(table) < 2:
-            raise RuntimeError(
-                f"Fewer than two of the `n_bootstrap`={self.n_bootstrap} resamples could be "
-                "fitted (resamples lost the survivors or deaths of an arm, or the fitted "
-                "probabilities reached 0 or 1). Use the default models (sandwich standard "
-                "errors), set n_bootstrap=0, or use more data."
-            )
-        self.std_error_ = float(table["effect"].std(ddof=1))
+        bootstrap_std_errors(self, data)
 
     # -- results -----------------------------------------------------------------------------
     def conf_int(self, level=0.95):
@@ -364,53 +330,6 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
             self.effect_, self.std_error_, level, self.scale != "difference",
             dof=reference_dof(getattr(self, "n_clusters_", None)),
         )  # fmt: skip
-
-    def predict_proba(self, X):
-        """Principal scores per row, columns in ``classes_`` order.
-
-        Columns are checked as scikit-learn checks them: a DataFrame must have the names and
-        order seen in ``fit`` (``feature_names_in_``; otherwise a ValueError), and mixing a
-        DataFrame with an array between ``fit`` and here warns and matches columns by position.
-
-        Under monotonicity the always-survivor score is the survival probability in the pure arm,
-        the helped stratum's score the difference of the arms' survival probabilities, and the
-        doomed score the rest. Where the fitted models contradict monotonicity (survival in the
-        mixed arm below that in the pure arm) the helped score is 0 and the always-survivor
-        score the smaller of the two survival probabilities. With
-        cross-fitting, the predictions average every fold model (of every repeat).
-
-        Returns
-        -------
-        ndarray of shape (n_rows, 3), or DataFrame
-            A pandas DataFrame (columns ``classes_``, the index of ``X``) when ``X`` is a
-            DataFrame, as scikit-learn's ``set_output(transform="pandas")`` labels its output;
-            an ndarray otherwise.
-        """
-        check_is_fitted(self, "effect_")
-        X = design_for_new_rows(self, X)
-        index = X.index if isinstance(X, pd.DataFrame) else None
-        X = _match_feature_names(self, X)
-        X, n_features, _ = check_features(X, self._models())
-        if n_features != self.n_features_in_:
-            raise ValueError(
-                f"`X` has {n_features} features but the estimator was fitted with "
-                f"{self.n_features_in_}."
-            )
-        mixed, pure = (1, 0) if self.monotonicity == "increasing" else (0, 1)
-        scores = {}
-        for arm in (mixed, pure):
-            models = [m for fit in self._repeat_fits for m in fit.models[("survival", arm)]]
-            scores[arm] = predict_models(models, X)
-        result = _principal_scores(scores[mixed], scores[pure])
-        if isinstance(models[0], StratumArm):  # a stratum model's own scores, fold-averaged
-            result = np.mean([m.strata.predict_proba(X) for m in models], axis=0)
-        if index is not None:
-            return pd.DataFrame(result, index=index, columns=list(self.classes_))
-        return result
-
-    def predict(self, X):
-        """The most probable principal stratum per row."""
-        return self.classes_[np.argmax(np.asarray(self.predict_proba(X)), axis=1)]
 
     def summary(self, level=0.95):
         """Estimates with standard errors and confidence intervals, one row per quantity.
@@ -450,88 +369,15 @@ class SurvivorEffectEstimator(EstimatorDisplay, BaseEstimator):
         return subgroup_effects(self, labels, level)
 
 
-class ConditionalEffectMixin:
-    def predict_effect(self, X):
-        """The always-survivor effect given ``X``: ``m1(X) - m0(X)`` (ratio scales: their ratio).
-
-        Valid under principal ignorability, which makes the survivors' outcome mean in each arm
-        equal the always-survivors' mean given ``X``. With cross-fitting, each ``m_t`` averages
-        the fold models (of every repeat). A classifier outcome model gives risks.
-
-        Parameters
-        ----------
-        X : array-like of shape (n_rows, n_features)
-
-        Returns
-        -------
-        ndarray of shape (n_rows,)
-        """
-        check_is_fitted(self, "effect_")
-        return conditional_effect(self, design_for_new_rows(self, X))
-
-
-def _one_replicate(estimator, data, seed):
-    rows = resample_rows(data.treatment, seed, data.groups)
-    # Learners left at random_state=None get a seed from the replicate, so the bootstrap
-    # standard error is reproducible with random learners too.
-    estimator = _seed_models(clone(estimator), seed)
-    try:
-        values = estimator._refit_means(data.take(rows))
-    except (ValueError, np.linalg.LinAlgError):
-        return None
-    # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
-    # count it as a failed fit, as the full-sample fit would refuse it.
-    return values if np.all(np.isfinite(values)) else None
-
-
-def _match_feature_names(estimator, X):
-    """scikit-learn's feature-name check; after its warning, ``X`` takes the fitted form so the
-    nuisance models do not warn again."""
-    if X is None:
-        return X
-    _check_feature_names(estimator, X, reset=False)
-    names = getattr(estimator, "feature_names_in_", None)
-    if isinstance(X, pd.DataFrame) and names is None:
-        return X.to_numpy()
-    if names is not None and not isinstance(X, pd.DataFrame):
-        values = np.asarray(X)
-        if values.ndim == 2 and values.shape[1] == len(names):
-            return pd.DataFrame(values, columns=names)
-    return X
-
-
-def _principal_scores(p_mixed, p_pure):
-    # Written into one array (three n-vectors at the peak, not six).
-    scores = np.empty((p_mixed.shape[0], 3))
-    always, helped, doomed = scores[:, 0], scores[:, 1], scores[:, 2]
-    np.minimum(p_pure, p_mixed, out=always)
-    np.subtract(p_mixed, p_pure, out=helped)
-    np.clip(helped, 0.0, None, out=helped)
-    np.subtract(1.0, always, out=doomed)
-    doomed -= helped
-    return scores
-
-
 # The formula of each method for the strata other than the always-survivors.
 _STRATUM_FORMULAS = {
-    _formulas.weighting_means: _stratum_formulas.stratum_weighting_means,
-    _formulas.regression_means: _stratum_formulas.stratum_regression_means,
-    _formulas.robust_means: _stratum_formulas.stratum_robust_means,
+    weighting_means: _stratum_formulas.stratum_weighting_means,
+    regression_means: _stratum_formulas.stratum_regression_means,
+    robust_means: _stratum_formulas.stratum_robust_means,
 }
 
 
-def intermediate_alias(survival, intermediate):
-    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
-    if (survival is None) == (intermediate is None):
-        raise TypeError(
-            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
-            "variable under two names); got " + ("both." if survival is not None else "neither.")
-        )
-    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")
-
-
-class _Roles:
-    """The two survival predictions by role, and the monotonicity direction."""
+class _Roles:  # the two survival predictions by role, and the monotonicity direction
 
     def __init__(self, p_mixed, p_pure, increasing):
         self.p_mixed, self.p_pure, self.increasing = p_mixed, p_pure, increasing

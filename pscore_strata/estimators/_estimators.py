@@ -7,7 +7,7 @@ fit and result logic (:mod:`._base`).
 
 from __future__ import annotations
 
-from . import _formulas
+from ..estimands._formulas import regression_means, robust_means, weighting_means
 from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
@@ -138,7 +138,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     True
     """
 
-    _formula = staticmethod(_formulas.weighting_means)
+    _formula = staticmethod(weighting_means)
 
     def __init__(
         self,
@@ -200,7 +200,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
     array([0.9, 1.8, 1.2])
     """
 
-    _formula = staticmethod(_formulas.regression_means)
+    _formula = staticmethod(regression_means)
     _uses_outcome_model = True
     _treatment_enters_estimate = False
 
@@ -279,7 +279,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
     [False, True]
     """
 
-    _formula = staticmethod(_formulas.robust_means)
+    _formula = staticmethod(robust_means)
     _uses_outcome_model = True
     n_bootstrap = 0
 

@@ -12,16 +12,19 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 from sklearn.base import is_classifier
+from sklearn.utils.validation import check_is_fitted
 
-from .._validation import _one_dimensional, check_features
-from ..inference._influence import estimator_dof, influence_std_error, normal_interval
-from ..nuisance._fit import predict_models
-from . import _formulas
+from .._validation import check_features
+from .._vectors import one_dimensional
+from ..estimands._formulas import scale_effect
+from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
+from ..nuisance._models import predict_models
+from ._design import design_for_new_rows
 from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
 
-__all__ = ["conditional_effect", "subgroup_effects"]
+__all__ = ["ConditionalEffectMixin", "conditional_effect", "subgroup_effects"]
 
 
 def _on_scale(mean_treated, mean_control, scale):
@@ -91,7 +94,7 @@ def _check_labels(labels, n_samples, estimator=None):
     if labels is None:
         raise ValueError("`labels` is required: pass one subgroup label per training row.")
     labels = _aligned(labels, estimator, n_samples)
-    array = _one_dimensional(labels, "labels")
+    array = one_dimensional(labels, "labels")
     if array.shape[0] != n_samples:
         raise ValueError(
             f"`labels` has {array.shape[0]} rows but the estimator was fitted on {n_samples}; "
@@ -137,7 +140,7 @@ def subgroup_effects(estimator, labels, level):
         formula = estimator._formula_for(oriented)
         for code in range(len(names)):
             parts = formula(oriented, (codes == code).astype(float))
-            effect, influence = _formulas.scale_effect(parts, estimator.scale)
+            effect, influence = scale_effect(parts, estimator.scale)
             effects[r, code] = effect
             errors[r, code] = influence_std_error(influence, w, data.groups)
     effect, std_error = median_aggregate(effects, errors)
@@ -183,3 +186,23 @@ def subgroup_effects(estimator, labels, level):
     table.attrs["small_subgroups"] = sorted(map(str, small))
     table.attrs["notes"] = notes
     return table
+
+
+class ConditionalEffectMixin:
+    def predict_effect(self, X):
+        """The always-survivor effect given ``X``: ``m1(X) - m0(X)`` (ratio scales: their ratio).
+
+        Valid under principal ignorability, which makes the survivors' outcome mean in each arm
+        equal the always-survivors' mean given ``X``. With cross-fitting, each ``m_t`` averages
+        the fold models (of every repeat). A classifier outcome model gives risks.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+        """
+        check_is_fitted(self, "effect_")
+        return conditional_effect(self, design_for_new_rows(self, X))

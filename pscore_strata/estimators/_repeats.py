@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..inference._influence import spawn_seeds
+from ..inference._resampling import spawn_seeds
 
 __all__ = ["repeat_seeds", "median_aggregate", "check_repeats"]
 

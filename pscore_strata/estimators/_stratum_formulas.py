@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._formulas import MeanParts
+from ..estimands._formulas import MeanParts
 
 __all__ = [
     "Stratum",

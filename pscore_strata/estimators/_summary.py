@@ -5,13 +5,15 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from .._vectors import MISSING_AT_RANDOM_ASSUMPTION
 from ..diagnostics._tables import diagnostic_warnings
-from ..inference._influence import (
+from ..inference._standard_errors import (
     estimator_dof,
     influence_std_error,
     normal_interval,
     reference_quantile,
 )
+from ..nuisance._missing import missingness_counts
 from ..tables import SummaryTable
 from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells, ignorability_statement, stratum_words
@@ -217,8 +219,6 @@ def _notes(estimator):
     if estimator.training_data_.groups is not None:
         notes.append("Standard errors are cluster-robust (influence values summed per cluster).")
     if estimator.nuisance_.missingness is not None:
-        from ._coarsening import missing_data_note
-
         notes.append(missing_data_note(estimator))
     notes.append(SHARE_INTERVAL_NOTE)
     if estimator.n_monotonicity_violations_:
@@ -233,3 +233,17 @@ def _notes(estimator):
         notes.append(ignorability_statement(stratum, estimator.monotonicity))
         notes.append(STRATUM_CAUTIONS.format(words=stratum_words(stratum)))
     return notes
+
+
+def missing_data_note(estimator):
+    """The summary's note on missing data: counts by arm and the assumption made."""
+    parts = [
+        f"{r['arm']}: {r['n_status_unknown']} of {r['n']} with unknown survival status, "
+        f"{r['n_outcome_missing']} of {r['n_known_survivors']} known survivors without an outcome"
+        for r in missingness_counts(estimator.training_data_)
+    ]
+    return (
+        "Missing data (" + "; ".join(parts) + ") were handled by inverse probability of "
+        f"observation weighting under the assumption that they are {MISSING_AT_RANDOM_ASSUMPTION}"
+        ". This cannot be checked from the data; see sensitivity_grid(outcome_shift=...)."
+    )

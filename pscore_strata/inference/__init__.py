@@ -6,19 +6,16 @@ units (or clusters) and refits, in parallel through joblib.
 """
 
 from ._bootstrap import BootstrapResult, bootstrap
-from ._influence import (
-    FewClustersWarning,
-    bca_interval,
-    influence_std_error,
+from ._intervals import bca_interval, percentile_interval
+from ._resampling import (
     jackknife_blocks,
     multiplier_contributions,
     multiplier_draws,
-    normal_interval,
-    percentile_interval,
     resample_rows,
     spawn_seeds,
     stratified_resample,
 )
+from ._standard_errors import FewClustersWarning, influence_std_error, normal_interval
 
 __all__ = [
     "bootstrap",

@@ -20,18 +20,11 @@ from .._validation import check_choice, check_level
 from ..tables import SummaryTable
 from ._display import BootstrapDisplay
 from ._failures import _check_failures, failure_reasons
-from ._influence import (
-    bca_interval,
-    influence_acceleration,
-    multiplier_contributions,
-    multiplier_draws,
-    normal_interval,
-    percentile_interval,
-    reference_dof,
-    run_tasks,
-    spawn_seeds,
-)
+from ._intervals import bca_interval, influence_acceleration, percentile_interval
 from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
+from ._resampling import multiplier_contributions, multiplier_draws, spawn_seeds
+from ._standard_errors import normal_interval, reference_dof
+from ._tasks import run_tasks
 
 __all__ = ["bootstrap", "BootstrapResult"]
 

@@ -16,7 +16,8 @@ import pandas as pd
 from joblib import Parallel, delayed
 from sklearn.base import clone
 
-from ._influence import jackknife_acceleration, jackknife_blocks, resample_rows
+from ._intervals import jackknife_acceleration
+from ._resampling import jackknife_blocks, resample_rows, seed_models
 
 REFIT_ERRORS = (ValueError, np.linalg.LinAlgError)
 
@@ -85,21 +86,8 @@ def _fit_rows(estimator, X, y, treatment, survival, sample_weight, groups, rows,
     return estimator.fit(take(X), take(y), **kwargs)
 
 
-def _seed_models(estimator, seed):
-    """Seed every ``random_state`` left at None from the replicate's seed (for reproducibility)."""
-    unset = [
-        key
-        for key, value in estimator.get_params(deep=True).items()
-        if (key == "random_state" or key.endswith("__random_state")) and value is None
-    ]
-    if unset:
-        child = np.random.SeedSequence(seed.entropy, spawn_key=(*seed.spawn_key, 0))
-        estimator.set_params(**{key: int(child.generate_state(1)[0]) for key in unset})
-    return estimator
-
-
 def _refit(template, arrays, rows, seed):
-    estimator = _seed_models(clone(template), seed)
+    estimator = seed_models(clone(template), seed)
     if hasattr(estimator, "_fit_statistic"):
         # A replicate needs only its statistic: no standard errors, sandwich or diagnostics.
         estimator._statistic_only = True

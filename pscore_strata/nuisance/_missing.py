@@ -19,6 +19,8 @@ import warnings
 import numpy as np
 
 from .._validation import EXTREME_PROBABILITY
+from ..exceptions import OverlapWarning
+from ._models import ConstantModel, fit_predict
 
 __all__ = ["fit_missingness", "missingness_counts"]
 
@@ -62,8 +64,6 @@ def fit_missingness(data, model, splits, design, parametric_builder):
     parametric : dict
         :class:`ParametricFit` per fitted model (empty when ``parametric_builder`` is None).
     """
-    from ._fit import _ConstantModel, _fit_predict
-
     n, w = data.n_samples, data.sample_weight
     predictions = {"follow_up": {}, "response": {}}
     fitted, parametric = {}, {}
@@ -79,10 +79,10 @@ def fit_missingness(data, model, splits, design, parametric_builder):
                 fit_rows = train[mask[train]]
                 if np.unique(target[fit_rows]).size < 2:
                     # A fold whose rows are all observed: the share is 1 there, not a separated fit.
-                    model_fit = _ConstantModel(target[fit_rows].mean())
+                    model_fit = ConstantModel(target[fit_rows].mean())
                     values[test] = model_fit.predict(np.empty(test.size))
                 else:
-                    model_fit, values[test] = _fit_predict(
+                    model_fit, values[test] = fit_predict(
                         model, data.X, target, fit_rows, test, w, data.weighted, True
                     )
                 fitted[(kind, arm)].append(model_fit)
@@ -107,8 +107,6 @@ def _warn_small(predictions, data):
                     f"{'treatment' if arm else 'control'} below {EXTREME_PROBABILITY}"
                 )
     if messages:
-        from ._fit import OverlapWarning
-
         warnings.warn(
             "; ".join(messages)
             + ". Inverse-probability-of-observation weights built from them are unstable: check "

@@ -40,6 +40,12 @@ from sklearn.preprocessing import (
     StandardScaler,
 )
 
+from ..exceptions import LooseFitWarning
+from ._mixture import stratum_pieces
+from ._models import ParametricFit
+from ._strata import PrincipalScoreModel
+from ._stratum_arms import stratum_arms
+
 __all__ = [
     "glm_kind", "sandwich_reason", "build_parametric", "response_glm", "LooseFitWarning"
 ]  # fmt: skip
@@ -58,10 +64,6 @@ _FIXED = (
 # the standard error of a standardized coefficient at n = 10,000).
 _LOOSE_STEP = 1e-3
 _CHUNK = 65_536
-
-
-class LooseFitWarning(UserWarning):
-    """A user's GLM stopped far from the root of its score; the sandwich uses it as fitted."""
 
 
 def _fixed_transformer(step):
@@ -180,9 +182,7 @@ def _equilibrated_pinv(info):
 
 def parametric_piece(design, mask, target, prediction, slope, weights, *, check_root=False,
                      role="model"):  # fmt: skip
-    """A :class:`~._fit.ParametricFit` for one GLM fit (equilibrated, chunked)."""
-    from ._fit import ParametricFit
-
+    """A :class:`~._models.ParametricFit` for one GLM fit (equilibrated, chunked)."""
     residual = np.where(mask, np.nan_to_num(target) - prediction, 0.0)
     total = weights.sum()
     info = _information(design, weights * mask * slope) / total
@@ -214,8 +214,6 @@ def _information_vector(Z, u):
 
 
 def _stratum_model(model):
-    from ._strata import PrincipalScoreModel
-
     return isinstance(model, PrincipalScoreModel)
 
 
@@ -285,9 +283,6 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
             pieces.update({key: memo[key] for key in keys})
             continue
         if kinds[role] == "strata":
-            from ._mixture import stratum_pieces
-            from ._strata import stratum_arms
-
             strata = nuisance.models[("survival", 0)][0].strata
             pieces.update({("survival", arm): piece for arm, piece in stratum_pieces(
                 strata, data.X, T, S, w, known, stratum_arms(strata)).items()})  # fmt: skip

@@ -17,6 +17,8 @@ from dataclasses import replace
 import numpy as np
 from sklearn.base import is_classifier
 
+from ._fit import NuisanceFit
+from ._missing import _cells
 from ._sandwich import build_parametric, parametric_piece, response_glm
 
 __all__ = ["record_settings", "shared_nuisance", "model_key"]
@@ -91,8 +93,6 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
     Returns the nuisance to use: the same predictions and models, with the sandwich pieces
     ``owner`` would have built itself (rebuilt from the fitted models, or none).
     """
-    from ._fit import NuisanceFit
-
     if not isinstance(nuisance, NuisanceFit):
         raise TypeError(
             "`nuisance` must be the `nuisance_` attribute of a fitted pscore_strata estimator "
@@ -191,8 +191,6 @@ def _missing_pieces(data, nuisance, response_model):
     """Sandwich pieces of the follow-up and response models, as ``fit_missingness`` builds them."""
     if not response_glm(response_model):
         return None
-    from ._missing import _cells
-
     design = None if data.X is None else np.asarray(data.X, dtype=float)
     pieces = {}
     for key in nuisance.models:

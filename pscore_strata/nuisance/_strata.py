@@ -17,8 +17,9 @@ from sklearn.base import BaseEstimator, clone
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.pipeline import Pipeline
 from sklearn.utils import get_tags
-from sklearn.utils.validation import check_array, check_is_fitted, has_fit_parameter
+from sklearn.utils.validation import check_array, check_is_fitted
 
+from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
     _with_intercept,
@@ -26,8 +27,15 @@ from ._mixture import (
     posterior_strata,
     strata_probabilities,
 )
+from ._stratum_fitting import (
+    check_cells,
+    check_stratum_params,
+    newton_maximize,
+    starting_strata,
+    weighted_fit,
+)
 
-__all__ = ["PrincipalScoreModel", "StratumArm", "fit_strata_scores"]
+__all__ = ["PrincipalScoreModel"]
 
 # Probabilities are floored here before logs in the EM path (a classifier may predict 0).
 _TINY = 1e-300
@@ -174,8 +182,10 @@ class PrincipalScoreModel(BaseEstimator):
         -------
         self
         """
-        self._check_params()
-        treatment, survival, weights = self._check_cells(X, treatment, survival, sample_weight)
+        check_stratum_params(self)
+        treatment, survival, weights = check_cells(X, treatment, survival, sample_weight)
+        if X is None:
+            self.n_features_in_ = 0
         self.classes_ = np.array(
             ["always_survivor", "protected" if self._increasing else "harmed", "doomed"]
         )
@@ -211,89 +221,6 @@ class PrincipalScoreModel(BaseEstimator):
     def _increasing(self):
         return self.monotonicity == "increasing"
 
-    def _check_params(self):
-        if self.monotonicity not in ("increasing", "decreasing"):
-            raise ValueError(
-                "`monotonicity` must be 'increasing' or 'decreasing'; got "
-                f"{self.monotonicity!r}."
-            )
-        if isinstance(self.max_iter, bool) or not isinstance(self.max_iter, int | np.integer) or (
-            self.max_iter < 1
-        ):
-            raise ValueError(f"`max_iter` must be a positive integer; got {self.max_iter!r}.")
-        if not (isinstance(self.tol, str) and self.tol == "auto") and (
-            isinstance(self.tol, bool) or not isinstance(self.tol, int | float)
-            or not (self.tol > 0)
-        ):  # fmt: skip
-            raise ValueError(f"`tol` must be 'auto' or a positive number; got {self.tol!r}.")
-        if self.init not in ("multinomial", "shares"):
-            raise ValueError(f"`init` must be 'multinomial' or 'shares'; got {self.init!r}.")
-        if self.estimator is not None:
-            final = self.estimator.steps[-1][1] if isinstance(self.estimator, Pipeline) else (
-                self.estimator
-            )
-            if not hasattr(final, "predict_proba") or not hasattr(final, "fit"):
-                raise TypeError(
-                    f"`estimator` must be a classifier with `predict_proba`; got "
-                    f"{type(self.estimator).__name__}."
-                )
-            if not has_fit_parameter(final, "sample_weight"):
-                raise TypeError(
-                    f"`estimator` ({type(final).__name__}) does not accept `sample_weight` in "
-                    "fit, which the EM fit needs (each unit is duplicated once per compatible "
-                    "stratum and weighted by its posterior probability). Pass a classifier that "
-                    "accepts sample weights (for example LogisticRegression or "
-                    "HistGradientBoostingClassifier), or estimator=None for the multinomial "
-                    "logistic model."
-                )
-
-    def _check_cells(self, X, treatment, survival, sample_weight):
-        n = None if X is None else len(X)
-        arrays = {}
-        for name, values in (("treatment", treatment), ("survival", survival)):
-            values = np.asarray(values, dtype=float).ravel()
-            if n is not None and values.size != n:
-                raise ValueError(f"`{name}` has {values.size} values but `X` has {n} rows.")
-            bad = ~np.isin(values, (0.0, 1.0))
-            if bad.any():
-                raise ValueError(
-                    f"`{name}` must hold only 0 and 1; {int(bad.sum())} value(s) differ "
-                    f"(first: {values[bad][0]!r})."
-                )
-            n = values.size
-            arrays[name] = values.astype(int)
-        if sample_weight is None:
-            weights = np.ones(n)
-        else:
-            weights = np.asarray(sample_weight, dtype=float).ravel()
-            if weights.size != n or not np.all(np.isfinite(weights)) or (weights < 0).any() or (
-                weights.sum() <= 0
-            ):
-                raise ValueError(
-                    f"`sample_weight` must be {n} finite non-negative values with a positive "
-                    "sum."
-                )
-        if X is None:
-            self.n_features_in_ = 0
-        return arrays["treatment"], arrays["survival"], weights
-
-    def _starting_strata(self, allowed, weights):
-        """Stratum shares from the arms' survival shares (the unadjusted moment estimates)."""
-        survived = allowed[:, 0]
-        # Mixed-arm survivors allow the helped stratum and its deaths do not; the pure arm is
-        # the other way round.
-        mixed = allowed[:, 1] == survived
-        pure = ~mixed
-        pure_share = (
-            np.average(survived[pure], weights=weights[pure]) if weights[pure].sum() else 0.5
-        )
-        mixed_share = (
-            np.average(survived[mixed], weights=weights[mixed]) if weights[mixed].sum() else 0.5
-        )
-        always = float(np.clip(pure_share, 0.02, 0.96))
-        helped = float(np.clip(mixed_share - pure_share, 0.02, 0.97 - always))
-        return np.array([always, helped, 1.0 - always - helped])
-
     # -- default: multinomial logistic by direct maximum likelihood --------------------------
     def _design(self, X):
         if X is None:
@@ -315,10 +242,10 @@ class PrincipalScoreModel(BaseEstimator):
         Zd = _with_intercept(Z)
         likelihood = MixtureLikelihood(Zd, allowed, weights)
         start = np.zeros((2, Zd.shape[1]))
-        shares = self._starting_strata(allowed, weights)
+        shares = starting_strata(allowed, weights)
         start[:, 0] = np.log(shares[:2] / shares[2])
         tol = _NEWTON_TOL if self.tol == "auto" else self.tol
-        theta, self.n_iter_ = _newton(likelihood, start.ravel(), self.max_iter, tol)
+        theta, self.n_iter_ = newton_maximize(likelihood, start.ravel(), self.max_iter, tol)
         self._coef_standardized = theta.reshape(2, -1)
         gradient = np.max(np.abs(likelihood.score(theta)))
         self.converged_ = bool(gradient <= tol)
@@ -365,7 +292,7 @@ class PrincipalScoreModel(BaseEstimator):
         best, stalled, path = -np.inf, 0, []
         self.converged_ = False
         for iteration in range(1, int(self.max_iter) + 1):
-            model = _weighted_fit(
+            model = weighted_fit(
                 clone(base), duplicated, labels, weights[rows] * post[rows, labels]
             )
             strata = self._classifier_strata(model, inputs)
@@ -394,10 +321,7 @@ class PrincipalScoreModel(BaseEstimator):
         could not settle. The seeds, drawn from ``self.random_state`` as the estimators seed their
         learners, serve all iterations of a fit.
         """
-        from ..inference._influence import spawn_seeds
-        from ..inference._refits import _seed_models
-
-        return _seed_models(clone(self.estimator), spawn_seeds(self.random_state, 1)[0])
+        return seed_models(clone(self.estimator), spawn_seeds(self.random_state, 1)[0])
 
     def _starting_posteriors(self, X, allowed, weights):
         """Posterior strata of the EM start (see ``init``)."""
@@ -416,7 +340,7 @@ class PrincipalScoreModel(BaseEstimator):
                     _with_intercept(start._standardized(values)) @ start._coef_standardized.T
                 )
         if strata is None:
-            strata = np.broadcast_to(self._starting_strata(allowed, weights), allowed.shape)
+            strata = np.broadcast_to(starting_strata(allowed, weights), allowed.shape)
         return posterior_strata(np.log(np.clip(strata, _TINY, None)), allowed)[0]
 
     # -- predictions -------------------------------------------------------------------------
@@ -457,98 +381,3 @@ class PrincipalScoreModel(BaseEstimator):
         return (pure, mixed) if self._increasing else (mixed, pure)
 
 
-def _newton(likelihood, theta, max_iter, tol):
-    """Maximize the mean log-likelihood by Newton steps with step halving.
-
-    The observed information need not be positive definite away from the maximum (it is the
-    complete-data information minus the missing information), so a ridge is added until its
-    Cholesky factorization exists; each step is halved until the log-likelihood rises.
-    Returns the parameters and the number of Newton steps taken.
-    """
-    value, gradient, information = likelihood.evaluate(theta)
-    for iteration in range(int(max_iter)):
-        if np.max(np.abs(gradient)) <= tol:
-            return theta, iteration
-        ridge = 0.0
-        scale = max(float(np.max(np.abs(np.diag(information)))), 1e-12)
-        while True:
-            try:
-                factor = np.linalg.cholesky(information + ridge * np.eye(theta.size))
-                break
-            except np.linalg.LinAlgError:
-                ridge = max(ridge * 10, 1e-8 * scale)
-        step = np.linalg.solve(factor.T, np.linalg.solve(factor, gradient))
-        for _ in range(60):
-            candidate = theta + step
-            new_value = likelihood.log_likelihood(candidate)
-            if np.isfinite(new_value) and new_value >= value - 1e-14 * abs(value):
-                break
-            step = step / 2
-        else:
-            return theta, iteration + 1  # no ascent direction left: stop (not converged)
-        theta = candidate
-        value, gradient, information = likelihood.evaluate(theta)
-    return theta, int(max_iter)
-
-
-def _weighted_fit(model, X, labels, weights):
-    if isinstance(model, Pipeline):
-        return model.fit(X, labels, **{f"{model.steps[-1][0]}__sample_weight": weights})
-    return model.fit(X, labels, sample_weight=weights)
-
-
-class StratumArm:
-    """One arm's survival probability from a fitted :class:`PrincipalScoreModel`.
-
-    Stands where an arm-wise survival classifier stands in a nuisance fit, so code that asks a
-    fold model for ``predict_proba(X)[:, 1]`` gets ``p_t(X)``; ``strata`` is the stratum model.
-    """
-
-    def __init__(self, strata, arm):
-        self.strata, self.arm = strata, arm
-
-    def predict_proba(self, X):
-        survival = self.strata.survival_probability(X)[self.arm]
-        return np.column_stack([1.0 - survival, survival])
-
-
-def fit_strata_scores(model, X, treatment, survival, weights, fit_rows, predict_rows):
-    """Fit a clone of ``model`` on ``fit_rows``; return it and ``{0: p0, 1: p1}`` on
-    ``predict_rows``."""
-
-    def take(values, rows):
-        if values is None:
-            return None
-        if rows.size == len(values) and np.array_equal(rows, np.arange(rows.size)):
-            return values  # all rows in order: no copy of X
-        return values.iloc[rows] if isinstance(values, pd.DataFrame) else values[rows]
-
-    fitted = clone(model).fit(
-        take(X, fit_rows), treatment[fit_rows], survival[fit_rows],
-        sample_weight=None if weights is None else weights[fit_rows],
-    )  # fmt: skip
-    predict_X = take(X, predict_rows)
-    if predict_X is None:
-        p0, p1 = (np.repeat(p, predict_rows.size) for p in fitted.survival_probability(None))
-    else:
-        p0, p1 = fitted.survival_probability(predict_X)
-    return fitted, {0: p0, 1: p1}
-
-
-def check_stratum_model(model, monotonicity):
-    """Whether ``model`` is a stratum model; refuse one whose direction differs."""
-    if not isinstance(model, PrincipalScoreModel):
-        return False
-    if monotonicity is not None and model.monotonicity != monotonicity:
-        raise ValueError(
-            f"`survival_model` is a PrincipalScoreModel with monotonicity="
-            f"{model.monotonicity!r}, but the estimator has monotonicity={monotonicity!r}. "
-            "The strata (protected or harmed) must be the same: set both to the same value."
-        )
-    return True
-
-
-def stratum_arms(model):
-    """Which strata each arm's survival probability sums: ``{arm: members}``."""
-    mixed, pure = (1, 0) if model.monotonicity == "increasing" else (0, 1)
-    return {mixed: (0, 1), pure: (0,)}

@@ -11,7 +11,14 @@ import numpy as np
 import pandas as pd
 
 from .. import diagnostics
-from ..diagnostics import _arrays as arrays
+from ..diagnostics._arrays import (
+    PROBABILITY_BOUNDS,
+    balancing_weights,
+    effective_sample_size,
+    fitted_scores,
+    oriented_predictions,
+    treated_indicator,
+)
 
 __all__ = ["plot_balance", "plot_overlap", "plot_weights"]
 
@@ -142,12 +149,12 @@ def plot_overlap(estimator, *, score="treatment", bins=40, ax=None):
     -------
     matplotlib.figure.Figure
     """
-    o = arrays.oriented_predictions(estimator)
-    scores = arrays.fitted_scores(o)
+    o = oriented_predictions(estimator)
+    scores = fitted_scores(o)
     if score not in scores:
         raise ValueError(f"`score` must be one of {list(scores)}; got {score!r}.")
     values = scores[score]
-    treated = arrays.treated_indicator(o) == 1
+    treated = treated_indicator(o) == 1
     figure, ax = _figure_and_axes(ax, (6.4, 4.2))
     edges = np.linspace(0.0, 1.0, bins + 1)
     for arm, rows in (("treated", treated), ("control", ~treated)):
@@ -155,7 +162,7 @@ def plot_overlap(estimator, *, score="treatment", bins=40, ax=None):
             values[rows], bins=edges, density=True, alpha=0.45, color=_ARM_COLORS[arm],
             label=f"{arm} (n={int(rows.sum()):,})",
         )  # fmt: skip
-    low, high = arrays.PROBABILITY_BOUNDS
+    low, high = PROBABILITY_BOUNDS
     bounds = (low, high) if score == "treatment" else (low,)
     for i, bound in enumerate(bounds):
         label = f"common-practice bound{'s' if len(bounds) > 1 else ''}" if i == 0 else None
@@ -187,8 +194,8 @@ def plot_weights(estimator, *, bins=50, ax=None):
     """
     from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-    o = arrays.oriented_predictions(estimator)
-    weights = {g: w[w > 0] for g, w in arrays.balancing_weights(o).items()}
+    o = oriented_predictions(estimator)
+    weights = {g: w[w > 0] for g, w in balancing_weights(o).items()}
     scaled = {g: w / w.mean() for g, w in weights.items()}
     low = min(v.min() for v in scaled.values())
     high = max(v.max() for v in scaled.values())
@@ -196,7 +203,7 @@ def plot_weights(estimator, *, bins=50, ax=None):
     figure, ax = _figure_and_axes(ax, (6.4, 4.2))
     colors = (_ARM_COLORS["treated"], _ARM_COLORS["control"], "0.4")
     for (group, values), color in zip(scaled.items(), colors, strict=True):
-        ess = arrays.effective_sample_size(weights[group])
+        ess = effective_sample_size(weights[group])
         ax.hist(
             values, bins=edges, weights=np.full(values.size, 1 / values.size),
             histtype="step", linewidth=1.6, color=color,

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..assumptions._sensitivity import _NULL, sensitivity_grid
+from ..assumptions._sensitivity import NULL_SETTING, sensitivity_grid
 from ..assumptions._tipping import tipping_point
 
 __all__ = ["plot_sensitivity", "plot_sensitivity_contour"]
@@ -77,7 +77,7 @@ def plot_sensitivity(estimator, parameter="pi_difference", values=None, *, level
     ax.plot(x, grid["effect"], lw=2, label="SACE")
     null_effect = 0.0 if estimator.scale == "difference" else 1.0
     ax.axhline(null_effect, color="black", lw=0.8)
-    ax.axvline(_NULL[parameter], color="grey", ls=":", lw=1, label="assumption holds")
+    ax.axvline(NULL_SETTING[parameter], color="grey", ls=":", lw=1, label="assumption holds")
     if np.isfinite(tip):
         ax.axvline(tip, color="tab:red", ls="--", lw=1.2, label=f"tipping point {tip:.3f}")
     if parameter == "pi_ratio":
@@ -166,8 +166,8 @@ def plot_sensitivity_contour(
             ax.clabel(lines, fmt={null_effect: f"{name} = {null_effect:g}"}, fontsize=8)
     # The null point sits on the lower edge of the grid: drawn unclipped and above the
     # contours, so the whole marker shows.
-    ax.plot([_NULL[principal_ignorability]], [0.0], "k*", ms=10, label="both assumptions hold",
-            clip_on=False, zorder=5)  # fmt: skip
+    ax.plot([NULL_SETTING[principal_ignorability]], [0.0], "k*", ms=10,
+            label="both assumptions hold", clip_on=False, zorder=5)  # fmt: skip
     if principal_ignorability == "pi_ratio":
         ax.set_xscale("log")
     ax.set_xlabel(_label(principal_ignorability, estimator))

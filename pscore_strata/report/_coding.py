@@ -15,6 +15,8 @@ import warnings
 import numpy as np
 import pandas as pd
 
+from ..exceptions import DataWarning
+
 __all__ = ["MANY_LEVELS", "DataWarning", "indicator", "check_dates", "many_levels_messages",
            "matches_level", "level_hint", "check_identifiers", "separated_numbers",
            "labelled_outcome"]  # fmt: skip
@@ -24,10 +26,6 @@ MANY_LEVELS = 50
 _DATE_LIKE = re.compile(
     r"^\s*(\d{4}[-/.]\d{1,2}[-/.]\d{1,2}|\d{1,2}[-/.]\d{1,2}[-/.]\d{2,4})([ T]\d{1,2}:\d{2}.*)?\s*$"
 )
-
-
-class DataWarning(UserWarning):
-    """Something in the data the analysis proceeds with but the analyst should see."""
 
 
 def _shown(values, limit=6):

@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from .._formula import variables_in
+from ..exceptions import InputError
 from . import _coding, _readers
 from ._formula_data import check_formula_option, formula_design
 from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
@@ -20,10 +21,6 @@ from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
 __all__ = [
     "InputError", "ColumnRoles", "PreparedData", "read_table", "prepare_data", "check_folds",
 ]
-
-
-class InputError(ValueError):
-    """A problem with the user's data or options, reported without a traceback."""
 
 
 @dataclass(frozen=True)

@@ -106,7 +106,7 @@ def distributions_section(collector, primary, data, options):
 def _quantile_bounds(collector, options, data, primary, quantiles=QUANTILES):
     from ..assumptions import TrimmingBounds
     from ..assumptions._quantile_bounds import quantile_intervals
-    from ..inference._influence import estimator_dof
+    from ..inference._standard_errors import estimator_dof
 
     models, _ = model_settings(options)
     if options.survival_model == "arm-wise":
@@ -132,7 +132,7 @@ def _cdf_figure(results):
     import pandas as pd
 
     from ..distributions import SurvivorDistribution
-    from ..inference._influence import reference_dof
+    from ..inference._standard_errors import reference_dof
     from ..plotting import plot_survivor_distribution
 
     record = results["distributions"]

@@ -13,6 +13,8 @@ import csv
 import os
 from pathlib import Path
 
+from ..exceptions import FileProblem
+
 __all__ = [
     "FileProblem",
     "check_data_path",
@@ -28,10 +30,6 @@ __all__ = [
 ]
 
 _SAMPLE_BYTES = 64 * 1024
-
-
-class FileProblem(ValueError):
-    """Raised by a check inside a reader, so the reader's own errors stay apart from it."""
 
 
 def check_data_path(path, input_error):

@@ -17,7 +17,7 @@ from sklearn.base import clone
 from .._validation import check_choice, check_level
 from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
 from ..inference import normal_interval
-from ..inference._influence import reference_dof
+from ..inference._standard_errors import reference_dof
 from ._inputs import POPULATIONS, check_visits
 from ._joint import band_critical, influence_covariance, rescale, wald_test
 from ._refits import joint_replicates

@@ -84,19 +84,3 @@ def weight_derivatives(o, f, role):
     c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
     return {f"c_{role}": -_over(f, c), f"r_{role}": -_over(f, r)}
 
-
-def missing_data_note(estimator):
-    """The summary's note on missing data: counts by arm and the assumption made."""
-    from .._validation import MISSING_AT_RANDOM_ASSUMPTION
-    from ..nuisance._missing import missingness_counts
-
-    parts = [
-        f"{r['arm']}: {r['n_status_unknown']} of {r['n']} with unknown survival status, "
-        f"{r['n_outcome_missing']} of {r['n_known_survivors']} known survivors without an outcome"
-        for r in missingness_counts(estimator.training_data_)
-    ]
-    return (
-        "Missing data (" + "; ".join(parts) + ") were handled by inverse probability of "
-        f"observation weighting under the assumption that they are {MISSING_AT_RANDOM_ASSUMPTION}"
-        ". This cannot be checked from the data; see sensitivity_grid(outcome_shift=...)."
-    )

@@ -25,8 +25,11 @@ __all__ = [
     "Oriented",
     "orient",
     "MeanParts",
+    "ratio",
+    "unorient",
     "weighting_means",
     "regression_means",
+    "robust_terms",
     "robust_means",
     "scale_effect",
 ]
@@ -47,7 +50,7 @@ class Oriented:
     weight: np.ndarray
     parametric: dict | None  # keys: "pi", "p_mixed", "p_pure", "m_mixed", "m_pure"
     increasing: bool
-    # missing="at_random": inverse-probability-of-observation factors (estimators/_coarsening.py)
+    # missing="at_random": inverse-probability-of-observation factors (estimands/_coarsening.py)
     coarsening: object = None
 
     # Monotone coarsening replaces each full-data indicator by the observed one over its
@@ -136,7 +139,7 @@ class MeanParts:
     influence_control: np.ndarray
 
 
-def _ratio(numerator, denominator):
+def ratio(numerator, denominator):
     """``numerator / denominator`` with 0 where the numerator is 0 (rows that carry no weight).
 
     A model may predict a probability of exactly 0 for rows outside the cell that the formula
@@ -147,7 +150,7 @@ def _ratio(numerator, denominator):
     return out
 
 
-def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
+def unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
     if o.increasing:
         return MeanParts(mu_mixed, mu_pure, if_mixed, if_pure)
     return MeanParts(mu_pure, mu_mixed, if_pure, if_mixed)
@@ -167,25 +170,25 @@ def weighting_means(o, subset=None):
     Y = o.outcome
     g = _indicator(o, subset)
     # With missing data the observed survivors also carry 1 / (c r) (docs/missing-data.md).
-    w_mixed = _ratio(g * o.observed_mixed * o.p_pure, o.pi * o.p_mixed)
+    w_mixed = ratio(g * o.observed_mixed * o.p_pure, o.pi * o.p_mixed)
     normalizer = o.weighted_mean(w_mixed)
     mu_mixed = o.weighted_mean(w_mixed * Y) / normalizer
     f = w_mixed * (Y - mu_mixed)
     correction = o.corrections(
-        {"pi": -_ratio(f, o.pi), "p_mixed": -_ratio(f, o.p_mixed), "p_pure": _ratio(f, o.p_pure),
+        {"pi": -ratio(f, o.pi), "p_mixed": -ratio(f, o.p_mixed), "p_pure": ratio(f, o.p_pure),
          **_coarsening.weight_derivatives(o, f, "mixed")}
     )  # fmt: skip
     if_mixed = (f + correction) / normalizer
 
-    w_pure = _ratio(g * o.observed_pure, 1 - o.pi)
+    w_pure = ratio(g * o.observed_pure, 1 - o.pi)
     normalizer = o.weighted_mean(w_pure)
     mu_pure = o.weighted_mean(w_pure * Y) / normalizer
     f = w_pure * (Y - mu_pure)
     correction = o.corrections(
-        {"pi": _ratio(f, 1 - o.pi), **_coarsening.weight_derivatives(o, f, "pure")}
+        {"pi": ratio(f, 1 - o.pi), **_coarsening.weight_derivatives(o, f, "pure")}
     )
     if_pure = (f + correction) / normalizer
-    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+    return unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
 def regression_means(o, subset=None):
@@ -200,7 +203,7 @@ def regression_means(o, subset=None):
         correction = o.corrections({"p_pure": g * (m - mu), key: always})
         result.append((mu, (f + correction) / normalizer))
     (mu_mixed, if_mixed), (mu_pure, if_pure) = result
-    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+    return unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
 def robust_terms(o):
@@ -209,18 +212,18 @@ def robust_terms(o):
     Returns ``(phi_e, phi_mixed, phi_pure)``; the means are ``mean(phi_t) / mean(phi_e)``.
     """
     S, Y = o.survival, o.outcome
-    pure_residual = _ratio(o.known_pure * (S - o.p_pure), 1 - o.pi)
+    pure_residual = ratio(o.known_pure * (S - o.p_pure), 1 - o.pi)
     phi_e = pure_residual + o.p_pure
     phi_mixed = (
         pure_residual * o.m_mixed
-        + _ratio(o.p_pure * o.observed_mixed * (Y - o.m_mixed), o.pi * o.p_mixed)
+        + ratio(o.p_pure * o.observed_mixed * (Y - o.m_mixed), o.pi * o.p_mixed)
         + o.p_pure * o.m_mixed
     )
     if o.coarsening is None:
-        phi_pure = _ratio((1 - o.mixed) * (S * Y - o.p_pure * o.m_pure), 1 - o.pi)
+        phi_pure = ratio((1 - o.mixed) * (S * Y - o.p_pure * o.m_pure), 1 - o.pi)
     else:
         # a0 (S R (Y - m0) / r0 + (S - p0) m0): each residual over its observation probability.
-        phi_pure = _ratio(o.observed_pure * (Y - o.m_pure), 1 - o.pi) + pure_residual * o.m_pure
+        phi_pure = ratio(o.observed_pure * (Y - o.m_pure), 1 - o.pi) + pure_residual * o.m_pure
     phi_pure = phi_pure + o.p_pure * o.m_pure
     return phi_e, phi_mixed, phi_pure
 
@@ -242,7 +245,7 @@ def robust_means(o, subset=None):
     mu_pure = o.weighted_mean(phi_pure) / share
     if_mixed = (phi_mixed - mu_mixed * phi_e) / share
     if_pure = (phi_pure - mu_pure * phi_e) / share
-    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+    return unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
 def scale_effect(parts, scale):

@@ -1,0 +1,130 @@
+"""Standard errors from per-unit influence values, and the intervals' reference distribution.
+
+One mechanism serves every estimator (DESIGN.md section 3): an estimator hands over its influence
+values ``IF_i`` (scaled so that ``estimate - truth ~ sum_i w_i IF_i / sum_i w_i``) and the
+standard error follows, with optional sample weights and clusters. With few clusters the
+intervals use a t reference with ``G - 1`` degrees of freedom.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .._validation import check_level
+from ..exceptions import FewClustersWarning
+
+__all__ = [
+    "FewClustersWarning",
+    "FEW_CLUSTERS",
+    "count_clusters",
+    "reference_dof",
+    "estimator_dof",
+    "influence_std_error",
+    "reference_distribution",
+    "reference_quantile",
+    "normal_interval",
+]
+
+
+# Below this many clusters a cluster-robust standard error is itself noisy and the normal
+# reference too narrow; a t reference with G - 1 degrees of freedom is common practice.
+FEW_CLUSTERS = 30
+
+
+def count_clusters(groups, stacklevel=3):
+    """Number of clusters (``None`` without ``groups``); warns when there are few."""
+    if groups is None:
+        return None
+    n_clusters = int(pd.unique(np.asarray(groups)).size)
+    if n_clusters < FEW_CLUSTERS:
+        warnings.warn(
+            f"Only {n_clusters} clusters in `groups` (fewer than {FEW_CLUSTERS}): the "
+            "cluster-robust standard error is imprecise, so confidence intervals use a t "
+            f"reference with {n_clusters - 1} degrees of freedom (G - 1) instead of the normal. "
+            "Even so they may undercover with very few clusters; treat them with caution.",
+            FewClustersWarning,
+            stacklevel=stacklevel,
+        )
+    return n_clusters
+
+
+def reference_dof(n_clusters):
+    """Degrees of freedom of the interval's t reference: ``G - 1`` with few clusters, else
+    ``None`` (normal reference)."""
+    if n_clusters is None or n_clusters >= FEW_CLUSTERS:
+        return None
+    return n_clusters - 1
+
+
+def estimator_dof(estimator):
+    """:func:`reference_dof` of a fitted estimator (its ``n_clusters_``)."""
+    return reference_dof(getattr(estimator, "n_clusters_", None))
+
+
+def influence_std_error(influence, sample_weight=None, groups=None):
+    """Standard error of an estimate from its influence values.
+
+    ``SE^2 = G/(G-1) * sum_g (sum_{i in g} w_i IF_i)^2 / (sum_i w_i)^2`` where each row is its
+    own cluster unless ``groups`` is given (the linearization variance of a weighted estimator
+    with a with-replacement cluster sample). The small-sample factor ``G/(G-1)`` makes singleton
+    clusters give exactly the ordinary standard error, and with unit weights the ordinary SE
+    equals ``sd(IF, ddof=1) / sqrt(n)`` when the influence values average zero.
+
+    Parameters
+    ----------
+    influence : array-like of shape (n,) or (n, k)
+    sample_weight : array-like of shape (n,), optional
+    groups : array-like of shape (n,), optional
+        Cluster labels.
+
+    Returns
+    -------
+    float or ndarray of shape (k,)
+    """
+    influence = np.asarray(influence, dtype=float)
+    n = influence.shape[0]
+    weights = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    contributions = influence * (weights if influence.ndim == 1 else weights[:, None])
+    if groups is not None:
+        codes, _ = pd.factorize(np.asarray(groups))
+        totals = np.zeros((codes.max() + 1,) + influence.shape[1:])
+        np.add.at(totals, codes, contributions)
+        contributions = totals
+    n_clusters = contributions.shape[0]
+    if n_clusters < 2:
+        return np.full(influence.shape[1:], np.nan) if influence.ndim > 1 else float("nan")
+    centered = contributions - contributions.mean(axis=0)
+    variance = n_clusters / (n_clusters - 1) * np.sum(centered**2, axis=0) / weights.sum() ** 2
+    result = np.sqrt(variance)
+    return float(result) if influence.ndim == 1 else result
+
+
+def reference_distribution(dof=None):
+    """The intervals' reference: the normal, or Student's t with ``dof`` degrees of freedom
+    (few clusters: see :func:`reference_dof`)."""
+    return stats.norm if dof is None else stats.t(dof)
+
+
+def reference_quantile(level, dof=None):
+    """Two-sided quantile of :func:`reference_distribution` at ``level``."""
+    return float(reference_distribution(dof).ppf(0.5 + level / 2))
+
+
+def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
+    """Wald interval; on the log scale (then exponentiated) for ratio effects.
+
+    With ``dof`` (few clusters: see :func:`reference_dof`) the quantile is Student's t with
+    ``dof`` degrees of freedom instead of the normal one.
+    """
+    level = check_level(level)
+    z = reference_quantile(level, dof)
+    if log_scale:
+        if estimate <= 0:
+            return (float("nan"), float("nan"))
+        log_se = std_error / estimate
+        return (float(estimate * np.exp(-z * log_se)), float(estimate * np.exp(z * log_se)))
+    return (float(estimate - z * std_error), float(estimate + z * std_error))
