@@ -154,7 +154,7 @@ def test_report_opens_with_the_glance_and_folds_long_sections(written):
     primary = next(e for e in results["estimates"] if e["primary"])
     tip = results["sensitivity"]["pi_difference"]["tipping_point"]
     for text in ("At a glance", number(primary["effect"]), number(results["bounds"]["lower"]),
-                 number(tip) if tip is not None else "not reached", "Always-survivor share",
+                 number(tip) if tip is not None else "not reached", "always-survivor share",
                  "latent", "individual unit"):  # fmt: skip
         assert text in glance, text
     pattern = r'<details class="fold">\s*<summary>(.*?)</summary>\s*<section id="([\w-]+)"'
