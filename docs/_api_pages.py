@@ -19,12 +19,14 @@ import pscore_strata
 
 # Reading order of the families; a subpackage missing here is appended alphabetically.
 ORDER = ["estimators", "assumptions", "distributions", "inference", "diagnostics", "plotting",
-         "datasets", "simulation", "nuisance", "report", "tables"]  # fmt: skip
+         "datasets", "simulation", "nuisance", "report", "tables", "exceptions"]  # fmt: skip
 
 
 def _families():
+    # Every public subpackage, and the one public top-level module (the warning and error
+    # classes, pscore_strata.exceptions).
     names = [m.name for m in pkgutil.iter_modules(pscore_strata.__path__)
-             if m.ispkg and not m.name.startswith("_")]  # fmt: skip
+             if (m.ispkg or m.name == "exceptions") and not m.name.startswith("_")]  # fmt: skip
     return sorted(names, key=lambda n: (ORDER.index(n) if n in ORDER else len(ORDER), n))
 
 

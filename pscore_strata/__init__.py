@@ -16,6 +16,7 @@ from . import (
     tables,
     visits,
 )
+from ._version import __version__
 from .assumptions import TrimmingBounds, sensitivity_grid, tipping_point
 from .diagnostics import (
     balance_table,
@@ -36,8 +37,6 @@ from .estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighti
 from .inference import BootstrapResult, FewClustersWarning, bootstrap
 from .nuisance import MonotonicityWarning, OverlapWarning, PrincipalScoreModel
 from .visits import visit_effects
-
-__version__ = "0.1.0"
 
 
 def __getattr__(name):

@@ -234,11 +234,18 @@ def simulate_command(args):
         frame["cluster"] = data.groups
     replaced = _write_simulated(frame, out)
     covariates = " ".join(c for c in frame.columns if c.startswith("x"))
+    # The intermediate_* scenarios (datasets/_intermediate.py) know every stratum's effect.
+    stratum = data.get("target_stratum")
+    truth = "true SACE" if stratum in (None, "always_survivor") else f"true {stratum} effect"
     print(f"Wrote {len(frame)} rows of scenario '{args.scenario}' to {out}"
-          f"{' (replacing the file there)' if replaced else ''}; true SACE "
+          f"{' (replacing the file there)' if replaced else ''}; {truth} "
           f"{data.true_effect:.4f}.")  # fmt: skip
+    role = "--survival survival" if stratum is None else "--intermediate survival"
+    if stratum is not None:
+        role += f" --stratum {stratum}" + (
+            " --monotonicity decreasing" if data.params["monotonicity"] == "decreasing" else "")
     print(f"Analyse it with: pscore-strata analyze {out} --outcome outcome --treatment treatment "
-          f"--survival survival --covariates {covariates}"
+          f"{role} --covariates {covariates}"
           + (" --cluster cluster" if "cluster" in frame else "")
           + (" --missing at_random" if frame[["survival", "outcome"]].isna().any().any()
              and "status_known" in data else ""))  # fmt: skip

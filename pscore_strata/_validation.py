@@ -22,7 +22,13 @@ from ._vectors import (
     one_dimensional,
 )
 
-__all__ = ["TruncationData", "check_truncation_data", "check_level", "check_features"]
+__all__ = [
+    "TruncationData",
+    "check_truncation_data",
+    "check_level",
+    "check_features",
+    "intermediate_alias",
+]
 
 # Probabilities this close to 0 or 1 make weights explode; the threshold is common practice.
 EXTREME_PROBABILITY = 0.01
@@ -343,3 +349,13 @@ def check_choice(value, name, allowed):
     if value not in allowed:
         raise ValueError(f"`{name}` must be one of {list(allowed)}; got {value!r}.")
     return value
+
+
+def intermediate_alias(survival, intermediate):
+    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
+    if (survival is None) == (intermediate is None):
+        raise TypeError(
+            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
+            "variable under two names); got " + ("both." if survival is not None else "neither.")
+        )
+    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")

@@ -285,10 +285,45 @@ def test_every_scenario_runs(name):
 
 def test_scenario_table_lists_every_scenario():
     table = list_scenarios()
-    assert list(table.columns) == ["name", "description", "truth"]
+    assert list(table.columns) == ["name", "family", "description", "truth", "params", "bias"]
     assert table["name"].tolist() == list(SCENARIOS)
     kinds = dict(zip(table["name"], table["truth"], strict=True))
     assert kinds["binary"] == "monte_carlo" and kinds["linear"] == "exact"
+    assert kinds["survival_misspecified"] == "monte_carlo"  # the effect varies with x2
+    row = table.set_index("name").loc["monotonicity_violated"]
+    assert row.params == {"harmed_ratio": 0.4, "harmed_difference": 1.5}
+    assert "multiply_robust down" in row.bias
+
+
+def test_make_scenario_takes_parameters_and_refuses_unknown_ones():
+    # The grid axis of a study: a scenario's settings replaced one at a time.
+    data = make_scenario("monotonicity_violated", 300, random_state=0, harmed_ratio=0.1,
+                         harmed_difference=-1.0)  # fmt: skip
+    assert data.params["harmed_ratio"] == 0.1 and data.params["harmed_difference"] == -1.0
+    assert "harmed units' outcome shifted by -1" in data.DESCR
+    # The same seed and settings as make_truncation give the same data.
+    same = make_truncation(300, harmed_ratio=0.1, random_state=0)
+    shifted = make_scenario("linear", 300, random_state=0, harmed_ratio=0.1)
+    np.testing.assert_array_equal(same.y, shifted.y)
+    with pytest.raises(TypeError, match="unknown scenario parameter.*'harmed_shift'"):
+        make_scenario("linear", 100, harmed_shift=1.0)
+    with pytest.raises(ValueError, match="misspecified must be one of"):
+        make_scenario("linear", 100, misspecified=("propensity",))
+    with pytest.raises(ValueError, match="harmed_ratio must lie in"):
+        make_scenario("monotonicity_violated", 100, harmed_ratio=1.0)
+
+
+def test_harmed_units_outcomes_are_shifted_and_the_truth_is_unchanged():
+    # Source: simulated potential outcomes. The harmed units' Y(0) sits harmed_difference above
+    # the always-survivors' with the same X; the SACE (an always-survivor quantity) stays 1.
+    data = make_scenario("monotonicity_violated", LARGE, random_state=3)
+    harmed = data.stratum == "harmed"
+    always = data.stratum == "always_survivor"
+    assert harmed.mean() > 0.04 and data.true_effect == 1.0
+    x = data.X
+    index0 = 1.0 + x[:, 0] + 0.5 * x[:, 1] - 0.5 * x[:, 2]  # the linear control index
+    gap = (data.y0[harmed] - index0[harmed]).mean() - (data.y0[always] - index0[always]).mean()
+    assert gap == pytest.approx(1.5, abs=4 * np.sqrt(1 / harmed.sum() + 1 / always.sum()))
 
 
 def test_scenario_specifics():

@@ -161,3 +161,11 @@ def test_planning_bounds():
     share, mcse = map(float, re.search(r"simulated: ([\d.]+) of \d+ trials .*SE ([\d.]+)",
                                        out).groups())  # fmt: skip
     assert abs(share - 0.80) < 4 * mcse
+
+
+def test_repeated_visits():
+    out = run_example("repeated_visits.py")
+    # Source: the simulated truth of make_visits; every 95% band covers the true effects.
+    assert "population 'each'" in out and "population 'last'" in out
+    assert out.count("the band covers the true effect at every visit: True") == 2
+    assert "no effect at any visit" in out and "p = " in out

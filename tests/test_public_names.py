@@ -152,7 +152,9 @@ PUBLIC_NAMES = {
     "pscore_strata.simulation": [
         "plot_summary",
         "run_study",
+        "simulate_cell",
         "summarize",
+        "summary_table",
     ],
     "pscore_strata.tables": [
         "FORMATS",

@@ -67,7 +67,9 @@ SUBPACKAGE_NAMES = {
         "ordinal_comparison",
         "OrdinalComparison",
     ],
-    "pscore_strata.simulation": ["run_study", "summarize", "plot_summary"],
+    "pscore_strata.simulation": [
+        "run_study", "simulate_cell", "summarize", "plot_summary", "summary_table",
+    ],
     "pscore_strata.datasets": ["make_truncation", "make_scenario", "list_scenarios", "load_demo"],
     "pscore_strata.report": ["run_analysis", "write_report", "AnalysisOptions", "ColumnRoles"],
 }

@@ -53,7 +53,20 @@ def trial_without_deaths(n_samples, random_state):
     )
 
 
+# The first covariate of replicate 0 of trial_without_deaths at n = 50 under random_state=0.
+FIRST_X = ps.simulation.simulate_cell({"trial": trial_without_deaths}, 50, 0, 0).X[0, 0]
+
+
 class Broken(DifferenceInMeans):
+    """Fails in replicate 0 only (the study then records it and goes on)."""
+
+    def fit(self, X, y, *, treatment, survival, groups=None):
+        if abs(X[0, 0] - FIRST_X) < 1e-12:
+            raise ValueError("cannot fit this replicate")
+        return super().fit(X, y, treatment=treatment, survival=survival)
+
+
+class AlwaysBroken(DifferenceInMeans):
     def fit(self, X, y, *, treatment, survival, groups=None):
         raise ValueError("cannot fit this replicate")
 
@@ -61,7 +74,8 @@ class Broken(DifferenceInMeans):
 class NotANumber(DifferenceInMeans):
     def fit(self, X, y, *, treatment, survival, groups=None):
         super().fit(X, y, treatment=treatment, survival=survival)
-        self.effect_ = np.nan
+        if abs(X[0, 0] - FIRST_X) < 1e-12:
+            self.effect_ = np.nan
         return self
 
 
@@ -97,15 +111,16 @@ def test_summary_matches_hand_computation():
     row = summarize(table).iloc[0]
     # Source: hand arithmetic. Errors 0.2, -0.1, 0.5 -> bias 0.6/3 = 0.2. Mean estimate 1.2;
     # squared deviations 0, 0.09, 0.09 -> SD sqrt(0.18/2) = 0.3. RMSE sqrt((0.04+0.01+0.25)/3)
-    # = sqrt(0.1). Mean SE 0.3 -> SE/SD 1. Intervals [0.8,1.6] and [0.1,1.7] hold 1.0, [1.1,1.9]
-    # does not -> coverage 2/3; widths 0.8, 1.6, 0.8 -> mean 3.2/3.
+    # = sqrt(0.1). Mean SE 0.3; model SE sqrt((0.04+0.16+0.09)/3) (root mean squared SE,
+    # Morris, White & Crowther 2019) -> SE/SD sqrt(0.29/3)/0.3. Intervals [0.8,1.6] and
+    # [0.1,1.7] hold 1.0, [1.1,1.9] does not -> coverage 2/3; widths 0.8, 1.6, 0.8 -> mean 3.2/3.
     assert (row.n_reps, row.n_failed) == (4, 1)
     assert row.bias == pytest.approx(0.2)
     assert row.mean_estimate == pytest.approx(1.2)
     assert row.sd == pytest.approx(0.3)
     assert row.rmse == pytest.approx(np.sqrt(0.1))
     assert row.mean_se == pytest.approx(0.3)
-    assert row.se_sd_ratio == pytest.approx(1.0)
+    assert row.se_sd_ratio == pytest.approx(np.sqrt(0.29 / 3) / 0.3)
     assert row.coverage == pytest.approx(2 / 3)
     assert row.mean_width == pytest.approx(3.2 / 3)
     # Monte Carlo errors (Morris, White & Crowther 2019, Stat Med; formulas recalled from
@@ -264,17 +279,28 @@ def test_failures_are_recorded_not_raised():
         {"ok": DifferenceInMeans(), "broken": Broken(), "nan": NotANumber()},
         {"trial": trial_without_deaths},
         50,
-        n_reps=2,
+        n_reps=3,
         random_state=0,
     )
     by_name = results.set_index(["estimator", "replicate"])
     assert not by_name.loc["ok", "failed"].any()
-    assert by_name.loc["broken", "failed"].all()
+    assert by_name.loc["broken", "failed"].tolist() == [True, False, False]
     assert by_name.loc[("broken", 0), "error"] == "ValueError: cannot fit this replicate"
     assert by_name.loc[("nan", 0), "error"] == "non-finite estimate"
     summary = summarize(results).set_index("estimator")
-    assert summary.loc["broken", "n_failed"] == 2 and np.isnan(summary.loc["broken", "bias"])
+    assert summary.loc["broken", "n_failed"] == 1 and np.isfinite(summary.loc["broken", "bias"])
     assert summary.loc["ok", "n_failed"] == 0
+
+
+def test_an_estimator_failing_every_replicate_stops_the_study_with_its_first_error():
+    with pytest.raises(RuntimeError, match=r"'broken' failed in all 2 replicates of scenario "
+                       r"'trial'.*replicate 0\): ValueError: cannot fit this replicate"):
+        run_study({"ok": DifferenceInMeans(), "broken": AlwaysBroken()},
+                  {"trial": trial_without_deaths}, 50, n_reps=2, random_state=0)
+    # The default estimators on a scenario with missing survival statuses: the error says why.
+    with pytest.raises(RuntimeError, match="PrincipalScoreWeighting.*failed in all.*at_random"):
+        run_study([ps.PrincipalScoreWeighting()], "lost_to_follow_up", 300, n_reps=2,
+                  random_state=0)
 
 
 def test_warnings_are_recorded():
@@ -372,7 +398,7 @@ def test_checkpoint_refuses_another_study(tmp_path):
             random_state=2,
             checkpoint=tmp_path,
         )
-    with pytest.raises(ValueError, match="`checkpoint`.*other estimators"):
+    with pytest.raises(ValueError, match="`checkpoint`.*random_state None -> 3"):
         run_study(
             [DifferenceInMeans(random_state=3)],
             {"trial": trial_without_deaths},
@@ -388,7 +414,10 @@ def test_checkpoint_refuses_another_study(tmp_path):
 
 
 # -- bad input -----------------------------------------------------------------------------------
-GOOD = dict(estimators=[DifferenceInMeans()], scenarios="linear", n_samples=50, n_reps=1)
+GOOD = dict(
+    estimators=[DifferenceInMeans()], scenarios={"trial": trial_without_deaths}, n_samples=50,
+    n_reps=1,
+)
 
 
 @pytest.mark.parametrize(
@@ -427,16 +456,16 @@ def test_bad_arguments_name_the_argument(change, error, pattern):
 
 
 def test_duplicate_scenario_names_are_refused():
-    def linear(n, rng):
-        return make_scenario("linear", n, rng)
+    def linear(n_samples, random_state):
+        return make_scenario("linear", n_samples, random_state)
 
     with pytest.raises(ValueError, match="names 'linear' twice"):
         run_study(**{**GOOD, "scenarios": ["linear", linear]})
 
 
 def test_a_scenario_callable_must_return_the_fields():
-    def incomplete(n, rng):
-        return Bunch(X=np.zeros((n, 1)))
+    def incomplete(n_samples, random_state):
+        return Bunch(X=np.zeros((n_samples, 1)))
 
     with pytest.raises(ValueError, match="without y, treatment, survival, true_effect"):
         run_study(**{**GOOD, "scenarios": incomplete})
@@ -472,7 +501,10 @@ def test_plot_summary_draws_one_row_per_scenario():
 
 
 # -- the scenario library's truth ----------------------------------------------------------------
-@pytest.mark.parametrize("name", list(SCENARIOS))
+# The intermediate family's stratum effects are checked in tests/test_strata_simulation.py.
+@pytest.mark.parametrize(
+    "name", [name for name, record in SCENARIOS.items() if record.family == "truncation"]
+)
 def test_scenario_truth_matches_its_potential_outcomes(name):
     # Source: simulated truth. By the law of large numbers the mean of Y(1) - Y(0) over the
     # always-survivors of a large sample converges to the SACE; allow 4 standard errors plus

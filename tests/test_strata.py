@@ -241,3 +241,22 @@ def test_subgroups_cross_fitting_clusters_and_weights_run_for_each_stratum():
         assert abs(est.effect_ - data.true_effect) < 4 * est.std_error_
         table = est.effect_by(data.X[:, 0] > 0)
         assert table["n"].sum() == 2000 and np.isfinite(table["std_error"]).all()
+
+
+def test_intermediate_accepted_by_the_bootstrap_and_the_bounds():
+    data = make_intermediate(600, random_state=4)
+    by_name = ps.bootstrap(ps.PrincipalScoreWeighting(stratum="complier"), data.X, data.y,
+                           treatment=data.treatment, intermediate=data.intermediate,
+                           n_resamples=20, random_state=0)  # fmt: skip
+    by_survival = ps.bootstrap(ps.PrincipalScoreWeighting(stratum="complier"), data.X, data.y,
+                               treatment=data.treatment, survival=data.intermediate,
+                               n_resamples=20, random_state=0)  # fmt: skip
+    assert by_name.std_error == by_survival.std_error
+    truncated = make_truncation(600, random_state=4)
+    a = ps.TrimmingBounds().fit(truncated.X, truncated.y, treatment=truncated.treatment,
+                                intermediate=truncated.survival)  # fmt: skip
+    b = ps.TrimmingBounds().fit(truncated.X, truncated.y, treatment=truncated.treatment,
+                                survival=truncated.survival)  # fmt: skip
+    assert (a.lower_, a.upper_) == (b.lower_, b.upper_)
+    with pytest.raises(TypeError, match="exactly one of `survival` and `intermediate`"):
+        ps.TrimmingBounds().fit(truncated.X, truncated.y, treatment=truncated.treatment)

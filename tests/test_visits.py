@@ -324,3 +324,30 @@ def test_docstring_examples_run():
         for test in doctest.DocTestFinder().find(function, function.__name__):
             runner.run(test)
     assert runner.failures == 0 and runner.tries >= 4
+
+
+@pytest.mark.slow
+def test_joint_covariance_agrees_with_a_refitting_bootstrap():
+    # Source: the refitting bootstrap (rows resampled within arms, every visit refitted on the
+    # same resample), an estimate of the covariance that uses no influence values. With 80
+    # resamples a bootstrap correlation has a Monte Carlo error near 0.1.
+    data = make_visits(800, random_state=17)
+    estimator = ps.PrincipalScoreWeighting()
+    table = ps.visit_effects(estimator, data.X, data.y, treatment=data.treatment,
+                             survival=data.survival)  # fmt: skip
+    replicates = []
+    for seed in ps.inference.spawn_seeds(5, 80):
+        rows = ps.inference.resample_rows(data.treatment, seed)
+        replicates.append([
+            _fit(estimator, data.X.iloc[rows], data.y.iloc[rows, k], data.treatment[rows],
+                 data.survival.iloc[rows, k]).effect_
+            for k in range(3)
+        ])  # fmt: skip
+    boot = np.cov(np.array(replicates), rowvar=False)
+    influence = table.attrs["covariance"].to_numpy()
+
+    def correlation(m):
+        return m / np.sqrt(np.outer(np.diag(m), np.diag(m)))
+
+    assert np.allclose(np.sqrt(np.diag(boot)), np.sqrt(np.diag(influence)), rtol=0.25)
+    assert np.max(np.abs(correlation(boot) - correlation(influence))) < 0.2

@@ -85,8 +85,6 @@ def test_pbc_visit_table_counts_and_population_identity(pbc):
     assert 0 <= test["p_value"] <= 1 and test["df"] == 3
 
 
-@pytest.mark.xfail(reason="summary() of an unadjusted fit is fixed by issue 23 (monotonicity "
-                   "check on constant scores)", strict=False)
 def test_pbc_unadjusted_effects_are_the_observed_survivor_contrasts(pbc):
     # Source: without covariates, principal ignorability makes each arm's always-survivor mean
     # its survivors' mean, and missing at random with constant probabilities makes it the

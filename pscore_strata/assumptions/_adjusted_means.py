@@ -1,6 +1,6 @@
 """The three methods' always-survivor means with the sensitivity parameters of
 :mod:`._sensitivity` (``delta``, ``eps``, ``xi``), in the oriented view, with their influence
-values (derivation in docs/sensitivity.md)."""
+values (derivation in docs/guide/derivations/bounds-sensitivity.md)."""
 
 from __future__ import annotations
 
@@ -71,7 +71,8 @@ def _ratio(o, numerator, denominator, derivatives, parametric):
 
 def _weighting(o, st, parametric):
     Y, pi = o.outcome, o.pi
-    # Observed survivors; with missing data they also carry 1 / (c r) (docs/missing-data.md).
+    # Observed survivors; with missing data they also carry 1 / (c r)
+    # (docs/guide/derivations/missing-data.md).
     base = o.observed_mixed / (pi * o.p_mixed)
     g, g_pp, g_pm, _ = st.g(Y)
 
@@ -123,7 +124,8 @@ def _regression(o, st, parametric):
 def _robust_pieces(o):
     """The parameter-free arrays of :func:`_robust` (kept by a sensitivity path)."""
     S, Y, pi = o.survival, o.outcome, o.pi
-    # Missing data: each residual over its observation probability (docs/missing-data.md).
+    # Missing data: each residual over its observation probability
+    # (docs/guide/derivations/missing-data.md).
     return {
         "resid_pure": o.known_pure * (S - o.p_pure) / (1 - pi),
         "resid_mixed": o.known_mixed * (S - o.p_mixed) / pi,
@@ -135,11 +137,12 @@ def _robust_pieces(o):
 
 
 def _robust(o, st, parametric, cache=None):
-    """Efficient-influence-function estimator of the adjusted means (docs/sensitivity.md).
+    """Efficient-influence-function estimator of the adjusted means
+    (docs/guide/derivations/bounds-sensitivity.md).
 
     For a functional ``E[G(p_p, p_m, m)]`` the efficient influence function adds to ``G`` each
     partial derivative times the residual of that regression, inverse-weighted by the chance of
-    being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022, Theorem 1).
+    being in the rows it is fitted on (Hahn 1998; Jiang, Yang & Ding 2022).
     ``cache`` (a dict) keeps the parameter-free arrays between calls; the arithmetic is the
     same with or without it.
     """

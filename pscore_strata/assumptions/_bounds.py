@@ -5,7 +5,7 @@ of the *mixed* arm (treated, when treatment can only help survival) mix always-s
 share ``q = P(S=1 | pure arm) / P(S=1 | mixed arm)``, with units the treatment kept alive. Without
 principal ignorability nothing says *which* mixed-arm survivors are the always-survivors, so their
 mean lies between the mean of the lowest ``q``-fraction and of the highest ``q``-fraction of the
-mixed-arm survivors' outcomes (Lee 2009, Proposition 1b). Inverse probability of treatment
+mixed-arm survivors' outcomes (Zhang & Rubin 2003; Lee 2009). Inverse probability of treatment
 weights make the arms represent the same population in observational data; trimming within
 covariate cells and averaging the cell bounds (weights: estimated always-survivor counts) can only
 narrow the bounds when ``q`` varies between cells (Lee 2009, Remark; Long & Hudgens 2013).
@@ -19,7 +19,7 @@ from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_positive_integer
-from .._validation import check_choice, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
 from ..estimands._formulas import orient
 from ..inference._standard_errors import (
@@ -96,7 +96,7 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     Standard errors use influence functions of the trimmed means: for the lower mean
     ``L = E[Y | Y <= y_q]`` of a distribution ``F``, ``IF(y) = ((y - y_q) 1{y <= y_q} +
     q y_q) / q - L`` plus ``(y_q - L) / q`` times the influence of the estimated share ``q``
-    (Lee 2009, Proposition 3, in influence-function form), and the mirror image for the upper
+    (Lee 2009, in influence-function form), and the mirror image for the upper
     mean. When the treatment model is the default logistic regression its estimation is carried
     through by M-estimation (as in :class:`PrincipalScoreWeighting`); other treatment models are
     treated as known. Score strata are treated as fixed cells.
@@ -144,8 +144,8 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         self.response_model = response_model
         self.quantiles = quantiles
 
-    def fit(self, X, y, *, treatment, survival, sample_weight=None, groups=None, cells=None,
-            nuisance=None):  # fmt: skip
+    def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
+            groups=None, cells=None, nuisance=None):  # fmt: skip
         """Estimate the bounds.
 
         Parameters
@@ -154,6 +154,8 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
             Covariates for the treatment (and survival) models; ``None`` gives unadjusted
             bounds.
         y, treatment, survival, sample_weight, groups
+            As in the estimators' ``fit``; ``intermediate`` is ``survival`` under its general
+            name (give exactly one).
             As in :meth:`PrincipalScoreWeighting.fit`.
         cells : array-like of shape (n_samples,), optional
             Covariate cell labels (functions of pre-treatment covariates only). Bounds are
@@ -175,8 +177,9 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         check_positive_integer(self.n_strata, "n_strata")
         if self.quantiles is not None:
             check_quantiles(self.quantiles)
+        survival, name = intermediate_alias(survival, intermediate)
         data = check_truncation_data(
-            X, y, treatment, survival, sample_weight, groups,
+            X, y, treatment, survival, sample_weight, groups, survival_name=name,
             models=(self.treatment_model, self.survival_model, self.response_model),
             missing=self.missing,
         )  # fmt: skip
@@ -231,9 +234,15 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     def conf_int(self, level=0.95, coverage="effect"):
         """Confidence interval for a partially identified SACE.
 
+        The same call and shape as the point estimators' ``conf_int(level)``: a ``(low, high)``
+        pair for the SACE. It differs in what it covers: the effect is only known to lie in
+        ``[lower_, upper_]``, so the interval widens the bounds by their sampling error instead
+        of surrounding one estimate.
+
         Parameters
         ----------
         level : float, default=0.95
+            Confidence level, strictly between 0 and 1.
         coverage : {"effect", "identified_set"}, default="effect"
             ``"effect"`` covers the true SACE (every point of the identified set) with
             probability ``level`` (Imbens & Manski 2004); ``"identified_set"`` covers the whole
@@ -260,7 +269,20 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         )
 
     def summary(self, level=0.95):
-        """Bounds, standard errors and intervals as a DataFrame (cautions in ``attrs``)."""
+        """Bounds, standard errors and intervals as a DataFrame (cautions in ``attrs``).
+
+        Parameters
+        ----------
+        level : float, default=0.95
+            Level of the Imbens-Manski interval.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Rows ``SACE lower bound`` and ``SACE upper bound``: ``estimate``, ``std_error`` and
+            ``interval_end`` (the interval's end on that side); ``attrs["notes"]`` holds the
+            notes and cautions.
+        """
         check_is_fitted(self, "lower_")
         low, high = self.conf_int(level)
         table = pd.DataFrame(

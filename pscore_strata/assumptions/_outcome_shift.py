@@ -8,7 +8,7 @@ it is a model of who responds, which the data identify). Every estimator is line
 survivors' outcomes, so the shifted always-survivor mean is the estimator applied to
 ``Y + d_t (1 - r_t(X))`` (responders) and ``m_t + d_t (1 - r_t)`` (outcome models), plus, in the
 influence values, the estimation error of ``r_t`` that the shift now carries
-(docs/missing-data.md, section 4).
+(docs/guide/derivations/missing-data.md, section 4).
 """
 
 from __future__ import annotations

@@ -9,9 +9,9 @@ lowest ``q_c`` of ``F_c`` (``L_c(v) = min(F_c(v) / q_c, 1)``), and ``U_c``, the 
 population is ``A = sum_c omega_c A_c`` with the mean bounds' cell weights ``omega_c`` (estimated
 always-survivor counts), and mixing keeps the stochastic order, so ``A`` lies between the two
 *trimmed mixtures* ``G_L = sum_c omega_c L_c`` and ``G_U = sum_c omega_c U_c``, both attainable.
-The mean bounds are the means of ``G_L`` and ``G_U`` (Lee 2009, Proposition 1b, averaged over
+The mean bounds are the means of ``G_L`` and ``G_U`` (Lee 2009, averaged over
 cells); the quantile bounds are their ``u``-quantiles (Imai 2008, Statistics & Probability
-Letters 78; Lee 2009, section 3 for quantiles). The pure arm's always-survivor distribution is
+Letters 78; Lee 2009 for quantiles). The pure arm's always-survivor distribution is
 identified: the inverse-probability-weighted distribution of its survivors, which equals
 ``sum_c omega_c`` of the cells' pure-arm distributions. With one cell, ``G_L`` quantiles are the
 ``u q`` quantiles of the mixed-arm survivors and ``G_U`` quantiles their ``1 - q + u q`` ones.

@@ -7,7 +7,7 @@ always-survivors plus the *helped* stratum (protected units when treatment can o
 survival), the *pure* arm's are always-survivors plus the *opposite* stratum, which monotonicity
 rules out.
 
-Parameters (Ding & Lu 2017, section 5; Jiang, Yang & Ding 2022, section 6):
+Parameters (Ding & Lu 2017; Jiang, Yang & Ding 2022):
 
 - ``pi_difference`` ``delta = E[Y|helped,X] - E[Y|always,X]`` in the mixed arm;
 - ``pi_ratio`` ``eps = E[Y|helped,X] / E[Y|always,X]`` in the mixed arm;
@@ -17,7 +17,7 @@ With ``xi``, ``e_helped = (p_m - p_p)/(1 - xi)`` and ``e_always = (p_p - xi p_m)
 always-survivor mean in the mixed arm is ``m_m - delta e_helped/p_m`` or
 ``m_m p_m/(e_always + eps e_helped)``, in the pure arm ``m_p`` (principal ignorability extended
 to the opposite stratum), and ``mu = E[e_always mu(X)] / E[e_always]``. The derivation of the
-influence functions is in docs/sensitivity.md.
+influence functions is in docs/guide/derivations/bounds-sensitivity.md.
 """
 
 from __future__ import annotations
@@ -58,7 +58,8 @@ def _check_estimator(estimator):
             f"MultiplyRobust; got {type(estimator).__name__}."
         )
     check_is_fitted(estimator, "nuisance_")
-    # The sensitivity formulas relax the always-survivor assumptions only (docs/sensitivity.md).
+    # The sensitivity formulas relax the always-survivor assumptions only
+    # (docs/guide/derivations/bounds-sensitivity.md).
     require_always_survivor(estimator, "The sensitivity analysis (sensitivity_grid, tipping_point)")
     return formula
 

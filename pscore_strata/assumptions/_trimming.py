@@ -47,7 +47,7 @@ def binary_trimmed_means(success_share, share):
     """Closed form of :func:`trimmed_means` for 0/1 outcomes with mean ``success_share``.
 
     The lowest ``share`` holds all the zeros it can (``1 - success_share`` of the mass); the
-    highest ``share`` holds all the ones it can (Zhang & Rubin 2003, section 4 for binary data).
+    highest ``share`` holds all the ones it can (Zhang & Rubin 2003, for binary data).
     """
     lower = max(0.0, (success_share - (1.0 - share)) / share)
     upper = min(1.0, success_share / share)
@@ -58,7 +58,7 @@ def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95, dof=Non
     """Interval covering every point of the identified set with probability ``level``.
 
     Solves ``Phi(c + width / max(se)) - Phi(-c) = level`` for ``c`` (Imbens & Manski 2004,
-    Econometrica 72, section 4) and returns ``(lower - c se_lower, upper + c se_upper)``. With
+    Econometrica 72) and returns ``(lower - c se_lower, upper + c se_upper)``. With
     ``dof`` (few clusters) ``Phi`` is Student's t with ``dof`` degrees of freedom.
     """
     reference = reference_distribution(dof)

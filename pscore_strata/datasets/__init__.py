@@ -7,7 +7,7 @@ registry whose true effect is ``DEMO_TRUE_EFFECT``.
 
 from ._demo import DEMO_ROLES, DEMO_TRUE_EFFECT, load_demo
 from ._intermediate import make_intermediate
-from ._scenarios import SCENARIOS, list_scenarios, make_scenario
+from ._registry import SCENARIOS, list_scenarios, make_scenario
 from ._simulate import make_truncation
 from ._visits import make_visits
 

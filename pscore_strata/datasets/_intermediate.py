@@ -18,6 +18,7 @@ from scipy.special import expit
 from sklearn.utils import Bunch
 
 from ._checks import check_choice, check_positive_int, check_real, resolve_rng
+from ._family import Scenario
 
 __all__ = ["make_intermediate", "INTERMEDIATE_SCENARIOS"]
 
@@ -194,26 +195,27 @@ def _describe(params, true_effects):
 
 
 def _scenario(stratum, monotonicity="increasing", **settings):
-    def simulate(n_samples, rng):
-        return make_intermediate(n_samples, stratum=stratum, monotonicity=monotonicity,
-                                 random_state=rng, **settings)  # fmt: skip
+    def simulate(n_samples, rng, **params):
+        chosen = {"stratum": stratum, "monotonicity": monotonicity, **settings, **params}
+        return make_intermediate(n_samples, random_state=rng, **chosen)
 
     return simulate
 
 
-# Entries for datasets.SCENARIOS: "simulate" replaces the truncation simulator.
+# Entries for datasets.SCENARIOS (datasets/_registry.py): each draws with its own simulator.
 INTERMEDIATE_SCENARIOS = {
-    f"intermediate_{stratum}": dict(
-        settings={}, knobs={}, simulate=_scenario(stratum, monotonicity),
+    f"intermediate_{stratum}": Scenario(
+        make=_scenario(stratum, monotonicity), truth="exact", family="intermediate",
         description=f"Outcome observed after a binary intermediate ({monotonicity} "
                     f"monotonicity, principal ignorability holds); truth: the {stratum} effect.",
     )
     for stratum, monotonicity in (("always_survivor", "increasing"), ("protected", "increasing"),
                                   ("doomed", "increasing"), ("harmed", "decreasing"))
 }  # fmt: skip
-INTERMEDIATE_SCENARIOS["intermediate_exclusion"] = dict(
-    settings={}, knobs={}, simulate=_scenario("protected", design="randomized", exclusion=True),
+INTERMEDIATE_SCENARIOS["intermediate_exclusion"] = Scenario(
+    make=_scenario("protected", design="randomized", exclusion=True), truth="exact",
+    family="intermediate",
     description="Randomized assignment with noncompliance: principal ignorability and the "
                 "exclusion restriction hold; truth: the complier (protected) effect, which is "
                 "also the Wald estimand.",
-)
+)  # fmt: skip

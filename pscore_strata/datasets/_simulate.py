@@ -21,13 +21,27 @@ _TRUTH_SEED = 20_517_903
 _TRUTH_DRAWS = 2_000_000
 
 
+# Bends of one model family at a time, each a curve that the main-effects working model
+# (logistic in X, or linear in X) cannot represent; see the ``*_misspecified`` scenarios.
+def _treatment_bend(x1, x2):
+    return 0.8 * (x1**2 - 1.0)
+
+
+def _survival_bend(x1, x2):
+    return 1.5 * (x2**2 - 1.0)
+
+
+def _outcome_bend(x1, x2):
+    return 2.0 * (np.abs(x1) - 0.8)
+
+
 def _active_columns(X):
     """The covariates that enter the model; x3 is zero when only two features exist."""
     x3 = X[:, 2] if X.shape[1] > 2 else np.zeros(X.shape[0])
     return X[:, 0], X[:, 1], x3
 
 
-def _stratum_logits(X, outcome):
+def _stratum_logits(X, outcome, bends=frozenset()):
     """Logit of the always-survivor share, and the lift of the logit that treatment adds.
 
     Survival under the pure arm is ``expit(always)`` and under the mixed arm (monotonicity
@@ -44,20 +58,26 @@ def _stratum_logits(X, outcome):
         # Curvature that a main-effects logistic model cannot represent; the lift stays positive.
         always = always + 0.6 * (np.abs(x2) - 0.8)
         lift = 0.6 + 0.5 * x1**2
+    if "survival" in bends:
+        always = always + _survival_bend(x1, x2)
     return always, lift
 
 
-def _treatment_logit(X, outcome, scale):
+def _treatment_logit(X, outcome, scale, bends=frozenset()):
     x1, x2, _ = _active_columns(X)
     logit = 0.6 * x1 - 0.6 * x2
     if outcome == "nonlinear":
         logit = logit + 0.5 * (np.abs(x1) - 0.8) - 0.3 * x1 * x2
+    if "treatment" in bends:
+        logit = logit + _treatment_bend(x1, x2)
     return scale * logit
 
 
-def _control_index(X, outcome):
+def _control_index(X, outcome, bends=frozenset()):
     """Mean of Y(0) (continuous outcomes) or its logit (binary), given X, for survivors."""
     x1, x2, x3 = _active_columns(X)
+    if "outcome" in bends:
+        return _control_index(X, outcome) + _outcome_bend(x1, x2)
     if outcome == "linear":
         return 1.0 + 1.0 * x1 + 0.5 * x2 - 0.5 * x3
     if outcome == "nonlinear":
@@ -83,17 +103,18 @@ def _multinomial_strata(X):
     return a / total, c / total
 
 
-def _always_and_changed(X, outcome, stratum_model):
+def _always_and_changed(X, outcome, stratum_model, bends=frozenset()):
     if stratum_model == "multinomial":
         return _multinomial_strata(X)
-    always_logit, lift = _stratum_logits(X, outcome)
+    always_logit, lift = _stratum_logits(X, outcome, bends)
     always = expit(always_logit)
     return always, expit(always_logit + lift) - always
 
 
-def _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model="logistic"):
+def _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model="logistic",
+                      bends=frozenset()):
     """True stratum probabilities given X, columns in ``STRATUM_LABELS`` order."""
-    always, changed = _always_and_changed(X, outcome, stratum_model)
+    always, changed = _always_and_changed(X, outcome, stratum_model, bends)
     helped = changed / (1.0 + harmed_ratio)
     opposite = harmed_ratio * helped
     protected, harmed = (helped, opposite) if monotonicity == "increasing" else (opposite, helped)
@@ -101,10 +122,10 @@ def _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model="log
     return np.column_stack([always, protected, harmed, doomed])
 
 
-def _always_survivor_means(X, outcome, effect, effect_heterogeneity):
+def _always_survivor_means(X, outcome, effect, effect_heterogeneity, bends=frozenset()):
     """Conditional means of Y(0) and Y(1) among always-survivors (risks if binary)."""
     _, x2, _ = _active_columns(X)
-    index0 = _control_index(X, outcome)
+    index0 = _control_index(X, outcome, bends)
     index1 = index0 + effect + effect_heterogeneity * x2
     if outcome == "binary":
         return expit(index0), expit(index1)
@@ -112,7 +133,8 @@ def _always_survivor_means(X, outcome, effect, effect_heterogeneity):
 
 
 @lru_cache(maxsize=64)
-def _population_truth(outcome, effect, effect_heterogeneity, n_active, stratum_model="logistic"):
+def _population_truth(outcome, effect, effect_heterogeneity, n_active, stratum_model="logistic",
+                      bends=frozenset()):
     """Monte Carlo SACE ``E[e_a (mu1 - mu0)] / E[e_a]`` and its delta-method error.
 
     Returns ``(sace, mc_error, mu1, mu0)``; the stratum shares do not depend on the
@@ -120,8 +142,8 @@ def _population_truth(outcome, effect, effect_heterogeneity, n_active, stratum_m
     """
     rng = np.random.default_rng(_TRUTH_SEED)
     X = rng.standard_normal((_TRUTH_DRAWS, n_active))
-    always = _always_and_changed(X, outcome, stratum_model)[0]
-    mean0, mean1 = _always_survivor_means(X, outcome, effect, effect_heterogeneity)
+    always = _always_and_changed(X, outcome, stratum_model, bends)[0]
+    mean0, mean1 = _always_survivor_means(X, outcome, effect, effect_heterogeneity, bends)
     share = always.mean()
     mu1 = float(np.mean(always * mean1) / share)
     mu0 = float(np.mean(always * mean0) / share)
@@ -134,10 +156,18 @@ def _population_truth(outcome, effect, effect_heterogeneity, n_active, stratum_m
 
 def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogeneity,
               pi_difference, harmed_ratio, monotonicity, noise, rng, *,
-              treatment_scale=1.0, n_clusters=None, cluster_sd=1.0, stratum_model="logistic"):
-    """Draw one dataset; the keyword-only knobs serve the named scenarios."""
+              treatment_scale=1.0, n_clusters=None, cluster_sd=1.0, stratum_model="logistic",
+              misspecified=(), harmed_difference=0.0):
+    """Draw one dataset; the keyword-only knobs serve the named scenarios.
+
+    ``misspecified`` names the model families (``"treatment"``, ``"survival"``, ``"outcome"``)
+    whose true model is bent away from the main-effects working model; ``harmed_difference``
+    shifts the potential outcome of the opposite-direction stratum under the arm in which it
+    survives (principal ignorability failing in the stratum that monotonicity rules out).
+    """
+    bends = frozenset(misspecified)
     X = rng.standard_normal((n_samples, n_features))
-    scores = _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model)
+    scores = _principal_scores(X, outcome, harmed_ratio, monotonicity, stratum_model, bends)
     cumulative = np.cumsum(scores, axis=1)
     stratum_code = (rng.random(n_samples)[:, None] > cumulative[:, :-1]).sum(axis=1)
     stratum = np.asarray(STRATUM_LABELS, dtype=object)[stratum_code].astype(str)
@@ -147,20 +177,22 @@ def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogenei
     if design == "randomized":
         propensity = np.full(n_samples, 0.5)
     else:
-        propensity = expit(_treatment_logit(X, outcome, treatment_scale))
+        propensity = expit(_treatment_logit(X, outcome, treatment_scale, bends))
     treatment = (rng.random(n_samples) < propensity).astype(int)
 
     _, x2, _ = _active_columns(X)
-    index0 = _control_index(X, outcome)
+    index0 = _control_index(X, outcome, bends)
     index1 = index0 + effect + effect_heterogeneity * x2
-    # Principal ignorability is broken, in difference form, for the helped stratum only:
-    # its potential outcome under the arm in which it survives is shifted by pi_difference.
+    # Principal ignorability is broken, in difference form, for the helped stratum: its
+    # potential outcome under the arm in which it survives is shifted by pi_difference; and for
+    # the opposite stratum (present only when monotonicity fails) by harmed_difference.
     helped_code = 1 if monotonicity == "increasing" else 2
     shift = np.where(stratum_code == helped_code, pi_difference, 0.0)
+    opposite = np.where(stratum_code == 3 - helped_code, harmed_difference, 0.0)
     if monotonicity == "increasing":
-        index1 = index1 + shift
+        index1, index0 = index1 + shift, index0 + opposite
     else:
-        index0 = index0 + shift
+        index0, index1 = index0 + shift, index1 + opposite
 
     groups = None
     if n_clusters is not None:
@@ -185,7 +217,8 @@ def _simulate(n_samples, n_features, design, outcome, effect, effect_heterogenei
     is_always = stratum_code == 0
     sample_sace = float(np.mean(y1[is_always] - y0[is_always])) if is_always.any() else np.nan
     sace, mc_error, mu1, mu0 = _population_truth(
-        outcome, float(effect), float(effect_heterogeneity), min(n_features, 3), stratum_model
+        outcome, float(effect), float(effect_heterogeneity), min(n_features, 3), stratum_model,
+        bends,
     )
     if outcome != "binary" and effect_heterogeneity == 0.0:
         sace, mc_error = float(effect), 0.0
@@ -326,13 +359,17 @@ def describe(params, true_effect, mc_error):
         f"violated (harmed/protected ratio {params['harmed_ratio']:g})")
     ignorable = "holds" if params["pi_difference"] == 0 else (
         f"violated (difference {params['pi_difference']:g})")
+    if params.get("harmed_difference"):
+        monotone += f", harmed units' outcome shifted by {params['harmed_difference']:g}"
     truth = "exact" if mc_error == 0 else f"Monte Carlo, error {mc_error:.2g}"
     multinomial = params.get("stratum_model") == "multinomial"
+    bent = params.get("misspecified") or ()
     return (
         f"Simulated truncation by death: {params['n_samples']} units, "
         f"{params['n_features']} covariates, {params['design']} treatment, "
         f"{params['outcome']} outcome"
-        f"{', strata from a multinomial logistic model' if multinomial else ''}.\n"
+        f"{', strata from a multinomial logistic model' if multinomial else ''}"
+        f"{', curved (misspecified) ' + ' and '.join(bent) + ' model' if bent else ''}.\n"
         f"Monotonicity ({params['monotonicity']}) {monotone}; "
         f"principal ignorability {ignorable}.\n"
         f"True SACE = {true_effect:.6g} ({truth})."

@@ -17,8 +17,9 @@ from scipy.special import expit, logit
 from sklearn.utils import Bunch
 
 from ._checks import check_choice, check_positive_int, check_real, resolve_rng
+from ._family import Scenario
 
-__all__ = ["make_visits", "VISIT_LABELS"]
+__all__ = ["make_visits", "last_visit_view", "VISIT_LABELS", "VISIT_SCENARIOS"]
 
 VISIT_LABELS = ("month_3", "month_6", "month_12")
 _LIFT = 1.0
@@ -194,3 +195,33 @@ def make_visits(n_samples=2000, *, visits=VISIT_LABELS, effects=(0.5, 1.0, 1.5),
             f"{np.round(last, 4).tolist()}."
         ),
     )  # fmt: skip
+
+
+def last_visit_view(n_samples, rng, **params):
+    """:func:`make_visits` seen as a single-visit study of its last visit (for the scenario
+    registry and Monte Carlo studies of single-visit estimators).
+
+    ``X``, ``y``, ``treatment`` and ``survival`` are arrays of the last visit and
+    ``true_effect`` its effect (the same for both populations); the visit matrices stay in
+    ``y_visits``, ``survival_visits`` and ``true_effects``.
+    """
+    data = make_visits(n_samples, random_state=rng, **params)
+    last = data.visits[-1]
+    return Bunch(
+        X=data.X.to_numpy(), y=data.y[last].to_numpy(), treatment=data.treatment,
+        survival=data.survival[last].to_numpy(), y_full=data.y_full[last].to_numpy(),
+        survival_full=data.survival_full[last].to_numpy(),
+        true_effect=float(data.true_effects.loc[last, "each"]), true_effect_mc_error=0.0,
+        y_visits=data.y, survival_visits=data.survival, true_effects=data.true_effects,
+        visits=data.visits, params=data.params, DESCR=data.DESCR,
+    )  # fmt: skip
+
+
+VISIT_SCENARIOS = {
+    "visits": Scenario(
+        make=last_visit_view, family="visits", truth="quadrature", params={},
+        bias={"weighting": "none", "regression": "none", "multiply_robust": "none"},
+        description="Three visits with deaths between them (make_visits); the last visit as a "
+                    "single-visit study, the visit matrices in y_visits and survival_visits.",
+    ),
+}

@@ -1,6 +1,6 @@
 """Per-row arrays the diagnostics look at: balancing weights, scores and the thresholds used.
 
-Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
+Balancing property (Ding & Lu 2017, JRSSB): under monotonicity
 "increasing" and correct models, for any covariate function ``h(X)`` the always-survivor mean
 ``E[h(X) | always-survivor]`` is the weighted mean of ``h`` among treated survivors with weights
 ``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with

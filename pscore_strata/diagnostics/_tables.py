@@ -3,7 +3,7 @@
 Everything here is a function of the per-row nuisance predictions stored by a fitted estimator
 (``nuisance_`` and ``training_data_``), so no model is refitted (DESIGN.md sections 4 and 6).
 
-Balancing property (Ding & Lu 2017, JRSSB, as remembered): under monotonicity
+Balancing property (Ding & Lu 2017, JRSSB): under monotonicity
 "increasing" and correct models, for any covariate function ``h(X)`` the always-survivor mean
 ``E[h(X) | always-survivor]`` is the weighted mean of ``h`` among treated survivors with weights
 ``p0 / (pi p1)``, among control survivors with weights ``1 / (1 - pi)``, and among everyone with
@@ -143,6 +143,11 @@ def balance_table(estimator, X):
 def weight_summary(estimator):
     """Distribution of the balancing weights of each reconstruction.
 
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        A fitted estimator; its stored nuisance predictions are read, nothing is refitted.
+
     Returns
     -------
     table : DataFrame indexed by weight set (``treated_survivors``, ``control_survivors``,
@@ -177,6 +182,11 @@ def weight_summary(estimator):
 @cached_diagnostic(always, takes_x=False)
 def overlap_summary(estimator):
     """Distribution of the treatment probability and the principal scores in each arm.
+
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        A fitted estimator; its stored nuisance predictions are read, nothing is refitted.
 
     Returns
     -------
@@ -227,6 +237,19 @@ def diagnostic_warnings(estimator, X=None):
     monotonicity direction for more than 5% of rows, or an
     adjusted survival comparison on the wrong side of zero (Bonferroni over the strata). Balance
     is checked only when ``X`` (the covariates of the fitted rows) is given.
+
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        A fitted estimator; its stored nuisance predictions are read, nothing is refitted.
+
+    X : array-like of shape (n_samples, n_features), optional
+        The covariates the estimator was fitted with, for the balance checks.
+
+    Returns
+    -------
+    list of str
+        One sentence per problem found, saying what to check or change; empty when none.
     """
     o = oriented_predictions(estimator)
     target = getattr(estimator, "stratum_", "always_survivor")

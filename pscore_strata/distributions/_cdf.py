@@ -163,7 +163,8 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
     with the estimator's cross-fitting folds setting. Every estimate is monotonized by
     rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010). The treatment and survival
     predictions are the estimator's own (with ``n_repeats > 1``, those of the repeat closest to
-    the median); no such model is refitted. Methods and checks: ``docs/distributions.md``.
+    the median); no such model is refitted. Methods and checks:
+    ``docs/guide/derivations/distributions.md``.
 
     Parameters
     ----------

@@ -2,7 +2,7 @@
 
 The ``u``-quantile ``Q_t(u) = inf{v : F_t(v) >= u}`` inverts the always-survivor CDF of
 :mod:`._paths`. Its influence function is ``-IF_F(Q_t(u)) / f_t(Q_t(u))`` (the Bahadur
-representation; van der Vaart 1998, Asymptotic Statistics, section 21.2), where ``IF_F`` are the
+representation; van der Vaart 1998, Asymptotic Statistics, chapter 21), where ``IF_F`` are the
 CDF's influence values at the estimated quantile (nuisance terms included as for the mean) and
 ``f_t`` the always-survivor density, estimated by a Gaussian kernel over the masses of the
 estimated CDF with Silverman's bandwidth ``0.9 min(sd, IQR/1.34) n_eff^(-1/5)`` (Silverman 1986,

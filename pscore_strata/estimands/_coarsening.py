@@ -1,7 +1,7 @@
 """The oriented view of missing-at-random data: observation indicators over their probabilities.
 
-Monotone coarsening (Tsiatis 2006, *Semiparametric Theory and Missing Data*, ch. 7 and 10;
-derivation in docs/missing-data.md): the full-data estimating functions are kept, and each
+Monotone coarsening (Tsiatis 2006, *Semiparametric Theory and Missing Data*; derivation in
+docs/guide/derivations/missing-data.md): the full-data estimating functions are kept, and each
 full-data residual is multiplied by the indicator that it is observed over the probability of
 that, given X and what came before. For the SACE formulas this means, in each arm,
 

@@ -54,7 +54,8 @@ class Oriented:
     coarsening: object = None
 
     # Monotone coarsening replaces each full-data indicator by the observed one over its
-    # probability (docs/missing-data.md): A -> A C / c_mixed for the survival residuals and
+    # probability (docs/guide/derivations/missing-data.md): A -> A C / c_mixed for the survival
+    # residuals and
     # A S -> A C S R / (c_mixed r_mixed) for the outcome terms. Without coarsening they are the
     # full-data indicators, so every formula is unchanged bit for bit.
     @property
@@ -169,7 +170,8 @@ def weighting_means(o, subset=None):
     """
     Y = o.outcome
     g = _indicator(o, subset)
-    # With missing data the observed survivors also carry 1 / (c r) (docs/missing-data.md).
+    # With missing data the observed survivors also carry 1 / (c r)
+    # (docs/guide/derivations/missing-data.md).
     w_mixed = ratio(g * o.observed_mixed * o.p_pure, o.pi * o.p_mixed)
     normalizer = o.weighted_mean(w_mixed)
     mu_mixed = o.weighted_mean(w_mixed * Y) / normalizer
@@ -232,7 +234,7 @@ def robust_means(o, subset=None):
     """Multiply robust means; influence values ``(phi_t - mu_t phi_e) / mean(phi_e)``.
 
     No nuisance-estimation terms are added: the efficient influence function is orthogonal to
-    the nuisance functions (Jiang, Yang & Ding 2022, Theorem 2), so with cross-fitting, or with
+    the nuisance functions (Jiang, Yang & Ding 2022), so with cross-fitting, or with
     parametric models that are all correct, their estimation does not change the first-order
     variance.
     """

@@ -15,7 +15,7 @@ from sklearn.base import BaseEstimator, clone
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_n_folds
-from .._validation import check_choice, check_level, check_truncation_data
+from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR
 from ..estimands._formulas import (
     orient,
@@ -33,21 +33,19 @@ from ..inference._standard_errors import (
 )
 from ..nuisance._fit import MonotonicityWarning, fit_nuisance
 from ..nuisance._share import record_settings, shared_nuisance
-from . import _stratum_formulas
-from ._design import design_at_fit
-from ._display import EstimatorDisplay
-from ._fallback import bootstrap_std_errors, intermediate_alias
-from ._heterogeneity import ConditionalEffectMixin, subgroup_effects
+from . import _design, _stratum_formulas
+from ._fallback import bootstrap_std_errors
+from ._heterogeneity import subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
 from ._scores import PrincipalScoresMixin, check_feature_names
 from ._summary import summary_table
 
-__all__ = ["SurvivorEffectEstimator", "ConditionalEffectMixin"]  # the mixin: _heterogeneity.py
+__all__ = ["SurvivorEffectEstimator"]
 
 _SCALES = ("difference", "ratio", "odds_ratio")
 
 
-class SurvivorEffectEstimator(EstimatorDisplay, PrincipalScoresMixin, BaseEstimator):
+class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
     """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
 
     _uses_outcome_model = False
@@ -167,10 +165,9 @@ class SurvivorEffectEstimator(EstimatorDisplay, PrincipalScoresMixin, BaseEstima
         n_repeats = self._check_params()
         survival, name = intermediate_alias(survival, intermediate)
         stratum = self._target_stratum()
-        X = design_at_fit(self, X)
         data = check_truncation_data(
-            X, y, treatment, survival, sample_weight, groups, models=self._models(),
-            missing=self.missing, survival_name=name,
+            _design.design_at_fit(self, X), y, treatment, survival, sample_weight, groups,
+            models=self._models(), missing=self.missing, survival_name=name,
             stratum=stratum if self._other_stratum() else None,
         )
         check_n_folds(self.n_folds, data)
@@ -320,10 +317,19 @@ class SurvivorEffectEstimator(EstimatorDisplay, PrincipalScoresMixin, BaseEstima
 
         With fewer than 30 clusters in ``groups`` the reference is Student's t with
         ``n_clusters_ - 1`` degrees of freedom (a :class:`FewClustersWarning` is raised at fit).
+        :class:`~pscore_strata.TrimmingBounds` and a one-effect :class:`BootstrapResult` answer
+        ``conf_int(level)`` with the same ``(low, high)`` pair; for the bounds it covers the
+        partially identified effect rather than surrounding one estimate.
+
+        Parameters
+        ----------
+        level : float, default=0.95
+            Confidence level, strictly between 0 and 1.
 
         Returns
         -------
         (low, high) : tuple of float
+            The interval's ends.
         """
         check_is_fitted(self, "effect_")
         return normal_interval(
@@ -338,6 +344,17 @@ class SurvivorEffectEstimator(EstimatorDisplay, PrincipalScoresMixin, BaseEstima
         principal stratum shares, and the naive survivor-only contrast (biased when treatment
         changes who survives; shown for comparison). ``attrs["notes"]`` explains how the
         standard errors were obtained and states the cautions that go with every SACE.
+
+        Parameters
+        ----------
+        level : float, default=0.95
+            Level of the confidence intervals.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``estimate``, ``std_error``, ``ci_low``, ``ci_high``, one row per quantity;
+            ``attrs["notes"]`` holds the notes and cautions.
         """
         check_is_fitted(self, "effect_")
         return summary_table(self, level)

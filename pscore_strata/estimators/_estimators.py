@@ -8,7 +8,9 @@ fit and result logic (:mod:`._base`).
 from __future__ import annotations
 
 from ..estimands._formulas import regression_means, robust_means, weighting_means
-from ._base import ConditionalEffectMixin, SurvivorEffectEstimator
+from ._base import SurvivorEffectEstimator
+from ._display import EstimatorDisplay
+from ._heterogeneity import ConditionalEffectMixin
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
 
@@ -66,14 +68,15 @@ _COMMON_PARAMETERS = """
         survivors independent of the outcome given X and arm), fits a follow-up model
         ``c_t(X)`` on each arm's rows and a response model ``r_t(X)`` among each arm's known
         survivors, and weights every observed residual by the inverse probability of being
-        observed (docs/missing-data.md). An arm with nothing missing gets no such model.
+        observed (docs/guide/derivations/missing-data.md). An arm with nothing missing gets no such
+        model.
     response_model : classifier or None, default=None
         Model for ``c_t`` and ``r_t`` (cloned per model and arm); ``None`` is unpenalized
         logistic regression. Used only when something is missing.
 """
 
 
-class PrincipalScoreWeighting(SurvivorEffectEstimator):
+class PrincipalScoreWeighting(EstimatorDisplay, SurvivorEffectEstimator):
     __doc__ = f"""SACE by principal score weighting (normalized weights).
 
     Under monotonicity and principal ignorability, the treated survivors are reweighted by
@@ -170,7 +173,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         self.response_model = response_model
 
 
-class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
+class OutcomeRegression(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEstimator):
     __doc__ = f"""SACE by outcome regression: ``mu_t = E[p0(X) m_t(X)] / E[p0(X)]``.
 
     Relies on correct survival and outcome models; the treatment model is used only for the
@@ -236,7 +239,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.response_model = response_model
 
 
-class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
+class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEstimator):
     __doc__ = f"""SACE by the multiply robust estimator of Jiang, Yang & Ding (2022).
 
     Built on the efficient influence function: consistent when any two of the treatment,

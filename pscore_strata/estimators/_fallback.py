@@ -12,7 +12,7 @@ from sklearn.base import clone
 
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 
-__all__ = ["bootstrap_std_errors", "intermediate_alias"]
+__all__ = ["bootstrap_std_errors"]
 
 
 def bootstrap_std_errors(estimator, data):
@@ -51,13 +51,3 @@ def _one_replicate(estimator, data, seed):
     # A resample whose fitted probability hits 0 or 1 where a formula divides gives inf/NaN:
     # count it as a failed fit, as the full-sample fit would refuse it.
     return values if np.all(np.isfinite(values)) else None
-
-
-def intermediate_alias(survival, intermediate):
-    """``(values, name)`` of the binary post-treatment variable given as exactly one of the two."""
-    if (survival is None) == (intermediate is None):
-        raise TypeError(
-            "Pass exactly one of `survival` and `intermediate` (the same 0/1 post-treatment "
-            "variable under two names); got " + ("both." if survival is not None else "neither.")
-        )
-    return (survival, "survival") if intermediate is None else (intermediate, "intermediate")

@@ -24,7 +24,7 @@ from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
 
-__all__ = ["ConditionalEffectMixin", "conditional_effect", "subgroup_effects"]
+__all__ = ["conditional_effect", "subgroup_effects", "ConditionalEffectMixin"]
 
 
 def _on_scale(mean_treated, mean_control, scale):

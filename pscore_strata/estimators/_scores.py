@@ -49,8 +49,17 @@ class PrincipalScoresMixin:
         the helped stratum's score the difference of the arms' survival probabilities, and the
         doomed score the rest. Where the fitted models contradict monotonicity (survival in the
         mixed arm below that in the pure arm) the helped score is 0 and the always-survivor
-        score the smaller of the two survival probabilities. With
+        score the smaller of the two survival probabilities, so that each row sums to one. The
+        estimates do not use these clipped scores: their formulas take the pure arm's survival
+        probability itself as the always-survivor score on every row (``p0`` under increasing
+        monotonicity, even where it exceeds ``p1``), so on crossing rows the estimate's score is
+        larger than the one reported here; elsewhere the two agree. With
         cross-fitting, the predictions average every fold model (of every repeat).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+            Covariates, in the columns (and, for a DataFrame, the names) seen in ``fit``.
 
         Returns
         -------
@@ -82,7 +91,19 @@ class PrincipalScoresMixin:
         return result
 
     def predict(self, X):
-        """The most probable principal stratum per row."""
+        """The most probable principal stratum per row.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+            As in :meth:`predict_proba`.
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+            Labels from ``classes_``. The strata are latent: this is the stratum the fitted
+            scores make most probable, not a classification of the person.
+        """
         return self.classes_[np.argmax(np.asarray(self.predict_proba(X)), axis=1)]
 
 

@@ -25,7 +25,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..estimands._formulas import MeanParts
+from ..estimands._formulas import MeanParts, Oriented
+from ..estimands._formulas import ratio as _ratio
 
 __all__ = [
     "Stratum",
@@ -215,18 +216,9 @@ class StratumView:
             s = self.stratum.s_pure
         return arm * (p if s == 1 else 1 - p)
 
-    def weighted_mean(self, values):
-        return np.float64(np.sum(self.weight * values) / np.sum(self.weight))
-
-    def corrections(self, derivatives):
-        if self.parametric is None:
-            return 0.0
-        total = 0.0
-        for name, derivative in derivatives.items():
-            fit = self.parametric.get(name)
-            if fit is not None:
-                total = total + fit.correction(derivative, self.weight)
-        return total
+    # The same normalized mean and nuisance-estimation terms as the SACE's oriented view.
+    weighted_mean = Oriented.weighted_mean
+    corrections = Oriented.corrections
 
 
 def stratum_view(data, nuisance, monotonicity, stratum):
@@ -271,14 +263,6 @@ def stratum_view(data, nuisance, monotonicity, stratum):
 
 def _outcome_piece(key):
     return ("outcome", key) if not isinstance(key, tuple) else ("outcome", key[0], 0)
-
-
-def _ratio(numerator, denominator):
-    # 0 where the numerator is 0: rows outside the weighted cell carry no weight even where a
-    # model predicts a probability of exactly 0 or 1.
-    out = np.zeros(np.broadcast(numerator, denominator).shape)
-    np.divide(numerator, denominator, out=out, where=numerator != 0)
-    return out
 
 
 def _indicator(v, subset):

@@ -16,7 +16,7 @@ import pandas as pd
 from joblib import delayed
 from sklearn.base import clone
 
-from .._validation import check_choice, check_level
+from .._validation import check_choice, check_level, intermediate_alias
 from ..tables import SummaryTable
 from ._display import BootstrapDisplay
 from ._failures import _check_failures, failure_reasons
@@ -38,7 +38,8 @@ def bootstrap(
     y,
     *,
     treatment,
-    survival,
+    survival=None,
+    intermediate=None,
     n_resamples=999,
     method="resample",
     multiplier="rademacher",
@@ -61,6 +62,8 @@ def bootstrap(
         ``n_bootstrap=0`` where that parameter exists, so no bootstrap runs inside another.
     X, y, treatment, survival : array-like
         As in the estimator's ``fit``.
+    intermediate : array-like, optional
+        ``survival`` under its general name (give exactly one of the two).
     n_resamples : int, default=999
     method : {"resample", "multiplier"}, default="resample"
         ``"resample"`` redraws rows and refits every model (valid for any learner).
@@ -115,6 +118,7 @@ def bootstrap(
     _check_params(
         estimator, n_resamples, method, multiplier, stratify, progress, n_jackknife_groups
     )
+    survival, _ = intermediate_alias(survival, intermediate)
     inputs = Inputs(X, y, treatment, survival, sample_weight, groups)
     template = clone(estimator)
     if "n_bootstrap" in template.get_params(deep=False):

@@ -22,7 +22,7 @@ def percentile_interval(replicates, level=0.95):
 
 
 def jackknife_acceleration(leave_out, block_stratum=None):
-    """BCa acceleration from leave-one-block-out estimates (Efron & Tibshirani 1993, eq. 14.15).
+    """BCa acceleration from leave-one-block-out estimates (Efron & Tibshirani 1993, chapter 14).
 
     With ``G_s`` blocks in stratum ``s`` and ``U = (G_s - 1)(mean_s - theta_(j))``,
     ``a = sum_s sum_j U^3 / G_s^3 / (6 (sum_s sum_j U^2 / G_s^2)^(3/2))``: each stratum is

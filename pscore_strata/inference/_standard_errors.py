@@ -68,11 +68,13 @@ def estimator_dof(estimator):
 def influence_std_error(influence, sample_weight=None, groups=None):
     """Standard error of an estimate from its influence values.
 
-    ``SE^2 = G/(G-1) * sum_g (sum_{i in g} w_i IF_i)^2 / (sum_i w_i)^2`` where each row is its
-    own cluster unless ``groups`` is given (the linearization variance of a weighted estimator
-    with a with-replacement cluster sample). The small-sample factor ``G/(G-1)`` makes singleton
-    clusters give exactly the ordinary standard error, and with unit weights the ordinary SE
-    equals ``sd(IF, ddof=1) / sqrt(n)`` when the influence values average zero.
+    ``SE^2 = G/(G-1) * sum_g (U_g - mean(U))^2 / (sum_i w_i)^2`` with cluster totals
+    ``U_g = sum_{i in g} w_i IF_i``, where each row is its own cluster unless ``groups`` is given
+    (the linearization variance of a weighted estimator with a with-replacement cluster sample).
+    The totals are centered at their mean, so influence values that do not average zero (a
+    subgroup's, a sensitivity formula's) do not inflate the variance. The small-sample factor
+    ``G/(G-1)`` makes singleton clusters give exactly the ordinary standard error: with unit
+    weights, ``sd(IF, ddof=1) / sqrt(n)``.
 
     Parameters
     ----------

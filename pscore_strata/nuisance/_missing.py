@@ -9,7 +9,7 @@ missingness at random given X within each arm, two more nuisance functions ident
 
 An arm in which nothing is missing gets no model: its probability is exactly 1 (a logistic fit
 on a constant target would separate perfectly). The derivation of the estimators that use these
-models is in docs/missing-data.md.
+models is in docs/guide/derivations/missing-data.md.
 """
 
 from __future__ import annotations

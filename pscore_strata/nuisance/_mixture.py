@@ -8,10 +8,11 @@ the strata in ``classes_`` order (0 always-survivor, 1 the helped stratum, 2 doo
 - pure arm, survived: {0};      pure arm, died: {1, 2}.
 
 A unit's observed-data likelihood is the sum of its stratum probabilities over its cell,
-``L_i = sum_{k in C_i} e_k(X_i)`` (Ding & Lu 2017, JRSSB, section 4), and its posterior stratum
+``L_i = sum_{k in C_i} e_k(X_i)`` (Ding & Lu 2017, JRSSB), and its posterior stratum
 probabilities are ``e_k 1{k in C_i} / L_i``. For the multinomial logistic model
 ``e_k = exp(eta_k) / (1 + exp(eta_0) + exp(eta_1))`` (doomed the reference, ``eta_2 = 0``) with
-``eta_j = b_j' Xd``, the derivatives in ``eta`` are (derivation in docs/guide/stratum-model.md)
+``eta_j = b_j' Xd``, the derivatives in ``eta`` are (derivation in
+docs/guide/derivations/stratum-model.md)
 
 - score: ``d log L_i / d eta_j = post_ij - e_ij``;
 - Hessian: ``[diag(post_i) - post_i post_i'] - [diag(e_i) - e_i e_i']`` over j, k in {0, 1},

@@ -370,7 +370,18 @@ class PrincipalScoreModel(BaseEstimator):
         return self._classifier_strata(self.estimator_, self._classifier_input(X, n))
 
     def predict(self, X):
-        """The most probable principal stratum per row."""
+        """The most probable principal stratum per row.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+            As in :meth:`predict_proba`.
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
+            Labels from ``classes_``: the most probable (latent) stratum, not a diagnosis.
+        """
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
 
     def survival_probability(self, X):

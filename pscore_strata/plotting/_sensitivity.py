@@ -41,7 +41,8 @@ def _pyplot():
         import matplotlib.pyplot as plt
     except ImportError as error:  # pragma: no cover - depends on the environment
         raise ImportError(
-            "Plotting needs matplotlib: pip install 'pscore_strata[plot]'."
+            "Plotting needs matplotlib: pip install matplotlib (or, from a checkout of "
+            "pscore_strata, pip install '.[plot]')."
         ) from error
     return plt
 

@@ -52,7 +52,8 @@ def plot_visit_effects(table, *, axes=None, outcome="outcome"):
     test = table.attrs.get("wald_test")
     title = f"Survivor effect over visits: {who}"
     if test is not None and np.isfinite(test["p_value"]):
-        title += f"\nno effect at any visit: p = {test['p_value']:.2g}"
+        shown = "p < 0.001" if test["p_value"] < 0.001 else f"p = {test['p_value']:.3f}"
+        title += f"\nno effect at any visit: {shown}"
     left.set_title(title, fontsize=9)
     left.set_ylabel(f"effect on {outcome}")
     for arm, color in _ARMS:

@@ -2,7 +2,7 @@
 
 ``analyze_file`` is what ``pscore-strata analyze`` runs; its parts can be used on their own:
 :func:`prepare_data` checks a table's columns, :func:`run_analysis` computes the results
-(a dictionary following ``results.schema.json``, see docs/results-json.md) and
+(a dictionary following ``results.schema.json``, see docs/guide/results-json.md) and
 :func:`write_report` writes the files. matplotlib and jinja2 are imported only when a report is
 written.
 """

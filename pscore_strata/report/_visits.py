@@ -66,8 +66,10 @@ def visits_section(collector, data, options, population):
             # The joint refitting bootstrap: units resampled once for all visits.
             table = run(estimator.set_params(n_bootstrap=options.bootstrap))
     except (ValueError, RuntimeError) as error:
+        hint = (" Leave that visit's --outcome and --survival columns out to analyse the "
+                "others." if str(error).startswith("At visit") else "")  # fmt: skip
         return {"available": False, "reason": f"The effects over visits could not be computed: "
-                f"{error}"}, None  # fmt: skip
+                f"{error}{hint}"}, None  # fmt: skip
     test = table.attrs["wald_test"]
     df = test["df"]
     rows = []
@@ -139,5 +141,6 @@ def print_visits(results):
         print(f"    {row['visit']:<24} {shown(row['effect']):>10}   CI "
               f"{interval(row['ci_low'], row['ci_high'])}   band "
               f"{interval(row['band_low'], row['band_high'])}")  # fmt: skip
-    test = record["wald_test"]
-    print(f"    No effect at any visit: p = {shown(test['p_value'])}")
+    p_value = record["wald_test"]["p_value"]
+    shown_p = "p < 0.001" if p_value is not None and p_value < 0.001 else f"p = {shown(p_value)}"
+    print(f"    No effect at any visit: {shown_p}")

@@ -1,10 +1,16 @@
 """Monte Carlo studies: estimators against the known SACE of simulated scenarios.
 
 ``run_study`` fits every estimator on every replicate (in parallel, resumable from a
-checkpoint), ``summarize`` gives bias, RMSE, SE/SD and coverage, ``plot_summary`` draws them.
+fingerprinted checkpoint, over sample sizes and scenario parameter settings), ``simulate_cell``
+redraws one replicate's data, ``summarize`` gives bias, SD, RMSE, SE/SD, coverage, relative
+efficiency and their Monte Carlo standard errors, ``plot_summary`` draws them and
+``summary_table`` prints them for a manuscript.
 """
 
+from ._cells import simulate_cell
+from ._export import summary_table
+from ._plot import plot_summary
 from ._study import run_study
-from ._summary import plot_summary, summarize
+from ._summary import summarize
 
-__all__ = ["run_study", "summarize", "plot_summary"]
+__all__ = ["run_study", "simulate_cell", "summarize", "plot_summary", "summary_table"]

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import itertools
+import json
 import numbers
 
 import numpy as np
@@ -65,7 +67,8 @@ def check_scenarios(scenarios):
         elif not callable(spec):
             raise TypeError(
                 f"`scenarios` entries must be scenario names or callables "
-                f"f(n_samples, random_state) returning a Bunch; got {type(spec).__name__}."
+                f"f(n_samples=..., random_state=...) returning a Bunch; got "
+                f"{type(spec).__name__}."
             )
         if not isinstance(name, str) or not name or name == "<lambda>":
             raise ValueError(
@@ -128,3 +131,82 @@ def check_level(level):
     ):
         raise ValueError(f"`level` must lie strictly between 0 and 1; got {level!r}.")
     return float(level)
+
+
+def _json_value(value, where):
+    if value is None or isinstance(value, bool | str):
+        return value
+    if isinstance(value, numbers.Integral):
+        return int(value)
+    if isinstance(value, numbers.Real):
+        if not np.isfinite(value):
+            raise ValueError(f"`params` {where} must be finite; got {value!r}.")
+        return float(value)
+    if isinstance(value, list | tuple):
+        return [_json_value(v, where) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _json_value(v, where) for k, v in value.items()}
+    raise TypeError(
+        f"`params` {where} must be a number, string, bool, None or a list or dict of them (so "
+        f"that it can be stored with the results); got {type(value).__name__}."
+    )
+
+
+def check_params(params):
+    """The study's parameter settings as canonical JSON strings (``"{}"``: the scenario's own).
+
+    A dict of lists is crossed (every combination, in order); a list of dicts is taken as is.
+    """
+    if params is None:
+        return ["{}"]
+    if isinstance(params, dict):
+        names = list(params)
+        values = []
+        for name in names:
+            if not isinstance(name, str) or not name:
+                raise TypeError(f"`params` keys must be parameter names; got {name!r}.")
+            options = params[name]
+            if isinstance(options, str) or not isinstance(options, list | tuple):
+                raise TypeError(
+                    f"`params[{name!r}]` must be a list of values to vary over; got "
+                    f"{options!r}. Write params={{{name!r}: [{options!r}]}} for one value."
+                )
+            if not options:
+                raise ValueError(f"`params[{name!r}]` is empty; list at least one value.")
+            values.append(options)
+        settings = [dict(zip(names, combo, strict=True)) for combo in itertools.product(*values)]
+    elif isinstance(params, list | tuple) and params and all(isinstance(p, dict) for p in params):
+        settings = [dict(p) for p in params]
+    else:
+        raise TypeError(
+            "`params` must be None, a dict mapping parameter names to lists of values (crossed), "
+            f"or a non-empty list of dicts (one setting each); got {params!r}."
+        )
+    keys = []
+    for setting in settings:
+        for name in setting:
+            if not isinstance(name, str) or not name:
+                raise TypeError(f"`params` keys must be parameter names; got {name!r}.")
+        clean = {k: _json_value(v, f"value of {k!r}") for k, v in setting.items()}
+        keys.append(json.dumps(clean, sort_keys=True))
+    if len(set(keys)) != len(keys):
+        raise ValueError("`params` repeats a setting; list each setting once.")
+    return keys
+
+
+def check_overwrite(overwrite):
+    if overwrite not in (None, "changed"):
+        raise ValueError(
+            f"`overwrite` must be None (refuse results of changed code) or 'changed' (recompute "
+            f"them); got {overwrite!r}."
+        )
+    return overwrite
+
+
+def check_version(version):
+    if version is not None and not isinstance(version, str):
+        raise TypeError(
+            f"`version` must be None or a string naming what the fingerprints cannot see (data "
+            f"files, global settings); got {type(version).__name__}."
+        )
+    return version

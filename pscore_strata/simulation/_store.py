@@ -2,11 +2,13 @@
 
 A checkpoint directory holds ``study.json`` (the study's settings) and one Parquet part file per
 finished batch. Every part file carries, in its Parquet key-value metadata, the settings that
-produced it (seed entropy, level, estimators), the scenarios of its cells, the list of its cells
-and a SHA-256 checksum of its rows. A resume reads and checks all of them before it uses any
-row, so a part file from another seed, a part file missing rows, a changed or damaged file and
-a file that is not a part file at all are refused with a message naming the file and saying what
-to delete. The settings in the part files also stand in for a deleted ``study.json``.
+produced it (seed entropy, level, estimator names), the fingerprints of the scenarios and
+estimators that made its rows (``_fingerprint.py``), the library version and the user's
+``version=`` tag, the list of its cells and a SHA-256 checksum of its rows. A resume reads and
+checks all of them before it uses any row, so a part file from another seed, a part missing
+rows, a changed or damaged file, a file that is not a part file at all and a part computed by
+other code or arguments are refused with a message naming the file and saying what to do. The
+settings in the part files also stand in for a deleted ``study.json``.
 """
 
 from __future__ import annotations
@@ -20,25 +22,36 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ._fingerprint import differences
+
 COLUMNS = {
     "scenario": str,
     "n_samples": np.int64,
     "replicate": np.int64,
     "estimator": str,
+    "params": str,
+    "kind": str,
     "estimate": np.float64,
     "std_error": np.float64,
     "ci_low": np.float64,
     "ci_high": np.float64,
+    "interval": str,
+    "lower": np.float64,
+    "upper": np.float64,
+    "set_low": np.float64,
+    "set_high": np.float64,
     "truth": np.float64,
+    "truth_lower": np.float64,
+    "truth_upper": np.float64,
     "failed": bool,
     "error": str,
     "warnings": str,
     "fit_seconds": np.float64,
 }
-KEY = ["scenario", "n_samples", "replicate"]
+KEY = ["scenario", "n_samples", "params", "replicate"]
 
 _MANIFEST = "study.json"
-_FORMAT = 2
+_FORMAT = 3
 _METADATA_KEY = b"pscore_strata.checkpoint"
 _DELETE_PART = "delete it and rerun: its replicates are recomputed"
 
@@ -66,11 +79,8 @@ def describe_scenario(spec):
 
 
 def study_settings(entropy, level, estimators):
-    return {
-        "entropy": str(entropy),
-        "level": float(level),
-        "estimators": {name: repr(est) for name, est in estimators.items()},
-    }
+    """The settings a part must share with the study; estimators' contents are fingerprinted."""
+    return {"entropy": str(entropy), "level": float(level), "estimators": sorted(estimators)}
 
 
 class CheckpointStore:
@@ -85,14 +95,19 @@ class CheckpointStore:
         self.path = Path(path)
         self.settings = None
         self.scenarios = {}
+        self.fingerprints = {}
+        self.replaced = []
 
     # -- opening: the settings --------------------------------------------------------------
-    def open(self, root, seed_unset, estimators, level, scenarios):
+    def open(self, root, seed_unset, estimators, level, scenarios, fingerprints, overwrite=None):
         """Create or check the manifest and every part file's settings; return the study's seed.
 
-        ``scenarios`` maps names to specs (names or callables). Raises ``ValueError`` naming the
-        file and what to delete when the directory belongs to another study, mixes studies or
-        holds a file that is not a readable part file.
+        ``scenarios`` maps names to specs (names or callables); ``fingerprints`` holds the
+        current ``library``, ``version``, ``estimators`` and ``scenarios`` fingerprints. Raises
+        ``ValueError`` naming the file and what to delete when the directory belongs to another
+        study, mixes studies or holds a file that is not a readable part file, and naming what
+        changed when a part was computed by other code or arguments (with
+        ``overwrite="changed"`` such parts are deleted and their replicates recomputed).
         """
         if self.path.exists() and not self.path.is_dir():
             raise ValueError(
@@ -100,6 +115,7 @@ class CheckpointStore:
             )
         self.path.mkdir(parents=True, exist_ok=True)
         self.scenarios = {name: describe_scenario(spec) for name, spec in scenarios.items()}
+        self.fingerprints = fingerprints
         parts = {path: self._metadata(path) for path in self._part_paths()}
         manifest = self._read_manifest()
         stored = self._stored_settings(manifest, parts)
@@ -115,7 +131,7 @@ class CheckpointStore:
                     "one), or choose a new checkpoint directory (or delete this one's "
                     "study.json and part-*.parquet files)."
                 )
-            if stored["estimators"] != wanted["estimators"] or stored["level"] != level:
+            if sorted(stored["estimators"]) != wanted["estimators"] or stored["level"] != level:
                 raise ValueError(
                     f"`checkpoint` directory {str(self.path)!r} belongs to a study with other "
                     f"estimators or level (stored: {sorted(stored['estimators'])}, level "
@@ -124,7 +140,7 @@ class CheckpointStore:
                 )
             self.settings = stored
             root = stored_root
-        self._check_scenarios(parts)
+        self._check_fingerprints(parts, overwrite)
         if manifest is None:
             payload = dict(format=_FORMAT, **self.settings)
             _write_atomic(self.path / _MANIFEST, json.dumps(payload, indent=2).encode("utf-8"))
@@ -144,6 +160,7 @@ class CheckpointStore:
         try:
             meta = json.loads(raw.decode("utf-8"))
             meta["settings"]["entropy"], meta["cells"], meta["checksum"], meta["scenarios"]
+            meta["fingerprints"]["estimators"], meta["fingerprints"]["scenarios"]
         except Exception:
             raise ValueError(
                 f"`checkpoint` file {str(path)!r} is a Parquet file without run_study's "
@@ -159,7 +176,7 @@ class CheckpointStore:
         try:
             manifest = json.loads(path.read_text(encoding="utf-8"))
             settings = {k: manifest[k] for k in ("entropy", "level", "estimators")}
-            int(settings["entropy"]), float(settings["level"]), dict(settings["estimators"])
+            int(settings["entropy"]), float(settings["level"]), sorted(settings["estimators"])
         except Exception as error:
             reason = "empty" if path.stat().st_size == 0 else type(error).__name__
             raise ValueError(
@@ -199,16 +216,43 @@ class CheckpointStore:
             )
         return json.loads(next(iter(groups))) if groups else None
 
-    def _check_scenarios(self, parts):
+    def _check_fingerprints(self, parts, overwrite):
+        """Refuse (or, with ``overwrite="changed"``, delete) parts computed by other code."""
+        current = self.fingerprints
+        stale = {}
         for path, meta in parts.items():
-            for name, described in meta["scenarios"].items():
-                if name in self.scenarios and self.scenarios[name] != described:
-                    raise ValueError(
-                        f"`checkpoint` file {str(path)!r} holds replicates of scenario "
-                        f"{name!r} as {described}, but this study names {self.scenarios[name]} "
-                        f"{name!r}; give the scenario another name or choose a new checkpoint "
-                        "directory."
-                    )
+            stored = meta["fingerprints"]
+            changes = []
+            for what in ("library", "version"):
+                if stored.get(what) != current[what]:
+                    label = "pscore_strata version" if what == "library" else "version= tag"
+                    changes.append(f"{label} {stored.get(what)!r} -> {current[what]!r}")
+            for name, fingerprint in current["estimators"].items():
+                found = differences(stored["estimators"].get(name), fingerprint)
+                if found:
+                    changes.append(f"estimator {name!r}: {'; '.join(found)}")
+            for name, fingerprint in stored["scenarios"].items():
+                if name in current["scenarios"]:
+                    found = differences(fingerprint, current["scenarios"][name])
+                    if found:
+                        changes.append(f"scenario {name!r}: {'; '.join(found)}")
+            if changes:
+                stale[path] = changes
+        if not stale:
+            return
+        if overwrite == "changed":
+            for path in stale:
+                path.unlink()
+            self.replaced = sorted(stale)
+            return
+        first = next(iter(stale.values()))
+        raise ValueError(
+            f"`checkpoint` directory {str(self.path)!r}: {_listed(list(stale))} hold results "
+            f"computed by other code or settings than this study's ({'; '.join(first)}). Pass "
+            "overwrite='changed' to recompute those replicates; to keep both, give the changed "
+            "scenario another name (or the estimator another name) or choose a new checkpoint "
+            "directory."
+        )
 
     # -- the rows ----------------------------------------------------------------------------
     def load(self):
@@ -233,13 +277,13 @@ class CheckpointStore:
     def _check_rows(self, path, meta, table):
         names = list(self.settings["estimators"])
         expected = pd.MultiIndex.from_tuples(
-            [(s, int(n), int(r), e) for s, n, r in meta["cells"] for e in names],
+            [(s, int(n), p, int(r), e) for s, n, p, r in meta["cells"] for e in names],
             names=[*KEY, "estimator"],
         )
         found = pd.MultiIndex.from_frame(table[[*KEY, "estimator"]])
         missing = expected.difference(found)
         if len(missing):
-            by_estimator = pd.Series([m[3] for m in missing]).value_counts()
+            by_estimator = pd.Series([m[4] for m in missing]).value_counts()
             listed = ", ".join(f"{e!r} ({k} of {len(meta['cells'])} cells)"
                                for e, k in by_estimator.items())  # fmt: skip
             raise ValueError(
@@ -258,7 +302,7 @@ class CheckpointStore:
             )
 
     def save(self, part, cells):
-        """Write one batch (``cells``: its (scenario, n, replicate) keys) as a verified part."""
+        """Write one batch (``cells``: its (scenario, n, params, replicate) keys) as a part."""
         import pyarrow as pa
         import pyarrow.parquet as pq
 
@@ -266,7 +310,15 @@ class CheckpointStore:
             "format": _FORMAT,
             "settings": self.settings,
             "scenarios": {s: self.scenarios[s] for s in dict.fromkeys(c[0] for c in cells)},
-            "cells": [[s, int(n), int(r)] for s, n, r in cells],
+            "fingerprints": {
+                "library": self.fingerprints["library"],
+                "version": self.fingerprints["version"],
+                "estimators": self.fingerprints["estimators"],
+                "scenarios": {
+                    s: self.fingerprints["scenarios"][s] for s in dict.fromkeys(c[0] for c in cells)
+                },
+            },
+            "cells": [[s, int(n), p, int(r)] for s, n, p, r in cells],
             "checksum": checksum(part),
         }
         table = pa.Table.from_pandas(part, preserve_index=False)

@@ -16,7 +16,8 @@ def _docx():
         import docx
     except ImportError as error:  # pragma: no cover - the test extra installs it
         raise ImportError(
-            "Writing Word tables needs python-docx: pip install 'pscore_strata[report]'."
+            "Writing Word tables needs python-docx: pip install python-docx (or, from a "
+            "checkout of pscore_strata, pip install '.[report]')."
         ) from error
     return docx
 

@@ -180,6 +180,8 @@ def visit_effects(estimator, X, y, *, treatment, survival, population="each", sa
         )
     dof = _dof(fits[0])
     table, fit_notes = _table(visits, fits, estimate, std_error, critical, level, log_scale, dof)
+    if method == "bootstrap":  # the point fits' own note on their (replaced) standard errors
+        fit_notes = [n for n in fit_notes if "ignore the estimation of the nuisance" not in n]
     centre = np.log(estimate) if log_scale else estimate
     labels = [str(v) for v in visits.labels]
     table.attrs.update(
