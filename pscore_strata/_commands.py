@@ -72,6 +72,8 @@ def _options(args):
         arm_names=tuple(args.arm_names) if args.arm_names else None,
         missing=args.missing,
         survival_model=args.survival_model,
+        quantiles=_quantiles(args.quantiles),
+        distributions=args.distributions,
         stratum=_stratum(args),
         visit_population=args.visit_population or "each",
     )
@@ -86,6 +88,20 @@ def _survival_columns(args):
             + ("both." if args.survival is not None else "neither.")
         )
     return args.survival if args.survival is not None else args.intermediate
+
+
+def _quantiles(text):
+    """``--quantiles 0.1,0.5,0.9`` -> sorted distinct probabilities strictly inside (0, 1)."""
+    try:
+        values = [float(part) for part in str(text).split(",") if part.strip()]
+    except ValueError:
+        values = None
+    if not values or not all(0 < v < 1 for v in values):
+        raise ValueError(
+            "--quantiles must be comma-separated probabilities strictly between 0 and 1, "
+            f"e.g. 0.1,0.25,0.5,0.75,0.9; got {text!r}."
+        )
+    return tuple(sorted(set(values)))
 
 
 def _stratum(args):

@@ -166,6 +166,16 @@ def build_parser():
         "visit (one group)",
     )  # fmt: skip
     analyze.add_argument("--level", type=float, default=0.95, help="confidence level")
+    analyze.add_argument(
+        "--quantiles", default="0.1,0.25,0.5,0.75,0.9", metavar="LIST",
+        help="comma-separated probabilities of the quantile effects and their bounds in the "
+        "distributions section (default: 0.1,0.25,0.5,0.75,0.9)",
+    )  # fmt: skip
+    analyze.add_argument(
+        "--no-distributions", dest="distributions", action="store_false",
+        help="skip the distributions section (CDFs, quantile effects, level shares); the "
+        "report says it was skipped",
+    )  # fmt: skip
     analyze.add_argument("--seed", type=int, default=0, help="random seed (folds, bootstrap)")
     analyze.add_argument(
         "--out", default=DEFAULT_OUT, metavar="DIR",

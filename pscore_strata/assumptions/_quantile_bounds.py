@@ -212,33 +212,32 @@ def quantile_bounds(o, labels, quantiles):
         density[key] = kernel_density(point[key], values, mass, bandwidth)
     weighted_alpha = sum(c["alpha_weighted"] for c in cells)
     free_alpha = sum(c["alpha_free"] for c in cells)
-    pieces = {}
-    for key in ("lower", "upper", "pure"):
-        outcome_part = np.zeros((Y.size, quantiles.size))
-        weighted = np.zeros((Y.size, quantiles.size))
-        free = np.zeros((Y.size, quantiles.size))
-        for j, v in enumerate(point[key]):
-            below = (Y <= v).astype(float)
-            for c in cells:
-                value, if_outcome, if_survival = _cell_cdf(key, c, below, o, mixed_observed,
-                                                           pure_observed, total)  # fmt: skip
-                om = c["omega"]
-                outcome_part[:, j] += om * if_outcome
-                weighted[:, j] += om * (if_outcome + if_survival) + value / alpha_total * (
-                    c["alpha_weighted"] - om * weighted_alpha)
-                free[:, j] += value / alpha_total * (c["alpha_free"] - om * free_alpha)
-        pieces[key] = (-weighted / density[key], -free / density[key],
-                       -outcome_part / density[key])
-    influence = {}
-    for key in ("lower", "upper"):
-        raw_w = pieces[key][0] - pieces["pure"][0]
-        raw = raw_w + pieces[key][1] - pieces["pure"][1]
-        raw_outcome = pieces[key][2] - pieces["pure"][2]
-        centered = raw - (w @ raw) / total
-        influence[key] = centered + np.column_stack(
-            [np.broadcast_to(o.corrections(_derivatives(o, raw_w[:, j], raw_outcome[:, j])),
-                             Y.shape)
-             for j in range(quantiles.size)])  # fmt: skip
+    def piece(key, j):
+        """(weighted, free, outcome) influence pieces of quantile ``j`` of ``key``."""
+        below = (Y <= point[key][j]).astype(float)
+        outcome_part, weighted, free = 0.0, 0.0, 0.0
+        for c in cells:
+            value, if_outcome, if_survival = _cell_cdf(key, c, below, o, mixed_observed,
+                                                       pure_observed, total)  # fmt: skip
+            om = c["omega"]
+            outcome_part = outcome_part + om * if_outcome
+            weighted = weighted + om * (if_outcome + if_survival) + value / alpha_total * (
+                c["alpha_weighted"] - om * weighted_alpha)
+            free = free + value / alpha_total * (c["alpha_free"] - om * free_alpha)
+        scale = -1.0 / density[key][j]
+        return weighted * scale, free * scale, outcome_part * scale
+
+    # One quantile at a time: memory O(rows), and no strided writes into rows x quantiles.
+    influence = {key: np.empty((Y.size, quantiles.size)) for key in ("lower", "upper")}
+    for j in range(quantiles.size):
+        pure = piece("pure", j)
+        for key in ("lower", "upper"):
+            own = piece(key, j)
+            raw_w = own[0] - pure[0]
+            raw = raw_w + own[1] - pure[1]
+            raw_outcome = own[2] - pure[2]
+            correction = o.corrections(_derivatives(o, raw_w, raw_outcome))
+            influence[key][:, j] = raw - (w @ raw) / total + correction
     lower = point["lower"] - point["pure"]
     upper = point["upper"] - point["pure"]
     mixed_lower, mixed_upper, pure = point["lower"], point["upper"], point["pure"]

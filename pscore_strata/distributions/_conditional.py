@@ -184,29 +184,24 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
             constant = (shares == 0.0) | (shares == 1.0) if X is not None else np.ones_like(
                 shares, dtype=bool)
             n_constant += int(constant.sum()) if X is not None else 0
-            every_row = test.size == n
             fitted_here = np.flatnonzero(~constant)
             failed = fitted_here
-            predictions = np.empty((test.size, fitted_here.size))
+            # No covariates, or one class only among these survivors: the weighted share.
+            if test.size == n:
+                grid[arm][:, constant] = shares[constant]
+            else:
+                grid[arm][np.ix_(test, np.flatnonzero(constant))] = shares[constant]
             if values is not None and fitted_here.size:
-                predictions, converged = fit_thresholds(values, rows, y_rows,
-                                                        w_rows if data.weighted else
-                                                        np.ones(rows.size),
-                                                        thresholds[fitted_here], test)  # fmt: skip
+                converged = fit_thresholds(values, rows, y_rows,
+                                           w_rows if data.weighted else np.ones(rows.size),
+                                           thresholds[fitted_here], test, grid[arm],
+                                           fitted_here)  # fmt: skip
                 failed = fitted_here[~converged]
             for j in failed:
                 labels = (y_rows <= thresholds[j]).astype(float)
                 fitted = fit_model(clone(model), take_rows(X, rows), labels,
                               w_rows if data.weighted else None)  # fmt: skip
-                predictions[:, np.searchsorted(fitted_here, j)] = fitted.predict_proba(
-                    take_rows(X, test))[:, 1]
-            # No covariates, or one class only among these survivors: the weighted share.
-            if every_row:
-                grid[arm][:, constant] = shares[constant]
-                grid[arm][:, fitted_here] = predictions
-            else:
-                grid[arm][np.ix_(test, np.flatnonzero(constant))] = shares[constant]
-                grid[arm][np.ix_(test, fitted_here)] = predictions
+                grid[arm][test, j] = fitted.predict_proba(take_rows(X, test))[:, 1]
         # Rearrangement over the thresholds, row by row where the fitted curves cross.
         raw = grid[arm]
         crossing = np.flatnonzero(np.any(raw[:, 1:] < raw[:, :-1], axis=1))

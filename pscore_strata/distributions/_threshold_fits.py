@@ -85,12 +85,13 @@ def _logit(share):
     return np.log(share / (1 - share))
 
 
-def fit_thresholds(values, rows, y_rows, w_rows, thresholds, test):
-    """Predictions on ``test`` rows for every threshold, and which thresholds converged.
+def fit_thresholds(values, rows, y_rows, w_rows, thresholds, test, out, columns):
+    """Fit every threshold; write the predictions on the ``test`` rows into ``out``.
 
     ``values`` are the covariates (all rows), ``rows`` the fitting rows, ``y_rows`` and
-    ``w_rows`` their outcomes and weights. Returns ``(len(test), thresholds)`` predictions
-    (columns of failed thresholds are undefined) and a boolean array. Each group of thresholds
+    ``w_rows`` their outcomes and weights; threshold ``j``'s predictions go to
+    ``out[test, columns[j]]`` (those of failed thresholds are undefined). Returns which
+    thresholds converged. Each group of thresholds
     starts from the previous group's nearest fit with its intercept moved to the new share
     (neighbouring thresholds have similar slopes), the first from the intercept-only fit.
     """
@@ -120,8 +121,14 @@ def fit_thresholds(values, rows, y_rows, w_rows, thresholds, test):
         coefficients[:, group] = beta
     del Z, ZZ
     slopes = coefficients[1:] / spread[:, None]
-    test_rows = values if test.size == values.shape[0] else values[test]  # all rows: no copy
-    return expit(test_rows @ slopes + (coefficients[0] - center @ slopes)), converged
+    intercepts = coefficients[0] - center @ slopes
+    if test.size == values.shape[0]:  # all rows (no cross-fitting): in row chunks, no copies
+        for start in range(0, test.size, _CHUNK):
+            chunk = slice(start, start + _CHUNK)
+            out[chunk, columns] = expit(values[chunk] @ slopes + intercepts)
+    else:
+        out[np.ix_(test, columns)] = expit(values[test] @ slopes + intercepts)
+    return converged
 
 
 def _equilibrated_inverse(info):

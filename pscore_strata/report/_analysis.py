@@ -270,6 +270,8 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
             "seed": options.seed,
             "missing": options.missing,
             "survival_model": options.survival_model,
+            "quantiles": list(options.quantiles),
+            "distributions": options.distributions,
             "stratum": options.stratum,
             "treatment_probability": options.treatment_probability,
         },
