@@ -17,6 +17,7 @@ except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
 from .._validation import check_features
 from ..nuisance._models import predict_models
 from ..nuisance._stratum_arms import StratumArm
+from ._design import design_for_new_rows
 
 __all__ = ["PrincipalScoresMixin", "check_feature_names"]
 
@@ -68,6 +69,7 @@ class PrincipalScoresMixin:
             an ndarray otherwise.
         """
         check_is_fitted(self, "effect_")
+        X = design_for_new_rows(self, X)
         index = X.index if isinstance(X, pd.DataFrame) else None
         X = _match_feature_names(self, X)
         X, n_features, _ = check_features(X, self._models())
