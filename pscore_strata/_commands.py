@@ -124,6 +124,7 @@ def analyze_command(args):
     args.survival = _survival_columns(args)
     options = _options(args)
     _check_out_dir(args.out)
+    formats = _table_formats(args)
     progress = _Progress(args.quiet)
     progress(f"reading {args.data}")
     frame = read_table(args.data)
@@ -138,6 +139,7 @@ def analyze_command(args):
         cluster=args.cluster,
         weights=args.weights,
         by=args.by,
+        formula=args.formula,
     )
     analysis = analyze_frame(
         frame, roles, options, args.out, drop_incomplete=args.drop_incomplete,
@@ -147,10 +149,26 @@ def analyze_command(args):
     dropped = analysis.results["data_overview"]["n_rows_dropped"]
     if dropped:
         print(f"Dropped {dropped} incomplete row(s) (--drop-incomplete).", file=sys.stderr)
+    _write_tables(analysis, args.out, formats, progress)
     from .report._console import print_key_results
 
     print_key_results(analysis.results, args.out)
     return 0
+
+
+def _table_formats(args):
+    from .report._manuscript import table_formats
+
+    return () if args.tables is None else table_formats(args.tables)
+
+
+def _write_tables(analysis, out, formats, progress):
+    if formats:
+        from .report import write_manuscript_tables
+
+        progress("writing the tables")
+        paths = write_manuscript_tables(analysis, out, formats)
+        print(f"Tables: {', '.join(str(p) for p in paths)}.")
 
 
 def demo_command(args):
@@ -166,6 +184,7 @@ def demo_command(args):
     )
     _check_bootstrap(args.bootstrap)
     _check_out_dir(args.out)
+    formats = _table_formats(args)
     print("Invented critical-care registry (simulated patients, not real people).")
     options = AnalysisOptions(
         bootstrap=args.bootstrap, unit_name="patient",
@@ -176,10 +195,12 @@ def demo_command(args):
         # (benchmarks/bench_model_choice.py; docs/guide/cli-report.md).
         survival_model="strata",
     )  # fmt: skip
+    progress = _Progress(args.quiet)
     analysis = analyze_frame(
         load_demo(), roles, options, args.out,
-        source="bundled demo registry (invented)", progress=_Progress(args.quiet),
+        source="bundled demo registry (invented)", progress=progress,
     )  # fmt: skip
+    _write_tables(analysis, args.out, formats, progress)
     from .report._console import print_key_results
 
     print_key_results(analysis.results, args.out)

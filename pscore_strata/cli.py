@@ -15,6 +15,8 @@ from ._commands import DEFAULT_OUT, analyze_command, demo_command, simulate_comm
 
 __all__ = ["main", "build_parser"]
 
+TABLES_HELP = ("also write the tables for a manuscript: comma-separated formats among docx, tex "
+               "and md (tables.docx, tables.tex, tables.md in --out)")
 USER_ERRORS = (ValueError, TypeError, FileNotFoundError, ImportError, OSError, RuntimeError)
 
 
@@ -198,6 +200,12 @@ def build_parser():
         "--by", default=None, metavar="COL",
         help="subgroup effects by this column (from the fitted models, no refit)",
     )  # fmt: skip
+    analyze.add_argument(
+        "--formula", metavar="FORMULA",
+        help='covariates as a formula instead of --covariates/--categorical, e.g. "age + '
+        'severity + C(site) + bs(bmi, 4)" (C(): categorical, bs(): B-spline; needs formulaic)',
+    )  # fmt: skip
+    analyze.add_argument("--tables", metavar="FORMATS", help=TABLES_HELP)
     analyze.add_argument("--quiet", action="store_true", help="no progress messages")
     analyze.set_defaults(handler=analyze_command)  # fmt: skip
 
@@ -209,6 +217,7 @@ def build_parser():
     demo.add_argument(
         "--bootstrap", type=int, default=0, metavar="N", help="bootstrap resamples (default: 0)"
     )
+    demo.add_argument("--tables", metavar="FORMATS", help=TABLES_HELP)
     demo.add_argument("--quiet", action="store_true", help="no progress messages")
     demo.set_defaults(handler=demo_command)  # fmt: skip
 

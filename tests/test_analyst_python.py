@@ -156,6 +156,11 @@ def test_whole_report_screenshot(tmp_path):
         pytest.skip("chromium not found on PATH (apt-get install chromium); screenshot not taken")
     out = tmp_path / "report"
     assert main(["demo", "--out", str(out), "--quiet"]) == 0
+    # The long sections are folded (<details>); open them all to see every section laid out.
+    opened = out / "opened.html"
+    html = (out / "report.html").read_text()
+    assert '<details class="fold">' in html
+    opened.write_text(html.replace('<details class="fold">', '<details class="fold" open>'))
     shot = tmp_path / "whole.png"
     # Taller than the report, so the screenshot holds all of it; drawn at half scale, which
     # keeps software rasterization of the long page quick.
@@ -167,7 +172,7 @@ def test_whole_report_screenshot(tmp_path):
              "--disable-sync", "--hide-scrollbars", f"--user-data-dir={profile}",
              f"--force-device-scale-factor={scale}", f"--screenshot={shot}",
              f"--window-size={width},{height}",
-             (out / "report.html").resolve().as_uri()],
+             opened.resolve().as_uri()],
             capture_output=True, timeout=180, check=False,
         )  # fmt: skip
     assert shot.is_file(), "chromium wrote no screenshot"

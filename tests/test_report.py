@@ -141,3 +141,57 @@ def test_chromium_renders_the_report(written):
     # A blank page is one colour; the report has text, tables and figures.
     assert float(np.std(pixels)) > 0.05
     assert len(np.unique(pixels.reshape(-1, 3), axis=0)) > 50
+
+
+def test_report_opens_with_the_glance_and_folds_long_sections(written):
+    from pscore_strata.report._format import number
+    from pscore_strata.report._glance import FOLDED
+
+    out, analysis = written
+    results = analysis.results
+    html = (out / "report.html").read_text()
+    glance = html[html.index('<section id="summary"'):html.index("</section>")]
+    primary = next(e for e in results["estimates"] if e["primary"])
+    tip = results["sensitivity"]["pi_difference"]["tipping_point"]
+    for text in ("At a glance", number(primary["effect"]), number(results["bounds"]["lower"]),
+                 number(tip) if tip is not None else "not reached", "always-survivor share",
+                 "latent", "individual unit"):  # fmt: skip
+        assert text in glance, text
+    pattern = r'<details class="fold">\s*<summary>(.*?)</summary>\s*<section id="([\w-]+)"'
+    folds = re.findall(pattern, html, flags=re.S)
+    folded = [n.replace("_", "-") for n in report._html.SECTIONS if n in FOLDED]
+    assert [name for _, name in folds] == folded
+    summaries = {name: text for text, name in folds}
+    # The diagnostics headline restates the largest weighted |SMD| of results.json.
+    largest = max(abs(b["smd_treated_vs_control"]) for b in results["diagnostics"]["balance"])
+    assert f"Largest weighted |SMD| {number(largest)}" in summaries["diagnostics"]
+    # The results themselves stay open.
+    assert not {"estimates", "bounds", "assumptions", "cautions"} & set(summaries)
+
+
+def _pages(pdf):
+    # Page objects of a PDF file (ISO 32000: each page dictionary has /Type /Page).
+    return len(re.findall(rb"/Type\s*/Page[^s]", pdf.read_bytes()))
+
+
+def test_printing_unfolds_every_section(written, tmp_path):
+    browser = _chromium()
+    if browser is None:
+        pytest.skip("chromium not found on PATH (apt-get install chromium)")
+    out, _ = written
+    html = (out / "report.html").read_text()
+    opened = tmp_path / "opened.html"
+    opened.write_text(html.replace('<details class="fold">', '<details class="fold" open>'))
+    pdfs = {}
+    for name, page in (("folded", out / "report.html"), ("opened", opened)):
+        pdfs[name] = tmp_path / f"{name}.pdf"
+        with tempfile.TemporaryDirectory() as profile:
+            subprocess.run(
+                [browser, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update",
+                 f"--user-data-dir={profile}", "--no-pdf-header-footer",
+                 f"--print-to-pdf={pdfs[name]}", page.resolve().as_uri()],
+                capture_output=True, timeout=180, check=False,
+            )  # fmt: skip
+    # The print stylesheet shows the folded sections: as many pages as with every one open.
+    assert _pages(pdfs["folded"]) == _pages(pdfs["opened"]) > 3

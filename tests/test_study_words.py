@@ -80,7 +80,8 @@ def test_one_format_per_quantity(workplace):
     html, results = workplace
     for row in results["diagnostics"]["weights"]:
         # Effective sample sizes and row counts are whole numbers with separators, everywhere.
-        assert f'<td class="num">{count(row["effective_sample_size"])}</td>' in html
+        shown = f'{count(row["effective_sample_size"])} of {count(row["n_rows"])}'
+        assert f'<td class="num">{shown}' in html
     assert count(1796.6) == "1,797" and number(-0.0001) == "0.000" and number(-0.02) == "-0.020"
 
 

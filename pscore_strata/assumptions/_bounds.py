@@ -29,13 +29,15 @@ from ..inference._standard_errors import (
 )
 from ..nuisance._fit import fit_nuisance
 from ..nuisance._share import shared_nuisance
+from ..tables import SummaryTable
+from ._display import BoundsDisplay
 from ._quantile_bounds import add_quantile_bounds
 from ._trimming import imbens_manski_interval, trimmed_means, trimming_bounds
 
 __all__ = ["TrimmingBounds", "trimmed_means", "imbens_manski_interval"]
 
 
-class TrimmingBounds(BaseEstimator):
+class TrimmingBounds(BoundsDisplay, BaseEstimator):
     """Bounds on the survivor average causal effect that drop principal ignorability.
 
     Parameters
@@ -308,7 +310,7 @@ class TrimmingBounds(BaseEstimator):
             "Interpret them under the study protocol, local regulation and with a qualified "
             "statistician.",
         ]
-        return table
+        return SummaryTable(table, title="TrimmingBounds: bounds on the SACE", level=level)
 
 
 def shared_bounds_nuisance(bounds, nuisance, data):

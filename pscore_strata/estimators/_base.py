@@ -35,7 +35,7 @@ from ..inference._standard_errors import (
 from ..nuisance._fit import fit_nuisance
 from ..nuisance._missing import few_outcomes_message
 from ..nuisance._share import record_settings, shared_nuisance
-from . import _stratum_formulas
+from . import _design, _stratum_formulas
 from ._fallback import bootstrap_std_errors
 from ._heterogeneity import subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -171,8 +171,8 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         survival, name = intermediate_alias(survival, intermediate)
         stratum = self._target_stratum()
         data = check_truncation_data(
-            X, y, treatment, survival, sample_weight, groups, models=self._models(),
-            missing=self.missing, survival_name=name,
+            _design.design_at_fit(self, X), y, treatment, survival, sample_weight, groups,
+            models=self._models(), missing=self.missing, survival_name=name,
             stratum=stratum if self._other_stratum() else None,
         )
         check_n_folds(self.n_folds, data)

@@ -9,11 +9,20 @@ from __future__ import annotations
 
 from ..estimands._formulas import regression_means, robust_means, weighting_means
 from ._base import SurvivorEffectEstimator
+from ._display import EstimatorDisplay
 from ._heterogeneity import ConditionalEffectMixin
 
 __all__ = ["PrincipalScoreWeighting", "OutcomeRegression", "MultiplyRobust"]
 
 _COMMON_PARAMETERS = """
+    covariates : str or None, default=None
+        The covariates as a formula over the DataFrame ``X`` given to :meth:`fit`, in the
+        formulaic library's grammar: ``"age + severity + C(site) + bs(bmi, 4)"`` (``C()``
+        categorical, ``bs()`` B-spline, ``a:b`` interaction, ``np.log(a)``). The design is
+        learned at fit (``design_``: levels, knots; no intercept, categorical terms coded
+        against their first level) and applied to the ``X`` of :meth:`predict_proba` and
+        :meth:`predict_effect`. ``None``: ``X`` is the design itself. Needs the ``formula``
+        extra.
     treatment_model : estimator, float in (0, 1) or None, default=None
         Model of ``P(T=1|X)``: a scikit-learn classifier or pipeline, or a known randomization
         probability. ``None`` is unpenalized logistic regression.
@@ -70,7 +79,7 @@ _COMMON_PARAMETERS = """
 """
 
 
-class PrincipalScoreWeighting(SurvivorEffectEstimator):
+class PrincipalScoreWeighting(EstimatorDisplay, SurvivorEffectEstimator):
     __doc__ = f"""SACE by principal score weighting (normalized weights).
 
     Under monotonicity and principal ignorability, the treated survivors are reweighted by
@@ -113,6 +122,9 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     n_clusters_ : int or None
         Number of clusters in ``groups`` (``None`` without them); below 30 the intervals use
         Student's t with ``n_clusters_ - 1`` degrees of freedom.
+    design_ : FormulaDesign
+        Only with ``covariates``: the learned design (``feature_names``, ``variables``,
+        ``transform(X)``).
 
     See Also
     --------
@@ -137,6 +149,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
     def __init__(
         self,
         *,
+        covariates=None,
         treatment_model=None,
         survival_model=None,
         monotonicity="increasing",
@@ -150,6 +163,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         response_model=None,
         follow_up_model=None,
     ):
+        self.covariates = covariates
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.monotonicity = monotonicity
@@ -164,7 +178,7 @@ class PrincipalScoreWeighting(SurvivorEffectEstimator):
         self.follow_up_model = follow_up_model
 
 
-class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
+class OutcomeRegression(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEstimator):
     __doc__ = f"""SACE by outcome regression: ``mu_t = E[p0(X) m_t(X)] / E[p0(X)]``.
 
     Relies on correct survival and outcome models; the treatment model is used only for the
@@ -201,6 +215,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
     def __init__(
         self,
         *,
+        covariates=None,
         treatment_model=None,
         survival_model=None,
         outcome_model=None,
@@ -215,6 +230,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         response_model=None,
         follow_up_model=None,
     ):
+        self.covariates = covariates
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.outcome_model = outcome_model
@@ -230,7 +246,7 @@ class OutcomeRegression(ConditionalEffectMixin, SurvivorEffectEstimator):
         self.follow_up_model = follow_up_model
 
 
-class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
+class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEstimator):
     __doc__ = f"""SACE by the multiply robust estimator of Jiang, Yang & Ding (2022).
 
     Built on the efficient influence function: consistent when any two of the treatment,
@@ -280,6 +296,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
     def __init__(
         self,
         *,
+        covariates=None,
         treatment_model=None,
         survival_model=None,
         outcome_model=None,
@@ -293,6 +310,7 @@ class MultiplyRobust(ConditionalEffectMixin, SurvivorEffectEstimator):
         response_model=None,
         follow_up_model=None,
     ):
+        self.covariates = covariates
         self.treatment_model = treatment_model
         self.survival_model = survival_model
         self.outcome_model = outcome_model

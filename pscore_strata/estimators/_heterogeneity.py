@@ -19,6 +19,7 @@ from .._vectors import one_dimensional
 from ..estimands._formulas import scale_effect
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._models import predict_models
+from ._design import design_for_new_rows
 from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
@@ -204,4 +205,4 @@ class ConditionalEffectMixin:
         ndarray of shape (n_rows,)
         """
         check_is_fitted(self, "effect_")
-        return conditional_effect(self, X)
+        return conditional_effect(self, design_for_new_rows(self, X))

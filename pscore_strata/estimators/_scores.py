@@ -15,6 +15,7 @@ from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR, VIOLATION_TO
 from ..exceptions import MonotonicityWarning
 from ..nuisance._models import predict_models
 from ..nuisance._stratum_arms import StratumArm
+from ._design import design_for_new_rows
 
 __all__ = ["PrincipalScoresMixin", "check_feature_names", "count_crossings"]
 
@@ -66,6 +67,7 @@ class PrincipalScoresMixin:
             an ndarray otherwise.
         """
         check_is_fitted(self, "effect_")
+        X = design_for_new_rows(self, X)
         index = X.index if isinstance(X, pd.DataFrame) else None
         X = _match_feature_names(self, X)
         X, n_features, _ = check_features(X, self._models())

@@ -14,6 +14,7 @@ from ..inference._standard_errors import (
     reference_quantile,
 )
 from ..nuisance._missing import missingness_counts
+from ..tables import SummaryTable
 from ._repeats import median_aggregate
 from ._stratum_formulas import arm_cells, ignorability_statement, stratum_words
 
@@ -129,7 +130,8 @@ def summary_table(estimator, level):
     table = table.set_index("quantity")
     table.attrs["scale"] = estimator.scale
     table.attrs["notes"] = _notes(estimator) + diagnostic_warnings(estimator)
-    return table
+    title = f"{type(estimator).__name__}: survivor average causal effect"
+    return SummaryTable(table, title=title, level=level)
 
 
 def _stratum_shares(estimator):

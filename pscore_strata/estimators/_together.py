@@ -8,7 +8,8 @@ __all__ = ["fit_estimators"]
 
 
 def fit_estimators(X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
-                   groups=None, treatment_model=None, survival_model=None, outcome_model=None,
+                   groups=None, covariates=None,
+                   treatment_model=None, survival_model=None, outcome_model=None,
                    monotonicity="increasing", stratum="always_survivor", scale="difference",
                    n_folds=None, n_bootstrap=200, random_state=None, missing="error",
                    response_model=None, follow_up_model=None):  # fmt: skip
@@ -23,6 +24,9 @@ def fit_estimators(X, y, *, treatment, survival=None, intermediate=None, sample_
     X, y, treatment, survival, intermediate, sample_weight, groups
         As in :meth:`PrincipalScoreWeighting.fit` (exactly one of ``survival`` and
         ``intermediate``).
+    covariates : str or None, default=None
+        A covariate formula over the DataFrame ``X`` (as in :class:`MultiplyRobust`): the
+        design is learned once and every estimator applies it.
     treatment_model, survival_model, outcome_model, monotonicity, stratum, scale, n_folds, \
 random_state
         As in :class:`MultiplyRobust`, shared by all three.
@@ -50,18 +54,20 @@ random_state
     >>> fits["weighting"].std_error_method_
     'sandwich'
     """
-    common = dict(treatment_model=treatment_model, survival_model=survival_model,
-                  monotonicity=monotonicity, stratum=stratum, scale=scale, n_folds=n_folds,
+    common = dict(covariates=covariates, treatment_model=treatment_model,
+                  survival_model=survival_model, monotonicity=monotonicity, stratum=stratum,
+                  scale=scale, n_folds=n_folds,
                   random_state=random_state, missing=missing,
                   response_model=response_model, follow_up_model=follow_up_model)  # fmt: skip
     arguments = dict(treatment=treatment, survival=survival, intermediate=intermediate,
                      sample_weight=sample_weight, groups=groups)  # fmt: skip
     robust = MultiplyRobust(outcome_model=outcome_model, **common).fit(X, y, **arguments)
     shared = robust.nuisance_
-    regression = OutcomeRegression(
-        outcome_model=outcome_model, n_bootstrap=n_bootstrap, **common
-    ).fit(X, y, nuisance=shared, **arguments)
-    weighting = PrincipalScoreWeighting(n_bootstrap=n_bootstrap, **common).fit(
-        X, y, nuisance=shared, **arguments
-    )
+    regression = OutcomeRegression(outcome_model=outcome_model, n_bootstrap=n_bootstrap, **common)
+    weighting = PrincipalScoreWeighting(n_bootstrap=n_bootstrap, **common)
+    for estimator in (regression, weighting):
+        if covariates is not None:
+            # The design learned by the first fit, applied (not learned again) by the others.
+            estimator._given_design = robust.design_
+        estimator.fit(X, y, nuisance=shared, **arguments)
     return {"weighting": weighting, "regression": regression, "robust": robust}

@@ -17,6 +17,8 @@ from joblib import delayed
 from sklearn.base import clone
 
 from .._validation import check_choice, check_level, intermediate_alias
+from ..tables import SummaryTable
+from ._display import BootstrapDisplay
 from ._failures import _check_failures, failure_reasons
 from ._intervals import bca_interval, influence_acceleration, percentile_interval
 from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
@@ -192,7 +194,7 @@ def bootstrap(
     )
 
 
-class BootstrapResult:
+class BootstrapResult(BootstrapDisplay):
     """Replicates of a bootstrap and the intervals they give.
 
     With one statistic (``"effect"``) ``estimate`` and ``std_error`` are floats and
@@ -298,7 +300,7 @@ class BootstrapResult:
             "about individual patients on them; follow the study protocol and local "
             "regulation, and have a qualified statistician review the analysis.",
         ]
-        return table
+        return SummaryTable(table, title="Bootstrap", level=level)
 
     def __repr__(self):
         # What an analyst wants at a glance: each statistic's estimate, SE and 95% percentile

@@ -29,6 +29,8 @@ _GROUP_LABELS = {
     "everyone": "everyone (weights: always-survivor score)",
 }
 _ARM_COLORS = {"treated": "#1f77b4", "control": "#d95f02"}
+_BAND_COLOR = "#e3efe6"  # the acceptable band of the balance figure
+_INSIDE_COLOR, _OUTSIDE_COLOR = "#2a7f62", "#9c2f2f"
 
 
 def _figure_and_axes(ax, figsize):
@@ -54,7 +56,13 @@ def plot_balance(
     max_covariates=40,
     ax=None,
 ):
-    """Dot plot of absolute standardized mean differences, raw and weighted, per covariate.
+    """Arrow per covariate from the unweighted to the weighted standardized mean difference.
+
+    Each row starts at the survivors' unweighted difference (treated against control, a short
+    grey bar) and ends at the weighted difference between two always-survivor reconstructions
+    (a filled end, dark when it stays outside the band). The shaded band is ``|SMD| < threshold``.
+    Rows are sorted by the unweighted imbalance, the largest at the top, so the eye reads how
+    far the analysis moved each covariate and where it still falls short.
 
     Parameters
     ----------
@@ -64,10 +72,10 @@ def plot_balance(
     X : array-like or DataFrame, optional
         Covariates of the fitted rows.
     comparison : {"treated_vs_control", "treated_vs_everyone", "control_vs_everyone"}
-        Which pair of weighted always-survivor reconstructions to show beside the raw
-        (unweighted) comparison of treated and control survivors.
+        Which pair of weighted always-survivor reconstructions ends the arrows.
     threshold : float, default=0.1
-        Reference line; 0.1 is the common-practice limit for a negligible imbalance.
+        Half-width of the shaded band; 0.1 is the common-practice limit for a negligible
+        imbalance.
     max_covariates : int, default=40
         Show at most this many covariates, those with the largest raw or weighted ``|SMD|`` (the
         title then says how many were left out; the full list is in the balance table).
@@ -84,37 +92,43 @@ def plot_balance(
     table = estimator if isinstance(estimator, pd.DataFrame) else None
     if table is None:
         table = diagnostics.balance_table(estimator, X)
-    raw = table["raw_smd_treated_vs_control"].abs()
-    weighted = table[f"smd_{comparison}"].abs()
-    shown = np.maximum(raw, weighted).sort_values(ascending=False).index[:max_covariates]
-    order = raw[shown].sort_values().index
+    raw = table["raw_smd_treated_vs_control"].astype(float)
+    weighted = table[f"smd_{comparison}"].astype(float)
+    largest = np.maximum(raw.abs(), weighted.abs()).sort_values(ascending=False)
+    shown = largest.index[:max_covariates]
+    order = raw[shown].abs().sort_values().index  # largest unweighted imbalance on top
     positions = np.arange(len(order))
-    figure, ax = _figure_and_axes(ax, (6.4, 1.8 + 0.32 * len(order)))
-    ax.hlines(positions, 0, np.maximum(raw[order], weighted[order]), color="0.85", zorder=1)
-    ax.scatter(
-        raw[order], positions, marker="o", facecolors="white", edgecolors="0.35", s=36,
-        label="raw: treated vs control survivors", zorder=2,
-    )  # fmt: skip
+    figure, ax = _figure_and_axes(ax, (6.4, 1.9 + 0.34 * len(order)))
+    reach = max(float(np.nanmax(np.abs([raw[order], weighted[order]]))), threshold) * 1.12
+    ax.axvspan(-threshold, threshold, color=_BAND_COLOR, zorder=0,
+               label=f"|SMD| < {threshold:g} (common practice)")  # fmt: skip
+    ax.axvline(0, color="0.55", linewidth=0.8, zorder=1)
     first, second = comparison.split("_vs_")
-    ax.scatter(
-        weighted[order], positions, marker="o", color=_ARM_COLORS["treated"], s=36,
-        label=f"weighted: {first} vs {second} reconstruction", zorder=3,
-    )  # fmt: skip
-    ax.axvline(threshold, color="0.3", linestyle="--", linewidth=1)
-    ax.text(
-        threshold, 1.0, f" {threshold:g}", transform=ax.get_xaxis_transform(),
-        va="bottom", ha="left", fontsize=8, color="0.3",
-    )  # fmt: skip
+    inside = weighted[order].abs() < threshold
+    for y, name in zip(positions, order, strict=True):
+        start, end = raw[name], weighted[name]
+        if np.isfinite(start) and np.isfinite(end) and abs(end - start) > 1e-3 * reach:
+            ax.annotate("", xy=(end, y), xytext=(start, y), zorder=2,
+                        arrowprops={"arrowstyle": "-|>", "color": "0.45", "linewidth": 1.1,
+                                    "shrinkA": 0, "shrinkB": 4, "mutation_scale": 9})  # fmt: skip
+    ax.scatter(raw[order], positions, marker="|", s=110, linewidths=2.2, color="0.5", zorder=3,
+               label="survivors, unweighted: treated vs control")  # fmt: skip
+    ax.scatter(weighted[order], positions, marker="D", s=30, zorder=4,
+               color=np.where(inside, _INSIDE_COLOR, _OUTSIDE_COLOR),
+               label=f"weighted: {first} vs {second} reconstruction")  # fmt: skip
     ax.set_yticks(positions, [str(name) for name in order])
     ax.set_ylim(-0.7, len(order) - 0.3)
-    right = max(float(np.nanmax([raw.max(), weighted.max()])), threshold) * 1.08
-    ax.set_xlim(-0.02 * right, right)
-    ax.set_xlabel("absolute standardized mean difference")
+    ax.set_xlim(-reach, reach)
+    ax.set_xlabel("standardized mean difference (arrow: unweighted to weighted)")
+    ax.grid(axis="x", color="0.93", zorder=0)
+    ax.set_axisbelow(True)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
     title = "Covariate balance of the always-survivor reconstructions"
     if len(order) < len(raw):
         title += f"\n({len(order)} of {len(raw)} covariates: the largest differences)"
-    ax.set_title(title, fontsize=10, pad=14)
-    _legend_below(ax, ncol=2)
+    ax.set_title(title, fontsize=10, pad=10)
+    _legend_below(ax, ncol=1)  # one entry a line: the study's arm names can be long
     return figure
 
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 from ._analysis import SCHEMA_VERSION, Analysis, AnalysisOptions, build_estimator, run_analysis
 from ._data import ColumnRoles, InputError, PreparedData, check_folds, prepare_data, read_table
 from ._html import render_html, schema, write_report
+from ._manuscript import TABLE_FORMATS, manuscript_tables, write_manuscript_tables
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -19,6 +20,9 @@ __all__ = [
     "AnalysisOptions",
     "ColumnRoles",
     "InputError",
+    "TABLE_FORMATS",
+    "manuscript_tables",
+    "write_manuscript_tables",
     "PreparedData",
     "analyze_frame",
     "build_estimator",

@@ -12,8 +12,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .._formula import variables_in
 from ..exceptions import InputError
 from . import _coding, _readers
+from ._formula_data import check_formula_option, formula_design
 from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
 
 __all__ = [
@@ -33,12 +35,16 @@ class ColumnRoles:
     cluster: str | None = None
     weights: str | None = None
     by: str | None = None  # subgroup column (--by): effects within each of its values
+    formula: str | None = None  # --formula: covariates as a formula (formulaic's grammar)
     # Repeated visits: (outcome, survival) column pairs in time order; the last pair is the
     # outcome and survival above, which the main analysis uses (report/_visit_data.py).
     visits: tuple = ()
 
     def all_covariates(self):
-        """Covariates in the order given, categorical columns included (added if unlisted)."""
+        """Covariates in the order given, categorical columns included (added if unlisted);
+        with a formula, the columns it names."""
+        if self.formula is not None:
+            return tuple(variables_in(self.formula))
         listed = list(self.covariates)
         return tuple(listed + [c for c in self.categorical if c not in listed])
 
@@ -58,6 +64,7 @@ class ColumnRoles:
             "cluster": self.cluster,
             "weights": self.weights,
             "by": self.by,
+            "formula": self.formula,
         }
 
 
@@ -90,6 +97,7 @@ def read_table(path):
 
 
 def _check_columns(frame, roles):
+    check_formula_option(frame, roles, InputError)
     available = [str(c) for c in frame.columns]
     options = {
         "--outcome": [o for o, _ in roles.visits] or [roles.outcome],
@@ -316,7 +324,9 @@ def prepare_data(frame, roles, *, drop_incomplete=False, missing="error", treate
         )
     covariates = design = None
     names = roles.all_covariates()
-    if names:
+    if roles.formula is not None:
+        covariates, design, messages = formula_design(used, roles, InputError)
+    elif names:
         covariates = used[list(names)]
         _coding.check_dates(covariates, InputError)
         _coding.check_identifiers(covariates, roles.categorical, InputError)

@@ -169,10 +169,11 @@ def draw_figures(analysis):
                     "Covariate balance",
                     plotting.plot_balance,
                     (analysis.primary, analysis.covariates),
-                    "Open circles: treated against control survivors without weights (what a naive "
-                    "survivor analysis compares). Filled: the weighted always-survivor "
-                    "reconstructions from the two arms. Below the dashed line (0.1, common "
-                    "practice) the reconstructions agree.",
+                    "Each arrow runs from the treated against control survivors without weights "
+                    "(grey bar: what a naive survivor analysis compares) to the weighted "
+                    "always-survivor reconstructions from the two arms (diamond, dark red when "
+                    "outside the band). Inside the shaded band (|SMD| < 0.1, common practice) the "
+                    "reconstructions agree; the largest unweighted imbalance is on top.",
                 )  # fmt: skip
             )
     # Without covariates every unit shares one treatment probability, one set of principal

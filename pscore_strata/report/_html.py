@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from ._format import count, interval, number, percent
+from ._glance import FOLD_TITLES, FOLDED, headlines, main_warnings, tipping_text
 from ._wording import outcome_label
 
 __all__ = ["write_report", "render_html", "schema"]
@@ -113,6 +114,8 @@ def _view(results, figures):
     # Another stratum than the always-survivors (--stratum; report/_strata.py).
     target = results.get("stratum")
     other = target is not None and target["name"] != "always_survivor"
+    words = results.get("wording") or _DEFAULT_WORDING
+    shown, more = main_warnings(results)
     return {
         "r": results,
         "other_stratum": other,
@@ -122,6 +125,12 @@ def _view(results, figures):
         "strata": results.get("strata"),
         # "Over visits" appears only for an analysis of several visits.
         "sections": tuple(s for s in SECTIONS if s != "visits" or results.get("visits")),
+        "folded": FOLDED,
+        "fold_titles": FOLD_TITLES,
+        "headlines": headlines(results, words),
+        "tipping": tipping_text(results),
+        "glance_warnings": shown,
+        "more_warnings": more,
         "level": level,
         "primary": primary,
         "balance": balance,
@@ -129,7 +138,7 @@ def _view(results, figures):
         "selected_harmed": selected_harmed,
         "outside_bounds": _outside_bounds(results),
         "outcome_name": outcome_label(results),
-        "w": results.get("wording") or _DEFAULT_WORDING,
+        "w": words,
         "figures": [{**f, "data": base64.b64encode(f["png"]).decode("ascii")} for f in figures],
         "fmt": number,
         "pct": percent,

@@ -14,7 +14,7 @@ import pandas as pd
 from ..tables import Table, write_tables
 from ._format import count, number
 
-__all__ = ["manuscript_tables", "write_manuscript_tables", "TABLE_FORMATS"]
+__all__ = ["manuscript_tables", "write_manuscript_tables", "TABLE_FORMATS", "table_formats"]
 
 TABLE_FORMATS = ("docx", "tex", "md")
 _RIGHT = "right"
@@ -27,19 +27,41 @@ def _interval(record, low="ci_low", high="ci_high"):
     return (record[low], record[high])
 
 
-def _numbers(frame, columns):
-    """Pre-formatted cells: the report's text for each number, "—" where there is none."""
+def _numbers(frame, columns, rows=None):
+    """Pre-formatted cells, "—" where there is no value. One number of decimals for the whole
+    block (``rows``, by default every row), from its largest value: three below 100, one below
+    1,000, none above (the report's rule for one number, applied to the block so a column
+    reads evenly)."""
+    rows = list(range(len(frame))) if rows is None else list(rows)
+    values = [v for c in columns for i in rows for v in _flat(frame[c].iloc[i])]
+    places = _places(values)
     for column in columns:
-        frame[column] = [_cell(v) for v in frame[column]]
+        cells = list(frame[column])
+        for i in rows:
+            cells[i] = _cell(cells[i], places)
+        frame[column] = cells
     return frame
 
 
-def _cell(value):
+def _flat(value):
+    values = value if isinstance(value, tuple) else (value,)
+    return [v for v in values if v is not None and not (isinstance(v, float) and math.isnan(v))]
+
+
+def _places(values):
+    size = max((abs(v) for v in values), default=0.0)
+    return 3 if size < 100 else (1 if size < 1000 else 0)
+
+
+def _cell(value, places=3):
+    if isinstance(value, str):
+        return value
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "—"
     if isinstance(value, tuple):
-        return f"{number(value[0])} to {number(value[1])}"
-    return number(value)
+        return f"{_cell(value[0], places)} to {_cell(value[1], places)}"
+    text = f"{value:,.{places}f}"
+    return text[1:] if text.startswith("-") and not text.strip("-0.,") else text
 
 
 def _words(results):
@@ -100,24 +122,32 @@ def results_table(results):
         if bounds.get("interval_note"):
             notes.append(f"Bounds: {bounds['interval_note']}")
     naive = results["naive_survivor_contrast"]
-    rows.append(("For comparison", "Survivors only, treated minus control (biased)",
+    rows.append(("For comparison", "Survivors only (biased)",
                  naive["estimate"], naive["std_error"], _interval(naive),
                  "influence function"))  # fmt: skip
     for name, share in results["stratum_shares"].items():
-        rows.append(("Principal strata (share of all units)", name.replace("_", "-"),
+        rows.append((f"Principal strata (share of all {words['units']})", name.replace("_", "-"),
                      share["estimate"], share["std_error"], _interval(share),
                      "influence function"))  # fmt: skip
     frame = pd.DataFrame(rows, columns=["group", "Analysis", "Estimate", "SE", level,
                                         "Standard error"])  # fmt: skip
-    _numbers(frame, ["Estimate", "SE", level])
+    shares = [i for i, g in enumerate(frame["group"]) if g.startswith("Principal strata")]
+    effects = [i for i in range(len(frame)) if i not in shares]
+    _numbers(frame, ["Estimate", "SE", level], effects)
+    _numbers(frame, ["Estimate", "SE", level], shares)
+    target = results.get("stratum") or {}
+    among = (target["label"] if target.get("name", "always_survivor") != "always_survivor"
+             else "always-survivors")  # fmt: skip
     caption = (f"Effect of {words['treated_arm']} versus {words['control_arm']} on {outcome} "
-               f"among always-survivors (n = {count(results['data_overview']['n_rows_analyzed'])}"
+               f"among {among} (n = {count(results['data_overview']['n_rows_analyzed'])}"
                f" {words['units']})")  # fmt: skip
     footnote = [
         f"SACE: survivor average causal effect, the mean difference in {outcome} between "
         f"{words['treated_arm']} ('{words['treated_condition']}') and {words['control_arm']} "
-        f"('{words['control_condition']}') among {words['units']} who would survive "
-        f"(no {words['event']}) under either arm. SE: standard error; CI: confidence interval.",
+        f"('{words['control_condition']}') among the {words['units']} who would avoid "
+        f"{words['event']} under either arm (the always-survivors). Survivors only: the "
+        "difference of the survivors' mean outcomes, biased when treatment changes who "
+        "survives. SE: standard error; CI: confidence interval.",
         *notes,
         assumptions_note(results),
     ]
@@ -128,8 +158,8 @@ def results_table(results):
 
 BALANCE_COLUMNS = {
     "covariate": "Covariate",
-    "raw_smd_treated_vs_control": "Survivors, unweighted: treated vs control",
-    "smd_treated_vs_control": "Weighted: treated vs control",
+    "raw_smd_treated_vs_control": "Unweighted",
+    "smd_treated_vs_control": "Treated vs control",
     "smd_treated_vs_everyone": "Treated vs everyone",
     "smd_control_vs_everyone": "Control vs everyone",
 }
@@ -148,10 +178,10 @@ def balance_table(results):
     ess = diagnostics.get("effective_sample_size") or {}
     footnote = [
         "Standardized mean differences of the covariates between the three weighted "
-        "reconstructions of the always-survivors (treated survivors weighted by "
-        "p0 / (pi p1), control survivors by 1 / (1 - pi), everyone by p0; Ding and Lu, 2017); "
-        "when the models are right they agree. The first column is the unweighted comparison of "
-        "the survivors, which shows the imbalance the analysis removes. An absolute value "
+        "reconstructions of the always-survivors: from the treated survivors (weights "
+        "p0 / (pi p1)), from the control survivors (1 / (1 - pi)) and from everyone (p0) "
+        "(Ding and Lu, 2017); when the models are right they agree. Unweighted: treated "
+        "against control survivors, the imbalance the analysis removes. An absolute value "
         "below 0.1 is a common rule of thumb.",
     ]
     if ess:
@@ -203,8 +233,12 @@ def _grid_table(results, key, parameter, caption, label):
         columns=[parameter, "SACE", "SE", level],
     )
     _numbers(frame, ["SACE", "SE", level])
-    tip = record.get("tipping_point")
-    tip_text = ("not reached within the grid" if tip is None else number(tip))
+    tip, status = record.get("tipping_point"), record.get("tipping_status")
+    tip_text = {"covers_null": "none (the interval covers 0 at the null value itself)",
+                "unchanged": "none (the SACE does not change with this parameter here)",
+                "not_available": "not available"}.get(status)  # fmt: skip
+    if tip_text is None:
+        tip_text = "not reached within the grid" if tip is None else number(tip)
     footnote = [f"{parameter}: {record['description']}",
                 f"Tipping point ({sens.get('criterion', 'the interval first covers 0')}): "
                 f"{tip_text}."]  # fmt: skip
@@ -300,8 +334,33 @@ def manuscript_tables(analysis):
     return {name: table for name, table in tables.items() if table is not None}
 
 
+def table_formats(text, option="--tables"):
+    """The formats of ``--tables docx,tex,md`` (comma-separated), checked before any work."""
+    from ._data import InputError
+
+    formats = [part.strip().lower().lstrip(".") for part in str(text).split(",") if part.strip()]
+    unknown = [f for f in formats if f not in TABLE_FORMATS]
+    if unknown or not formats:
+        raise InputError(
+            f"{option} takes a comma-separated list of {', '.join(TABLE_FORMATS)} (for example "
+            f"{option} docx,tex,md); got {text!r}."
+        )
+    return tuple(dict.fromkeys(formats))
+
+
 def write_manuscript_tables(analysis, out_dir, formats=TABLE_FORMATS):
     """Write ``tables.<format>`` (every table of the analysis, in order) into ``out_dir``.
+
+    Parameters
+    ----------
+    analysis : Analysis or dict
+        What :func:`run_analysis` returned, or its ``results``.
+    out_dir : str or path-like
+        An existing folder (the report's, usually).
+    formats : sequence of {"docx", "tex", "md"}, default=("docx", "tex", "md")
+        One file per format: ``tables.docx`` (Word, one document with every table),
+        ``tables.tex`` (a fragment for ``\\input``, one booktabs ``table`` float per table),
+        ``tables.md`` (pipe tables).
 
     Returns
     -------

@@ -5,8 +5,19 @@ Every format prints the same formatted cells, so the digits agree between a Word
 paper and the report. python-docx is imported only when a Word file is written.
 """
 
+from ._display import NotebookDisplay, SummaryTable, number_text, result_card
 from ._files import write_tables
 from ._table import FORMATS, Table, format_cell
 from ._text import latex_escape
 
-__all__ = ["Table", "write_tables", "format_cell", "latex_escape", "FORMATS"]
+__all__ = [
+    "Table",
+    "write_tables",
+    "format_cell",
+    "latex_escape",
+    "FORMATS",
+    "SummaryTable",
+    "NotebookDisplay",
+    "result_card",
+    "number_text",
+]
