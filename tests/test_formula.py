@@ -127,7 +127,10 @@ def test_estimator_on_a_formula_equals_the_hand_built_design(study, cls):
     by_hand = cls().fit(_hand_built(frame, frame), data.y, **arguments)
     assert by_formula.effect_ == pytest.approx(by_hand.effect_, rel=1e-9)
     assert by_formula.std_error_ == pytest.approx(by_hand.std_error_, rel=1e-7)
-    assert by_formula.design_.feature_names == list(by_formula.feature_names_in_)
+    # scikit-learn's convention: feature_names_in_ are the columns the caller passed (checked again
+    # at predict time); the design's own columns are those the formula built from them.
+    assert list(by_formula.feature_names_in_) == list(frame.columns)
+    assert by_formula.design_.feature_names[:2] == ["age", "severity"]
     new = frame.iloc[:25]
     new_by_hand = _hand_built(new, frame)
     np.testing.assert_allclose(np.asarray(by_formula.predict_proba(new)),

@@ -12,8 +12,10 @@ import pytest
 
 PUBLIC_NAMES = {
     "pscore_strata": [
+        "BootstrapFailureError",
         "BootstrapResult",
         "FewClustersWarning",
+        "FewOutcomesWarning",
         "MonotonicityWarning",
         "MultiplyRobust",
         "OrdinalComparison",
@@ -21,6 +23,7 @@ PUBLIC_NAMES = {
         "OverlapWarning",
         "PrincipalScoreModel",
         "PrincipalScoreWeighting",
+        "SeparationWarning",
         "SurvivorDistribution",
         "TrimmingBounds",
         "__version__",
@@ -171,13 +174,16 @@ PUBLIC_NAMES = {
         "visit_effects",
     ],
     "pscore_strata.exceptions": [
+        "BootstrapFailureError",
         "DataWarning",
         "FewClustersWarning",
+        "FewOutcomesWarning",
         "FileProblem",
         "InputError",
         "LooseFitWarning",
         "MonotonicityWarning",
         "OverlapWarning",
+        "SeparationWarning",
     ],
 }
 

@@ -67,9 +67,15 @@ class PrincipalScoresMixin:
             an ndarray otherwise.
         """
         check_is_fitted(self, "effect_")
-        X = design_for_new_rows(self, X)
-        index = X.index if isinstance(X, pd.DataFrame) else None
-        X = _match_feature_names(self, X)
+        if getattr(self, "design_", None) is not None:
+            # A formula: the caller's columns are checked as seen in fit, then the learned
+            # design builds the models' columns from them.
+            check_feature_names(self, X, reset=False)
+            X = design_for_new_rows(self, X)
+            index = X.index if isinstance(X, pd.DataFrame) else None
+        else:
+            index = X.index if isinstance(X, pd.DataFrame) else None
+            X = _match_feature_names(self, X)
         X, n_features, _ = check_features(X, self._models())
         if n_features != self.n_features_in_:
             raise ValueError(
