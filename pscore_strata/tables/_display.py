@@ -153,8 +153,11 @@ class NotebookDisplay:
 
     _fitted_attribute = "effect_"
 
-    def _card(self):  # pragma: no cover - every subclass defines it
-        raise NotImplementedError
+    def _card(self):  # pragma: no cover - the three result mixins define it
+        # The hook a subclass fills (estimators, bounds, bootstrap results all do).
+        raise NotImplementedError(
+            f"{type(self).__name__} must define _card() returning its result card's HTML"
+        )
 
     def _is_fitted_for_display(self):
         return hasattr(self, self._fitted_attribute)
