@@ -143,7 +143,7 @@ def time_one(n):
             warnings.simplefilter("ignore")
             return ps.PrincipalScoreWeighting(survival_model=survival_model).fit(X, y, **fit)
 
-    joint, model = best_time(lambda: ps.PrincipalScoreModel().fit(X, t, s))
+    joint, model = best_time(lambda: ps.PrincipalScoreModel().fit(X, treatment=t, survival=s))
     arms, _ = best_time(arm_fits)
     plain, _ = best_time(lambda: weighting(None))
     strata, _ = best_time(lambda: weighting(ps.PrincipalScoreModel()))
@@ -195,7 +195,9 @@ def em_table():
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 seconds, model = best_time(
-                    lambda: ps.PrincipalScoreModel(classifier, **options).fit(X, t, s),  # noqa: B023
+                    lambda: ps.PrincipalScoreModel(classifier, **options).fit(  # noqa: B023
+                        X, treatment=t, survival=s  # noqa: B023
+                    ),
                     repeats=1,
                 )
             row = {

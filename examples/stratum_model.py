@@ -58,7 +58,7 @@ for label, est in fits.items():
 # ------------------------
 # Fitted by maximum likelihood of the observed cells (treated survivors are always-survivors or
 # protected, control deaths protected or doomed); its scores sum the stratum probabilities.
-model = ps.PrincipalScoreModel().fit(data.X, data.treatment, data.survival)
+model = ps.PrincipalScoreModel().fit(data.X, treatment=data.treatment, survival=data.survival)
 print(f"converged: {model.converged_} after {model.n_iter_} Newton steps; "
       f"log-likelihood {model.log_likelihood_:.1f}")
 scores = model.predict_proba(data.X)

@@ -6,7 +6,10 @@ parameter, says what was expected, shows what was got and says what to do.
 
 from __future__ import annotations
 
+import functools
+import inspect
 import numbers
+import warnings
 
 import numpy as np
 
@@ -18,6 +21,7 @@ __all__ = [
     "check_n_bootstrap",
     "check_n_folds",
     "check_positive_integer",
+    "positional_still_accepted",
 ]
 
 _ROLES = {
@@ -149,3 +153,43 @@ def check_estimator_arguments(estimator):
         check_n_jobs(params["n_jobs"])
     if "n_bootstrap" in params:
         check_n_bootstrap(params["n_bootstrap"])
+
+
+def positional_still_accepted(function):
+    """Let a method whose trailing parameters became keyword-only take them by position, with a
+    ``FutureWarning``, for one release (scripts written for the positional form keep running).
+
+    The wrapped signature (what ``inspect.signature`` and the documentation show) is the
+    keyword-only one.
+    """
+    parameters = list(inspect.signature(function).parameters.values())
+    leading = sum(p.kind is p.POSITIONAL_OR_KEYWORD for p in parameters)
+    keyword_only = [p.name for p in parameters if p.kind is p.KEYWORD_ONLY]
+    name = function.__qualname__
+
+    @functools.wraps(function)
+    def accept(*args, **kwargs):
+        extra = args[leading:]
+        if extra:
+            if len(extra) > len(keyword_only):
+                raise TypeError(
+                    f"{name}() takes {leading - 1} positional argument(s) after self and "
+                    f"{len(keyword_only)} by keyword ({', '.join(keyword_only)}); got "
+                    f"{len(args) - 1} positional."
+                )
+            given = dict(zip(keyword_only, extra, strict=False))
+            twice = sorted(set(given) & set(kwargs))
+            if twice:
+                raise TypeError(f"{name}() got {', '.join(twice)} both by position and keyword.")
+            written = ", ".join(f"{key}=..." for key in given)
+            warnings.warn(
+                f"Passing {', '.join(given)} to {name}() by position is deprecated and will "
+                f"stop working in the next release; write them by keyword: "
+                f"{function.__name__}(X, {written}).",
+                FutureWarning,
+                stacklevel=2,
+            )
+            kwargs.update(given)
+        return function(*args[:leading], **kwargs)
+
+    return accept

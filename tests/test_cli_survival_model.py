@@ -139,7 +139,7 @@ def test_demo_pre_specifies_the_better_fitting_survival_model(tmp_path, capsys, 
         glm = sm.GLM(data.survival[rows], sm.add_constant(design[rows]),
                      family=sm.families.Binomial()).fit()  # fmt: skip
         arm_wise += glm.llf
-    strata = ps.PrincipalScoreModel().fit(design, data.treatment, data.survival)
+    strata = ps.PrincipalScoreModel().fit(design, treatment=data.treatment, survival=data.survival)
     k = 2 * (design.shape[1] + 1)  # both sides: two intercept + slope vectors
     aic = {"arm-wise": 2 * k - 2 * arm_wise, "strata": 2 * k - 2 * strata.log_likelihood_}
     by_model = {c["model"]: c for c in chosen["comparison"]}

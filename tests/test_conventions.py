@@ -131,10 +131,10 @@ def test_stratum_model_conventions():
     assert clone(model).get_params() == model.get_params()
     unfitted = ps.PrincipalScoreModel(monotonicity="sideways")  # checked by fit, not __init__
     with pytest.raises(ValueError, match="`monotonicity`"):
-        unfitted.fit(DATA.X, DATA.treatment, DATA.survival)
+        unfitted.fit(DATA.X, treatment=DATA.treatment, survival=DATA.survival)
     X = pd.DataFrame(DATA.X, columns=["a", "b", "c"])
     before = X.copy()
-    fitted = model.fit(X, DATA.treatment, DATA.survival)
+    fitted = model.fit(X, treatment=DATA.treatment, survival=DATA.survival)
     pd.testing.assert_frame_equal(X, before)
     again = pickle.loads(pickle.dumps(fitted))
     np.testing.assert_array_equal(again.predict_proba(X), fitted.predict_proba(X))

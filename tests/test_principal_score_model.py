@@ -18,6 +18,7 @@ from pscore_strata.datasets import make_truncation
 
 ESTIMATORS = [ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust]
 MULTI = make_truncation(1500, n_features=2, stratum_model="multinomial", random_state=4)
+CELLS = dict(treatment=MULTI.treatment, survival=MULTI.survival)  # keyword-only in fit
 
 
 def _cells(treatment, survival, increasing=True):
@@ -58,7 +59,7 @@ def test_default_fit_matches_an_independent_maximum_likelihood_fit(monotonicity)
     increasing = monotonicity == "increasing"
     theta, Xd = _independent_mle(data.X, data.treatment, data.survival, increasing)
     model = ps.PrincipalScoreModel(monotonicity=monotonicity).fit(
-        data.X, data.treatment, data.survival
+        data.X, treatment=data.treatment, survival=data.survival
     )
     assert model.converged_
     reference = _softmax_scores(theta, Xd)
@@ -80,18 +81,18 @@ def test_default_fit_matches_an_independent_maximum_likelihood_fit(monotonicity)
 def test_fit_is_invariant_to_the_units_of_the_covariates():
     # Maximum likelihood is invariant to rescaling a covariate (the design is standardized).
     X = MULTI.X * np.array([1e6, 1e-5]) + np.array([3e7, 0.0])
-    scaled = ps.PrincipalScoreModel().fit(X, MULTI.treatment, MULTI.survival)
-    plain = ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival)
+    scaled = ps.PrincipalScoreModel().fit(X, **CELLS)
+    plain = ps.PrincipalScoreModel().fit(MULTI.X, **CELLS)
     np.testing.assert_allclose(scaled.predict_proba(X), plain.predict_proba(MULTI.X), atol=1e-8)
 
 
 def test_em_with_a_logistic_base_reaches_the_same_optimum():
     # EM's fixed point is the maximum of the observed-data likelihood (Dempster et al. 1977).
     data = make_truncation(500, n_features=2, stratum_model="multinomial", random_state=11)
-    direct = ps.PrincipalScoreModel().fit(data.X, data.treatment, data.survival)
+    direct = ps.PrincipalScoreModel().fit(data.X, treatment=data.treatment, survival=data.survival)
     base = LogisticRegression(C=np.inf, solver="newton-cg", tol=1e-10, max_iter=500)
     em = ps.PrincipalScoreModel(base, max_iter=1000, tol=1e-11).fit(
-        data.X, data.treatment, data.survival
+        data.X, treatment=data.treatment, survival=data.survival
     )
     assert em.converged_ and em.n_iter_ > 1
     np.testing.assert_allclose(em.predict_proba(data.X), direct.predict_proba(data.X), atol=1e-4)
@@ -105,13 +106,13 @@ def test_em_with_an_exact_m_step_never_lowers_the_log_likelihood():
     data = make_truncation(500, n_features=2, stratum_model="multinomial", random_state=12)
     base = LogisticRegression(C=np.inf, solver="newton-cg", tol=1e-10, max_iter=500)
     em = ps.PrincipalScoreModel(base, init="shares", max_iter=400, tol=1e-10).fit(
-        data.X, data.treatment, data.survival
+        data.X, treatment=data.treatment, survival=data.survival
     )
     path = em.log_likelihood_path_
     assert em.converged_ and path.size == em.n_iter_ > 20
     assert path[-1] - path[0] > 1.0  # it did climb
     assert np.all(np.diff(path) >= -1e-8 * np.abs(path[1:]))
-    direct = ps.PrincipalScoreModel().fit(data.X, data.treatment, data.survival)
+    direct = ps.PrincipalScoreModel().fit(data.X, treatment=data.treatment, survival=data.survival)
     assert em.log_likelihood_ == pytest.approx(direct.log_likelihood_, abs=1e-4)
 
 
@@ -126,14 +127,16 @@ def test_em_with_boosting_settles_and_recovers_the_simulated_strata():
     data = make_truncation(2000, stratum_model="multinomial", random_state=1)
     truth = data.principal_scores[:, [0, 1, 3]]  # always, protected, doomed (simulated truth)
     model = ps.PrincipalScoreModel(_boosting(random_state=0), max_iter=40).fit(
-        data.X, data.treatment, data.survival
+        data.X, treatment=data.treatment, survival=data.survival
     )
     assert model.converged_ and model.n_iter_ < 40
     assert model.log_likelihood_ == pytest.approx(model.log_likelihood_path_.max())
     scores = model.predict_proba(data.X)
     error = np.abs(scores - truth).mean()
     unadjusted = np.abs(
-        ps.PrincipalScoreModel().fit(None, data.treatment, data.survival).predict_proba(None)
+        ps.PrincipalScoreModel()
+        .fit(None, treatment=data.treatment, survival=data.survival)
+        .predict_proba(None)
         - truth
     ).mean()
     # Tolerance 0.08: under half the error of the covariate-free model (0.17 here), which a
@@ -153,7 +156,7 @@ def test_em_is_reproducible_and_seeds_an_unset_random_state():
     base = _boosting(early_stopping=True, validation_fraction=0.2, n_iter_no_change=3)
     fits = [
         ps.PrincipalScoreModel(base, random_state=7, max_iter=40).fit(
-            data.X, data.treatment, data.survival
+            data.X, treatment=data.treatment, survival=data.survival
         )
         for _ in range(2)
     ]
@@ -168,7 +171,7 @@ def test_em_is_reproducible_and_seeds_an_unset_random_state():
 def test_classifier_without_sample_weight_gets_a_clear_error():
     with pytest.raises(TypeError, match="`estimator` \\(KNeighborsClassifier\\).*sample_weight"):
         ps.PrincipalScoreModel(KNeighborsClassifier()).fit(
-            MULTI.X, MULTI.treatment, MULTI.survival
+            MULTI.X, treatment=MULTI.treatment, survival=MULTI.survival
         )
 
 
@@ -179,17 +182,19 @@ def test_classifier_without_sample_weight_gets_a_clear_error():
 )  # fmt: skip
 def test_bad_parameters_are_named(params, match):
     with pytest.raises(ValueError, match=match):
-        ps.PrincipalScoreModel(**params).fit(MULTI.X, MULTI.treatment, MULTI.survival)
+        ps.PrincipalScoreModel(**params).fit(MULTI.X, **CELLS)
 
 
 def test_bad_indicators_are_named():
     with pytest.raises(ValueError, match="`survival` must hold only 0 and 1"):
-        ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival * 2)
+        ps.PrincipalScoreModel().fit(
+            MULTI.X, treatment=MULTI.treatment, survival=MULTI.survival * 2
+        )
 
 
 def test_non_convergence_warns_with_advice():
     with pytest.warns(ConvergenceWarning, match="Increase `max_iter`"):
-        ps.PrincipalScoreModel(max_iter=1).fit(MULTI.X, MULTI.treatment, MULTI.survival)
+        ps.PrincipalScoreModel(max_iter=1).fit(MULTI.X, **CELLS)
 
 
 def test_em_non_convergence_warns_with_advice_and_keeps_the_best_iteration():
@@ -197,7 +202,7 @@ def test_em_non_convergence_warns_with_advice_and_keeps_the_best_iteration():
     advice = "did not settle in max_iter=2.*Increase `max_iter`"
     with pytest.warns(ConvergenceWarning, match=advice):
         em = ps.PrincipalScoreModel(base, init="shares", max_iter=2).fit(
-            MULTI.X, MULTI.treatment, MULTI.survival
+            MULTI.X, treatment=MULTI.treatment, survival=MULTI.survival
         )
     assert not em.converged_ and em.log_likelihood_ == em.log_likelihood_path_.max()
 
@@ -269,7 +274,7 @@ def test_shared_nuisance_bounds_and_missing_at_random_keep_working():
     )
     known = lossy.status_known == 1
     direct = ps.PrincipalScoreModel().fit(
-        lossy.X[known], lossy.treatment[known], lossy.survival[known]
+        lossy.X[known], treatment=lossy.treatment[known], survival=lossy.survival[known]
     )
     np.testing.assert_allclose(est.predict_proba(lossy.X), direct.predict_proba(lossy.X))
     assert est.std_error_method_ == "sandwich" and est.n_monotonicity_violations_ == 0
@@ -410,10 +415,10 @@ def test_integer_weights_equal_repeated_rows():
     weights = np.random.default_rng(0).integers(1, 4, size=len(MULTI.X))
     rows = np.repeat(np.arange(len(MULTI.X)), weights)
     weighted = ps.PrincipalScoreModel().fit(
-        MULTI.X, MULTI.treatment, MULTI.survival, sample_weight=weights
+        MULTI.X, **CELLS, sample_weight=weights
     )
-    repeated = ps.PrincipalScoreModel().fit(MULTI.X[rows], MULTI.treatment[rows],
-                                            MULTI.survival[rows])  # fmt: skip
+    repeated = ps.PrincipalScoreModel().fit(MULTI.X[rows], treatment=MULTI.treatment[rows],
+                                            survival=MULTI.survival[rows])  # fmt: skip
     np.testing.assert_allclose(weighted.predict_proba(MULTI.X), repeated.predict_proba(MULTI.X),
                                atol=1e-9)  # fmt: skip
     assert weighted.log_likelihood_ == pytest.approx(repeated.log_likelihood_, rel=1e-10)
@@ -422,7 +427,7 @@ def test_integer_weights_equal_repeated_rows():
 def test_unadjusted_model_gives_the_arms_survival_shares():
     # Without covariates the maximum-likelihood strata are the moment estimates:
     # e_always = control survival share, e_protected = difference of the arms' shares.
-    model = ps.PrincipalScoreModel().fit(None, MULTI.treatment, MULTI.survival)
+    model = ps.PrincipalScoreModel().fit(None, **CELLS)
     shares = model.predict_proba(None)[0]
     treated = MULTI.survival[MULTI.treatment == 1].mean()
     control = MULTI.survival[MULTI.treatment == 0].mean()
@@ -489,3 +494,25 @@ def test_docstring_example_runs():
             warnings.simplefilter("ignore")
             runner.run(test)
     assert runner.tries > 0 and runner.failures == 0
+
+
+def test_fit_takes_the_indicators_by_keyword_and_still_by_position_with_a_warning():
+    import inspect
+
+    signature = inspect.signature(ps.PrincipalScoreModel.fit)
+    keyword_only = [p.name for p in signature.parameters.values() if p.kind is p.KEYWORD_ONLY]
+    assert keyword_only == ["treatment", "survival", "sample_weight"]
+    keyword = ps.PrincipalScoreModel().fit(MULTI.X, **CELLS)
+    with pytest.warns(FutureWarning, match=r"by keyword: fit\(X, treatment=\.\.\., survival="):
+        positional = ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival)
+    np.testing.assert_array_equal(positional.predict_proba(MULTI.X),
+                                  keyword.predict_proba(MULTI.X))  # fmt: skip
+    weights = np.linspace(0.5, 1.5, MULTI.treatment.size)
+    with pytest.warns(FutureWarning, match="sample_weight"):
+        weighted = ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival, weights)
+    again = ps.PrincipalScoreModel().fit(MULTI.X, **CELLS, sample_weight=weights)
+    np.testing.assert_array_equal(weighted.coef_, again.coef_)
+    with pytest.raises(TypeError, match="both by position and keyword"):
+        ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, treatment=MULTI.treatment)
+    with pytest.raises(TypeError, match="positional"):
+        ps.PrincipalScoreModel().fit(MULTI.X, MULTI.treatment, MULTI.survival, weights, 1)

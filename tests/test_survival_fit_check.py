@@ -149,7 +149,7 @@ def test_stratum_model_survival_side():
     # Multinomial logistic, doomed the reference: (3 - 1) x (intercept + 5 covariates).
     assert table.attrs["n_parameters"] == 12
     # A model refitted outside the estimator: p1 = e_always + e_protected, p0 = e_always.
-    scores = ps.PrincipalScoreModel().fit(data.X, data.treatment, data.survival)
+    scores = ps.PrincipalScoreModel().fit(data.X, treatment=data.treatment, survival=data.survival)
     scores = scores.predict_proba(data.X)
     T, S = data.treatment, data.survival
     for arm, name, p in ((1, "treated", scores[:, 0] + scores[:, 1]), (0, "control", scores[:, 0])):

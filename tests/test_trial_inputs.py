@@ -159,7 +159,7 @@ def stratum_data():
 
 def test_stratum_model_checks_column_names_like_the_estimators(stratum_data):
     X, data = stratum_data
-    model = ps.PrincipalScoreModel().fit(X, data.treatment, data.survival)
+    model = ps.PrincipalScoreModel().fit(X, treatment=data.treatment, survival=data.survival)
     assert list(model.feature_names_in_) == list(X.columns)
     # Reordered columns changed the scores by up to 0.85 before: now refused.
     with pytest.raises(ValueError, match="feature names"):
@@ -178,7 +178,9 @@ def test_stratum_model_refuses_unidentified_strata(stratum_data, case):
     else:
         weights = np.where(data.treatment == 1, 1.0, 0.0)
     with pytest.raises(ValueError, match="`treatment`"):
-        ps.PrincipalScoreModel().fit(X, treatment, data.survival, sample_weight=weights)
+        ps.PrincipalScoreModel().fit(
+            X, treatment=treatment, survival=data.survival, sample_weight=weights
+        )
 
 
 @pytest.mark.parametrize("case", ["text treatment", "NaN in X", "text in X"])
@@ -197,12 +199,12 @@ def test_stratum_model_names_the_argument(stratum_data, case):
         name = "`X`"
     # The estimators' conventions: ValueError for values, TypeError for text columns.
     with pytest.raises((ValueError, TypeError), match=name):
-        ps.PrincipalScoreModel().fit(X, treatment, data.survival)
+        ps.PrincipalScoreModel().fit(X, treatment=treatment, survival=data.survival)
 
 
 def test_stratum_model_fitted_without_covariates_refuses_covariates(stratum_data):
     X, data = stratum_data
-    model = ps.PrincipalScoreModel().fit(None, data.treatment, data.survival)
+    model = ps.PrincipalScoreModel().fit(None, treatment=data.treatment, survival=data.survival)
     assert model.predict_proba(None).shape[1] == 3
     with pytest.raises(ValueError, match="fitted without covariates"):
         model.predict_proba(X)

@@ -19,6 +19,7 @@ from sklearn.pipeline import Pipeline
 from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted
 
+from .._arguments import positional_still_accepted
 from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
@@ -168,7 +169,8 @@ class PrincipalScoreModel(BaseEstimator):
         return tags
 
     # -- fitting -----------------------------------------------------------------------------
-    def fit(self, X, treatment, survival, sample_weight=None):
+    @positional_still_accepted
+    def fit(self, X, *, treatment, survival, sample_weight=None):
         """Fit the stratum model to the observed cells.
 
         Parameters
@@ -176,7 +178,7 @@ class PrincipalScoreModel(BaseEstimator):
         X : array-like of shape (n_samples, n_features) or None
             Covariates (``None``: stratum shares only).
         treatment, survival : array-like of shape (n_samples,)
-            0/1 indicators.
+            0/1 indicators, by keyword (by position: a ``FutureWarning``, until the next release).
         sample_weight : array-like of shape (n_samples,), optional
             Non-negative weights of the log-likelihood terms.
 
@@ -395,5 +397,3 @@ class PrincipalScoreModel(BaseEstimator):
         pure = scores[:, 0]
         mixed = scores[:, 0] + scores[:, 1]
         return (pure, mixed) if self._increasing else (mixed, pure)
-
-

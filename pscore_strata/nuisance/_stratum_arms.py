@@ -39,7 +39,7 @@ def fit_strata_scores(model, X, treatment, survival, weights, fit_rows, predict_
         return values.iloc[rows] if isinstance(values, pd.DataFrame) else values[rows]
 
     fitted = clone(model).fit(
-        take(X, fit_rows), treatment[fit_rows], survival[fit_rows],
+        take(X, fit_rows), treatment=treatment[fit_rows], survival=survival[fit_rows],
         sample_weight=None if weights is None else weights[fit_rows],
     )  # fmt: skip
     predict_X = take(X, predict_rows)
