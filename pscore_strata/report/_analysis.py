@@ -28,7 +28,8 @@ from ._options import (
     model_settings,
     number,
 )
-from ._sections import bootstrap_section, bounds_section, diagnostics_section, sensitivity_section
+from ._sections import bootstrap_section, bounds_section, diagnostics_section
+from ._sensitivity import sensitivity_section
 from ._strata import outcome_for_everyone, strata_section
 from ._text import assumptions, cautions, estimand, in_command_line_words, plain_warning
 from ._visits import visits_section
@@ -292,11 +293,12 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     except ImportError as error:
         results["diagnostics"] = _unavailable("Diagnostics", error)
     if other_stratum:
-        # Both relax the always-survivor assumptions only: not shown for another stratum.
+        # The trimming bounds drop the always-survivor assumption only: not shown for another
+        # stratum. The sensitivity analysis relaxes the stratum's own cells.
         results["bounds"] = _unavailable("Bounds", _ALWAYS_SURVIVOR_ONLY)
-        results["sensitivity"] = _unavailable("Sensitivity analysis", _ALWAYS_SURVIVOR_ONLY)
     else:
-        _bounds_and_sensitivity(results, analysis, collector, options, data, shared, primary)
+        _bounds(results, analysis, collector, options, data, shared)
+    _sensitivity(results, collector, options, data, primary, words)
     try:
         results["missing_data"] = missing_section(collector, primary, data, options.level)
     except ImportError as error:
@@ -357,7 +359,7 @@ _ALWAYS_SURVIVOR_ONLY = (
 )
 
 
-def _bounds_and_sensitivity(results, analysis, collector, options, data, shared, primary):
+def _bounds(results, analysis, collector, options, data, shared):
     try:
         results["bounds"], analysis.bounds = bounds_section(
             collector, options, data, None if shared.cross_fitted else shared
@@ -365,8 +367,12 @@ def _bounds_and_sensitivity(results, analysis, collector, options, data, shared,
         honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
     except (ImportError, ValueError) as error:
         results["bounds"] = _unavailable("Bounds", error)
+
+
+def _sensitivity(results, collector, options, data, primary, words):
     try:
-        results["sensitivity"] = sensitivity_section(collector, primary, data, options.level)
+        results["sensitivity"] = sensitivity_section(collector, primary, data, options.level,
+                                                     words)  # fmt: skip
         honest_sensitivity(results["sensitivity"], primary)
-    except ImportError as error:
+    except (ImportError, ValueError) as error:
         results["sensitivity"] = _unavailable("Sensitivity analysis", error)

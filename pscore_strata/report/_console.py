@@ -91,22 +91,7 @@ def print_key_results(results, out_dir):
     for record in results["estimates"]:
         if record["ci_low"] is None:
             print(f"  {record['label']}: {record['interval_note']}")
-    sens = results.get("sensitivity", {})
-    if "pi_difference" in sens:
-        record = sens["pi_difference"]
-        tip, sd = record["tipping_point"], record["outcome_sd_survivors"]
-        status = record.get("tipping_status")
-        shown = ("not reached" if tip is None else
-                 f"{number(tip)} {_units(results)} ({number(tip / sd)} outcome SDs)")
-        if tip is None and sens.get("interval_note"):
-            shown = "not available"
-        if status == "covers_null":
-            shown = "none to report (the CI covers 0 under principal ignorability itself)"
-        elif status == "beyond_outcome_range":
-            low, high = record["outcome_range_survivors"]
-            shown += (f", more than the survivors' whole outcome range ({number(low)} to "
-                      f"{number(high)})")  # fmt: skip
-        print(f"  Tipping point for principal ignorability (difference): {shown}")
+    _print_tipping_points(results)
     for subgroup in (results.get("subgroups") or {}).get("rows", []):
         shown = (f"{level} CI {interval(subgroup['ci_low'], subgroup['ci_high'])}"
                  if subgroup["ci_low"] is not None else "interval not available")  # fmt: skip
@@ -129,3 +114,29 @@ def print_key_results(results, out_dir):
     print(f"Caution: {stratum} is latent and the assumptions are untestable; "
           "no individual decisions. Follow the study protocol and local regulation, and have a "
           "qualified statistician review the analysis.")  # fmt: skip
+
+
+def _print_tipping_points(results):
+    """The principal-ignorability tipping points: one for the always-survivors, one per mixed
+    cell the stratum shares for another stratum (``--stratum``)."""
+    sens = results.get("sensitivity", {})
+    for key in ("pi_difference", "pi_difference_doomed"):
+        if key not in sens:
+            continue
+        record = sens[key]
+        other = "contrast" in record
+        tip = record["tipping_point"]
+        sd = record["outcome_sd"] if other else record["outcome_sd_survivors"]
+        status = record.get("tipping_status")
+        shown = ("not reached" if tip is None else
+                 f"{number(tip)} {_units(results)} ({number(tip / sd)} outcome SDs)")
+        if tip is None and sens.get("interval_note"):
+            shown = "not available"
+        if status == "covers_null":
+            shown = "none to report (the CI covers 0 under principal ignorability itself)"
+        elif status == "beyond_outcome_range":
+            low, high = record["outcome_range"] if other else record["outcome_range_survivors"]
+            whole = "whole outcome range" if other else "survivors' whole outcome range"
+            shown += f", more than the {whole} ({number(low)} to {number(high)})"
+        what = f" ({record['contrast']})" if other else " (difference)"
+        print(f"  Tipping point for principal ignorability{what}: {shown}")

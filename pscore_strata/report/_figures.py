@@ -73,15 +73,10 @@ def _sensitivity_figure(results):
     import matplotlib.pyplot as plt
 
     sens = results["sensitivity"]
-    figure, axes = plt.subplots(1, 2, figsize=(9.6, 3.6), layout="constrained")
-    mixed, other = (("protected", "harmed") if results["settings"]["monotonicity"] == "increasing"
-                    else ("harmed", "protected"))  # fmt: skip
-    panels = (
-        ("pi_difference", f"{mixed} minus always-survivor mean of "
-         f"{outcome_label(results)}\n(0 = principal ignorability)"),
-        ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
-         "informative)"),
-    )  # fmt: skip
+    panels = _sensitivity_panels(results)
+    figure, axes = plt.subplots(1, len(panels), figsize=(4.8 * len(panels), 3.6),
+                                layout="constrained")  # fmt: skip
+    other_stratum = "contrast" in sens["harmed_ratio"]
     for ax, (key, label) in zip(axes, panels, strict=True):
         grid = sens[key]["grid"]
         x = np.array([g["value"] for g in grid])
@@ -99,10 +94,30 @@ def _sensitivity_figure(results):
                     color="#b5651d", ha="right" if tip > x.mean() else "left")  # fmt: skip
         ax.set_xlim(x.min(), x.max())
         ax.set_xlabel(label, fontsize=9)
-        ax.set_ylabel("SACE")
+        ax.set_ylabel(f"effect, {results['stratum']['label']}" if other_stratum else "SACE")
         ax.grid(color="0.92")
     figure.suptitle("How the estimate moves when an untestable assumption is relaxed", fontsize=10)
     return figure
+
+
+def _sensitivity_panels(results):
+    """``(parameter, axis label)`` per panel: the parameters the stratum's effect depends on."""
+    sens = results["sensitivity"]
+    mixed, other = (("protected", "harmed") if results["settings"]["monotonicity"] == "increasing"
+                    else ("harmed", "protected"))  # fmt: skip
+    if "contrast" not in sens["harmed_ratio"]:  # the always-survivor section
+        return (
+            ("pi_difference", f"{mixed} minus always-survivor mean of "
+             f"{outcome_label(results)}\n(0 = principal ignorability)"),
+            ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
+             "informative)"),
+        )  # fmt: skip
+    return tuple(
+        (key, f"{sens[key]['contrast']} mean of {outcome_label(results)}\n(0 = principal "
+         "ignorability in that cell)") if key != "harmed_ratio" else
+        (key, f"{sens[key]['contrast']}\n(0 = monotonicity; shown where informative)")
+        for key in ("pi_difference", "pi_difference_doomed", "harmed_ratio") if key in sens
+    )  # fmt: skip
 
 
 def _in_study_words(figure, words):
@@ -197,10 +212,12 @@ def draw_figures(analysis):
     figures[1:1] = subgroup_figures(results)
     figures += [f for f in model_check_figures(analysis)
                 if not (unadjusted and f[0] in ("principal_scores.png", "calibration.png"))]
-    if "grid" in results.get("sensitivity", {}).get("pi_difference", {}):
+    if "grid" in results.get("sensitivity", {}).get("harmed_ratio", {}):
+        effect = "SACE" if "contrast" not in results["sensitivity"]["harmed_ratio"] else (
+            f"effect in the {results['stratum']['label']} stratum")  # fmt: skip
         figures.append(
             ("sensitivity.png", "Sensitivity analysis", _sensitivity_figure, (results,),
-             "Line: the SACE if the assumption failed by the amount on the horizontal axis; "
+             f"Line: the {effect} if the assumption failed by the amount on the horizontal axis; "
              "band: its confidence interval. The tipping point is where the interval first "
              "covers zero.")
         )  # fmt: skip

@@ -20,10 +20,26 @@ MAX_WARNINGS = 4
 
 
 def tipping_text(results):
-    """The principal-ignorability tipping point: ``(value, detail)`` texts for the glance card."""
-    sens = (results.get("sensitivity") or {}).get("pi_difference")
-    if not sens:
+    """The principal-ignorability tipping point: ``(value, detail)`` texts for the glance card.
+
+    For a stratum other than the always-survivors, one per mixed cell its effect rests on.
+    """
+    record = results.get("sensitivity") or {}
+    keys = [key for key in ("pi_difference", "pi_difference_doomed") if key in record]
+    if not keys:
         return "not computed", ""
+    if "contrast" not in record[keys[0]]:
+        return _tipping_text(record["pi_difference"], "outcome_sd_survivors")
+    texts = [_tipping_text(record[key], "outcome_sd") for key in keys]
+    contrasts = [record[key]["contrast"] for key in keys]
+    if len({value for value, _ in texts}) == 1 and len({d for _, d in texts}) == 1:
+        value, detail = texts[0]
+        return value, f"{detail} ({' and '.join(contrasts)})" if detail else " and ".join(contrasts)
+    return (" / ".join(value for value, _ in texts),
+            "; ".join(f"{c}: {d}" if d else c for c, (_, d) in zip(contrasts, texts, strict=True)))
+
+
+def _tipping_text(sens, sd_key):
     status, tip = sens.get("tipping_status"), sens.get("tipping_point")
     if status == "covers_null":
         return "none", "the interval covers 0 under principal ignorability itself"
@@ -31,7 +47,7 @@ def tipping_text(results):
         return "not available", "no valid interval to tip"
     if tip is None:
         return "not reached", "within the grid of outcome shifts"
-    sd = sens.get("outcome_sd_survivors") or 0
+    sd = sens.get(sd_key) or 0
     in_sd = f"{number(tip / sd)} outcome SDs: " if sd else ""
     beyond = " (beyond the outcome's observed range)" if status == "beyond_outcome_range" else ""
     return number(tip), f"{in_sd}the outcome shift at which the interval first covers 0{beyond}"
@@ -108,9 +124,19 @@ def _model_checks(results, w):
 
 def _sensitivity(results, w):
     record = results.get("sensitivity") or {}
-    if "pi_difference" not in record:
+    if "harmed_ratio" not in record:
         return record.get("reason")
     value, detail = tipping_text(results)
+    if "contrast" in record["harmed_ratio"]:
+        mono = record["harmed_ratio"]
+        shown = {"unchanged": "the effect does not move with it alone",
+                 "covers_null": "none to report", "not_available": "not available"}.get(
+            mono.get("tipping_status"))  # fmt: skip
+        if shown is None:
+            shown = ("not reached" if mono.get("tipping_point") is None else
+                     f"stratum ratio {number(mono['tipping_point'])}")  # fmt: skip
+        return (f"Tipping point for principal ignorability: {value} ({detail}); for "
+                f"monotonicity: {shown}.")  # fmt: skip
     return (f"Tipping point for principal ignorability: {value} ({detail}); for "
             "monotonicity: "
             + ("not reached" if record["harmed_ratio"].get("tipping_point") is None else

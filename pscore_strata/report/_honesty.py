@@ -173,13 +173,15 @@ def honest_sensitivity(record, primary):
     exactly when the primary estimator's do (sandwich or influence function); a bootstrap
     standard error of the primary does not carry over to the grid.
     """
-    if "pi_difference" not in record:
+    keys = [key for key in ("pi_difference", "pi_difference_doomed", "harmed_ratio")
+            if key in record]  # fmt: skip
+    if not keys:
         return record
     method = str(primary.std_error_method_)
     if method in ("sandwich", "influence function"):
         record["interval_note"] = None
         return record
-    for key in ("pi_difference", "harmed_ratio"):
+    for key in keys:
         for row in record[key]["grid"]:
             row["std_error"] = row["ci_low"] = row["ci_high"] = None
         record[key]["tipping_point"] = None

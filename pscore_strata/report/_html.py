@@ -136,6 +136,7 @@ def _view(results, figures):
         "balance": balance,
         "selected_grid": selected,
         "selected_harmed": selected_harmed,
+        "sensitivity_parameters": _sensitivity_parameters(sens),
         "outside_bounds": _outside_bounds(results),
         "outcome_name": outcome_label(results),
         "w": words,
@@ -145,6 +146,27 @@ def _view(results, figures):
         "interval": interval,
         "count": count,
     }
+
+
+def _sensitivity_parameters(sens):
+    """The sensitivity records of a stratum other than the always-survivors, in report order,
+    with their table headings and about seven evenly spaced grid rows each."""
+    shown = []
+    for key in ("pi_difference", "pi_difference_doomed", "harmed_ratio"):
+        record = sens.get(key)
+        if not record or "contrast" not in record:
+            continue  # the always-survivor records have their own layout
+        difference = key != "harmed_ratio"
+        shown.append({
+            "key": key,
+            "record": record,
+            "title": f"Principal ignorability ({record['cell']})" if difference
+            else "Monotonicity",
+            "header": record["contrast"][:1].upper() + record["contrast"][1:]
+            + (" mean" if difference else ""),
+            "selected": _every_few(record["grid"], 7),
+        })  # fmt: skip
+    return shown
 
 
 def render_html(results, figures):

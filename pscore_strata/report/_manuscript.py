@@ -228,27 +228,38 @@ def _grid_table(results, key, parameter, caption, label):
     # Every k-th value, counted from the null value (0) so that it stays in the table.
     null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
     shown = [r for i, r in enumerate(grid) if (i - null) % every == 0]
+    # A stratum other than the always-survivors (--stratum): its records name their contrast.
+    other = "contrast" in record
+    effect = "Effect" if other else "SACE"
     frame = pd.DataFrame(
         [(r["value"], r["effect"], r["std_error"], _interval(r)) for r in shown],
-        columns=[parameter, "SACE", "SE", level],
+        columns=[parameter, effect, "SE", level],
     )
-    _numbers(frame, ["SACE", "SE", level])
+    _numbers(frame, [effect, "SE", level])
     tip, status = record.get("tipping_point"), record.get("tipping_status")
     tip_text = {"covers_null": "none (the interval covers 0 at the null value itself)",
-                "unchanged": "none (the SACE does not change with this parameter here)",
+                "unchanged": f"none (the {'effect' if other else 'SACE'} does not change with "
+                "this parameter here)",
                 "not_available": "not available"}.get(status)  # fmt: skip
     if tip_text is None:
         tip_text = "not reached within the grid" if tip is None else number(tip)
     footnote = [f"{parameter}: {record['description']}",
                 f"Tipping point ({sens.get('criterion', 'the interval first covers 0')}): "
                 f"{tip_text}."]  # fmt: skip
+    if other and record.get("note"):
+        footnote.append(record["note"])
     if every > 1:
         footnote.append(f"One grid value in {every} is shown; results.json holds all "
                         f"{len(grid)}.")
     if sens.get("interval_note"):
         footnote.append(sens["interval_note"])
     footnote.append(short_assumptions_note(results))
-    return Table(frame, caption.format(outcome=outcome), footnote=footnote,
+    title = caption.format(outcome=outcome)
+    if other:
+        where = f" among {record['cell']}" if "cell" in record else ""
+        title = title.replace("the SACE", f"the effect in the {results['stratum']['label']} "
+                              "stratum") + where  # fmt: skip
+    return Table(frame, title, footnote=footnote,
                  formats={parameter: ".4g"}, align={c: _RIGHT for c in frame.columns},
                  label=label)  # fmt: skip
 
@@ -314,8 +325,12 @@ def manuscript_tables(analysis):
     dict of str to pscore_strata.tables.Table
         ``"results"`` (estimators, SACE, SE, interval, bounds, naive contrast, stratum shares)
         and, when the analysis has them, ``"balance"``, ``"weights"``,
-        ``"sensitivity_ignorability"``, ``"sensitivity_monotonicity"``, ``"subgroups"`` and
-        ``"quantiles"``. Numbers print as in the HTML report.
+        ``"sensitivity_ignorability"``, ``"sensitivity_ignorability_doomed"`` (for the
+        strata whose effect rests on the cell that the helped and the doomed share, with
+        ``--stratum``), ``"sensitivity_monotonicity"``, ``"subgroups"`` and ``"quantiles"``.
+        For a stratum other than the always-survivors the sensitivity tables give the effect
+        in that stratum and name the cell each parameter describes. Numbers print as in the
+        HTML report.
     """
     results = getattr(analysis, "results", analysis)
     tables = {
@@ -325,6 +340,10 @@ def manuscript_tables(analysis):
         "sensitivity_ignorability": _grid_table(
             results, "pi_difference", "Difference in mean outcome",
             "Sensitivity of the SACE on {outcome} to principal ignorability", "tab:sens-pi"),
+        "sensitivity_ignorability_doomed": _grid_table(
+            results, "pi_difference_doomed", "Difference in mean outcome",
+            "Sensitivity of the SACE on {outcome} to principal ignorability",
+            "tab:sens-pi-doomed"),
         "sensitivity_monotonicity": _grid_table(
             results, "harmed_ratio", "Stratum ratio",
             "Sensitivity of the SACE on {outcome} to monotonicity", "tab:sens-mono"),

@@ -1,4 +1,4 @@
-"""The report's later sections: bootstrap, diagnostics, bounds and sensitivity analysis.
+"""The report's later sections: bootstrap, diagnostics and bounds (sensitivity: ``_sensitivity``).
 
 Each function takes the step collector of :func:`._analysis.run_analysis` and returns the
 JSON-ready record of its section; heavy parts are imported when the section runs.
@@ -11,8 +11,7 @@ import numpy as np
 from ._options import build_estimator, fit_arguments, model_settings, number
 
 __all__ = [
-    "bootstrap_section", "diagnostics_section", "bounds_section", "sensitivity_section",
-    "readable_step",
+    "bootstrap_section", "diagnostics_section", "bounds_section", "readable_step",
 ]  # fmt: skip
 
 
@@ -163,86 +162,15 @@ def _tipping_status(value, null, parameter, observed_range):
     """What a tipping point means, for the report's words.
 
     At the null value the interval covers no effect already, so there is no tipping point to
-    report. A difference between the protected and the always-survivor means larger than the
-    width of the outcome's observed range cannot occur among the values seen.
+    report. A difference between two strata's means (``pi_difference``, and
+    ``pi_difference_doomed`` for the other strata) larger than the width of the outcome's
+    observed range cannot occur among the values seen.
     """
     if value is None:
         return "not_reached"
     if value == null:
         return "covers_null"
-    if parameter == "pi_difference" and abs(value) > observed_range[1] - observed_range[0]:
+    differences = ("pi_difference", "pi_difference_doomed")
+    if parameter in differences and abs(value) > observed_range[1] - observed_range[0]:
         return "beyond_outcome_range"
     return "reached"
-
-
-def sensitivity_section(collector, primary, data, level):
-    from ..assumptions import sensitivity_grid, tipping_point
-    from ..diagnostics._arrays import ROW_SHARE_TOLERANCE
-
-    spread = float(np.nanstd(data.outcome[data.survival == 1], ddof=1)) or 1.0
-    label = "sensitivity analysis"
-    tips, status = {}, {}
-    survivors = data.outcome[data.survival == 1]
-    observed_range = [float(np.nanmin(survivors)), float(np.nanmax(survivors))]
-    for parameter, null in (("pi_difference", 0.0), ("harmed_ratio", 0.0)):
-        value = collector.run(label, tipping_point, primary, parameter, level=level)
-        tips[parameter] = number(value)
-        status[parameter] = _tipping_status(tips[parameter], null, parameter, observed_range)
-    # Readable values: multiples of a round step near a tenth of the outcome SD, reaching a
-    # little past the tipping point so that the figure shows it.
-    step = readable_step(spread)
-    reach = max(0.5 * spread, 1.25 * abs(tips["pi_difference"] or 0.0))
-    n_steps = int(min(40, max(5, np.ceil(reach / step))))
-    deltas = np.round(step * np.arange(-n_steps, n_steps + 1), 10)
-    harmed = np.round(np.arange(0.0, 0.951, 0.05), 2)
-
-    def rows(table, parameter):
-        return [
-            {
-                "value": float(r[parameter]),
-                "effect": float(r["effect"]),
-                "std_error": number(r["std_error"]),
-                "ci_low": number(r["ci_low"]),
-                "ci_high": number(r["ci_high"]),
-            }
-            for _, r in table.iterrows()
-        ]
-
-    grid_pi = collector.run(label, sensitivity_grid, primary, pi_difference=deltas, level=level)
-    grid_mono = collector.run(
-        label, sensitivity_grid, primary, harmed_ratio=harmed.tolist(), level=level
-    )
-    # Beyond the ratio at which the always-survivor score is clipped at zero for more than 5%
-    # of rows (common practice, as in the diagnostics), the data say little: the grid stops.
-    informative = grid_mono["n_rows_clipped"] <= ROW_SHARE_TOLERANCE * len(data.treatment)
-    last = int(np.flatnonzero(informative.to_numpy())[-1]) if informative.any() else 0
-    grid_mono = grid_mono.iloc[: max(last + 1, 3)]
-    mixed = "protected" if primary.monotonicity == "increasing" else "harmed"
-    other = "harmed" if mixed == "protected" else "protected"
-    effects = grid_mono["effect"].to_numpy(dtype=float)
-    if np.ptp(effects) <= 1e-9 * (1 + abs(primary.effect_)):
-        # Constant principal scores (no covariates): the harmed ratio rescales every score
-        # alike, so the normalized means do not move.
-        status["harmed_ratio"] = "unchanged"
-    return {
-        "pi_difference": {
-            "description": f"Mean outcome under treatment of the {mixed} stratum minus that of "
-            "the always-survivors with the same covariates (0 = principal ignorability).",
-            "outcome_sd_survivors": spread,
-            "grid_step": step,
-            "grid_digits": int(max(0, -np.floor(np.log10(step)))),
-            "grid": rows(grid_pi, "pi_difference"),
-            "tipping_point": tips["pi_difference"],
-            "tipping_status": status["pi_difference"],
-            "outcome_range_survivors": observed_range,
-        },
-        "harmed_ratio": {
-            "description": f"Size of the {other} stratum, which monotonicity rules out, relative "
-            f"to the {mixed} stratum (0 = monotonicity).",
-            "grid": rows(grid_mono, "harmed_ratio"),
-            "informative_max": float(grid_mono["harmed_ratio"].iloc[-1]),
-            "tipping_point": tips["harmed_ratio"],
-            "tipping_status": status["harmed_ratio"],
-        },
-        "criterion": f"the {level:.0%} confidence interval first covers 0",
-    }
