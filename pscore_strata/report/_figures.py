@@ -75,7 +75,8 @@ def _sensitivity_figure(results):
     sens = results["sensitivity"]
     panels = _sensitivity_panels(results)
     figure, axes = plt.subplots(1, len(panels), figsize=(4.8 * len(panels), 3.6),
-                                layout="constrained")  # fmt: skip
+                                layout="constrained", squeeze=False)  # fmt: skip
+    axes = axes[0]
     other_stratum = "contrast" in sens["harmed_ratio"]
     for ax, (key, label) in zip(axes, panels, strict=True):
         grid = sens[key]["grid"]
@@ -87,6 +88,8 @@ def _sensitivity_figure(results):
         ax.plot(x, effect, color=_PRIMARY, linewidth=2)
         ax.axhline(0, color="0.3", linewidth=1, linestyle="--")
         tip = sens[key]["tipping_point"]
+        if other_stratum and sens[key].get("tipping_status") in ("covers_null", "unchanged"):
+            tip = None  # no tipping point to mark
         if tip is not None and x.min() <= tip <= x.max():
             ax.axvline(tip, color="#b5651d", linewidth=1)
             ax.text(tip, 0.98, f" tipping point {number(tip)}",
@@ -112,11 +115,15 @@ def _sensitivity_panels(results):
             ("harmed_ratio", f"{other} / {mixed} stratum size\n(0 = monotonicity; shown where "
              "informative)"),
         )  # fmt: skip
+    # The helped stratum's effect does not move with the harmed ratio alone: no panel then.
+    mono = sens["harmed_ratio"]
+    flat = mono.get("tipping_status") == "unchanged" or len(mono["grid"]) < 2
     return tuple(
         (key, f"{sens[key]['contrast']} mean of {outcome_label(results)}\n(0 = principal "
          "ignorability in that cell)") if key != "harmed_ratio" else
         (key, f"{sens[key]['contrast']}\n(0 = monotonicity; shown where informative)")
-        for key in ("pi_difference", "pi_difference_doomed", "harmed_ratio") if key in sens
+        for key in ("pi_difference", "pi_difference_doomed", "harmed_ratio")
+        if key in sens and not (key == "harmed_ratio" and flat)
     )  # fmt: skip
 
 

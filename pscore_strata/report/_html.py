@@ -160,7 +160,7 @@ def _sensitivity_parameters(sens):
         shown.append({
             "key": key,
             "record": record,
-            "title": f"Principal ignorability ({record['cell']})" if difference
+            "title": f"Principal ignorability among {record['cell']}" if difference
             else "Monotonicity",
             "header": record["contrast"][:1].upper() + record["contrast"][1:]
             + (" mean" if difference else ""),

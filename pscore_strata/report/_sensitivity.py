@@ -73,8 +73,9 @@ def _harmed_grid(collector, primary, data, level, informative_only):
 
     Beyond the ratio at which the always-survivor score is clipped at zero for more than 5% of
     rows (common practice, as in the diagnostics), the data say little: the grid stops.
-    Returns the table and whether the effect stays put over it (within 1e-9 relative); with
-    ``informative_only`` that is judged over the informative rows alone.
+    Returns the table and whether the effect stays put over it (within 1e-9 relative). The
+    always-survivor grid shows at least three values; with ``informative_only`` it stops at the
+    last informative one.
     """
     from ..assumptions import sensitivity_grid
     from ..diagnostics._arrays import ROW_SHARE_TOLERANCE
@@ -84,9 +85,8 @@ def _harmed_grid(collector, primary, data, level, informative_only):
                           harmed_ratio=harmed.tolist(), level=level)  # fmt: skip
     informative = table["n_rows_clipped"] <= ROW_SHARE_TOLERANCE * len(data.treatment)
     last = int(np.flatnonzero(informative.to_numpy())[-1]) if informative.any() else 0
-    shown = table.iloc[: max(last + 1, 3)]
-    judged = table.iloc[: last + 1] if informative_only else shown
-    effects = judged["effect"].to_numpy(dtype=float)
+    shown = table.iloc[: last + 1] if informative_only else table.iloc[: max(last + 1, 3)]
+    effects = shown["effect"].to_numpy(dtype=float)
     unchanged = bool(np.ptp(effects) <= 1e-9 * (1 + abs(primary.effect_)))
     return shown, unchanged
 
@@ -239,7 +239,7 @@ def _stratum_section(collector, primary, data, level, stratum, words):
     helped = stratum_role(stratum, primary.monotonicity).role == "changed"
     # The helped stratum's score is (p_m - p_p) / (1 - xi) in every row: the harmed ratio alone
     # rescales it alike everywhere, and its normalized means move only where scores are
-    # clipped, so its stillness is judged over the informative rows.
+    # clipped, so its grid stops at the last informative value (no clipping artefacts).
     grid_mono, unchanged = _harmed_grid(collector, primary, data, level, informative_only=helped)
     note = None
     if helped:

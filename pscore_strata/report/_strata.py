@@ -117,8 +117,9 @@ def stratum_assumption(given, monotonicity):
     return {
         "name": "Principal ignorability",
         "statement": ignorability_statement(stratum, monotonicity),
-        "checked_by": "Untestable. The trimming bounds and the sensitivity analysis of the "
-        "report concern the always-survivors only and are not shown for this stratum.",
+        "checked_by": "Untestable. The sensitivity analysis relaxes it in each cell the "
+        "stratum shares with another; the trimming bounds concern the always-survivors only "
+        "and are not shown for this stratum.",
     }
 
 
