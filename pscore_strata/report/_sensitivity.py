@@ -20,6 +20,7 @@ import numpy as np
 from ..estimands._strata import STRATUM_ALIASES, stratum_role, stratum_words
 from ._options import number
 from ._sections import _tipping_status, readable_step
+from ._text import _DEFAULT_WORDS
 
 __all__ = ["sensitivity_section", "PARAMETERS", "parameters_of"]
 
@@ -168,9 +169,7 @@ def stratum_parameter_words(monotonicity, words):
     helped stratum among its units with intermediate 1; the pure arm holds the helped and the
     doomed among its units with intermediate 0 (docs/guide/derivations/strata.md section 7).
     """
-    w = {"units": "units", "treated_arm": "treatment", "control_arm": "control",
-         "treated_condition": "treatment = 1", "control_condition": "treatment = 0",
-         "survived_condition": "survival = 1", "event_condition": "survival = 0", **words}  # fmt: skip
+    w = {**_DEFAULT_WORDS, **words}
     increasing = monotonicity == "increasing"
     helped, opposite = ("protected", "harmed") if increasing else ("harmed", "protected")
     treated = (w["treated_arm"], w["treated_condition"])
