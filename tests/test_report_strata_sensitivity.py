@@ -202,3 +202,12 @@ def test_decreasing_direction_names_the_control_arm_as_mixed(tmp_path):
     )
     _check_against_api(analysis.results, est)
     jsonschema.validate(json.loads((tmp_path / "results.json").read_text()), report.schema())
+
+
+def test_manuscript_results_table_names_the_stratum(complier):
+    _, results = complier
+    table = manuscript_tables(results)["results"]
+    groups = set(table.data["group"])
+    assert "Effect in the complier (protected) stratum" in groups
+    assert "Survivor average causal effect" not in groups
+    assert table.footnote[0].startswith("Effect: the mean difference in lwage")

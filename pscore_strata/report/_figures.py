@@ -74,10 +74,12 @@ def _sensitivity_figure(results):
 
     sens = results["sensitivity"]
     panels = _sensitivity_panels(results)
-    figure, axes = plt.subplots(1, len(panels), figsize=(4.8 * len(panels), 3.6),
+    other_stratum = "contrast" in sens["harmed_ratio"]
+    # Another stratum's axis labels name two strata: a little wider, one more line.
+    width, height = (5.4, 3.9) if other_stratum else (4.8, 3.6)
+    figure, axes = plt.subplots(1, len(panels), figsize=(width * len(panels), height),
                                 layout="constrained", squeeze=False)  # fmt: skip
     axes = axes[0]
-    other_stratum = "contrast" in sens["harmed_ratio"]
     for ax, (key, label) in zip(axes, panels, strict=True):
         grid = sens[key]["grid"]
         x = np.array([g["value"] for g in grid])
@@ -119,7 +121,7 @@ def _sensitivity_panels(results):
     mono = sens["harmed_ratio"]
     flat = mono.get("tipping_status") == "unchanged" or len(mono["grid"]) < 2
     return tuple(
-        (key, f"{sens[key]['contrast']} mean of {outcome_label(results)}\n(0 = principal "
+        (key, f"{sens[key]['contrast']}\nmean of {outcome_label(results)} (0 = principal "
          "ignorability in that cell)") if key != "harmed_ratio" else
         (key, f"{sens[key]['contrast']}\n(0 = monotonicity; shown where informative)")
         for key in ("pi_difference", "pi_difference_doomed", "harmed_ratio")

@@ -13,6 +13,7 @@ import pandas as pd
 
 from ..tables import Table, write_tables
 from ._format import count, number
+from ._strata import stratum_definition
 
 __all__ = ["manuscript_tables", "write_manuscript_tables", "TABLE_FORMATS", "table_formats"]
 
@@ -101,7 +102,10 @@ def results_table(results):
     words, outcome = _words(results)
     level = _level(results)
     rows, notes = [], []
-    effect_group = "Survivor average causal effect"
+    target = results.get("stratum") or {}
+    other = target.get("name", "always_survivor") != "always_survivor"
+    effect_group = (f"Effect in the {target['label']} stratum" if other
+                    else "Survivor average causal effect")  # fmt: skip
     for record in results["estimates"]:
         label = record["label"] + (" (primary)" if record["primary"] else "")
         rows.append((effect_group, label, record["effect"], record["std_error"],
@@ -122,7 +126,8 @@ def results_table(results):
         if bounds.get("interval_note"):
             notes.append(f"Bounds: {bounds['interval_note']}")
     naive = results["naive_survivor_contrast"]
-    rows.append(("For comparison", "Survivors only (biased)",
+    rows.append(("For comparison", "Naive cell contrast (biased)" if other
+                 else "Survivors only (biased)",
                  naive["estimate"], naive["std_error"], _interval(naive),
                  "influence function"))  # fmt: skip
     for name, share in results["stratum_shares"].items():
@@ -135,19 +140,23 @@ def results_table(results):
     effects = [i for i in range(len(frame)) if i not in shares]
     _numbers(frame, ["Estimate", "SE", level], effects)
     _numbers(frame, ["Estimate", "SE", level], shares)
-    target = results.get("stratum") or {}
     among = (target["label"] if target.get("name", "always_survivor") != "always_survivor"
              else "always-survivors")  # fmt: skip
     caption = (f"Effect of {words['treated_arm']} versus {words['control_arm']} on {outcome} "
                f"among {among} (n = {count(results['data_overview']['n_rows_analyzed'])}"
                f" {words['units']})")  # fmt: skip
-    footnote = [
+    definition = (
         f"SACE: survivor average causal effect, the mean difference in {outcome} between "
         f"{words['treated_arm']} ('{words['treated_condition']}') and {words['control_arm']} "
         f"('{words['control_condition']}') among the {words['units']} who would avoid "
         f"{words['event']} under either arm (the always-survivors). Survivors only: the "
         "difference of the survivors' mean outcomes, biased when treatment changes who "
-        "survives. SE: standard error; CI: confidence interval.",
+        "survives. SE: standard error; CI: confidence interval."
+    )
+    if other:
+        definition = stratum_definition(target, words, outcome)
+    footnote = [
+        definition,
         *notes,
         assumptions_note(results),
     ]
@@ -219,8 +228,7 @@ def _grid_table(results, key, parameter, caption, label):
     sens = results.get("sensitivity") or {}
     if key not in sens:
         return None
-    _, outcome = _words(results)
-    level = _level(results)
+    (_, outcome), level = _words(results), _level(results)
     record = sens[key]
     grid, every = record["grid"], 1
     while len(grid[::every]) > MAX_GRID_ROWS:
@@ -228,8 +236,7 @@ def _grid_table(results, key, parameter, caption, label):
     # Every k-th value, counted from the null value (0) so that it stays in the table.
     null = min(range(len(grid)), key=lambda i: abs(grid[i]["value"]))
     shown = [r for i, r in enumerate(grid) if (i - null) % every == 0]
-    # A stratum other than the always-survivors (--stratum): its records name their contrast.
-    other = "contrast" in record
+    other = "contrast" in record  # another stratum than the always-survivors (--stratum)
     effect = "Effect" if other else "SACE"
     frame = pd.DataFrame(
         [(r["value"], r["effect"], r["std_error"], _interval(r)) for r in shown],
@@ -238,16 +245,15 @@ def _grid_table(results, key, parameter, caption, label):
     _numbers(frame, [effect, "SE", level])
     tip, status = record.get("tipping_point"), record.get("tipping_status")
     tip_text = {"covers_null": "none (the interval covers 0 at the null value itself)",
-                "unchanged": f"none (the {'effect' if other else 'SACE'} does not change with "
-                "this parameter here)",
+                "unchanged": f"none (the {'effect' if other else 'SACE'} does not change "
+                "with this parameter here)",
                 "not_available": "not available"}.get(status)  # fmt: skip
     if tip_text is None:
         tip_text = "not reached within the grid" if tip is None else number(tip)
     footnote = [f"{parameter}: {record['description']}",
                 f"Tipping point ({sens.get('criterion', 'the interval first covers 0')}): "
                 f"{tip_text}."]  # fmt: skip
-    if other and record.get("note"):
-        footnote.append(record["note"])
+    footnote += [record["note"]] if other and record.get("note") else []
     if every > 1:
         footnote.append(f"One grid value in {every} is shown; results.json holds all "
                         f"{len(grid)}.")
@@ -325,12 +331,9 @@ def manuscript_tables(analysis):
     dict of str to pscore_strata.tables.Table
         ``"results"`` (estimators, SACE, SE, interval, bounds, naive contrast, stratum shares)
         and, when the analysis has them, ``"balance"``, ``"weights"``,
-        ``"sensitivity_ignorability"``, ``"sensitivity_ignorability_doomed"`` (for the
-        strata whose effect rests on the cell that the helped and the doomed share, with
-        ``--stratum``), ``"sensitivity_monotonicity"``, ``"subgroups"`` and ``"quantiles"``.
-        For a stratum other than the always-survivors the sensitivity tables give the effect
-        in that stratum and name the cell each parameter describes. Numbers print as in the
-        HTML report.
+        ``"sensitivity_ignorability"``, ``"sensitivity_ignorability_doomed"`` (``--stratum``:
+        the cell of the helped and the doomed), ``"sensitivity_monotonicity"``,
+        ``"subgroups"`` and ``"quantiles"``. Numbers print as in the HTML report.
     """
     results = getattr(analysis, "results", analysis)
     tables = {
@@ -389,6 +392,9 @@ def write_manuscript_tables(analysis, out_dir, formats=TABLE_FORMATS):
 
     tables = manuscript_tables(analysis)
     results = getattr(analysis, "results", analysis)
-    title = f"Tables: survivor average causal effect on {_words(results)[1]}"
+    target = results.get("stratum") or {}
+    effect = ("survivor average causal effect" if target.get("name", "always_survivor") ==
+              "always_survivor" else f"effect in the {target['label']} stratum")  # fmt: skip
+    title = f"Tables: {effect} on {_words(results)[1]}"
     return [write_tables(tables, pathlib.Path(out_dir) / f"tables.{fmt}", fmt, title=title)
             for fmt in formats]  # fmt: skip

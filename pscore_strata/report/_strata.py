@@ -30,6 +30,7 @@ __all__ = [
     "stratum_estimand",
     "stratum_assumption",
     "stratum_cautions",
+    "stratum_definition",
     "strata_section",
 ]
 
@@ -138,6 +139,18 @@ def stratum_cautions(given, monotonicity, words=None):
         "Interpret the results under the study's protocol and statistical analysis plan and "
         "local regulation, and have a qualified statistician review the analysis before it "
         "informs practice.",
+    )
+
+
+def stratum_definition(target, words, outcome):
+    """The manuscript results table's definition of the effect, for the ``stratum`` record."""
+    return (
+        f"Effect: the mean difference in {outcome} between {words['treated_arm']} "
+        f"('{words['treated_condition']}') and {words['control_arm']} "
+        f"('{words['control_condition']}') in the {target['label']} stratum, "
+        f"{target['members']}. Naive cell contrast: the difference of the mean outcomes of the "
+        "two observed cells the stratum belongs to, biased when the arms' cells hold different "
+        "strata. SE: standard error; CI: confidence interval."
     )
 
 
