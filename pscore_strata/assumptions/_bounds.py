@@ -21,7 +21,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._arguments import check_estimator_arguments, check_positive_integer
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
-from ..estimands._formulas import orient
+from ..estimands._view import orient
 from ..inference._standard_errors import (
     count_clusters,
     estimator_dof,

@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 from scipy import optimize
 
-from ..estimands._formulas import ratio
+from ..estimands._view import ratio
 from ..exceptions import MonotonicityWarning
 from ..inference._standard_errors import influence_std_error, reference_distribution
 

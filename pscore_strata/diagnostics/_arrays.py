@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 from sklearn.exceptions import NotFittedError
 
-from ..estimands._formulas import orient
+from ..estimands._view import orient
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
 SMD_THRESHOLD = 0.1

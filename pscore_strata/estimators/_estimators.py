@@ -1,13 +1,13 @@
 """Estimators of the survivor average causal effect (SACE).
 
 Each class is a thin scikit-learn estimator over the shared machinery: validation, the nuisance
-layer (:mod:`pscore_strata.nuisance`), one estimand formula (:mod:`._formulas`) and the shared
-fit and result logic (:mod:`._base`).
+layer (:mod:`pscore_strata.nuisance`), one method of :data:`pscore_strata.estimands.METHODS`
+(``method``: its formula, whether it reads the outcome models, how its standard error is
+obtained) and the shared fit and result logic (:mod:`._base`).
 """
 
 from __future__ import annotations
 
-from ..estimands._formulas import regression_means, robust_means, weighting_means
 from ._base import SurvivorEffectEstimator
 from ._display import EstimatorDisplay
 from ._heterogeneity import ConditionalEffectMixin
@@ -144,7 +144,7 @@ class PrincipalScoreWeighting(EstimatorDisplay, SurvivorEffectEstimator):
     True
     """
 
-    _formula = staticmethod(weighting_means)
+    method = "weighting"  # the key of its record in pscore_strata.estimands.METHODS
 
     def __init__(
         self,
@@ -208,8 +208,7 @@ class OutcomeRegression(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffect
     array([0.9, 1.8, 1.2])
     """
 
-    _formula = staticmethod(regression_means)
-    _uses_outcome_model = True
+    method = "regression"
     _treatment_enters_estimate = False
 
     def __init__(
@@ -289,8 +288,7 @@ class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEst
     [False, True]
     """
 
-    _formula = staticmethod(robust_means)
-    _uses_outcome_model = True
+    method = "robust"
     n_bootstrap = 0
 
     def __init__(
