@@ -166,7 +166,10 @@ def test_no_covariates_closed_form(card, tmp_path_factory):
         Y[(T == 0) & (S == 0)].mean(),
         Y[(T == 1) & (S == 0)].mean(),
     )
-    _, results = _run(card, tmp_path_factory, "complier", covariates=False)
+    out, results = _run(card, tmp_path_factory, "complier", covariates=False)
+    html = " ".join((out / "report.html").read_text().split())
+    assert "the two cells the complier (protected) stratum belongs to" in html
+    assert "the arms&#39; survivor means" not in html
     sens = results["sensitivity"]
     for row in sens["pi_difference"]["grid"]:
         assert row["effect"] == pytest.approx(m11 + row["value"] * p0 / p1 - m00, abs=1e-8)
