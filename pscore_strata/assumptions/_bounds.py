@@ -19,6 +19,7 @@ from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_positive_integer
+from .._results import BOUNDS
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
 from ..estimands._formulas import orient
@@ -72,6 +73,10 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
 
     Attributes
     ----------
+    identification : str
+        ``"bounds"`` (class attribute): without principal ignorability the effect is only known
+        to lie in an interval, estimated by ``lower_`` and ``upper_``; the point estimators have
+        ``"point"``.
     lower_, upper_ : float
         Estimated bounds on the SACE.
     std_error_lower_, std_error_upper_ : float
@@ -122,6 +127,8 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     >>> bounds.lower_ < data.true_effect < bounds.upper_
     True
     """
+
+    identification = BOUNDS
 
     def __init__(
         self,

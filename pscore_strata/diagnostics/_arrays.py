@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 from sklearn.exceptions import NotFittedError
 
+from .._results import BOUNDS, identification_of
 from ..estimands._formulas import orient
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
@@ -30,9 +31,9 @@ VIOLATION_TOLERANCE = 1e-8
 
 def oriented_predictions(estimator):
     if not (hasattr(estimator, "nuisance_") and hasattr(estimator, "training_data_")):
-        if hasattr(estimator, "lower_") and hasattr(estimator, "upper_"):
+        if identification_of(estimator) == BOUNDS:
             raise TypeError(
-                f"`estimator` is a fitted {type(estimator).__name__}: bounds keep no principal "
+                f"`estimator` is a {type(estimator).__name__}: bounds keep no principal "
                 "score weights to diagnose. Pass a fitted PrincipalScoreWeighting, "
                 "OutcomeRegression or MultiplyRobust (with the same models) instead."
             )

@@ -12,7 +12,7 @@ import warnings
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+from scipy import optimize, stats
 
 from .._validation import check_level
 from ..exceptions import FewClustersWarning
@@ -27,6 +27,7 @@ __all__ = [
     "reference_distribution",
     "reference_quantile",
     "normal_interval",
+    "imbens_manski_critical_value",
 ]
 
 
@@ -130,3 +131,24 @@ def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
         log_se = std_error / estimate
         return (float(estimate * np.exp(-z * log_se)), float(estimate * np.exp(z * log_se)))
     return (float(estimate - z * std_error), float(estimate + z * std_error))
+
+
+def imbens_manski_critical_value(width, se_lower, se_upper, level=0.95, dof=None):
+    """The ``c`` of the Imbens-Manski interval ``(lower - c se_lower, upper + c se_upper)``.
+
+    Solves ``Phi(c + width / max(se)) - Phi(-c) = level`` (Imbens & Manski 2004, Econometrica
+    72): ``c`` runs from the one-sided quantile (wide bounds: only one end can be missed) to the
+    two-sided one (``width = 0``: a point). Without a positive finite scale, the two-sided
+    quantile. ``Phi`` is Student's t with ``dof`` degrees of freedom when given.
+    """
+    reference = reference_distribution(dof)
+    width = max(width, 0.0)
+    scale = max(se_lower, se_upper)
+    z_two_sided = reference.ppf(0.5 + level / 2)
+    if not np.isfinite(scale) or scale <= 0:
+        return z_two_sided
+
+    def gap(c):
+        return reference.cdf(c + width / scale) - reference.cdf(-c) - level
+
+    return 0.0 if gap(0.0) >= 0 else optimize.brentq(gap, 0.0, z_two_sided + 1.0, xtol=1e-12)
