@@ -11,10 +11,10 @@ Fernandez-Val & Melly 2013, Econometrica 81), fitted per arm among survivors. Th
   from 0 at the smallest to 1 at the largest observed survivor outcome beyond them.
 
 With the default model (unpenalized logistic regression) every threshold is fitted by
-:func:`._threshold_fits.fit_thresholds`, Newton-Raphson on standardized columns for a group
-of thresholds at once, which reaches the same maximum-likelihood fit as the estimators'
-scikit-learn model (checked to 1e-8 in ``tests/test_distribution_reference.py``) without its
-per-fit overhead; a threshold where it does not converge cleanly (separation, collinear
+:func:`._threshold_fits.fit_thresholds`, Newton-Raphson on standardized columns, each
+threshold started from its neighbours' fits, which reaches the same maximum-likelihood fit as
+the estimators' scikit-learn model (checked to 1e-8 in ``tests/test_distribution_reference.py``)
+without its per-fit overhead; a threshold where it does not converge cleanly (separation, collinear
 columns) is fitted by the scikit-learn model itself.
 
 Separately fitted classifiers can cross; each row's predictions over the grid are sorted

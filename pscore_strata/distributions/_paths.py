@@ -12,9 +12,11 @@ at ``v`` (DESIGN.md section 5b):
 All values are evaluated at once (:mod:`._grid_formulas`: one sort of the survivors, cumulative
 weighted sums, influence values in factored form), and the formula of
 :mod:`pscore_strata.estimands._formulas` itself is evaluated at one value per prepared
-estimator as a check (:func:`check_against_formula`). The nuisance predictions (treatment and
-survival) are the estimator's stored ones; the conditional CDF models are fitted once per
-fitted nuisance, covariates and CDF model, and shared by every later call (:func:`prepare`).
+estimator as a check (:func:`check_against_formula`; once per fitted conditional CDF model
+for the outcome-model estimators, whose later calls share it). The nuisance predictions
+(treatment and survival) are the estimator's stored ones; the conditional CDF models are
+fitted once per fitted nuisance, covariates and CDF model, and shared by every later call
+(:func:`prepare`).
 """
 
 from __future__ import annotations
@@ -155,7 +157,10 @@ def prepare(estimator, X=None, cdf_model=None):
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
         conditional = _conditional_cdf(estimator, data, X, cdf_model, seed)
     name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
-    return Prepared(method, oriented, data, conditional, name)
+    prepared = Prepared(method, oriented, data, conditional, name)
+    prepared.checked = conditional is not None and conditional.cache.get(_check_key(prepared),
+                                                                         False)  # fmt: skip
+    return prepared
 
 
 @dataclass
@@ -260,6 +265,13 @@ def check_against_formula(prepared, path_values, parts, with_influence):
                 "this with the estimator's settings."
             )
     prepared.checked = prepared.checked or with_influence or prepared.data.n_samples > _CHECK_ROWS
+    if prepared.checked and prepared.conditional is not None:
+        # Shared by every later call on the same conditional CDF models (see prepare).
+        prepared.conditional.cache[_check_key(prepared)] = True
+
+
+def _check_key(prepared):
+    return ("checked", prepared.method, prepared.oriented.increasing)
 
 
 def cdf_path(prepared, values, with_influence=True):
