@@ -89,6 +89,17 @@ def _check_value(name, value):
 def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None):
     """SACE and influence values at one setting of the sensitivity parameters.
 
+    Parameters
+    ----------
+    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        Its fitted nuisance is read; nothing is refitted.
+    pi_ratio, pi_difference : float, optional
+        Principal ignorability relaxed: the ratio ``eps`` (1: principal ignorability) or the
+        difference ``delta`` (0) of the protected to the always-survivor mean outcome under
+        treatment; give at most one.
+    harmed_ratio : float in [0, 1), optional
+        Monotonicity relaxed: ``xi = e_harmed / e_protected`` (0: monotonicity).
+
     Returns
     -------
     effect : float

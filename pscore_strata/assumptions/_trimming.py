@@ -23,6 +23,14 @@ def trimmed_means(values, weights, share):
     The observation that straddles the cut keeps the fraction of its weight that fits, so ties
     and small samples are trimmed exactly (no rounding of ``share * n``).
 
+    Parameters
+    ----------
+    values : ndarray of shape (n,)
+    weights : ndarray of shape (n,)
+        Non-negative weights (at least one positive).
+    share : float in (0, 1]
+        Share of the weight mass kept at each end.
+
     Returns
     -------
     lower, upper : float

@@ -97,7 +97,18 @@ def survivor_weights(o):
 
 
 def effective_sample_size(weights):
-    """Kish (1965) effective sample size ``(sum w)^2 / sum w^2`` of non-negative weights."""
+    """Kish (1965) effective sample size ``(sum w)^2 / sum w^2`` of non-negative weights.
+
+    Parameters
+    ----------
+    weights : array-like of shape (n_rows,)
+        Non-negative weights.
+
+    Returns
+    -------
+    float
+        Between 1 and the number of rows with positive weight; NaN when every weight is 0.
+    """
     weights = np.asarray(weights, dtype=float)
     square_sum = np.sum(weights**2)
     return float(np.sum(weights) ** 2 / square_sum) if square_sum > 0 else 0.0

@@ -46,6 +46,10 @@ class BootstrapResult(BootstrapDisplay):
     n_resamples, n_failed : int
         Replicates asked for, and replicates whose fit failed (left out).
     method : str
+    acceleration : float or Series
+        BCa acceleration per statistic (given, or a function computed on first use).
+    dof : int or None
+        Degrees of freedom of the ``"normal"`` interval's t reference (few clusters).
     notes : list of str
     """
 

@@ -122,6 +122,21 @@ def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
 
     With ``dof`` (few clusters: see :func:`reference_dof`) the quantile is Student's t with
     ``dof`` degrees of freedom instead of the normal one.
+
+    Parameters
+    ----------
+    estimate, std_error : float
+    level : float, default=0.95
+        Confidence level, strictly between 0 and 1.
+    log_scale : bool, default=False
+        Build the interval for ``log(estimate)`` (standard error ``std_error / estimate``) and
+        exponentiate its ends; NaN ends for a non-positive estimate.
+    dof : int or None, default=None
+        Degrees of freedom of Student's t reference; ``None`` is the normal.
+
+    Returns
+    -------
+    (low, high) : tuple of float
     """
     level = check_level(level)
     z = reference_quantile(level, dof)
