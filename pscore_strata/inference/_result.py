@@ -195,9 +195,18 @@ class BootstrapResult(BootstrapDisplay):
             }
         )
         table.index.name = "statistic"
+        effect_note = []
+        if self.identification == BOUNDS:
+            low, high = self.conf_int(level, kind)
+            effect_note = [
+                f"ci_low and ci_high bound each bound; conf_int({level:g}) gives the interval for "
+                f"the effect itself, [{low:.4g}, {high:.4g}] (Imbens-Manski: it covers the "
+                "effect wherever it lies between the bounds)."
+            ]
         table.attrs["notes"] = [
             *self.notes,
             f"{level:.0%} {kind} interval from {len(self.replicates)} replicates.",
+            *effect_note,
             "The always-survivor stratum is latent and the assumptions behind these numbers "
             "(monotonicity and, for point estimates, principal ignorability) cannot be tested "
             "from the data; the bootstrap measures sampling error only. Do not base decisions "
