@@ -43,6 +43,10 @@ def _groups(estimator):
 def missing_data_summary(estimator):
     """Counts and shares of unknown survival status and of missing outcomes, by arm.
 
+    Parameters
+    ----------
+    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+
     Returns
     -------
     DataFrame indexed by arm (``treated``, ``control``)
@@ -51,10 +55,6 @@ def missing_data_summary(estimator):
         the known survivors). All zero when nothing was missing. With fitted models also
         ``min_follow_up_probability`` and ``min_response_probability`` (over the rows each
         model is fitted on; 1 where the model was not needed), the overlap of the two models.
-
-    Parameters
-    ----------
-    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
     """
     oriented_predictions(estimator)  # a clear error for unfitted estimators
     table = pd.DataFrame(missingness_counts(estimator.training_data_)).set_index("arm")

@@ -154,13 +154,6 @@ def jackknife_blocks(treatment, seed, groups=None, stratify=True, n_groups=25):
     blocks of near-equal size, or left out one at a time when there are no more units than
     that (the ordinary jackknife).
 
-    Returns
-    -------
-    block : ndarray of shape (n_rows,)
-        Block label of each row.
-    block_stratum : ndarray of shape (n_blocks,)
-        Stratum of each block.
-
     Parameters
     ----------
     treatment : ndarray of shape (n_rows,)
@@ -173,6 +166,13 @@ def jackknife_blocks(treatment, seed, groups=None, stratify=True, n_groups=25):
         Blocks within each arm (as the resamples are drawn), or across arms.
     n_groups : int, default=25
         Blocks per stratum.
+
+    Returns
+    -------
+    block : ndarray of shape (n_rows,)
+        Block label of each row.
+    block_stratum : ndarray of shape (n_blocks,)
+        Stratum of each block.
     """
     codes, unit_stratum = _unit_codes(treatment, groups, stratify)
     rng = np.random.default_rng(seed)
@@ -241,10 +241,6 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
     chunk of rows gets a table of the 256 signed sums of every eight rows, and a replicate adds
     up one table entry per byte.
 
-    Returns
-    -------
-    ndarray of shape (len(seeds), n_columns)
-
     Parameters
     ----------
     contributions : ndarray of shape (n_units, n_columns)
@@ -253,6 +249,10 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
         One per replicate.
     kind : {"rademacher", "gaussian"}, default="rademacher"
         Law of the multipliers.
+
+    Returns
+    -------
+    ndarray of shape (len(seeds), n_columns)
     """
     c = np.asarray(contributions, dtype=float)
     c = c.reshape(c.shape[0], -1)

@@ -186,17 +186,17 @@ def render_html(results, figures):
 def write_report(analysis, out_dir):
     """Write ``report.html``, ``results.json`` and one PNG per figure into ``out_dir``.
 
-    Returns
-    -------
-    dict
-        Paths of the written files by kind.
-
     Parameters
     ----------
     analysis : Analysis
         What :func:`run_analysis` returned.
     out_dir : str or pathlib.Path
         Created if it does not exist.
+
+    Returns
+    -------
+    dict
+        Paths of the written files by kind.
     """
     from ._figures import draw_figures
 
