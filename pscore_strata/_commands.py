@@ -107,7 +107,7 @@ def _quantiles(text):
 
 
 def _stratum(args):
-    from .estimators._stratum_formulas import resolve_stratum
+    from .estimands._strata import resolve_stratum
 
     try:
         resolve_stratum(args.stratum, args.monotonicity)

@@ -12,6 +12,7 @@ import argparse
 import sys
 
 from ._commands import DEFAULT_OUT, analyze_command, demo_command, simulate_command
+from .estimands._methods import METHOD_NAMES
 
 __all__ = ["main", "build_parser"]
 
@@ -88,7 +89,7 @@ def build_parser():
     )
     analyze.add_argument(
         "--method",
-        choices=("weighting", "regression", "robust"),
+        choices=METHOD_NAMES,
         default="robust",
         help="primary estimator (default: robust); the report shows all three",
     )

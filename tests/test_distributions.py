@@ -270,7 +270,7 @@ def test_quantile_bounds_contain_the_truth(no_pi, strata):
 def test_quantile_bounds_reduce_to_the_mean_bounds_construction(no_pi):
     # Source: the construction documented in assumptions/_quantile_bounds.py, checked by hand.
     from pscore_strata.assumptions._quantile_bounds import trimmed_mixtures
-    from pscore_strata.estimands import _formulas
+    from pscore_strata.estimands import _view
     from pscore_strata.nuisance._fit import fit_nuisance
 
     data, u, _ = no_pi
@@ -278,7 +278,7 @@ def test_quantile_bounds_reduce_to_the_mean_bounds_construction(no_pi):
     cells = (data.X[:, 0] > 0).astype(int) + (data.X[:, 1] > 0.5)
     bounds = fit(ps.TrimmingBounds, data, quantiles=u, fit_params={"cells": cells})
     checked = ps._validation.check_truncation_data(data.X, y, data.treatment, data.survival)
-    o = _formulas.orient(checked, fit_nuisance(checked), "increasing")
+    o = _view.orient(checked, fit_nuisance(checked), "increasing")
     masses = trimmed_mixtures(o, cells)
     ys = np.nan_to_num(y)
     # 1. The means of the trimmed mixtures minus the pure-arm mean are the mean bounds.

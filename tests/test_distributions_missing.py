@@ -101,7 +101,7 @@ def test_quantile_bounds_mean_of_the_trimmed_mixtures_equals_the_mean_bounds():
     # with the same observation weights): the means of the trimmed mixtures G_L and G_U minus
     # the pure arm's mean are the mean bounds (see assumptions/_quantile_bounds.py).
     from pscore_strata.assumptions._quantile_bounds import trimmed_mixtures
-    from pscore_strata.estimands import _formulas
+    from pscore_strata.estimands import _view
 
     data = make_truncation(2500, n_features=3, random_state=5, follow_up=(0.8, 0.5),
                            response=(0.8, -0.5))  # fmt: skip
@@ -113,7 +113,7 @@ def test_quantile_bounds_mean_of_the_trimmed_mixtures_equals_the_mean_bounds():
     checked = check_truncation_data(data.X, data.y, data.treatment, data.survival, None, None,
                                     missing="at_random")  # fmt: skip
     nuisance = fit_nuisance(checked, None, None, random_state=None, monotonicity="increasing")
-    o = _formulas.orient(checked, nuisance, "increasing")
+    o = _view.orient(checked, nuisance, "increasing")
     masses = trimmed_mixtures(o, np.zeros(checked.n_samples, dtype=int))
     pure = np.sum(masses["pure"] * o.outcome)
     assert np.sum(masses["lower"] * o.outcome) - pure == pytest.approx(bounds.lower_, abs=1e-8)

@@ -17,7 +17,7 @@ from scipy.special import expit
 import pscore_strata as ps
 from pscore_strata.assumptions._trimming import trimming_bounds
 from pscore_strata.datasets import make_truncation
-from pscore_strata.estimands import _formulas
+from pscore_strata.estimands import _formulas, _view
 from pscore_strata.nuisance import fit_nuisance
 
 ESTIMATORS = (ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust)
@@ -196,8 +196,8 @@ def test_coarsened_formulas_with_probabilities_one_are_the_full_data_formulas(fo
     for key in ("follow_up", "response"):
         for arm in (0, 1):
             assert np.all(nuisance.missingness[key][arm] == 1.0)
-    today = formula(_formulas.orient(full, replace(nuisance, missingness=None), monotonicity))
-    new = formula(_formulas.orient(coarsened, nuisance, monotonicity))
+    today = formula(_view.orient(full, replace(nuisance, missingness=None), monotonicity))
+    new = formula(_view.orient(coarsened, nuisance, monotonicity))
     assert new.mean_treated == pytest.approx(today.mean_treated, abs=1e-12)
     assert new.mean_control == pytest.approx(today.mean_control, abs=1e-12)
     np.testing.assert_allclose(new.influence_treated, today.influence_treated, atol=1e-10)
@@ -352,7 +352,7 @@ def test_bounds_terms_of_follow_up_and_response_models_match_numerical_derivativ
     cells = np.zeros(d.n_samples, dtype=int)
 
     def compute(nuisance, drop=None):
-        o = _formulas.orient(d, nuisance, "increasing")
+        o = _view.orient(d, nuisance, "increasing")
         if drop is not None:
             o = replace(o, parametric={k: v for k, v in o.parametric.items() if k != drop})
         fitted = trimming_bounds(o, cells, d)

@@ -91,6 +91,9 @@ PUBLIC_NAMES = {
         "survivor_distribution",
     ],
     "pscore_strata.estimands": [
+        "METHODS",
+        "Method",
+        "Setting",
     ],
     "pscore_strata.estimators": [
         "MultiplyRobust",

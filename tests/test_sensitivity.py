@@ -8,7 +8,8 @@ import pytest
 from scipy.special import expit
 
 import pscore_strata as ps
-from pscore_strata.assumptions._sensitivity import _Stratum, adjusted_effect
+from pscore_strata.assumptions._sensitivity import adjusted_effect
+from pscore_strata.estimands._setting import Scores, Setting
 from pscore_strata.inference import influence_std_error
 
 ESTIMATORS = {
@@ -146,20 +147,22 @@ def test_robust_influence_function_matches_monte_carlo_spread():
 @pytest.mark.parametrize("kind", ["difference", "ratio"])
 def test_functional_partials_match_finite_differences(plain, kind):
     est = _fit("robust", plain)
-    from pscore_strata.estimands import _formulas
+    from dataclasses import replace
 
-    o = _formulas.orient(est.training_data_, est.nuisance_, "increasing")
-    setting = (0.4, None, 0.2) if kind == "difference" else (0.0, 1.3, 0.2)
-    _, g_pp, g_pm, g_m = _Stratum(o, *setting).g(o.m_mixed)
+    from pscore_strata.estimands import _view
+
+    o = _view.orient(est.training_data_, est.nuisance_, "increasing")
+    setting = Setting(0.4, None, 0.2) if kind == "difference" else Setting(0.0, 1.3, 0.2)
+    _, g_pp, g_pm, g_m = Scores(o, setting).g(o.m_mixed)
     h = 1e-6
     for field, analytic in (("p_pure", g_pp), ("p_mixed", g_pm)):
-        up = _formulas.Oriented(**{**o.__dict__, field: getattr(o, field) + h})
-        down = _formulas.Oriented(**{**o.__dict__, field: getattr(o, field) - h})
+        up = replace(o, **{field: getattr(o, field) + h})
+        down = replace(o, **{field: getattr(o, field) - h})
         numeric = (
-            _Stratum(up, *setting).g(o.m_mixed)[0] - _Stratum(down, *setting).g(o.m_mixed)[0]
+            Scores(up, setting).g(o.m_mixed)[0] - Scores(down, setting).g(o.m_mixed)[0]
         ) / (2 * h)
         np.testing.assert_allclose(analytic, numeric, rtol=1e-5, atol=1e-7)
-    numeric = _Stratum(o, *setting).g(o.m_mixed + h)[0] - _Stratum(o, *setting).g(o.m_mixed - h)[0]
+    numeric = Scores(o, setting).g(o.m_mixed + h)[0] - Scores(o, setting).g(o.m_mixed - h)[0]
     np.testing.assert_allclose(g_m, numeric / (2 * h), rtol=1e-6)
 
 

@@ -101,9 +101,10 @@ def test_cross_fitted_repeats_path(data):
 
     effects, errors = [], []
     for fit in est._repeat_fits:
-        from pscore_strata.assumptions._sensitivity import _adjusted, _robust
+        from pscore_strata.assumptions._sensitivity import _adjusted
+        from pscore_strata.estimands import METHODS, Setting
 
-        effect, influence, _ = _adjusted(_robust, est, fit, 0.7, None, 0.0)
+        effect, influence, _ = _adjusted(METHODS["robust"], est, fit, Setting(0.7, None, 0.0))
         effects.append(effect)
         errors.append(influence_std_error(influence))
     effect, se = median_aggregate(effects, errors)

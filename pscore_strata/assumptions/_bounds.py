@@ -23,7 +23,7 @@ from .._features import check_feature_names
 from .._results import BOUNDS
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
-from ..estimands._formulas import orient
+from ..estimands._view import orient
 from ..inference._standard_errors import (
     count_clusters,
     estimator_dof,

@@ -20,16 +20,9 @@ from dataclasses import replace
 import numpy as np
 import pandas as pd
 
-from ..estimands._formulas import (
-    MeanParts,
-    orient,
-    ratio,
-    robust_means,
-    robust_terms,
-    scale_effect,
-    unorient,
-    weighting_means,
-)
+from ..estimands._formulas import robust_terms
+from ..estimands._methods import method_of
+from ..estimands._view import MeanParts, orient, ratio, scale_effect, unorient
 from ..estimators._repeats import median_aggregate
 from ..estimators._summary import CAUTIONS
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
@@ -49,10 +42,10 @@ def _shifted_view(o, shift_mixed, shift_pure):
     )
 
 
-def _response_terms(formula, o, shift_mixed, shift_pure):
+def _response_terms(method, o, shift_mixed, shift_pure):
     """Influence terms of the response models' estimation that the shift adds, by role."""
     co = o.coarsening
-    if formula is robust_means:
+    if method.name == "robust":
         # Efficient influence function of E[p_pure (1 - r_t)] adds -p_pure times the response
         # residual among the arm's known survivors over their probability (Hahn 1998).
         phi_e = robust_terms(o)[0]
@@ -69,7 +62,7 @@ def _response_terms(formula, o, shift_mixed, shift_pure):
         return -shift_mixed * mixed / share, -shift_pure * pure / share
     if o.parametric is None:
         return 0.0, 0.0
-    if formula is weighting_means:
+    if method.name == "weighting":
         weights = (
             ratio(co.observed_mixed * o.p_pure, o.pi * o.p_mixed),
             ratio(co.observed_pure, 1 - o.pi),
@@ -85,19 +78,19 @@ def _response_terms(formula, o, shift_mixed, shift_pure):
 
 def shifted_effect(estimator, nuisance, shift_treated, shift_control):
     """Effect and influence values with non-responders' means shifted by the given amounts."""
-    formula = type(estimator)._formula
+    method = method_of(estimator)
     data = estimator.training_data_
     o = orient(data, nuisance, estimator.monotonicity)
     if o.coarsening is None:
-        parts = formula(o)
+        parts = method.means(o)
     else:
         shift_mixed, shift_pure = (
             (shift_treated, shift_control) if o.increasing else (shift_control, shift_treated)
         )
         shifted = _shifted_view(o, shift_mixed, shift_pure)
         with np.errstate(divide="ignore", invalid="ignore"):
-            parts = formula(shifted)
-            extra_mixed, extra_pure = _response_terms(formula, shifted, shift_mixed, shift_pure)
+            parts = method.means(shifted)
+            extra_mixed, extra_pure = _response_terms(method, shifted, shift_mixed, shift_pure)
         extra = unorient(o, 0.0, 0.0, extra_mixed, extra_pure)
         parts = MeanParts(
             parts.mean_treated,

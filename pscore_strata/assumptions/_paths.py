@@ -23,7 +23,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ..estimands._formulas import orient, scale_effect
+from ..estimands._setting import Setting
+from ..estimands._view import orient, scale_effect
 from ..estimators._repeats import median_aggregate
 from ..inference._standard_errors import influence_std_error
 
@@ -51,30 +52,24 @@ class SensitivityPath:
     Parameters
     ----------
     estimator : fitted estimator (checked by the caller)
-    formula : the estimator's formula from :mod:`._sensitivity`
-    adjust : callable ``adjust(formula, estimator, oriented, parametric, delta, eps, xi, cache)``
-        returning ``(MeanParts, n_clipped)``.
+    method : its :class:`~pscore_strata.estimands.Method` record
     """
 
-    def __init__(self, estimator, formula, adjust):
-        self.estimator, self.formula, self.adjust = estimator, formula, adjust
+    def __init__(self, estimator, method):
+        self.estimator, self.method = estimator, method
         data = estimator.training_data_
         self.weights, self.groups = data.sample_weight, data.groups
         fits = getattr(estimator, "_repeat_fits", None) or [estimator.nuisance_]
-        # Per fit: the oriented view, its sandwich pieces and a cache of parameter-free arrays.
-        self.views = [
-            (orient(data, nuisance, estimator.monotonicity), nuisance.parametric, {})
-            for nuisance in fits
-        ]
+        # One oriented view per fit (it keeps its parameter-free arrays between settings).
+        self.views = [orient(data, nuisance, estimator.monotonicity) for nuisance in fits]
         self._lines = {}
 
     # -- direct evaluation -------------------------------------------------------------------
     def at(self, delta=0.0, eps=None, xi=0.0):
         """``(effect, std_error, n_clipped)`` at one setting, repeats combined by medians."""
         effects, errors, clipped = [], [], 0
-        for o, parametric, cache in self.views:
-            parts, n_clipped = self.adjust(self.formula, self.estimator, o, parametric,
-                                           delta, eps, xi, cache)  # fmt: skip
+        for o in self.views:
+            parts, n_clipped = self.method.adjusted(o, Setting(delta, eps, xi))
             effect, influence = scale_effect(parts, self.estimator.scale)
             effects.append(float(effect))
             errors.append(influence_std_error(influence, self.weights, self.groups))
@@ -86,11 +81,9 @@ class SensitivityPath:
     def _line(self, xi):
         if xi not in self._lines:
             lines = []
-            for o, parametric, cache in self.views:
-                start, clipped = self.adjust(self.formula, self.estimator, o, parametric,
-                                             0.0, None, xi, cache)  # fmt: skip
-                end, _ = self.adjust(self.formula, self.estimator, o, parametric, 1.0, None, xi,
-                                     cache)  # fmt: skip
+            for o in self.views:
+                start, clipped = self.method.adjusted(o, Setting(0.0, None, xi))
+                end, _ = self.method.adjusted(o, Setting(1.0, None, xi))
                 means = np.array([start.mean_treated, end.mean_treated - start.mean_treated,
                                   start.mean_control, end.mean_control - start.mean_control])
                 basis = np.column_stack([

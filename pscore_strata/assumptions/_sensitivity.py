@@ -2,7 +2,7 @@
 
 Every quantity is a formula over the per-row nuisance predictions a fitted estimator stored
 (``est.nuisance_``, ``est.training_data_``), written in the oriented view of
-:func:`pscore_strata.estimands._formulas.orient`: the *mixed* arm's survivors are
+:func:`pscore_strata.estimands._view.orient`: the *mixed* arm's survivors are
 always-survivors plus the *helped* stratum (protected units when treatment can only help
 survival), the *pure* arm's are always-survivors plus the *opposite* stratum, which monotonicity
 rules out.
@@ -30,12 +30,12 @@ import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
 from .._validation import check_level
-from ..estimands._formulas import orient, scale_effect, unorient
-from ..estimators._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
-from ..estimators._stratum_formulas import require_always_survivor
+from ..estimands._methods import method_of
+from ..estimands._setting import Setting
+from ..estimands._strata import require_always_survivor
+from ..estimands._view import orient, scale_effect
 from ..estimators._summary import CAUTIONS
 from ..inference._standard_errors import estimator_dof, normal_interval
-from ._adjusted_means import _regression, _robust, _Stratum, _weighting  # noqa: F401 (_Stratum: tests)
 from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
@@ -43,25 +43,15 @@ __all__ = ["sensitivity_grid", "adjusted_effect"]
 NULL_SETTING = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
 
 
-_FORMULAS = {
-    PrincipalScoreWeighting: _weighting,
-    OutcomeRegression: _regression,
-    MultiplyRobust: _robust,
-}
-
-
 def _check_estimator(estimator):
-    formula = next((f for cls, f in _FORMULAS.items() if isinstance(estimator, cls)), None)
-    if formula is None:
-        raise TypeError(
-            "`estimator` must be a fitted PrincipalScoreWeighting, OutcomeRegression or "
-            f"MultiplyRobust; got {type(estimator).__name__}."
-        )
+    """The estimator's method record (:data:`pscore_strata.estimands.METHODS`); it must be
+    fitted for the always-survivor stratum."""
+    method = method_of(estimator)
     check_is_fitted(estimator, "nuisance_")
     # The sensitivity formulas relax the always-survivor assumptions only
     # (docs/guide/derivations/bounds-sensitivity.md).
     require_always_survivor(estimator, "The sensitivity analysis (sensitivity_grid, tipping_point)")
-    return formula
+    return method
 
 
 def _check_value(name, value):
@@ -107,12 +97,12 @@ def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_rati
     n_clipped : int
         Rows whose implied always-survivor score was negative (set to 0).
     """
-    formula = _check_estimator(estimator)
+    method = _check_estimator(estimator)
     _check_one_scale(pi_ratio, pi_difference)
     eps = None if pi_ratio is None else _check_value("pi_ratio", pi_ratio)
     delta = 0.0 if pi_difference is None else _check_value("pi_difference", pi_difference)
     xi = 0.0 if harmed_ratio is None else _check_value("harmed_ratio", harmed_ratio)
-    return _adjusted(formula, estimator, estimator.nuisance_, delta, eps, xi)
+    return _adjusted(method, estimator, estimator.nuisance_, Setting(delta, eps, xi))
 
 
 def _check_one_scale(pi_ratio, pi_difference):
@@ -123,30 +113,17 @@ def _check_one_scale(pi_ratio, pi_difference):
         )
 
 
-def _adjusted(formula, estimator, nuisance, delta, eps, xi):
+def _adjusted(method, estimator, nuisance, setting):
     data = estimator.training_data_
     o = orient(data, nuisance, estimator.monotonicity)
-    parts, clipped = _adjust_view(formula, estimator, o, nuisance.parametric, delta, eps, xi)
+    parts, clipped = method.adjusted(o, setting)
     effect, influence = scale_effect(parts, estimator.scale)
     return float(effect), influence, clipped
 
 
-def _adjust_view(formula, estimator, o, parametric, delta, eps, xi, cache=None):
-    """Adjusted always-survivor means on an oriented view: ``(MeanParts, n_clipped)``."""
-    st = _Stratum(o, delta, eps, xi)
-    # Robust influence values need no corrections (orthogonal); the others get them exactly
-    # when the fitted estimator used them (default GLMs, no cross-fitting).
-    if formula is _robust:
-        mu_m, mu_p, if_m, if_p = _robust(o, st, False, cache)
-    else:
-        mu_m, mu_p, if_m, if_p = formula(o, st, parametric is not None)
-    return unorient(o, mu_m, mu_p, if_m, if_p), int(st.clipped.sum())
-
-
 def sensitivity_path(estimator):
     """A :class:`._paths.SensitivityPath` over the estimator's stored predictions."""
-    formula = _check_estimator(estimator)
-    return SensitivityPath(estimator, formula, _adjust_view)
+    return SensitivityPath(estimator, _check_estimator(estimator))
 
 
 def _effect_and_error(estimator, setting, path=None):

@@ -10,7 +10,7 @@ from types import SimpleNamespace
 import numpy as np
 import pandas as pd
 
-from ..estimands._formulas import ratio
+from ..estimands._view import ratio
 from ..exceptions import MonotonicityWarning
 from ..inference._standard_errors import imbens_manski_critical_value, influence_std_error
 

@@ -17,7 +17,7 @@ import numpy as np
 from sklearn.exceptions import NotFittedError
 
 from .._results import BOUNDS, identification_of
-from ..estimands._formulas import orient
+from ..estimands._view import orient
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
 SMD_THRESHOLD = 0.1

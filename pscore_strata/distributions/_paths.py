@@ -30,30 +30,19 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._features import feature_fingerprint
 from .._validation import check_features
-from ..estimands._formulas import Oriented, orient, regression_means, robust_means, weighting_means
-from ..estimators._stratum_formulas import require_always_survivor
+from ..estimands._methods import METHODS
+from ..estimands._methods import method_of as _method_record
+from ..estimands._strata import require_always_survivor
+from ..estimands._view import Oriented, orient
 from ._conditional import fit_conditional_cdf
 from ._expansion import Expansion, ValueGrid
 from ._grid_formulas import regression_grid, robust_grid, weighting_grid
 
 __all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula"]
 
-_METHODS = {
-    weighting_means: "weighting",
-    regression_means: "regression",
-    robust_means: "robust",
-}
-
-
 def method_of(estimator):
     """``"weighting"``, ``"regression"`` or ``"robust"``; a clear error for anything else."""
-    formula = getattr(type(estimator), "_formula", None)
-    method = _METHODS.get(getattr(formula, "__func__", formula))
-    if method is None:
-        raise TypeError(
-            "`estimator` must be a PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust "
-            f"estimator; got {type(estimator).__name__}."
-        )
+    method = _method_record(estimator).name
     check_is_fitted(estimator, "effect_")
     return method
 
@@ -179,8 +168,6 @@ class CDFPath:
 
 
 _CHECK_ROWS = 100_000
-_FORMULAS = {"weighting": weighting_means, "regression": regression_means,
-             "robust": robust_means}  # fmt: skip
 
 
 def _view(prepared, value, with_influence):
@@ -203,7 +190,7 @@ def _view(prepared, value, with_influence):
 def formula_cdf(prepared, value, with_influence=True):
     """The formula layer's always-survivor means with ``Y -> 1{Y <= value}`` (one value)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        return _FORMULAS[prepared.method](_view(prepared, value, with_influence))
+        return METHODS[prepared.method].means(_view(prepared, value, with_influence))
 
 
 def _model_expansion(conditional, grid, arm):

@@ -1,7 +1,8 @@
 """Shared machinery of the SACE estimators: fitting, repeats, bootstrap fallback, results.
 
-A concrete estimator (:mod:`pscore_strata.estimators`) only names its estimand formula from
-:mod:`pscore_strata.estimands._formulas` and whether it needs the outcome model.
+A concrete estimator (:mod:`pscore_strata.estimators`) only names its method, a record of
+:data:`pscore_strata.estimands.METHODS` that holds the formula and whether it needs the outcome
+model.
 """
 
 from __future__ import annotations
@@ -17,13 +18,9 @@ from sklearn.utils.validation import check_is_fitted
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._features import feature_fingerprint
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
-from ..estimands._formulas import (
-    orient,
-    regression_means,
-    robust_means,
-    scale_effect,
-    weighting_means,
-)
+from ..estimands._methods import method_of
+from ..estimands._strata import needs_zero_cells, resolve_stratum
+from ..estimands._view import orient, scale_effect
 from ..exceptions import FewOutcomesWarning
 from ..inference._resampling import seed_models, spawn_seeds
 from ..inference._standard_errors import (
@@ -35,7 +32,7 @@ from ..inference._standard_errors import (
 from ..nuisance._fit import fit_nuisance
 from ..nuisance._missing import few_outcomes_message
 from ..nuisance._share import record_settings, shared_nuisance
-from . import _design, _stratum_formulas
+from . import _design
 from ._fallback import bootstrap_std_errors
 from ._heterogeneity import subgroup_effects
 from ._repeats import check_repeats, median_aggregate, repeat_seeds
@@ -48,10 +45,17 @@ _SCALES = ("difference", "ratio", "odds_ratio")
 
 
 class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
-    """Shared fit logic. Subclasses set ``_formula`` and ``_uses_outcome_model``."""
+    """Shared fit logic. Subclasses set ``method`` (a key of ``estimands.METHODS``)."""
 
-    _uses_outcome_model = False
     _treatment_enters_estimate = True
+
+    @property
+    def _method(self):
+        return method_of(self)
+
+    @property
+    def _uses_outcome_model(self):
+        return self._method.uses_outcome_model
 
     # -- fitting -----------------------------------------------------------------------------
     def _models(self):
@@ -63,12 +67,10 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
 
     def _target_stratum(self):
         """The canonical name of the stratum targeted (``stratum=``; aliases resolved)."""
-        return _stratum_formulas.resolve_stratum(
-            getattr(self, "stratum", "always_survivor"), self.monotonicity
-        )
+        return resolve_stratum(getattr(self, "stratum", "always_survivor"), self.monotonicity)
 
     def _other_stratum(self):
-        return _stratum_formulas.needs_zero_cells(self._target_stratum())
+        return needs_zero_cells(self._target_stratum())
 
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
@@ -102,7 +104,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             response_model=models.response_model,
             follow_up_model=models.follow_up_model,
             # The multiply robust influence values never use the sandwich pieces.
-            sandwich=sandwich and self._formula is not robust_means,
+            sandwich=sandwich and not self._method.orthogonal,
             monotonicity=self.monotonicity,
             check_separation=check_separation,
             zero_cells=self._other_stratum(),
@@ -110,21 +112,13 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         return record_settings(fitted, self, data, random_state)
 
     def _oriented(self, data, nuisance):
-        """The view the formulas read: the SACE's oriented arrays, or the target stratum's."""
-        stratum = self._target_stratum()
-        if _stratum_formulas.needs_zero_cells(stratum):
-            return _stratum_formulas.stratum_view(data, nuisance, self.monotonicity, stratum)
-        return orient(data, nuisance, self.monotonicity)
+        """The view the formulas read: the oriented arrays of the target stratum."""
+        return orient(data, nuisance, self.monotonicity, self._target_stratum())
 
-    def _formula_for(self, oriented):
-        if isinstance(oriented, _stratum_formulas.StratumView):
-            return _STRATUM_FORMULAS[type(self)._formula]
-        return type(self)._formula
-
-    def _means(self, data, nuisance):
+    def _means(self, data, nuisance, subset=None):
         oriented = self._oriented(data, nuisance)
         with np.errstate(divide="ignore", invalid="ignore"):  # non-finite results are checked
-            return self._formula_for(oriented)(oriented), oriented
+            return self._method.means(oriented, subset=subset), oriented
 
     def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
             groups=None, nuisance=None):  # fmt: skip
@@ -195,7 +189,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
             fits = [
                 shared_nuisance(
                     self, fit, data, uses_outcome=self._uses_outcome_model,
-                    sandwich=self._formula is not robust_means,
+                    sandwich=not self._method.orthogonal,
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                     fold_seed=seed,
                 )
@@ -284,7 +278,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         self.bootstrap_replicates_ = None
 
     def _std_error_method(self, nuisance):
-        if self._formula is robust_means:
+        if self._method.orthogonal:
             return "influence function"
         if nuisance.parametric is not None:
             return "sandwich"
@@ -384,14 +378,6 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         check_is_fitted(self, "effect_")
         check_level(level)
         return subgroup_effects(self, labels, level)
-
-
-# The formula of each method for the strata other than the always-survivors.
-_STRATUM_FORMULAS = {
-    weighting_means: _stratum_formulas.stratum_weighting_means,
-    regression_means: _stratum_formulas.stratum_regression_means,
-    robust_means: _stratum_formulas.stratum_robust_means,
-}
 
 
 class _Roles:  # the two survival predictions by role, and the monotonicity direction

@@ -1,14 +1,14 @@
 """Estimators of the survivor average causal effect (SACE).
 
 Each class is a thin scikit-learn estimator over the shared machinery: validation, the nuisance
-layer (:mod:`pscore_strata.nuisance`), one estimand formula (:mod:`._formulas`) and the shared
-fit and result logic (:mod:`._base`).
+layer (:mod:`pscore_strata.nuisance`), one method of :data:`pscore_strata.estimands.METHODS`
+(``method``: its formula, whether it reads the outcome models, how its standard error is
+obtained) and the shared fit and result logic (:mod:`._base`).
 """
 
 from __future__ import annotations
 
 from .._results import POINT
-from ..estimands._formulas import regression_means, robust_means, weighting_means
 from ..nuisance._sandwich import flexible_model_reason
 from ._base import SurvivorEffectEstimator
 from ._display import EstimatorDisplay
@@ -153,7 +153,7 @@ class PrincipalScoreWeighting(EstimatorDisplay, SurvivorEffectEstimator):
     True
     """
 
-    _formula = staticmethod(weighting_means)
+    method = "weighting"  # the key of its record in pscore_strata.estimands.METHODS
     identification = POINT
 
     def __init__(
@@ -220,9 +220,8 @@ class OutcomeRegression(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffect
     array([0.9, 1.8, 1.2])
     """
 
-    _formula = staticmethod(regression_means)
+    method = "regression"
     identification = POINT
-    _uses_outcome_model = True
     _treatment_enters_estimate = False
 
     def __init__(
@@ -314,9 +313,8 @@ class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEst
     [False, True]
     """
 
-    _formula = staticmethod(robust_means)
+    method = "robust"
     identification = POINT
-    _uses_outcome_model = True
 
     def __init__(
         self,

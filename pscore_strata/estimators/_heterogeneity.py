@@ -3,8 +3,8 @@
 Under principal ignorability, ``m_t(X) = E[Y | T=t, S=1, X]`` equals ``E[Y(t) | always-survivor,
 X]`` (Jiang, Yang & Ding 2022, section 3), so ``m1(X) - m0(X)`` is the always-survivor effect given
 ``X``. A subgroup SACE applies the estimator's own formula with every estimating function
-restricted to the subgroup (``subset`` in :mod:`._formulas`); the fitted nuisance models are
-reused as they are.
+restricted to the subgroup (``subset`` in :mod:`pscore_strata.estimands._formulas`); the
+fitted nuisance models are reused as they are.
 """
 
 from __future__ import annotations
@@ -16,12 +16,12 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._validation import check_features
 from .._vectors import one_dimensional
-from ..estimands._formulas import scale_effect
+from ..estimands._strata import arm_cells
+from ..estimands._view import scale_effect
 from ..inference._standard_errors import estimator_dof, influence_std_error, normal_interval
 from ..nuisance._models import predict_models
 from ._design import design_for_new_rows
 from ._repeats import median_aggregate
-from ._stratum_formulas import arm_cells
 from ._summary import CAUTIONS
 
 __all__ = ["conditional_effect", "subgroup_effects", "ConditionalEffectMixin"]
@@ -137,9 +137,8 @@ def subgroup_effects(estimator, labels, level):
     errors = np.empty_like(effects)
     for r, nuisance in enumerate(estimator._repeat_fits):
         oriented = estimator._oriented(data, nuisance)
-        formula = estimator._formula_for(oriented)
         for code in range(len(names)):
-            parts = formula(oriented, (codes == code).astype(float))
+            parts = estimator._method.means(oriented, subset=(codes == code).astype(float))
             effect, influence = scale_effect(parts, estimator.scale)
             effects[r, code] = effect
             errors[r, code] = influence_std_error(influence, w, data.groups)

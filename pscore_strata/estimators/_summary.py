@@ -7,6 +7,7 @@ import pandas as pd
 
 from .._vectors import MISSING_AT_RANDOM_ASSUMPTION
 from ..diagnostics._tables import diagnostic_warnings
+from ..estimands._strata import arm_cells, ignorability_statement, stratum_words
 from ..inference._standard_errors import (
     estimator_dof,
     influence_std_error,
@@ -16,7 +17,6 @@ from ..inference._standard_errors import (
 from ..nuisance._missing import missingness_counts
 from ..tables import SummaryTable
 from ._repeats import median_aggregate
-from ._stratum_formulas import arm_cells, ignorability_statement, stratum_words
 
 __all__ = ["summary_table", "share_interval", "SCALE_LABELS", "CAUTIONS", "SHARE_INTERVAL_NOTE"]
 

@@ -15,6 +15,7 @@ from datetime import datetime, timezone
 import numpy as np
 
 from .. import __version__
+from ..estimands import METHODS as METHOD_RECORDS
 from ._distributions import distributions_section
 from ._honesty import bootstrap_warning, honest_bounds, honest_estimates, honest_sensitivity
 from ._missing import missing_section
@@ -163,7 +164,7 @@ def _method_notes(estimator, notes):
     repeated = {SUMMARY_CAUTIONS}
     stratum = getattr(estimator, "stratum_", "always_survivor")
     if stratum != "always_survivor":  # the stratum's assumptions and cautions have sections
-        from ..estimators._stratum_formulas import ignorability_statement, stratum_words
+        from ..estimands._strata import ignorability_statement, stratum_words
         from ..estimators._summary import STRATUM_CAUTIONS
 
         repeated.add(ignorability_statement(stratum, estimator.monotonicity))
@@ -238,7 +239,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     order = (options.method, *[m for m in METHODS if m != options.method])
     shared = None
     # One fit of the five models serves every estimator: those with the outcome model first.
-    for method in sorted(order, key=lambda m: not METHODS[m]._uses_outcome_model):
+    for method in sorted(order, key=lambda m: not METHOD_RECORDS[m].uses_outcome_model):
         estimator = build_estimator(method, options, n_rows)
         collector.run(
             f"{METHOD_LABELS[method].lower()} estimator",

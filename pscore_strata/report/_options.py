@@ -6,7 +6,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from .. import estimators
+from ..estimands import METHODS as METHOD_RECORDS
 
 __all__ = [
     "AnalysisOptions",
@@ -20,16 +21,9 @@ __all__ = [
     "trial_settings",
 ]
 
-METHODS = {
-    "weighting": PrincipalScoreWeighting,
-    "regression": OutcomeRegression,
-    "robust": MultiplyRobust,
-}
-METHOD_LABELS = {
-    "weighting": "Principal score weighting",
-    "regression": "Outcome regression",
-    "robust": "Multiply robust",
-}
+# The estimator class and the label of each method of the registry.
+METHODS = {name: getattr(estimators, m.estimator) for name, m in METHOD_RECORDS.items()}
+METHOD_LABELS = {name: m.title for name, m in METHOD_RECORDS.items()}
 SENSITIVITY_POINTS = 21
 # Shallow trees, a small learning rate and at least 40 rows per leaf: in samples of a few
 # thousand, unregularized boosting pushes fitted probabilities to 0 or 1 and the weights explode

@@ -116,7 +116,7 @@ def diagnostics_section(collector, primary, covariates):
     out["n_monotonicity_violations"] = int(primary.n_monotonicity_violations_)
     # The same two counts as the estimator's MonotonicityWarning and diagnostic_warnings.
     from ..diagnostics._arrays import SCORE_FLOOR
-    from ..estimands._formulas import orient
+    from ..estimands._view import orient
 
     o = orient(primary.training_data_, primary.nuisance_, primary.monotonicity)
     out["n_monotonicity_reversed_beyond_floor"] = int(np.sum(o.p_pure - o.p_mixed > SCORE_FLOOR))

@@ -13,7 +13,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..estimators._stratum_formulas import (
+from ..estimands._strata import (
     STRATA,
     STRATUM_ALIASES,
     arm_cells,
