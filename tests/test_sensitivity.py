@@ -153,16 +153,16 @@ def test_functional_partials_match_finite_differences(plain, kind):
 
     o = _view.orient(est.training_data_, est.nuisance_, "increasing")
     setting = Setting(0.4, None, 0.2) if kind == "difference" else Setting(0.0, 1.3, 0.2)
-    _, g_pp, g_pm, g_m = Scores(o, setting).g(o.m_mixed)
+    _, g_pp, g_pm, g_m = Scores(o, setting).g("mixed", o.m_mixed)
     h = 1e-6
     for field, analytic in (("p_pure", g_pp), ("p_mixed", g_pm)):
         up = replace(o, **{field: getattr(o, field) + h})
         down = replace(o, **{field: getattr(o, field) - h})
-        numeric = (
-            Scores(up, setting).g(o.m_mixed)[0] - Scores(down, setting).g(o.m_mixed)[0]
-        ) / (2 * h)
+        high = Scores(up, setting).g("mixed", o.m_mixed)[0]
+        numeric = (high - Scores(down, setting).g("mixed", o.m_mixed)[0]) / (2 * h)
         np.testing.assert_allclose(analytic, numeric, rtol=1e-5, atol=1e-7)
-    numeric = Scores(o, setting).g(o.m_mixed + h)[0] - Scores(o, setting).g(o.m_mixed - h)[0]
+    scores = Scores(o, setting)
+    numeric = scores.g("mixed", o.m_mixed + h)[0] - scores.g("mixed", o.m_mixed - h)[0]
     np.testing.assert_allclose(g_m, numeric / (2 * h), rtol=1e-6)
 
 

@@ -195,15 +195,12 @@ def test_simulated_stratum_effects_are_the_truth():
         make_intermediate(100, stratum="harmed")
 
 
-@pytest.mark.parametrize("call", ["sensitivity", "distribution"])
-def test_unsupported_analyses_refuse_other_strata(call):
+def test_unsupported_analyses_refuse_other_strata():
+    # The sensitivity analysis serves every stratum (tests/test_strata_sensitivity.py).
     data = make_intermediate(600, random_state=0)
     est = _fit(ps.PrincipalScoreWeighting, data, "complier")
     with pytest.raises(ValueError, match="not available yet .*`stratum`='complier'"):
-        if call == "sensitivity":
-            ps.sensitivity_grid(est, pi_ratio=[0.9, 1.0])
-        else:
-            ps.survivor_distribution(est)
+        ps.survivor_distribution(est)
 
 
 def test_missing_at_random_refused_for_other_strata():

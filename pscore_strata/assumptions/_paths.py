@@ -61,15 +61,16 @@ class SensitivityPath:
         self.weights, self.groups = data.sample_weight, data.groups
         fits = getattr(estimator, "_repeat_fits", None) or [estimator.nuisance_]
         # One oriented view per fit (it keeps its parameter-free arrays between settings).
-        self.views = [orient(data, nuisance, estimator.monotonicity) for nuisance in fits]
+        stratum = getattr(estimator, "stratum_", "always_survivor")
+        self.views = [orient(data, nuisance, estimator.monotonicity, stratum) for nuisance in fits]
         self._lines = {}
 
     # -- direct evaluation -------------------------------------------------------------------
-    def at(self, delta=0.0, eps=None, xi=0.0):
+    def at(self, delta=0.0, eps=None, xi=0.0, delta_0=0.0):
         """``(effect, std_error, n_clipped)`` at one setting, repeats combined by medians."""
         effects, errors, clipped = [], [], 0
         for o in self.views:
-            parts, n_clipped = self.method.adjusted(o, Setting(delta, eps, xi))
+            parts, n_clipped = self.method.adjusted(o, Setting(delta, eps, xi, delta_0))
             effect, influence = scale_effect(parts, self.estimator.scale)
             effects.append(float(effect))
             errors.append(influence_std_error(influence, self.weights, self.groups))
@@ -124,7 +125,8 @@ class SensitivityPath:
         eps = setting.get("pi_ratio")
         delta = setting.get("pi_difference", 0.0)
         xi = setting.get("harmed_ratio", 0.0)
-        if eps is None and delta != 0:
+        delta_0 = setting.get("pi_difference_doomed", 0.0)
+        if eps is None and delta != 0 and delta_0 == 0:
             effect, std_error, clipped = self.along_delta([delta], xi)
             return float(effect[0]), float(std_error[0]), clipped
-        return self.at(delta, eps, xi)
+        return self.at(delta, eps, xi, delta_0)

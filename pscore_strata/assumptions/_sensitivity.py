@@ -32,7 +32,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._validation import check_level
 from ..estimands._methods import method_of
 from ..estimands._setting import Setting
-from ..estimands._strata import require_always_survivor
+from ..estimands._strata import stratum_role, stratum_words
 from ..estimands._view import orient, scale_effect
 from ..estimators._summary import CAUTIONS
 from ..inference._standard_errors import estimator_dof, normal_interval
@@ -40,18 +40,41 @@ from ._paths import SensitivityPath
 
 __all__ = ["sensitivity_grid", "adjusted_effect"]
 
-NULL_SETTING = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0}
+NULL_SETTING = {"pi_difference": 0.0, "pi_ratio": 1.0, "harmed_ratio": 0.0,
+                "pi_difference_doomed": 0.0}  # fmt: skip
 
 
 def _check_estimator(estimator):
-    """The estimator's method record (:data:`pscore_strata.estimands.METHODS`); it must be
-    fitted for the always-survivor stratum."""
+    """The estimator's method record (:data:`pscore_strata.estimands.METHODS`)."""
     method = method_of(estimator)
     check_is_fitted(estimator, "nuisance_")
-    # The sensitivity formulas relax the always-survivor assumptions only
-    # (docs/guide/derivations/bounds-sensitivity.md).
-    require_always_survivor(estimator, "The sensitivity analysis (sensitivity_grid, tipping_point)")
     return method
+
+
+def _check_relevant(estimator, names):
+    """Refuse a parameter that the fitted stratum's effect does not depend on.
+
+    The always-survivor effect rests on the mixed arm's intermediate-1 cell only; the doomed
+    effect on the pure arm's intermediate-0 cell only; the helped stratum's on both
+    (docs/guide/derivations/strata.md section 7).
+    """
+    stratum = getattr(estimator, "stratum_", "always_survivor")
+    role = stratum_role(stratum, estimator.monotonicity).role
+    words = stratum_words(stratum)
+    for name in names:
+        if role == "doomed" and name in ("pi_difference", "pi_ratio"):
+            raise ValueError(
+                f"`{name}` does not change the {words} effect: it describes the mixed arm's units "
+                "with intermediate 1, and the doomed stratum has none there. Use "
+                "`pi_difference_doomed` (the pure arm's units with intermediate 0) or "
+                "`harmed_ratio`."
+            )
+        if role == "always" and name == "pi_difference_doomed":
+            raise ValueError(
+                "`pi_difference_doomed` does not change the always-survivor effect: it describes "
+                "units with intermediate 0, which the always-survivors never are. Use "
+                "`pi_difference`, `pi_ratio` or `harmed_ratio`."
+            )
 
 
 def _check_value(name, value):
@@ -76,8 +99,16 @@ def _check_value(name, value):
     return value
 
 
-def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None):
-    """SACE and influence values at one setting of the sensitivity parameters.
+def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None,
+                    pi_difference_doomed=None):  # fmt: skip
+    """The fitted stratum's effect and influence values at one setting of the sensitivity
+    parameters (those of :func:`sensitivity_grid`, one value each).
+
+    Parameters
+    ----------
+    estimator : PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust, fitted
+    pi_ratio, pi_difference, harmed_ratio, pi_difference_doomed : float, optional
+        As in :func:`sensitivity_grid`.
 
     Parameters
     ----------
@@ -99,10 +130,16 @@ def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_rati
     """
     method = _check_estimator(estimator)
     _check_one_scale(pi_ratio, pi_difference)
+    given = {"pi_ratio": pi_ratio, "pi_difference": pi_difference, "harmed_ratio": harmed_ratio,
+             "pi_difference_doomed": pi_difference_doomed}  # fmt: skip
+    _check_relevant(estimator, [name for name, value in given.items() if value is not None])
     eps = None if pi_ratio is None else _check_value("pi_ratio", pi_ratio)
     delta = 0.0 if pi_difference is None else _check_value("pi_difference", pi_difference)
     xi = 0.0 if harmed_ratio is None else _check_value("harmed_ratio", harmed_ratio)
-    return _adjusted(method, estimator, estimator.nuisance_, Setting(delta, eps, xi))
+    delta_0 = (0.0 if pi_difference_doomed is None
+               else _check_value("pi_difference_doomed", pi_difference_doomed))  # fmt: skip
+    setting = Setting(delta, eps, xi, delta_0)
+    return _adjusted(method, estimator, estimator.nuisance_, setting)
 
 
 def _check_one_scale(pi_ratio, pi_difference):
@@ -115,7 +152,8 @@ def _check_one_scale(pi_ratio, pi_difference):
 
 def _adjusted(method, estimator, nuisance, setting):
     data = estimator.training_data_
-    o = orient(data, nuisance, estimator.monotonicity)
+    o = orient(data, nuisance, estimator.monotonicity, getattr(estimator, "stratum_",
+                                                               "always_survivor"))
     parts, clipped = method.adjusted(o, setting)
     effect, influence = scale_effect(parts, estimator.scale)
     return float(effect), influence, clipped
@@ -139,20 +177,21 @@ def _effect_and_error(estimator, setting, path=None):
     return path.evaluate(setting)
 
 
-def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
+def _grid_axes(pi_ratio, pi_difference, harmed_ratio, pi_difference_doomed=None):
     given = {
         name: values
         for name, values in (
             ("pi_ratio", pi_ratio),
             ("pi_difference", pi_difference),
             ("harmed_ratio", harmed_ratio),
+            ("pi_difference_doomed", pi_difference_doomed),
         )
         if values is not None
     }
     if not given:
         raise ValueError(
-            "Give at least one of `pi_ratio`, `pi_difference`, `harmed_ratio` or "
-            "`outcome_shift` (a number or a list of values)."
+            "Give at least one of `pi_ratio`, `pi_difference`, `harmed_ratio`, "
+            "`pi_difference_doomed` or `outcome_shift` (a number or a list of values)."
         )
     axes = {}
     for name, values in given.items():
@@ -165,9 +204,16 @@ def _grid_axes(pi_ratio, pi_difference, harmed_ratio):
 
 def sensitivity_grid(
     estimator, *, pi_ratio=None, pi_difference=None, harmed_ratio=None, level=0.95,
-    outcome_shift=None,
+    outcome_shift=None, pi_difference_doomed=None,
 ):  # fmt: skip
-    """SACE over a grid of sensitivity parameters, from a fitted estimator without refitting.
+    """The effect over a grid of sensitivity parameters, from a fitted estimator, no refitting.
+
+    The effect is that of the stratum the estimator was fitted for (``stratum_``; the SACE by
+    default). Each parameter describes one observed cell that mixes two strata, so each
+    stratum's effect depends on some of them only: the always-survivors' on ``pi_difference``
+    (or ``pi_ratio``) and ``harmed_ratio``; the helped (protected or harmed; compliers) on all
+    four; the doomed on ``pi_difference_doomed`` and ``harmed_ratio``. A parameter the effect
+    does not depend on is refused.
 
     Parameters
     ----------
@@ -187,6 +233,11 @@ def sensitivity_grid(
         ``{"treated": [...], "control": [...]}`` sets each arm (columns
         ``outcome_shift_treated``, ``outcome_shift_control``, every combination). Give it
         alone, not with the other parameters.
+    pi_difference_doomed : float or sequence of float, optional
+        Departure from principal ignorability among the pure arm's units with intermediate 0
+        (control, for increasing monotonicity), which mix the helped and the doomed strata:
+        the helped stratum's mean outcome minus the doomed's given X (``0`` = none). For the
+        effects in the helped and doomed strata (outcome measured for everyone).
 
     Returns
     -------
@@ -228,8 +279,9 @@ def sensitivity_grid(
         from ._outcome_shift import outcome_shift_grid
 
         return outcome_shift_grid(estimator, outcome_shift, check_level(level))
-    axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio)
+    axes = _grid_axes(pi_ratio, pi_difference, harmed_ratio, pi_difference_doomed)
     _check_estimator(estimator)
+    _check_relevant(estimator, list(axes))
     path = sensitivity_path(estimator)
     log_scale = estimator.scale != "difference"
     rows = []

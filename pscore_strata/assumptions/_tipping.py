@@ -16,6 +16,7 @@ from ..inference._standard_errors import estimator_dof, normal_interval
 from ._sensitivity import (
     NULL_SETTING,
     _check_estimator,
+    _check_relevant,
     _check_value,
     _effect_and_error,
     sensitivity_path,
@@ -32,7 +33,10 @@ def tipping_point(
     Parameters
     ----------
     estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
-    parameter : {"pi_difference", "pi_ratio", "harmed_ratio"}, default="pi_difference"
+    parameter : {"pi_difference", "pi_ratio", "harmed_ratio", "pi_difference_doomed"}, \
+default="pi_difference"
+        One parameter of :func:`sensitivity_grid` that the fitted stratum's effect depends on
+        (``pi_difference_doomed`` for the helped and doomed strata only).
     criterion : {"interval", "estimate"}, default="interval"
         ``"interval"``: where the confidence interval first covers the null effect (0, or 1
         on ratio scales); ``"estimate"``: where the estimate reaches it.
@@ -40,8 +44,8 @@ def tipping_point(
     search : (float, float), optional
         Range of the parameter to search, ``(low, high)`` around the null value and inside
         the parameter's range; defaults to ``±20`` outcome standard deviations for
-        ``pi_difference``, ``[1/50, 50]`` for ``pi_ratio`` and ``[0, 0.999]`` for
-        ``harmed_ratio``.
+        ``pi_difference`` and ``pi_difference_doomed``, ``[1/50, 50]`` for ``pi_ratio`` and
+        ``[0, 0.999]`` for ``harmed_ratio``.
 
     Returns
     -------
@@ -67,6 +71,7 @@ def tipping_point(
     _check_estimator(estimator)
     if parameter not in NULL_SETTING:
         raise ValueError(f"`parameter` must be one of {list(NULL_SETTING)}; got {parameter!r}.")
+    _check_relevant(estimator, [parameter])
     if criterion not in ("interval", "estimate"):
         raise ValueError(f"`criterion` must be 'interval' or 'estimate'; got {criterion!r}.")
     data = estimator.training_data_
@@ -92,9 +97,13 @@ def tipping_point(
     if distance(null) <= 0:
         return null
     if search is None:
-        spread = float(np.nanstd(data.outcome[data.survival == 1])) or 1.0
+        # The outcomes the fitted stratum's formulas use (survivors' for the always-survivors).
+        used = data.outcome if getattr(estimator, "stratum_", "always_survivor") != (
+            "always_survivor") else data.outcome[data.survival == 1]  # fmt: skip
+        spread = float(np.nanstd(used)) or 1.0
         search = {
             "pi_difference": (-20 * spread, 20 * spread),
+            "pi_difference_doomed": (-20 * spread, 20 * spread),
             "pi_ratio": (1 / 50, 50.0),
             "harmed_ratio": (0.0, 0.999),
         }[parameter]

@@ -68,7 +68,7 @@ def _intermediate_probabilities(X):
 
 def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="increasing",
                       design="observational", exclusion=False, pi_difference=0.0,
-                      n_features=5, noise=1.0, random_state=None):
+                      n_features=5, noise=1.0, random_state=None, pi_difference_doomed=0.0):
     """Simulate a binary intermediate after which the outcome exists, with known stratum effects.
 
     Parameters
@@ -93,13 +93,18 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
     pi_difference : float, default=0.0
         Principal ignorability broken in difference form: the changed stratum's potential
         outcome under the arm in which its intermediate is 1 is shifted by this amount (the
-        truths include the shift). 0 means principal ignorability holds.
+        truths include the shift). 0 means principal ignorability holds there.
     n_features : int, default=5
         Number of covariates, at least 3; only x1, x2, x3 enter the model.
     noise : float, default=1.0
         Standard deviation of the outcome noise.
     random_state : None, int, numpy.random.Generator or numpy.random.RandomState
         Seed or generator. A passed generator is advanced, never copied.
+    pi_difference_doomed : float, default=0.0
+        Principal ignorability broken in the other mixed cell: the changed stratum's potential
+        outcome under the arm in which its intermediate is 0 (where it shares the cell with the
+        doomed) is shifted by this amount, the sensitivity parameter of the same name of
+        :func:`~pscore_strata.sensitivity_grid` (the truths include the shift).
 
     Returns
     -------
@@ -134,6 +139,7 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
     if not isinstance(exclusion, bool | np.bool_):
         raise TypeError(f"exclusion must be True or False; got {exclusion!r}.")
     pi_difference = check_real(pi_difference, "pi_difference")
+    pi_difference_doomed = check_real(pi_difference_doomed, "pi_difference_doomed")
     noise = check_real(noise, "noise", low=0.0)
     rng = resolve_rng(random_state)
     increasing = monotonicity == "increasing"
@@ -156,7 +162,8 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
     constants = dict(_CONSTANTS[(monotonicity, bool(exclusion))])
     changed = labels[1]
     c1, c0 = constants[changed]
-    constants[changed] = (c1 + pi_difference, c0) if increasing else (c1, c0 + pi_difference)
+    constants[changed] = ((c1 + pi_difference, c0 + pi_difference_doomed) if increasing
+                          else (c1 + pi_difference_doomed, c0 + pi_difference))  # fmt: skip
     shift1 = np.array([constants[g][0] for g in labels])[code]
     shift0 = np.array([constants[g][1] for g in labels])[code]
     base = _base(X)
@@ -168,7 +175,7 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
     true_effects = {g: float(constants[g][0] - constants[g][1]) for g in labels}
     params = dict(n_samples=n_samples, stratum=stratum, monotonicity=monotonicity, design=design,
                   exclusion=bool(exclusion), pi_difference=pi_difference, n_features=n_features,
-                  noise=noise)  # fmt: skip
+                  noise=noise, pi_difference_doomed=pi_difference_doomed)  # fmt: skip
     return Bunch(
         X=X, y=y, treatment=treatment, intermediate=intermediate, survival=intermediate,
         stratum=np.asarray(labels, dtype=object)[code].astype(str),
@@ -182,8 +189,9 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
 
 def _describe(params, true_effects):
     exclusion = "holds" if params["exclusion"] else "does not hold"
-    ignorable = "holds" if params["pi_difference"] == 0 else (
-        f"violated (difference {params['pi_difference']:g})")  # fmt: skip
+    shifts = [f"{name} {params[name]:g}" for name in ("pi_difference", "pi_difference_doomed")
+              if params.get(name, 0) != 0]  # fmt: skip
+    ignorable = "holds" if not shifts else f"violated ({', '.join(shifts)})"
     effects = ", ".join(f"{g} {v:g}" for g, v in true_effects.items())
     return (
         f"Simulated intermediate variable (outcome observed for every unit): "

@@ -72,8 +72,8 @@ def weighting_means(o, setting=NULL_SETTING, subset=None, scores=None):
             s = o.stratum.s_mixed if role == "mixed" else o.stratum.s_pure
             own = o.own_probability(role)
             base = ratio(cell, o.cell_probability(role))
-            if role == "mixed" and not st.plain:
-                G, G_pp, G_pm, _ = st.g(Y)
+            if not st.plain(role):
+                G, G_pp, G_pm, _ = st.g(role, Y)
                 normalizer = o.weighted_mean(base * st.e)
                 mu = o.weighted_mean(base * G) / normalizer
                 f = base * G - mu * base * st.e
@@ -106,8 +106,8 @@ def regression_means(o, setting=NULL_SETTING, subset=None, scores=None):
     normalizer = o.weighted_mean(score)
     result = []
     for role, key, m in (("mixed", "m_mixed", o.m_mixed), ("pure", "m_pure", o.m_pure)):
-        if role == "mixed" and not st.plain:
-            G, G_pp, G_pm, G_m = st.g(m)
+        if not st.plain(role):
+            G, G_pp, G_pm, G_m = st.g(role, m)
             mu = o.weighted_mean(_restrict(g, G)) / normalizer
             f = _restrict(g, G) - mu * score
             derivatives = {
@@ -137,18 +137,26 @@ def robust_terms(o, setting=NULL_SETTING, scores=None):
     S_resid = times(st.a, o.residual_mixed) + times(st.b, o.residual_pure)
     phi_e = st.e + S_resid
     Y = o.outcome
-    G, G_pp, G_pm, G_m = st.g(o.m_mixed)
-    phi_mixed = (
-        G + times(G_pp, o.residual_pure) + times(G_pm, o.residual_mixed)
-        + ratio(G_m * o.cell("mixed") * (Y - o.m_mixed), o.cell_probability("mixed"))
-    )  # fmt: skip
+    phi_mixed = _robust_cell(o, st, "mixed", o.m_mixed, Y)
     m = o.m_pure
-    if st.pure_is_cell:
-        observed = ratio(o.cell("pure") * (Y - m), o.arm_probability("pure"))
+    if not st.plain("pure"):
+        phi_pure = _robust_cell(o, st, "pure", m, Y)
     else:
-        observed = ratio(st.e * o.cell("pure") * (Y - m), o.cell_probability("pure"))
-    phi_pure = st.e * m + m * S_resid + observed
+        if st.pure_is_cell:
+            observed = ratio(o.cell("pure") * (Y - m), o.arm_probability("pure"))
+        else:
+            observed = ratio(st.e * o.cell("pure") * (Y - m), o.cell_probability("pure"))
+        phi_pure = st.e * m + m * S_resid + observed
     return phi_e, phi_mixed, phi_pure
+
+
+def _robust_cell(o, st, role, m, Y):
+    """``G + dG/dp_pure r_pure + dG/dp_mixed r_mixed + dG/dm 1{cell} (Y - m) / (P(arm) q)``."""
+    G, G_pp, G_pm, G_m = st.g(role, m)
+    return (
+        G + times(G_pp, o.residual_pure) + times(G_pm, o.residual_mixed)
+        + ratio(G_m * o.cell(role) * (Y - m), o.cell_probability(role))
+    )  # fmt: skip
 
 
 def robust_means(o, setting=NULL_SETTING, subset=None, scores=None):
