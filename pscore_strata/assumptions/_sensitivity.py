@@ -110,17 +110,6 @@ def adjusted_effect(estimator, *, pi_ratio=None, pi_difference=None, harmed_rati
     pi_ratio, pi_difference, harmed_ratio, pi_difference_doomed : float, optional
         As in :func:`sensitivity_grid`.
 
-    Parameters
-    ----------
-    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
-        Its fitted nuisance is read; nothing is refitted.
-    pi_ratio, pi_difference : float, optional
-        Principal ignorability relaxed: the ratio ``eps`` (1: principal ignorability) or the
-        difference ``delta`` (0) of the protected to the always-survivor mean outcome under
-        treatment; give at most one.
-    harmed_ratio : float in [0, 1), optional
-        Monotonicity relaxed: ``xi = e_harmed / e_protected`` (0: monotonicity).
-
     Returns
     -------
     effect : float
