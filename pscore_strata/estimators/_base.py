@@ -184,15 +184,6 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
                 )
             ]  # fmt: skip
-            zero_response = fits[0].missingness is None or (0, 0) in fits[0].missingness[
-                "response"]  # fmt: skip
-            if self._other_stratum() and not zero_response:
-                raise ValueError(
-                    "`nuisance` was fitted without the response models among units with "
-                    f"intermediate 0 that `stratum`={self.stratum!r} needs under "
-                    "missing='at_random'; share the nuisance of a fit for a stratum other than "
-                    "'always_survivor', or drop `nuisance`."
-                )
             if self._uses_outcome_model and self._other_stratum() and (0, 0) not in (
                 fits[0].outcome or {}
             ):

@@ -156,18 +156,35 @@ def missingness_counts(data):
     list of dict
         One record per arm: ``arm``, ``n``, ``n_status_unknown``, ``share_status_unknown``
         (of the arm), ``n_known_survivors``, ``n_outcome_missing`` and
-        ``share_outcome_missing`` (of the known survivors).
+        ``share_outcome_missing`` (of the known survivors); when the outcomes of units with
+        intermediate 0 are used (strata other than the always-survivors), also
+        ``n_known_intermediate_0``, ``n_outcome_missing_intermediate_0`` and
+        ``share_outcome_missing_intermediate_0``.
     """
     w = data.sample_weight
     known = np.ones(data.n_samples, bool) if data.status_known is None else data.status_known == 1
     observed = (
         data.survival == 1 if data.outcome_observed is None else data.outcome_observed == 1
     )
+    # Outcomes of units with intermediate 0 count only when the analysis uses them (another
+    # stratum than the always-survivors: some are observed).
+    zero_outcomes = bool(np.any(observed & (data.survival == 0)))
     records = []
     for arm, label in ((1, "treated"), (0, "control")):
         in_arm = data.treatment == arm
         survivors = in_arm & known & (data.survival == 1)
         missing_outcome = survivors & ~observed
+        if zero_outcomes:
+            zero = in_arm & known & (data.survival == 0)
+            extra = {
+                "n_known_intermediate_0": int(zero.sum()),
+                "n_outcome_missing_intermediate_0": int(np.sum(zero & ~observed)),
+                "share_outcome_missing_intermediate_0": float(
+                    np.sum(w * (zero & ~observed)) / max(np.sum(w * zero), np.finfo(float).tiny)
+                ),
+            }
+        else:
+            extra = {}
         records.append({
             "arm": label,
             "n": int(in_arm.sum()),
@@ -178,6 +195,7 @@ def missingness_counts(data):
             "share_outcome_missing": float(
                 np.sum(w * missing_outcome) / max(np.sum(w * survivors), np.finfo(float).tiny)
             ),
+            **extra,
         })  # fmt: skip
     return records
 
