@@ -15,8 +15,13 @@ machine load:
    fresh process (the first call fits the conditional CDF models, which the later calls reuse:
    the "cold" and "warm" columns).
 
+With ``--repeats R`` every fresh process runs R times (analyze and bare alternating) and the
+tables show the medians (ratios: the median of the per-process ratios), which steadies the
+numbers on a shared machine.
+
 Usage: ``nice -n 5 env OMP_NUM_THREADS=1 python benchmarks/bench_distributions.py``
-       ``[--analyze-sizes 2000 500000] [--library-size 1000000] [--skip-analyze]``
+       ``[--analyze-sizes 2000 500000] [--library-size 1000000] [--repeats 3]``
+       ``[--skip-analyze] [--skip-library] [--skip-grid]``
 """
 
 from __future__ import annotations
@@ -24,10 +29,14 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import re
+import subprocess
 import sys
 import tempfile
 import textwrap
+import time
 from pathlib import Path
+from statistics import median
 
 sys.path.insert(0, str(Path(__file__).parent))
 from bench_analyze import _BARE, _child  # noqa: E402
@@ -106,8 +115,30 @@ def grid_table(n, env):
         print(f"| {name} | {' '.join(label)} | {float(error):.2e} | {float(ratio):.3f} |")
 
 
-def analyze_table(sizes, tmp, env):
-    rows = []
+def _analyze_child(args, env):
+    """``_child`` for ``analyze`` with its progress lines: (seconds, peak MB, {section: s})."""
+    start = time.perf_counter()
+    process = subprocess.Popen(args, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                               text=True)  # fmt: skip
+    _, status, usage = os.wait4(process.pid, 0)  # the output is small: no pipe fills up
+    seconds = time.perf_counter() - start
+    stderr = process.stderr.read()
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise RuntimeError(f"{args[:4]} failed:\n{stderr[-2000:]}")
+    stamps = [(float(m.group(1)), m.group(2)) for m in
+              re.finditer(r"^\[\s*([0-9.]+)s\] (.*?) \.\.\.$", stderr, re.M)]  # fmt: skip
+    # Each section lasts until the next one starts; the last until the process ends (it
+    # includes the interpreter's start-up and shutdown, which the progress clock does not see).
+    ends = [t for t, _ in stamps[1:]] + [seconds]
+    sections = {}
+    for (t, label), end in zip(stamps, ends, strict=True):
+        label = re.sub(r"^reading .*", "reading the data", label)
+        sections[label] = sections.get(label, 0.0) + end - t
+    return seconds, usage.ru_maxrss / 1024, sections
+
+
+def analyze_table(sizes, tmp, env, repeats=1):
+    rows, by_section = [], {}
     for n in sizes:
         csv = Path(tmp) / f"data_{n}.csv"
         # Written by a child: a forked child's peak RSS counts the parent's pages at the fork,
@@ -116,10 +147,17 @@ def analyze_table(sizes, tmp, env):
         command = [sys.executable, "-m", "pscore_strata", "analyze", str(csv), "--outcome",
                    "outcome", "--treatment", "treatment", "--survival", "survival",
                    "--covariates", *[f"x{j}" for j in range(5)],
-                   "--out", str(Path(tmp) / f"report_{n}"), "--quiet"]  # fmt: skip
-        analyze_s, analyze_mb, _ = _child(command, env)
-        bare_s, bare_mb, out = _child([sys.executable, "-c", _BARE, str(csv)], env)
-        bare_inner = float(out.split()[0])  # the read and the fits, without start-up
+                   "--out", str(Path(tmp) / f"report_{n}")]  # fmt: skip
+        runs, section_runs = [], []
+        for _ in range(repeats):  # alternating, so both see the same machine load
+            analyze_s, analyze_mb, sections = _analyze_child(command, env)
+            section_runs.append(sections)
+            bare_s, bare_mb, out = _child([sys.executable, "-c", _BARE, str(csv)], env)
+            # the read and the fits, without start-up
+            runs.append((analyze_s, bare_s, float(out.split()[0]), analyze_mb, bare_mb))
+        analyze_s, bare_s, bare_inner, analyze_mb, bare_mb = map(median, zip(*runs, strict=True))
+        by_section[n] = {label: median(s.get(label, 0.0) for s in section_runs)
+                         for label in section_runs[0]}  # fmt: skip
         results = json.loads((Path(tmp) / f"report_{n}" / "results.json").read_text())
         record = results.get("distributions") or {}
         rows.append((n, analyze_s, bare_s, bare_inner, analyze_mb, bare_mb,
@@ -136,16 +174,25 @@ def analyze_table(sizes, tmp, env):
         proportional = "" if n == n0 else f"{(a - a0) / max(inner - b0, 1e-9):.2f}"
         print(f"| {n:,} | {a:.1f} | {b:.1f} | {inner:.2f} | {a / b:.2f} | {proportional} | "
               f"{mb:.0f} | {bare_mb:.0f} | {'yes' if available else 'NO'} |")  # fmt: skip
-    import numpy as np
+    import numpy as np  # only after the children ran (see above)
 
     ns = np.array([r[0] for r in rows], dtype=float)
     mbs = np.array([r[4] for r in rows])
     slope, intercept = np.polyfit(ns, mbs * 2**20, 1)
     print(f"\npeak RSS = {intercept / 2**20:.0f} MB + {slope:.0f} bytes per row "
           "(least squares over the sizes)")
+    print("\nanalyze by section (seconds from its progress lines; the last size minus the first "
+          "is the section's row-proportional cost)\n")
+    labels = list(by_section[sizes[-1]])
+    print("| section | " + " | ".join(f"{n:,} rows" for n in sizes) + " | last - first |")
+    print("|---|" + "---|" * (len(sizes) + 1))
+    for label in labels:
+        cells = [by_section[n].get(label, 0.0) for n in sizes]
+        print(f"| {label} | " + " | ".join(f"{c:.2f}" for c in cells) +
+              f" | {cells[-1] - cells[0]:.2f} |")  # fmt: skip
 
 
-def library_table(n, env):
+def library_table(n, env, repeats=1):
     print(f"\nlibrary calls at {n:,} rows x 5 covariates (each row of the table: one fresh "
           "process; cold = first call after fit)\n")
     print("| estimator | fit (s) | quantile_effects cold (s) | / fit | survivor_distribution "
@@ -153,14 +200,22 @@ def library_table(n, env):
           "(s) | peak RSS MB |")
     print("|---|---|---|---|---|---|---|---|---|---|")
     for name in ("weighting", "regression", "robust"):
-        out = {}
-        for first in ("quantiles", "distribution"):
-            _, _, stdout = _child([sys.executable, "-c", _LIBRARY, str(n), name, first], env)
-            out[first] = [float(v) for v in stdout.split()]
-        fit_q, q_cold, d_warm, _, peak = out["quantiles"]
-        fit_d, q_warm, d_cold, _, peak_d = out["distribution"]
-        print(f"| {name} | {fit_q:.2f} | {q_cold:.2f} | {q_cold / fit_q:.2f} | {d_warm:.2f} | "
-              f"{d_warm / fit_q:.2f} | {d_cold:.2f} | {d_cold / fit_d:.2f} | {q_warm:.2f} | "
+        out = {first: [] for first in ("quantiles", "distribution")}
+        for _ in range(repeats):
+            for first in out:
+                _, _, stdout = _child([sys.executable, "-c", _LIBRARY, str(n), name, first], env)
+                out[first].append([float(v) for v in stdout.split()])
+        # Median over the repeats of each column (the ratios: of the per-process ratios).
+        runs = out["quantiles"]
+        fit_q, q_cold, d_warm, _, _ = map(median, zip(*runs, strict=True))
+        q_cold_ratio = median(r[1] / r[0] for r in runs)
+        d_warm_ratio = median(r[2] / r[0] for r in runs)
+        fit_d, q_warm, d_cold, _, _ = map(median, zip(*out["distribution"], strict=True))
+        d_cold_ratio = median(r[2] / r[0] for r in out["distribution"])
+        peak = max(r[4] for r in runs)
+        peak_d = max(r[4] for r in out["distribution"])
+        print(f"| {name} | {fit_q:.2f} | {q_cold:.2f} | {q_cold_ratio:.2f} | {d_warm:.2f} | "
+              f"{d_warm_ratio:.2f} | {d_cold:.2f} | {d_cold_ratio:.2f} | {q_warm:.2f} | "
               f"{max(peak, peak_d):.0f} |")  # fmt: skip
 
 
@@ -171,15 +226,19 @@ def main(argv=None):
     parser.add_argument("--library-size", type=int, default=1_000_000)
     parser.add_argument("--skip-analyze", action="store_true")
     parser.add_argument("--skip-library", action="store_true")
+    parser.add_argument("--skip-grid", action="store_true")
+    parser.add_argument("--repeats", type=int, default=1,
+                        help="fresh processes per measurement; the tables show their median")
     args = parser.parse_args(argv)
     env = dict(os.environ)
     print(f"load average at start: {os.getloadavg()[0]:.1f} (2 cores); "
           f"OMP_NUM_THREADS={env.get('OMP_NUM_THREADS', 'unset')}\n")
     with tempfile.TemporaryDirectory() as tmp:
         if not args.skip_analyze:
-            analyze_table(args.analyze_sizes, tmp, env)
+            analyze_table(args.analyze_sizes, tmp, env, args.repeats)
     if not args.skip_library:
-        library_table(args.library_size, env)
+        library_table(args.library_size, env, args.repeats)
+    if not args.skip_grid:
         grid_table(args.library_size, env)
     print(f"\nload average at end: {os.getloadavg()[0]:.1f}")
 

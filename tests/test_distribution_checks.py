@@ -73,3 +73,18 @@ def test_formula_check_refuses_a_mismatch(regression, monkeypatch):
     monkeypatch.setattr(_paths, "formula_cdf", shifted)
     with pytest.raises(RuntimeError, match="Internal check failed"):
         ps.survivor_distribution(est, X=X)
+
+
+def test_regression_influence_folds_the_prediction_into_its_correction(regression):
+    # The prediction's block (score x threshold grid) and the threshold fits' M-estimation
+    # term share their coefficients, so the influence carries one rows x thresholds base; the
+    # values themselves are checked against the per-value path in test_distribution_reference.
+    est, X = regression
+    prepared = _paths.prepare(est, X)
+    width = prepared.conditional.thresholds.size
+    path = _paths.cdf_path(prepared, prepared.conditional.thresholds)
+    for influence in (path.influence_treated, path.influence_control):
+        assert [B.shape[1] for _, B, _ in influence.blocks].count(width) == 1
+    again = _paths.cdf_path(prepared, prepared.conditional.thresholds)
+    np.testing.assert_array_equal(np.asarray(again.influence_treated),
+                                  np.asarray(path.influence_treated))  # fmt: skip

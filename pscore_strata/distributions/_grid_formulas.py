@@ -132,8 +132,9 @@ def weighting_grid(o, indicator, with_influence=True):
 def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
     """:func:`~pscore_strata.estimands._formulas.regression_means` on expanded ``m``.
 
-    ``blends`` maps ``"m_mixed"`` / ``"m_pure"`` to a function giving the conditional CDF
-    fits' correction blocks for a per-row derivative (or to ``None``).
+    ``blends`` maps ``"m_mixed"`` / ``"m_pure"`` to a function of a per-row derivative and
+    the influence blocks that returns those blocks with the conditional CDF fits' correction
+    added (it may fold the prediction's own block into it), or to ``None``.
     """
     always = o.p_pure
     normalizer = o.weighted_mean(always)
@@ -148,7 +149,7 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
         influence = _corrected(o, f, {"p_pure": (1.0, m.plus_outer(np.ones_like(always), -mu))})
         if o.parametric is not None and blends.get(key) is not None:
             influence = Expansion(influence.grid, influence.D,
-                                  influence.blocks + blends[key](always), influence.index)
+                                  blends[key](always, influence.blocks), influence.index)
         result.append((mu, influence.scaled(1 / normalizer)))
     (mu_mixed, if_mixed), (mu_pure, if_pure) = result
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)

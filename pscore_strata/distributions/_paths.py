@@ -206,6 +206,14 @@ def _model_expansion(conditional, grid, arm):
     return Expansion.from_blocks(grid, blocks), coefficients
 
 
+def _add_scaled(out, factor, base, chunk=65_536):
+    """``out += factor[:, None] * base`` in row chunks (no rows x columns temporary)."""
+    column = np.reshape(factor, (-1, 1)) if np.ndim(factor) else np.full((out.shape[0], 1), factor)
+    for start in range(0, out.shape[0], chunk):
+        rows = slice(start, start + chunk)
+        out[rows] += column[rows] * base[rows]
+
+
 def _grid_parts(prepared, grid, with_influence):
     o = prepared.oriented
     indicator = Expansion.indicator(grid, o.survival)
@@ -221,14 +229,22 @@ def _grid_parts(prepared, grid, with_influence):
     if c.parametric is not None:
         for key, arm, coefficients in (("m_mixed", mixed_arm, c_mixed),
                                        ("m_pure", pure_arm, c_pure)):  # fmt: skip
-            def blend(derivative, arm=arm, coefficients=coefficients):
+            def blend(derivative, blocks, arm=arm, coefficients=coefficients):
                 # The interpolated prediction's term: the fits' terms in the same combination.
                 # The derivative (the always-survivor score) is fixed by the nuisance fit and
                 # the direction, so the columns are computed once per conditional CDF model.
-                key = ("corrections", o.increasing, arm)
+                # The prediction's own block (score x grid, the same coefficients) is folded
+                # into them: one rows x thresholds base instead of two in every later product.
+                model = [b for b in blocks if b[1] is c.grid[arm] and b[2] is coefficients]
+                key = ("corrections", o.increasing, arm, len(model) == 1)
                 if key not in c.cache:
-                    c.cache[key] = c.parametric[arm].corrections(derivative, o.weight)
-                return [(1.0, c.cache[key], coefficients)]
+                    base = c.parametric[arm].corrections(derivative, o.weight)
+                    if len(model) == 1:
+                        _add_scaled(base, model[0][0], c.grid[arm])
+                    c.cache[key] = base
+                kept = blocks if len(model) != 1 else [b for b in blocks if b is not model[0]]
+                return kept + [(1.0, c.cache[key], coefficients)]
+
             blends[key] = blend
     return regression_grid(o, m_mixed, m_pure, blends, with_influence)
 

@@ -48,15 +48,21 @@ def _newton(Z, labels, w, start, tol=1e-4, max_iter=100):
     """
     n, q = Z.shape
     beta = start.copy()
+    # Multiplying by unit weights changes no bit, so unweighted data skip it.
+    weights = None if np.all(w == 1) else w
+    blocks = [(Z[first : first + _ROWS], labels[first : first + _ROWS],
+               None if weights is None else weights[first : first + _ROWS])
+              for first in range(0, n, _ROWS)]  # fmt: skip
     for _ in range(max_iter):
         gradient, hessian = np.zeros(q), np.zeros((q, q))
-        for first in range(0, n, _ROWS):
-            block = slice(first, first + _ROWS)
-            Zb, wb = Z[block], w[block]
+        for Zb, yb, wb in blocks:
             p = expit(Zb @ beta)
-            gradient += Zb.T @ (wb * (labels[block] - p))
+            residual = yb - p
             p *= 1 - p
-            p *= wb
+            if wb is not None:
+                residual *= wb
+                p *= wb
+            gradient += Zb.T @ residual
             hessian += (Zb * p[:, None]).T @ Zb
         if not (np.all(np.isfinite(hessian)) and np.linalg.cond(hessian) < 1e12):
             return beta, False
