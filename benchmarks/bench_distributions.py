@@ -55,20 +55,21 @@ _LIBRARY = textwrap.dedent(
     cls = {"weighting": ps.PrincipalScoreWeighting, "regression": ps.OutcomeRegression,
            "robust": ps.MultiplyRobust}[name]
     X = None if name == "weighting" else data.X
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     est = cls().fit(data.X, data.y, treatment=data.treatment, survival=data.survival)
-    fit = time.perf_counter() - start
+    fit, fit_cpu = time.perf_counter() - start, time.process_time() - cpu
     before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     calls = {"quantiles": lambda: ps.quantile_effects(est, X=X),
              "distribution": lambda: ps.survivor_distribution(est, X=X)}
     order = [first] + [k for k in calls if k != first]
-    times = {}
+    times, cpus = {}, {}
     for key in order:
-        start = time.perf_counter()
+        start, cpu = time.perf_counter(), time.process_time()
         calls[key]()
-        times[key] = time.perf_counter() - start
+        times[key], cpus[key] = time.perf_counter() - start, time.process_time() - cpu
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-    print(fit, times["quantiles"], times["distribution"], before, peak)
+    print(fit, times["quantiles"], times["distribution"], before, peak, fit_cpu,
+          cpus["quantiles"], cpus["distribution"])
     """
 )
 
@@ -116,25 +117,26 @@ def grid_table(n, env):
 
 
 def _analyze_child(args, env):
-    """``_child`` for ``analyze`` with its progress lines: (seconds, peak MB, {section: s})."""
+    """``_child`` with the CPU seconds and ``analyze``'s progress lines: (seconds, CPU seconds,
+    peak MB, {section: s}, stdout)."""
     start = time.perf_counter()
     process = subprocess.Popen(args, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                                text=True)  # fmt: skip
     _, status, usage = os.wait4(process.pid, 0)  # the output is small: no pipe fills up
     seconds = time.perf_counter() - start
-    stderr = process.stderr.read()
+    stdout, stderr = process.stdout.read(), process.stderr.read()
     if os.waitstatus_to_exitcode(status) != 0:
         raise RuntimeError(f"{args[:4]} failed:\n{stderr[-2000:]}")
     stamps = [(float(m.group(1)), m.group(2)) for m in
               re.finditer(r"^\[\s*([0-9.]+)s\] (.*?) \.\.\.$", stderr, re.M)]  # fmt: skip
     # Each section lasts until the next one starts; the last until the process ends (it
     # includes the interpreter's start-up and shutdown, which the progress clock does not see).
-    ends = [t for t, _ in stamps[1:]] + [seconds]
+    ends = [t for t, _ in stamps[1:]] + [seconds] if stamps else []
     sections = {}
     for (t, label), end in zip(stamps, ends, strict=True):
         label = re.sub(r"^reading .*", "reading the data", label)
         sections[label] = sections.get(label, 0.0) + end - t
-    return seconds, usage.ru_maxrss / 1024, sections
+    return seconds, usage.ru_utime + usage.ru_stime, usage.ru_maxrss / 1024, sections, stdout
 
 
 def analyze_table(sizes, tmp, env, repeats=1):
@@ -150,18 +152,21 @@ def analyze_table(sizes, tmp, env, repeats=1):
                    "--out", str(Path(tmp) / f"report_{n}")]  # fmt: skip
         runs, section_runs = [], []
         for _ in range(repeats):  # alternating, so both see the same machine load
-            analyze_s, analyze_mb, sections = _analyze_child(command, env)
+            analyze_s, analyze_cpu, analyze_mb, sections, _ = _analyze_child(command, env)
             section_runs.append(sections)
-            bare_s, bare_mb, out = _child([sys.executable, "-c", _BARE, str(csv)], env)
+            bare_s, bare_cpu, bare_mb, _, out = _analyze_child(
+                [sys.executable, "-c", _BARE, str(csv)], env)
             # the read and the fits, without start-up
-            runs.append((analyze_s, bare_s, float(out.split()[0]), analyze_mb, bare_mb))
-        analyze_s, bare_s, bare_inner, analyze_mb, bare_mb = map(median, zip(*runs, strict=True))
+            runs.append((analyze_s, bare_s, float(out.split()[0]), analyze_mb, bare_mb,
+                         analyze_cpu, bare_cpu))
+        (analyze_s, bare_s, bare_inner, analyze_mb, bare_mb, analyze_cpu,
+         bare_cpu) = map(median, zip(*runs, strict=True))
         by_section[n] = {label: median(s.get(label, 0.0) for s in section_runs)
                          for label in section_runs[0]}  # fmt: skip
         results = json.loads((Path(tmp) / f"report_{n}" / "results.json").read_text())
         record = results.get("distributions") or {}
         rows.append((n, analyze_s, bare_s, bare_inner, analyze_mb, bare_mb,
-                     bool(record.get("available"))))
+                     bool(record.get("available")), analyze_cpu, bare_cpu))
         csv.unlink()
     print("analyze end to end (default settings: distributions and quantile bounds included)\n")
     print("| rows | analyze (s) | bare process (s) | bare read + fits, in process (s) | "
@@ -169,11 +174,20 @@ def analyze_table(sizes, tmp, env, repeats=1):
           "distributions |")
     print("|---|---|---|---|---|---|---|---|---|")
     n0, a0, b0 = rows[0][0], rows[0][1], rows[0][3]
-    for n, a, b, inner, mb, bare_mb, available in rows:
+    for n, a, b, inner, mb, bare_mb, available, _, _ in rows:
         # (analyze - analyze at the smallest size) / (read + fits - the same at the smallest)
         proportional = "" if n == n0 else f"{(a - a0) / max(inner - b0, 1e-9):.2f}"
         print(f"| {n:,} | {a:.1f} | {b:.1f} | {inner:.2f} | {a / b:.2f} | {proportional} | "
               f"{mb:.0f} | {bare_mb:.0f} | {'yes' if available else 'NO'} |")  # fmt: skip
+    # CPU seconds of the whole processes: what a shared machine's load changes least.
+    print("\nthe same runs in CPU seconds (user + system of each process; the row-proportional "
+          "ratio subtracts the smallest size from both)\n")
+    print("| rows | analyze CPU (s) | bare CPU (s) | row-proportional CPU ratio |")
+    print("|---|---|---|---|")
+    c0, d0 = rows[0][7], rows[0][8]
+    for n, *_, cpu, bare_cpu in rows:
+        proportional = "" if n == n0 else f"{(cpu - c0) / max(bare_cpu - d0, 1e-9):.2f}"
+        print(f"| {n:,} | {cpu:.1f} | {bare_cpu:.1f} | {proportional} |")
     import numpy as np  # only after the children ran (see above)
 
     ns = np.array([r[0] for r in rows], dtype=float)
@@ -199,6 +213,7 @@ def library_table(n, env, repeats=1):
           "warm (s) | / fit | survivor_distribution cold (s) | / fit | quantile_effects warm "
           "(s) | peak RSS MB |")
     print("|---|---|---|---|---|---|---|---|---|---|")
+    cpu_rows = []
     for name in ("weighting", "regression", "robust"):
         out = {first: [] for first in ("quantiles", "distribution")}
         for _ in range(repeats):
@@ -207,16 +222,27 @@ def library_table(n, env, repeats=1):
                 out[first].append([float(v) for v in stdout.split()])
         # Median over the repeats of each column (the ratios: of the per-process ratios).
         runs = out["quantiles"]
-        fit_q, q_cold, d_warm, _, _ = map(median, zip(*runs, strict=True))
+        fit_q, q_cold, d_warm, *_ = map(median, zip(*runs, strict=True))
         q_cold_ratio = median(r[1] / r[0] for r in runs)
         d_warm_ratio = median(r[2] / r[0] for r in runs)
-        fit_d, q_warm, d_cold, _, _ = map(median, zip(*out["distribution"], strict=True))
+        fit_d, q_warm, d_cold, *_ = map(median, zip(*out["distribution"], strict=True))
         d_cold_ratio = median(r[2] / r[0] for r in out["distribution"])
         peak = max(r[4] for r in runs)
         peak_d = max(r[4] for r in out["distribution"])
+        cpu_rows.append((name, median(r[5] for r in runs),
+                         median(r[6] / r[5] for r in runs), median(r[7] / r[5] for r in runs),
+                         median(r[7] / r[5] for r in out["distribution"]),
+                         median(r[6] / r[5] for r in out["distribution"])))  # fmt: skip
         print(f"| {name} | {fit_q:.2f} | {q_cold:.2f} | {q_cold_ratio:.2f} | {d_warm:.2f} | "
               f"{d_warm_ratio:.2f} | {d_cold:.2f} | {d_cold_ratio:.2f} | {q_warm:.2f} | "
               f"{max(peak, peak_d):.0f} |")  # fmt: skip
+    print("\nthe same calls in CPU seconds (process time; ratios to the same process's fit)\n")
+    print("| estimator | fit CPU (s) | quantile_effects cold / fit | survivor_distribution warm "
+          "/ fit | survivor_distribution cold / fit | quantile_effects warm / fit |")
+    print("|---|---|---|---|---|---|")
+    for name, fit_cpu, q_cold, d_warm, d_cold, q_warm in cpu_rows:
+        print(f"| {name} | {fit_cpu:.2f} | {q_cold:.2f} | {d_warm:.2f} | {d_cold:.2f} | "
+              f"{q_warm:.2f} |")
 
 
 def main(argv=None):

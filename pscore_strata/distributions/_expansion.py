@@ -202,13 +202,19 @@ def expansion_covariance(expansion, sample_weight=None, groups=None):
         a = grid.cumulative(h2 * D * D)
         gram += a[np.minimum.outer(index, index)]
         for f, B, M in blocks:
-            cross = grid.cumulative((h2 * D * f)[:, None] * B)[:, index]  # (m, k)
-            term = cross.T @ M
+            # Column by column: the same products and sums as one rows x m temporary.
+            factor = h2 * D * f
+            cross = np.vstack([grid.cumulative(factor * B[:, j]) for j in range(B.shape[1])])
+            term = cross[:, index].T @ M
             gram += term + term.T
+    # One scratch array for the weighted bases (fresh rows x m arrays cost page faults).
+    scratch = np.empty(n * max((B.shape[1] for _, B, _ in blocks), default=0))
     for a_index, (fa, Ba, Ma) in enumerate(blocks):
         for b_index in range(a_index, len(blocks)):
             fb, Bb, Mb = blocks[b_index]
-            q = Ba.T @ (np.broadcast_to(h2 * fa * fb, h.shape)[:, None] * Bb)
+            weighted = scratch[: Bb.size].reshape(Bb.shape)  # contiguous, as a fresh array
+            np.multiply(np.broadcast_to(h2 * fa * fb, h.shape)[:, None], Bb, out=weighted)
+            q = Ba.T @ weighted
             term = Ma.T @ q @ Mb
             gram += term if b_index == a_index else term + term.T
     mean = expansion.weighted_sum(h) / n

@@ -18,11 +18,12 @@ monotonicity, and the formulas at it are the estimators themselves.
 at 0 where negative, ``e_helped = p_m - e_always``, ``e_doomed = 1 - p_p - e_helped``) and, in
 each of the stratum's cells, the functional ``G(m) = e mu_stratum(X)``, linear in the cell's
 outcome mean ``m``. Under principal ignorability ``G = e m``. In the mixed arm's
-intermediate-1 cell (always-survivors and helped) ``G_always = e m - delta e e_h / p_m`` or
-``e m p_m / (e + eps e_h)`` (``e_h = (p_m - p_p)/(1 - xi)``), and ``G_helped = p_m m -
-G_always`` (the two strata's means average to the cell's mean); in the pure arm's
-intermediate-0 cell (helped and doomed) ``G_helped = e_h m + delta_0 e_h e_d / (1 - p_p)`` and
-``G_doomed = (1 - p_p) m - G_helped``.
+intermediate-1 cell (always-survivors and helped) ``G_always = e_a m - delta e_a e_h / p_m``
+or ``e_a m p_m / (e_a + eps e_h)`` (``e_h = (p_m - p_p)/(1 - xi)``), and ``G_helped = e_h m +
+delta e_a e_h / p_m`` or ``eps e_h m p_m / (e_a + eps e_h)`` (the two strata's means average to
+the cell's mean); in the pure arm's intermediate-0 cell (helped and doomed)
+``G_helped = e_h m + delta_0 e_h e_d / (1 - p_p)`` and ``G_doomed = e_d m - delta_0 e_h e_d /
+(1 - p_p)``.
 """
 
 from __future__ import annotations
@@ -125,12 +126,7 @@ class Scores:
         if self.plain(role):
             return self.e * m, times(self.b, m), times(self.a, m), self.e
         if role == "mixed":
-            G, G_pp, G_pm, G_m = self._always_mixed(m)
-            if self.role == "always":
-                return G, G_pp, G_pm, G_m
-            # The helped stratum's functional: the cell's total minus the always-survivors'.
-            p_m = self.o.p_mixed
-            return p_m * m - G, -G_pp, m - G_pm, p_m - G_m
+            return self._always_mixed(m) if self.role == "always" else self._helped_mixed(m)
         return self._zero_cell(m)
 
     def _always_mixed(self, m):
@@ -153,19 +149,35 @@ class Scores:
         shift_pm = (a_m * e_h + e_a * h) / p_m - shift / p_m
         return e_a * m - delta * shift, a_p * m - delta * shift_pp, a_m * m - delta * shift_pm, e_a
 
-    def _zero_cell(self, m):
-        """The helped or doomed stratum's functional in the pure arm's intermediate-0 cell."""
+    def _helped_mixed(self, m):
+        """The helped stratum's functional in the mixed arm's intermediate-1 cell: its mean is
+        the always-survivors' plus ``delta`` (times ``eps`` on the ratio scale)."""
         e_a, a_a, b_a = self.always
-        p_m, p_p = self.o.p_mixed, self.o.p_pure
-        e_h, a_h, b_h = p_m - e_a, 1 - a_a, -b_a
-        e_d, a_d, b_d = 1 - p_p - e_h, -a_h, -1 - b_h
-        u = 1 - p_p
-        delta = self.setting.pi_difference_doomed
-        shift = e_h * e_d / u
-        shift_pp = (b_h * e_d + e_h * b_d) / u + shift / u
-        shift_pm = (a_h * e_d + e_h * a_d) / u
-        G, G_pp, G_pm, G_m = (e_h * m + delta * shift, b_h * m + delta * shift_pp,
-                              a_h * m + delta * shift_pm, e_h)  # fmt: skip
-        if self.role == "changed":
-            return G, G_pp, G_pm, G_m
-        return u * m - G, -m - G_pp, -G_pm, u - G_m
+        e_h, a_h, b_h = self.e, self.a, self.b
+        p_m = self.o.p_mixed
+        if self.setting.pi_ratio is not None:
+            eps = self.setting.pi_ratio
+            denominator = e_a + eps * e_h
+            d_pp, d_pm = b_a + eps * b_h, a_a + eps * a_h
+            k = eps * e_h * p_m / denominator
+            k_pp = eps * p_m * (b_h * denominator - e_h * d_pp) / denominator**2
+            k_pm = eps * ((a_h * p_m + e_h) * denominator - e_h * p_m * d_pm) / denominator**2
+            return k * m, k_pp * m, k_pm * m, k
+        delta = self.setting.pi_difference
+        shift = e_a * e_h / p_m
+        shift_pp = (b_a * e_h + e_a * b_h) / p_m
+        shift_pm = (a_a * e_h + e_a * a_h) / p_m - shift / p_m
+        return e_h * m + delta * shift, b_h * m + delta * shift_pp, a_h * m + delta * shift_pm, e_h
+
+    def _zero_cell(self, m):
+        """The helped or doomed stratum's functional in the pure arm's intermediate-0 cell,
+        which the two share: the helped mean is the doomed's plus ``delta_0``."""
+        u = 1 - self.o.p_pure
+        e_t, a_t, b_t = self.e, self.a, self.b  # the target stratum (clipped under xi)
+        e_o, a_o, b_o = u - e_t, -a_t, -1 - b_t  # the other stratum of the cell
+        sign = 1.0 if self.role == "changed" else -1.0
+        delta = sign * self.setting.pi_difference_doomed
+        shift = e_t * e_o / u
+        shift_pp = (b_t * e_o + e_t * b_o) / u + shift / u
+        shift_pm = (a_t * e_o + e_t * a_o) / u
+        return e_t * m + delta * shift, b_t * m + delta * shift_pp, a_t * m + delta * shift_pm, e_t
