@@ -17,6 +17,7 @@ from joblib import delayed
 from sklearn.base import clone
 
 from .._validation import check_choice, check_level, intermediate_alias
+from .._warnings import warn_at_caller
 from ..tables import SummaryTable
 from ._display import BootstrapDisplay
 from ._failures import _check_failures, failure_reasons
@@ -150,7 +151,7 @@ def bootstrap(
                 "The influence values ignore the estimation of the nuisance models, and so do "
                 "these replicates; use method='resample' for an interval that accounts for it."
             )
-            warnings.warn(notes[-1], UserWarning, stacklevel=2)
+            warn_at_caller(notes[-1], UserWarning)
     else:
         size = -(-n_resamples // _RESAMPLE_TASKS)
         blocks = [seeds[i : i + size] for i in range(0, n_resamples, size)]

@@ -20,6 +20,7 @@ from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted
 
 from .._arguments import positional_still_accepted
+from .._warnings import warn_at_caller
 from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
@@ -201,7 +202,7 @@ class PrincipalScoreModel(BaseEstimator):
         else:
             self._fit_em(X, allowed, weights)
         if not self.converged_ and self.estimator is not None:
-            warnings.warn(
+            warn_at_caller(
                 f"PrincipalScoreModel's EM fit did not settle in max_iter={self.max_iter} "
                 f"iterations: the observed-data log-likelihood still rose by more than "
                 f"tol={self.tol} (relative) within the last {_EM_PATIENCE} iterations. The "
@@ -209,18 +210,14 @@ class PrincipalScoreModel(BaseEstimator):
                 "`max_iter`, loosen `tol`, or regularize the classifier (fewer or shallower "
                 "trees, larger leaves); a learner that keeps fitting the posteriors more "
                 "closely overfits them.",
-                ConvergenceWarning,
-                stacklevel=2,
-            )
+                ConvergenceWarning)
         elif not self.converged_:
-            warnings.warn(
+            warn_at_caller(
                 f"PrincipalScoreModel did not converge in max_iter={self.max_iter} iterations "
                 f"(tol={self.tol}). Increase `max_iter`, loosen `tol`, or simplify the covariates; "
                 "a stratum with almost no units (for example no helped units anywhere) also "
                 "drives its coefficients towards infinity.",
-                ConvergenceWarning,
-                stacklevel=2,
-            )
+                ConvergenceWarning)
         return self
 
     @property
