@@ -61,9 +61,16 @@ class NuisanceFit:
     models : dict
         Fitted models (a list per arm: one per fold when cross-fitted), for predictions on new
         rows.
+    cross_fitted : bool
+        Whether the predictions are cross-fitted (``n_folds``).
+    missingness : dict or None
+        With ``missing="at_random"`` and missing data: the follow-up and response
+        probabilities per row.
     settings : dict or None
         The rows and model settings of the fit, so that another estimator can reuse it
         (``fit(..., nuisance=est.nuisance_)``) and refuse it when they differ.
+    separation : list
+        The separated binary models found at fit (messages; empty when none).
     """
 
     treatment_probability: np.ndarray
@@ -133,6 +140,11 @@ def fit_nuisance(
         Also fit the outcome model among each arm's units with intermediate 0 (stored under
         ``outcome[(arm, 0)]`` and ``models[("outcome", arm, 0)]``): the strata other than the
         always-survivors need ``E[Y | T=t, S=0, X]`` (docs/guide/derivations/strata.md).
+
+    Returns
+    -------
+    NuisanceFit
+        Per-row predictions and the fitted models (with the sandwich pieces when built).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight

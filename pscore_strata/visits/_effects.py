@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 from sklearn.base import clone
 
+from .._results import POINT, identification_of
 from .._validation import check_choice, check_level
 from .._warnings import warn_at_caller
 from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
@@ -225,7 +226,7 @@ def _fit_visits(template, X, columns, labels, treatment, sample_weight, groups):
                                           sample_weight=sample_weight, groups=groups)  # fmt: skip
             except (ValueError, TypeError) as exc:
                 raise type(exc)(f"At visit {label!r}: {exc}") from exc
-        if not (hasattr(fit, "effect_") and hasattr(fit, "influence_")):
+        if identification_of(fit) != POINT or not hasattr(fit, "influence_"):
             raise TypeError(
                 f"`estimator` ({type(template).__name__}) has no `effect_` and `influence_` after "
                 "fit; visit_effects needs a point estimator of the SACE (bounds are not "
