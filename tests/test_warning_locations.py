@@ -60,3 +60,13 @@ def test_a_warning_from_the_nuisance_layer_points_at_this_file():
     assert caught
     for w in caught:
         assert w.filename == __file__, (w.category.__name__, w.filename)
+
+
+def test_every_library_warning_goes_through_warn_at_caller():
+    # Convention (pscore_strata/_warnings.py): a fixed stacklevel points into the library when
+    # the call path changes, so no module calls warnings.warn itself.
+    import pathlib
+
+    offenders = [str(path) for path in pathlib.Path(PACKAGE).rglob("*.py")
+                 if path.name != "_warnings.py" and "warnings.warn(" in path.read_text()]  # fmt: skip
+    assert not offenders, offenders
