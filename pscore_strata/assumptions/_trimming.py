@@ -4,12 +4,12 @@ their influence values (Zhang & Rubin 2003; Lee 2009; derivation in the class do
 
 from __future__ import annotations
 
-import warnings
 from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
 
+from .._warnings import warn_at_caller
 from ..estimands._view import ratio
 from ..exceptions import MonotonicityWarning
 from ..inference._standard_errors import imbens_manski_critical_value, influence_std_error
@@ -217,11 +217,9 @@ def trimming_bounds(o, labels, data):
     fitted.n_features_in_ = data.n_features
     fitted.binary_outcome_ = data.binary_outcome
     if n_clipped:
-        warnings.warn(
+        warn_at_caller(
             f"In {n_clipped} cell(s) the {'treated' if o.increasing else 'control'} arm "
             "survives less than the other arm, contradicting the monotonicity assumption; "
             "no trimming was done there (always-survivor share set to 1).",
-            MonotonicityWarning,
-            stacklevel=3,
-        )
+            MonotonicityWarning)
     return vars(fitted)

@@ -7,7 +7,6 @@ model.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import replace
 
 import numpy as np
@@ -18,6 +17,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._features import feature_fingerprint
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
+from .._warnings import warn_at_caller
 from ..estimands._methods import method_of
 from ..estimands._strata import needs_zero_cells, resolve_stratum
 from ..estimands._view import orient, scale_effect
@@ -208,7 +208,7 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         self.feature_fingerprint_ = feature_fingerprint(X) if data.n_features else None
         message = few_outcomes_message(data)
         if message:
-            warnings.warn(message, FewOutcomesWarning, stacklevel=2)
+            warn_at_caller(message, FewOutcomesWarning)
         self.n_clusters_ = n_clusters
         if self.std_error_method_ == "bootstrap":
             bootstrap_std_errors(self, data)

@@ -17,6 +17,7 @@ from joblib import delayed
 from sklearn.base import clone
 
 from .._validation import check_choice, intermediate_alias
+from .._warnings import warn_at_caller
 from ._failures import _check_failures, failure_reasons
 from ._intervals import influence_acceleration
 from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
@@ -153,7 +154,7 @@ def bootstrap(
                 "The influence values ignore the estimation of the nuisance models, and so do "
                 "these replicates; use method='resample' for an interval that accounts for it."
             )
-            warnings.warn(notes[-1], UserWarning, stacklevel=2)
+            warn_at_caller(notes[-1], UserWarning)
     else:
         size = -(-n_resamples // _RESAMPLE_TASKS)
         blocks = [seeds[i : i + size] for i in range(0, n_resamples, size)]

@@ -8,13 +8,12 @@ intervals use a t reference with ``G - 1`` degrees of freedom.
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
 from .._validation import check_level
+from .._warnings import warn_at_caller
 from ..exceptions import FewClustersWarning
 
 __all__ = [
@@ -42,14 +41,12 @@ def count_clusters(groups, stacklevel=3):
         return None
     n_clusters = int(pd.unique(np.asarray(groups)).size)
     if n_clusters < FEW_CLUSTERS:
-        warnings.warn(
+        warn_at_caller(
             f"Only {n_clusters} clusters in `groups` (fewer than {FEW_CLUSTERS}): the "
             "cluster-robust standard error is imprecise, so confidence intervals use a t "
             f"reference with {n_clusters - 1} degrees of freedom (G - 1) instead of the normal. "
             "Even so they may undercover with very few clusters; treat them with caution.",
-            FewClustersWarning,
-            stacklevel=stacklevel,
-        )
+            FewClustersWarning)
     return n_clusters
 
 

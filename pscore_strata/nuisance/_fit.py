@@ -8,7 +8,6 @@ Notation: ``pi(X) = P(T=1|X)``, ``p_t(X) = P(S=1|T=t,X)``, ``m_t(X) = E[Y|T=t,S=
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -16,6 +15,7 @@ from sklearn.base import is_classifier
 from sklearn.model_selection import StratifiedKFold
 
 from .._validation import EXTREME_PROBABILITY
+from .._warnings import warn_at_caller
 from ..exceptions import MonotonicityWarning, OverlapWarning, SeparationWarning
 from ._missing import fit_missingness
 from ._models import (
@@ -299,10 +299,8 @@ def _warn_extremes(pi, survival, known_probability):
                 f"{'treatment' if arm else 'control'} below {low}"
             )
     if messages:
-        warnings.warn(
+        warn_at_caller(
             "; ".join(messages)
             + ". Weights built from them are unstable: check overlap, simplify or regularize the "
             "models, or restrict the population.",
-            OverlapWarning,
-            stacklevel=3,
-        )
+            OverlapWarning)

@@ -24,8 +24,6 @@ influence function of the multiply robust estimator); :func:`sandwich_reason` sa
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 from sklearn.compose import ColumnTransformer
 from sklearn.linear_model import LinearRegression, LogisticRegression
@@ -40,6 +38,7 @@ from sklearn.preprocessing import (
     StandardScaler,
 )
 
+from .._warnings import warn_at_caller
 from ..exceptions import LooseFitWarning
 from ._mixture import stratum_pieces
 from ._models import ParametricFit
@@ -195,14 +194,12 @@ def parametric_piece(design, mask, target, prediction, slope, weights, *, check_
         size = np.sqrt(np.abs(np.diag(info)))
         moved = float(np.max(np.abs(step * size)))
         if moved > _LOOSE_STEP:
-            warnings.warn(
+            warn_at_caller(
                 f"The {role} stopped before the root of its score equations (one more Newton "
                 f"step would move its standardized coefficients by {moved:.1e}). "
                 "The sandwich standard error uses its predictions as fitted; tighten `tol` "
                 "(or use solver='newton-cholesky') for an exact maximum-likelihood fit.",
-                LooseFitWarning,
-                stacklevel=4,
-            )
+                LooseFitWarning)
     # The mask stays boolean (one byte a row) and a constant slope a scalar: the correction
     # only multiplies by them.
     return ParametricFit(design=design, mask=mask, residual=residual, slope=slope,

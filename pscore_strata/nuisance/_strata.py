@@ -20,6 +20,7 @@ from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted
 
 from .._arguments import positional_still_accepted
+from .._warnings import warn_at_caller
 from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
@@ -202,8 +203,7 @@ class PrincipalScoreModel(BaseEstimator):
         else:
             self._fit_em(X, allowed, weights)
         if not self.converged_:
-            warnings.warn(not_converged_message(self, _EM_PATIENCE), ConvergenceWarning,
-                          stacklevel=3)  # fmt: skip
+            warn_at_caller(not_converged_message(self, _EM_PATIENCE), ConvergenceWarning)
         return self
 
     @property

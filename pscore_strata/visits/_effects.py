@@ -16,6 +16,7 @@ from sklearn.base import clone
 
 from .._results import POINT, identification_of
 from .._validation import check_choice, check_level
+from .._warnings import warn_at_caller
 from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
 from ..inference import normal_interval
 from ..inference._standard_errors import reference_dof
@@ -244,7 +245,7 @@ def _warn_once(caught):
         seen.setdefault((record.category, str(record.message)), []).append(label)
     for (category, message), labels in seen.items():
         where = ", ".join(repr(v) for v in labels)
-        warnings.warn(f"At visit(s) {where}: {message}", category, stacklevel=4)
+        warn_at_caller(f"At visit(s) {where}: {message}", category)
 
 
 def _table(visits, fits, estimate, std_error, critical, level, log_scale, dof):
