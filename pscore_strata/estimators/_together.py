@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from ._estimators import MultiplyRobust, OutcomeRegression, PrincipalScoreWeighting
+from ..estimands._methods import METHODS
+from . import _estimators
 
 __all__ = ["fit_estimators"]
 
@@ -63,22 +64,31 @@ random_state
     >>> fits["weighting"].std_error_method_
     'sandwich'
     """
-    common = dict(covariates=covariates, treatment_model=treatment_model,
-                  survival_model=survival_model, monotonicity=monotonicity, stratum=stratum,
-                  scale=scale, n_folds=n_folds, n_bootstrap=n_bootstrap,
-                  random_state=random_state, n_jobs=n_jobs, missing=missing,
-                  response_model=response_model, follow_up_model=follow_up_model)  # fmt: skip
+    given = dict(covariates=covariates, treatment_model=treatment_model,
+                 survival_model=survival_model, outcome_model=outcome_model,
+                 monotonicity=monotonicity, stratum=stratum, scale=scale, n_folds=n_folds,
+                 n_bootstrap=n_bootstrap, random_state=random_state, n_jobs=n_jobs,
+                 missing=missing, response_model=response_model,
+                 follow_up_model=follow_up_model)  # fmt: skip
     arguments = dict(treatment=treatment, survival=survival, intermediate=intermediate,
                      sample_weight=sample_weight, groups=groups)  # fmt: skip
-    robust = MultiplyRobust(outcome_model=outcome_model, n_repeats=n_repeats, **common)
-    robust.fit(X, y, **arguments)
-    # Every repeat's models (one fit without n_repeats): the other two take medians over them.
-    shared = robust._repeat_fits if len(robust._repeat_fits) > 1 else robust.nuisance_
-    regression = OutcomeRegression(outcome_model=outcome_model, **common)
-    weighting = PrincipalScoreWeighting(**common)
-    for estimator in (regression, weighting):
+    # Every method of the registry; the one that reads the most models (the outcome models,
+    # with an orthogonal formula) fits them, the others share its fit.
+    methods = sorted(METHODS.values(), key=lambda m: (not m.uses_outcome_model, not m.orthogonal))
+    estimators = {}
+    for method in methods:
+        cls = getattr(_estimators, method.estimator)
+        names = cls._get_param_names()
+        estimators[method.name] = cls(**{k: v for k, v in given.items() if k in names})
+    first = estimators[methods[0].name]
+    first.set_params(n_repeats=n_repeats)
+    first.fit(X, y, **arguments)
+    # Every repeat's models (one fit without n_repeats): the others take medians over them.
+    shared = first._repeat_fits if len(first._repeat_fits) > 1 else first.nuisance_
+    for method in methods[1:]:
+        estimator = estimators[method.name]
         if covariates is not None:
             # The design learned by the first fit, applied (not learned again) by the others.
-            estimator._given_design = robust.design_
+            estimator._given_design = first.design_
         estimator.fit(X, y, nuisance=shared, **arguments)
-    return {"weighting": weighting, "regression": regression, "robust": robust}
+    return {name: estimators[name] for name in METHODS}
