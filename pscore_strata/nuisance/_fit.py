@@ -8,7 +8,6 @@ Notation: ``pi(X) = P(T=1|X)``, ``p_t(X) = P(S=1|T=t,X)``, ``m_t(X) = E[Y|T=t,S=
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -16,6 +15,7 @@ from sklearn.base import is_classifier
 from sklearn.model_selection import StratifiedKFold
 
 from .._validation import EXTREME_PROBABILITY
+from .._warnings import warn_at_caller
 from ..exceptions import MonotonicityWarning, OverlapWarning, SeparationWarning
 from ._missing import fit_missingness
 from ._models import (
@@ -61,9 +61,16 @@ class NuisanceFit:
     models : dict
         Fitted models (a list per arm: one per fold when cross-fitted), for predictions on new
         rows.
+    cross_fitted : bool
+        Whether the predictions are cross-fitted (``n_folds``).
+    missingness : dict or None
+        With ``missing="at_random"`` and missing data: the follow-up and response
+        probabilities per row.
     settings : dict or None
         The rows and model settings of the fit, so that another estimator can reuse it
         (``fit(..., nuisance=est.nuisance_)``) and refuse it when they differ.
+    separation : list
+        The separated binary models found at fit (messages; empty when none).
     """
 
     treatment_probability: np.ndarray
@@ -133,6 +140,11 @@ def fit_nuisance(
         Also fit the outcome model among each arm's units with intermediate 0 (stored under
         ``outcome[(arm, 0)]`` and ``models[("outcome", arm, 0)]``): the strata other than the
         always-survivors need ``E[Y | T=t, S=0, X]`` (docs/guide/derivations/strata.md).
+
+    Returns
+    -------
+    NuisanceFit
+        Per-row predictions and the fitted models (with the sandwich pieces when built).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -140,7 +152,9 @@ def fit_nuisance(
     X = data.X
     coarsened = data.status_known is not None
     known = data.status_known == 1 if coarsened else np.ones(n, bool)
-    observed = data.outcome_observed == 1 if coarsened else S == 1
+    # Observed outcomes; under missing data with every stratum's outcome (zero_cells) they
+    # include units with intermediate 0, so each cell's fit takes its own rows.
+    observed = data.outcome_observed == 1 if coarsened else np.ones(n, bool)
     known_probability = isinstance(treatment_model, int | float) and not isinstance(
         treatment_model, bool
     )
@@ -178,11 +192,13 @@ def fit_nuisance(
     survival = {0: np.empty(n), 1: np.empty(n)}
     outcome = {0: np.empty(n), 1: np.empty(n)} if fit_outcome else None
     fitted = {"treatment": [], ("survival", 0): [], ("survival", 1): []}
-    zero_cells = zero_cells and fit_outcome
+    # The outcome models of units with intermediate 0 (the response models of those units are
+    # fitted below whenever the stratum uses them, also for weighting).
+    zero_outcomes = zero_cells and fit_outcome
     if fit_outcome:
         fitted[("outcome", 0)] = []
         fitted[("outcome", 1)] = []
-    if zero_cells:
+    if zero_outcomes:
         for arm in (0, 1):
             outcome[(arm, 0)] = np.empty(n)
             fitted[("outcome", arm, 0)] = []
@@ -212,13 +228,13 @@ def fit_nuisance(
                 )
                 fitted[("survival", arm)].append(model)
             if fit_outcome:
-                rows = arm_rows[observed[arm_rows]]
+                rows = arm_rows[observed[arm_rows] & (S[arm_rows] == 1)]
                 model, outcome[arm][test] = fit_predict(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
                 fitted[("outcome", arm)].append(model)
-            if zero_cells:
-                rows = arm_rows[S[arm_rows] == 0]
+            if zero_outcomes:
+                rows = arm_rows[(S[arm_rows] == 0) & known[arm_rows] & observed[arm_rows]]
                 model, outcome[(arm, 0)][test] = fit_predict(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
@@ -254,6 +270,7 @@ def fit_nuisance(
             splits,
             numeric_design(X) if pieces else None,
             parametric_piece if pieces else None,
+            zero_cells=zero_cells,
         )
         fitted.update(missing_models)
         result.missingness = missingness
@@ -282,10 +299,8 @@ def _warn_extremes(pi, survival, known_probability):
                 f"{'treatment' if arm else 'control'} below {low}"
             )
     if messages:
-        warnings.warn(
+        warn_at_caller(
             "; ".join(messages)
             + ". Weights built from them are unstable: check overlap, simplify or regularize the "
             "models, or restrict the population.",
-            OverlapWarning,
-            stacklevel=3,
-        )
+            OverlapWarning)

@@ -18,7 +18,8 @@ import numpy as np
 from sklearn.base import is_classifier
 
 from ._fit import NuisanceFit
-from ._missing import _cells
+from ._missing import model_cells
+from ._missing import model_key as missing_model_key
 from ._sandwich import build_parametric, parametric_piece, response_glm
 
 __all__ = ["record_settings", "shared_nuisance", "model_key"]
@@ -89,8 +90,11 @@ def _differs(name, fitted, wanted):
 
 
 def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_enters=True,
-                    n_repeats=1):  # fmt: skip
+                    n_repeats=1, fold_seed=None):  # fmt: skip
     """Check a previously fitted nuisance against ``owner`` and these data; adapt its sandwich.
+
+    ``fold_seed``: the fold-split seed the fit must have been made with (one repeat's seed, when
+    the fits of several cross-fitting repeats are shared); ``None``: ``owner.random_state``.
 
     Returns the nuisance to use: the same predictions and models, with the sandwich pieces
     ``owner`` would have built itself (rebuilt from the fitted models, or none).
@@ -150,7 +154,9 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
     n_folds = getattr(owner, "n_folds", None)
     if settings["n_folds"] != n_folds:
         problems.append(_differs("n_folds", settings["n_folds"], n_folds))
-    elif n_folds is not None and settings["random_state"] != _state_key(owner.random_state):
+    elif n_folds is not None and settings["random_state"] != _state_key(
+        owner.random_state if fold_seed is None else fold_seed
+    ):
         problems.append(
             _differs("random_state (fold split)", settings["random_state"], owner.random_state)
         )
@@ -195,12 +201,13 @@ def _missing_pieces(data, nuisance, response_model, follow_up_model=None):
         return None
     design = None if data.X is None else np.asarray(data.X, dtype=float)
     pieces = {}
-    for key in nuisance.models:
-        if not (isinstance(key, tuple) and key[0] in ("follow_up", "response")):
+    cells = model_cells(data, zero_cells=("response", 1, 0) in nuisance.models
+                        or ("response", 0, 0) in nuisance.models)  # fmt: skip
+    for (kind, cell), (mask, target) in cells.items():
+        key = missing_model_key(kind, cell)
+        if key not in nuisance.models:
             continue
-        kind, arm = key
-        mask, target = _cells(data, arm)[kind]
-        values = nuisance.missingness[kind][arm]
+        values = nuisance.missingness[kind][cell]
         pieces[key] = parametric_piece(design, mask, target, values, values * (1 - values),
                                        data.sample_weight)  # fmt: skip
     return pieces
