@@ -214,3 +214,26 @@ def test_manuscript_results_table_names_the_stratum(complier):
     assert "Effect in the complier (protected) stratum" in groups
     assert "Survivor average causal effect" not in groups
     assert table.footnote[0].startswith("Effect: the mean difference in lwage")
+
+
+def test_missing_outcomes_at_random(card, tmp_path):
+    # Source: the same estimator through the Python API; 12% of the wages blanked at random
+    # (invented) so that units with intermediate 0 lack outcomes too.
+    frame, _ = card
+    blanked = frame.assign(
+        lwage=frame["lwage"].mask(np.random.default_rng(3).random(len(frame)) < 0.12)
+    )
+    path = tmp_path / "card_missing.csv"
+    blanked.to_csv(path, index=False)
+    code = main(["analyze", str(path), "--outcome", "lwage", "--treatment", "nearc4",
+                 "--intermediate", "college", "--survived-value", "degree", "--covariates",
+                 *COVARIATES, "--stratum", "never_taker", "--missing", "at_random", "--quiet",
+                 "--out", str(tmp_path / "o")])  # fmt: skip
+    assert code == 0
+    results = json.loads((tmp_path / "o" / "results.json").read_text())
+    S = (blanked["educ"] >= 16).astype(int)
+    est = ps.MultiplyRobust(stratum="never_taker", missing="at_random").fit(
+        blanked[COVARIATES].astype(float), blanked["lwage"], treatment=blanked["nearc4"],
+        intermediate=S)  # fmt: skip
+    _check_against_api(results, est)
+    jsonschema.validate(results, report.schema())
