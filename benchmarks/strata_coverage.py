@@ -8,8 +8,12 @@ its Monte Carlo standard error), Monte Carlo
 SD, mean standard error, SE/SD and coverage of the 95% interval. The last block compares the
 complier estimates with two-stage least squares under the exclusion restriction.
 
-Usage: ``python benchmarks/strata_coverage.py [n_reps] [n_samples]`` (default 300 replicates of
-2,000 rows; ``--quick``: 30).
+With ``--missing`` it runs the protected and doomed scenarios with loss to follow-up and outcome
+non-response missing at random given X (``make_intermediate(follow_up=, response=)``) and the
+estimators fitted with ``missing="at_random"`` instead.
+
+Usage: ``python benchmarks/strata_coverage.py [n_reps] [n_samples] [--missing]`` (default 300
+replicates of 2,000 rows; ``--quick``: 30).
 """
 
 import sys
@@ -30,8 +34,11 @@ CASES = {
 }
 
 
-def _estimators(monotonicity, stratum):
-    common = dict(monotonicity=monotonicity, stratum=stratum)
+MISSING = dict(follow_up=(0.85, 0.6), response=(0.8, -0.7))
+
+
+def _estimators(monotonicity, stratum, **extra):
+    common = dict(monotonicity=monotonicity, stratum=stratum, **extra)
     return {
         "weighting": ps.PrincipalScoreWeighting(**common),
         "regression": ps.OutcomeRegression(**common),
@@ -39,11 +46,24 @@ def _estimators(monotonicity, stratum):
     }
 
 
-def coverage_table(reps, n):
+def _missing_scenario(stratum):
+    def simulate(n_samples, random_state):
+        return ps.datasets.make_intermediate(n_samples, stratum=stratum,
+                                             random_state=random_state, **MISSING)  # fmt: skip
+
+    simulate.__name__ = f"intermediate_{stratum}_missing"
+    return simulate
+
+
+def coverage_table(reps, n, missing=False):
     parts = []
-    for scenario, (monotonicity, stratum) in CASES.items():
-        results = ps.simulation.run_study(_estimators(monotonicity, stratum), [scenario], n,
-                                          n_reps=reps, random_state=2025, n_jobs=1)  # fmt: skip
+    cases = CASES if not missing else {
+        _missing_scenario(s): ("increasing", s) for s in ("protected", "doomed")}
+    for scenario, (monotonicity, stratum) in cases.items():
+        extra = {"missing": "at_random"} if missing else {}
+        results = ps.simulation.run_study(_estimators(monotonicity, stratum, **extra),
+                                          [scenario], n, n_reps=reps, random_state=2025,
+                                          n_jobs=1)  # fmt: skip
         parts.append(results.assign(stratum=stratum))
     results = pd.concat(parts, ignore_index=True)
     results["error"] = results["estimate"] - results["truth"]
@@ -83,10 +103,16 @@ def iv_comparison(reps, n):
 
 
 def main():
-    args = [a for a in sys.argv[1:] if a != "--quick"]
+    args = [a for a in sys.argv[1:] if a not in ("--quick", "--missing")]
     reps = int(args[0]) if args else (30 if "--quick" in sys.argv else 300)
     n = int(args[1]) if len(args) > 1 else 2000
     start = time.perf_counter()
+    if "--missing" in sys.argv:
+        table = coverage_table(reps, n, missing=True)
+        print(f"Missing at random, {reps} replicates of {n:,} rows "
+              f"({time.perf_counter() - start:.0f} s)")  # fmt: skip
+        print(table.round(4).to_string())
+        return
     table = coverage_table(reps, n)
     print(f"Every stratum, {reps} replicates of {n:,} rows ({time.perf_counter() - start:.0f} s)")
     print(table.round(4).to_string())

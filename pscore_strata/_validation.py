@@ -156,12 +156,19 @@ def check_truncation_data(
                 "for survivors: set survival to 1 for those rows if they survived, or blank y."
             )
     outcome = np.where((survival == 1) | all_outcomes, outcome.astype(float), np.nan)
-    if all_outcomes:
+    # With a stratum other than the always-survivors the outcome exists for every unit: under
+    # missing="at_random" a NaN outcome of a unit whose intermediate is known is one not
+    # observed, whatever its intermediate (docs/guide/derivations/missing-data.md, section 5).
+    every_outcome = all_outcomes and missing == "at_random"
+    if all_outcomes and not every_outcome:
         _check_outcomes_exist(outcome, survival, stratum, survival_name)
-    unobserved = np.flatnonzero(np.isnan(outcome) & (survival == 1))
+    can_respond = (survival == 1) | every_outcome
+    if status_known is not None:
+        can_respond = can_respond & (status_known == 1)
+    unobserved = np.flatnonzero(np.isnan(outcome) & can_respond)
     outcome_observed = None
     if unobserved.size and missing == "at_random":
-        outcome_observed = ((survival == 1) & ~np.isnan(outcome)).astype(np.int8)
+        outcome_observed = (can_respond & ~np.isnan(outcome)).astype(np.int8)
     elif unobserved.size:
         raise ValueError(
             f"`y` is missing (NaN) for {unobserved.size} survivor(s) (survival == 1), at row "
@@ -171,7 +178,7 @@ def check_truncation_data(
             "deliberately."
         )
     if status_known is not None and outcome_observed is None:
-        outcome_observed = (survival == 1).astype(np.int8)
+        outcome_observed = can_respond.astype(np.int8)
     if outcome_observed is not None and status_known is None:
         status_known = np.ones(n, dtype=np.int8)
     if np.isinf(outcome).any():

@@ -119,3 +119,31 @@ def test_truncation_by_death_refuses_other_strata(tmp_path, capsys):
                  "--stratum", "harmed", "--quiet", "--out", str(tmp_path / "p")])  # fmt: skip
     assert code != 0
     assert "--monotonicity 'decreasing'" in capsys.readouterr().err
+
+
+def test_missing_outcomes_at_random_for_the_complier_effect(card, tmp_path):
+    # Source: the same analysis through the Python API. 12% of the wages are blanked here
+    # (invented, at random) so that units with and without a degree lack outcomes.
+    frame, _ = card
+    rng = np.random.default_rng(3)
+    blanked = frame.assign(lwage=frame["lwage"].mask(rng.random(len(frame)) < 0.12))
+    path = tmp_path / "card_missing.csv"
+    blanked.to_csv(path, index=False)
+    out = tmp_path / "report"
+    assert _analyze(path, out, "--stratum", "complier", "--missing", "at_random") == 0
+    results = json.loads((out / "results.json").read_text())
+    S = (blanked["educ"] >= 16).astype(int)
+    primary = next(r for r in results["estimates"] if r["primary"])
+    est = ps.MultiplyRobust(stratum="complier", missing="at_random").fit(
+        blanked[COVARIATES].astype(float), blanked["lwage"], treatment=blanked["nearc4"],
+        intermediate=S)  # fmt: skip
+    assert primary["effect"] == pytest.approx(est.effect_, abs=1e-10)
+    by_arm = {a["arm"]: a for a in results["missing_data"]["by_arm"]}
+    T, Y = blanked["nearc4"], blanked["lwage"]
+    for arm, t in (("treated", 1), ("control", 0)):
+        zero = (T == t) & (S == 0)
+        assert by_arm[arm]["n_known_intermediate_0"] == int(zero.sum())
+        assert by_arm[arm]["n_outcome_missing_intermediate_0"] == int((zero & Y.isna()).sum())
+    assert results["missing_data"]["outcome_shift"] is None
+    assert "always-survivor stratum only" in results["missing_data"]["outcome_shift_note"]
+    assert "Units with intermediate 0" in (out / "report.html").read_text()

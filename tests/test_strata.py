@@ -203,13 +203,6 @@ def test_unsupported_analyses_refuse_other_strata():
         ps.survivor_distribution(est)
 
 
-def test_missing_at_random_refused_for_other_strata():
-    data = make_intermediate(300, random_state=0)
-    with pytest.raises(ValueError, match="`missing`='at_random' is not available with `stratum`"):
-        ps.MultiplyRobust(stratum="doomed", missing="at_random").fit(
-            data.X, data.y, treatment=data.treatment, intermediate=data.intermediate)
-
-
 def test_summary_names_the_stratum_and_its_assumptions():
     data = make_intermediate(1500, random_state=0)
     est = _fit(ps.MultiplyRobust, data, "complier")

@@ -62,6 +62,12 @@ def _check_relevant(estimator, names):
     role = stratum_role(stratum, estimator.monotonicity).role
     words = stratum_words(stratum)
     for name in names:
+        if role != "always" and name == "outcome_shift":
+            raise ValueError(
+                f"`outcome_shift` is not available yet for the {words} effect (only for the "
+                "always-survivor stratum); use the principal-ignorability parameters, or refit "
+                "with stratum='always_survivor'."
+            )
         if role == "doomed" and name in ("pi_difference", "pi_ratio"):
             raise ValueError(
                 f"`{name}` does not change the {words} effect: it describes the mixed arm's units "
@@ -260,6 +266,7 @@ def sensitivity_grid(
     """
     if outcome_shift is not None:
         _check_estimator(estimator)
+        _check_relevant(estimator, ["outcome_shift"])
         if any(v is not None for v in (pi_ratio, pi_difference, harmed_ratio)):
             raise ValueError(
                 "Give `outcome_shift` on its own: combining it with `pi_ratio`, `pi_difference` "

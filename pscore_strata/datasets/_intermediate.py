@@ -19,6 +19,7 @@ from sklearn.utils import Bunch
 
 from ._checks import check_choice, check_positive_int, check_real, resolve_rng
 from ._family import Scenario
+from ._missing import apply_missingness, check_missingness
 
 __all__ = ["make_intermediate", "INTERMEDIATE_SCENARIOS"]
 
@@ -68,7 +69,8 @@ def _intermediate_probabilities(X):
 
 def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="increasing",
                       design="observational", exclusion=False, pi_difference=0.0,
-                      n_features=5, noise=1.0, random_state=None, pi_difference_doomed=0.0):
+                      n_features=5, noise=1.0, random_state=None, pi_difference_doomed=0.0,
+                      follow_up=None, response=None):
     """Simulate a binary intermediate after which the outcome exists, with known stratum effects.
 
     Parameters
@@ -105,6 +107,14 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
         outcome under the arm in which its intermediate is 0 (where it shares the cell with the
         doomed) is shifted by this amount, the sensitivity parameter of the same name of
         :func:`~pscore_strata.sensitivity_grid` (the truths include the shift).
+    follow_up, response : None, float, (float, float) or dict, default=None
+        Loss to follow-up (the intermediate's value unknown) and outcome non-response, missing
+        at random given X within each arm, as in :func:`make_truncation`; response is drawn
+        for every unit with a known intermediate (the outcome exists for all). Adds
+        ``intermediate_full``, ``y_full``, ``status_known``, ``outcome_observed`` and the
+        probabilities ``follow_up_probability``, ``response_probability``; ``intermediate``
+        (and ``survival``) become float with NaN where unknown, ``y`` NaN where not observed.
+        The truths are unchanged.
 
     Returns
     -------
@@ -176,7 +186,11 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
     params = dict(n_samples=n_samples, stratum=stratum, monotonicity=monotonicity, design=design,
                   exclusion=bool(exclusion), pi_difference=pi_difference, n_features=n_features,
                   noise=noise, pi_difference_doomed=pi_difference_doomed)  # fmt: skip
-    return Bunch(
+    follow_up_spec = check_missingness(follow_up, "follow_up")
+    response_spec = check_missingness(response, "response")
+    if follow_up is not None or response is not None:
+        params.update(follow_up=follow_up, response=response)
+    data = Bunch(
         X=X, y=y, treatment=treatment, intermediate=intermediate, survival=intermediate,
         stratum=np.asarray(labels, dtype=object)[code].astype(str),
         true_effect=true_effects[stratum], true_effects=true_effects,
@@ -185,6 +199,12 @@ def make_intermediate(n_samples=2000, *, stratum="protected", monotonicity="incr
         treatment_probability=0.5 if design == "randomized" else None, params=params,
         DESCR=_describe(params, true_effects),
     )
+    if follow_up_spec is None and response_spec is None:
+        return data
+    data = apply_missingness(data, follow_up_spec, response_spec, rng, every_outcome=True)
+    data.intermediate_full = data.survival_full
+    data.intermediate = data.survival
+    return data
 
 
 def _describe(params, true_effects):

@@ -59,8 +59,12 @@ def observation_probability(spec, X, arm):
     return expit(logit(probability) + strength * X[:, 1])
 
 
-def apply_missingness(data, follow_up, response, rng, nonresponse_shift=0.0):
+def apply_missingness(data, follow_up, response, rng, nonresponse_shift=0.0,
+                      every_outcome=False):  # fmt: skip
     """Blank the survival status of units lost to follow-up and the outcomes of non-responders.
+
+    ``every_outcome``: the outcome exists for every unit (an intermediate after which it is
+    still measured), so response is drawn for units of either intermediate value.
 
     Adds ``survival_full``, ``y_full`` (the values before blanking), ``status_known``,
     ``outcome_observed``, ``follow_up_probability`` and ``response_probability`` to ``data``;
@@ -77,7 +81,7 @@ def apply_missingness(data, follow_up, response, rng, nonresponse_shift=0.0):
     # Response is drawn for every survivor, so whether a status is known stays independent of
     # the outcome even when the outcomes of non-responders are shifted.
     would_respond = rng.random(T.size) < r
-    observed = known & (data.survival == 1) & would_respond
+    observed = known & would_respond & ((data.survival == 1) | every_outcome)
     y_full = np.array(data.y, dtype=float)
     if nonresponse_shift:
         # Missing not at random: non-responding survivors' outcomes sit this far above the

@@ -9,7 +9,9 @@ that, given X and what came before. For the SACE formulas this means, in each ar
 - ``A S -> A C S R / (c(X) r(X))`` in the outcome terms (the outcome is observed when also
   ``R = 1``).
 
-With ``c = r = 1`` (nothing missing) these are the full-data indicators.
+With ``c = r = 1`` (nothing missing) these are the full-data indicators. The strata other than
+the always-survivors also use the outcomes of units with intermediate 0:
+``A (1 - S) -> A C (1 - S) R / (c(X) r0(X))`` with the response model ``r0`` of those units.
 """
 
 from __future__ import annotations
@@ -35,6 +37,20 @@ class Coarsening:
     known_pure: np.ndarray  # (1 - A) C / c_pure
     observed_mixed: np.ndarray  # A C S R / (c_mixed r_mixed)
     observed_pure: np.ndarray  # (1 - A) C S R / (c_pure r_pure)
+    # Units with intermediate 0 (strata other than the always-survivors; None otherwise).
+    r_mixed0: np.ndarray | None = None
+    r_pure0: np.ndarray | None = None
+    observed_mixed0: np.ndarray | None = None  # A C (1 - S) R / (c_mixed r_mixed0)
+    observed_pure0: np.ndarray | None = None
+
+    def observed(self, role, s):
+        """The observed indicator of the cell ``(role, s)`` over its observation probability."""
+        if s == 1:
+            return self.observed_mixed if role == "mixed" else self.observed_pure
+        cell = self.observed_mixed0 if role == "mixed" else self.observed_pure0
+        if cell is None:
+            raise ValueError("internal: no response model for units with intermediate 0")
+        return cell
 
 
 def _over(numerator, denominator):
@@ -52,6 +68,14 @@ def coarsening(data, nuisance, mixed_arm, pure_arm):
     C = data.status_known.astype(float)
     R = data.outcome_observed.astype(float)
     S = data.survival.astype(float)
+    zero = {}
+    if (mixed_arm, 0) in r:
+        r0 = {arm: r[(arm, 0)] for arm in (0, 1)}
+        zero = dict(
+            r_mixed0=r0[mixed_arm], r_pure0=r0[pure_arm],
+            observed_mixed0=_over(A * C * (1 - S) * R, c[mixed_arm] * r0[mixed_arm]),
+            observed_pure0=_over((1 - A) * C * (1 - S) * R, c[pure_arm] * r0[pure_arm]),
+        )  # fmt: skip
     return Coarsening(
         known=C,
         responded=R,
@@ -63,6 +87,7 @@ def coarsening(data, nuisance, mixed_arm, pure_arm):
         known_pure=_over((1 - A) * C, c[pure_arm]),
         observed_mixed=_over(A * C * S * R, c[mixed_arm] * r[mixed_arm]),
         observed_pure=_over((1 - A) * C * S * R, c[pure_arm] * r[pure_arm]),
+        **zero,
     )
 
 
@@ -73,14 +98,21 @@ def parametric_view(source, mixed_arm, pure_arm):
         for arm, role in ((mixed_arm, "mixed"), (pure_arm, "pure")):
             if (kind, arm) in source:
                 view[f"{prefix}_{role}"] = source[(kind, arm)]
+            if (kind, arm, 0) in source:
+                view[f"{prefix}_{role}0"] = source[(kind, arm, 0)]
     return view
 
 
-def weight_derivatives(o, f, role):
-    """d f / d c and d f / d r of an estimating function ``f`` proportional to ``1/(c r)``."""
+def weight_derivatives(o, f, role, s=1):
+    """d f / d c and d f / d r of an estimating function ``f`` proportional to ``1/(c r)``,
+    for the cell of ``role`` with intermediate ``s`` (its own response model when ``s = 0``)."""
     co = o.coarsening
     if co is None:
         return {}
-    c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
-    return {f"c_{role}": -_over(f, c), f"r_{role}": -_over(f, r)}
+    c = co.c_mixed if role == "mixed" else co.c_pure
+    if s == 1:
+        r, key = (co.r_mixed if role == "mixed" else co.r_pure), f"r_{role}"
+    else:
+        r, key = (co.r_mixed0 if role == "mixed" else co.r_pure0), f"r_{role}0"
+    return {f"c_{role}": -_over(f, c), key: -_over(f, r)}
 

@@ -60,6 +60,7 @@ def weighting_means(o, setting=NULL_SETTING, subset=None, scores=None):
     for role in ("mixed", "pure"):
         arm_p = o.arm_probability(role)
         sign = -1.0 if role == "mixed" else 1.0  # d f / d pi = sign f / P(arm)
+        s = o.stratum.s_mixed if role == "mixed" else o.stratum.s_pure
         cell = _restrict(g, o.cell(role))
         if role == "pure" and st.pure_is_cell:
             # e / q is 1: the pure arm's survivors are all always-survivors.
@@ -69,7 +70,6 @@ def weighting_means(o, setting=NULL_SETTING, subset=None, scores=None):
             f = w * (Y - mu)
             derivatives = {"pi": sign * ratio(f, arm_p)}
         else:
-            s = o.stratum.s_mixed if role == "mixed" else o.stratum.s_pure
             own = o.own_probability(role)
             base = ratio(cell, o.cell_probability(role))
             if not st.plain(role):
@@ -91,7 +91,7 @@ def weighting_means(o, setting=NULL_SETTING, subset=None, scores=None):
             key = "p_mixed" if role == "mixed" else "p_pure"
             through_score[key] = through_score[key] + own_term
             derivatives = {"pi": sign * ratio(f, arm_p), **through_score}
-        derivatives.update(weight_derivatives(o, f, role))
+        derivatives.update(weight_derivatives(o, f, role, s))
         result.append((mu, (f + o.corrections(_nonzero(derivatives))) / normalizer))
     (mu_mixed, if_mixed), (mu_pure, if_pure) = result
     return unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)

@@ -82,6 +82,8 @@ class Oriented:
         s = self.stratum.s_mixed if role == "mixed" else self.stratum.s_pure
         if s == 1:
             return self.observed_mixed if role == "mixed" else self.observed_pure
+        if self.coarsening is not None:
+            return self.coarsening.observed(role, 0)
         arm = self.mixed if role == "mixed" else 1 - self.mixed
         return arm * (1 - self.survival)
 

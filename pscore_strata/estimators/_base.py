@@ -74,13 +74,6 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
 
     def _check_params(self):
         check_choice(self.monotonicity, "monotonicity", ("increasing", "decreasing"))
-        if self._other_stratum() and self.missing != "error":
-            raise ValueError(
-                f"`missing`={self.missing!r} is not available with `stratum`="
-                f"{self.stratum!r} yet (the follow-up and response models are fitted for the "
-                "always-survivor formulas only); use missing='error' with complete data, or "
-                "stratum='always_survivor'."
-            )
         check_choice(self.scale, "scale", _SCALES)
         check_choice(self.missing, "missing", ("error", "at_random"))
         check_estimator_arguments(self)

@@ -69,7 +69,9 @@ _COMMON_PARAMETERS = """
         ``c_t(X)`` on each arm's rows and a response model ``r_t(X)`` among each arm's known
         survivors, and weights every observed residual by the inverse probability of being
         observed (docs/guide/derivations/missing-data.md). An arm with nothing missing gets no such
-        model.
+        model. With a ``stratum`` other than the always-survivors (the outcome exists for every
+        unit) a NaN outcome of a unit with intermediate 0 is not observed either, and a
+        response model ``r_t0(X)`` is fitted among each arm's known units with intermediate 0.
     response_model : classifier or None, default=None
         Model for ``r_t`` (outcome observed among known survivors; cloned per arm); ``None`` is
         unpenalized logistic regression. Used only when outcomes are missing.

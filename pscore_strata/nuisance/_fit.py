@@ -140,7 +140,9 @@ def fit_nuisance(
     X = data.X
     coarsened = data.status_known is not None
     known = data.status_known == 1 if coarsened else np.ones(n, bool)
-    observed = data.outcome_observed == 1 if coarsened else S == 1
+    # Observed outcomes; under missing data with every stratum's outcome (zero_cells) they
+    # include units with intermediate 0, so each cell's fit takes its own rows.
+    observed = data.outcome_observed == 1 if coarsened else np.ones(n, bool)
     known_probability = isinstance(treatment_model, int | float) and not isinstance(
         treatment_model, bool
     )
@@ -178,11 +180,13 @@ def fit_nuisance(
     survival = {0: np.empty(n), 1: np.empty(n)}
     outcome = {0: np.empty(n), 1: np.empty(n)} if fit_outcome else None
     fitted = {"treatment": [], ("survival", 0): [], ("survival", 1): []}
-    zero_cells = zero_cells and fit_outcome
+    # The outcome models of units with intermediate 0 (the response models of those units are
+    # fitted below whenever the stratum uses them, also for weighting).
+    zero_outcomes = zero_cells and fit_outcome
     if fit_outcome:
         fitted[("outcome", 0)] = []
         fitted[("outcome", 1)] = []
-    if zero_cells:
+    if zero_outcomes:
         for arm in (0, 1):
             outcome[(arm, 0)] = np.empty(n)
             fitted[("outcome", arm, 0)] = []
@@ -212,13 +216,13 @@ def fit_nuisance(
                 )
                 fitted[("survival", arm)].append(model)
             if fit_outcome:
-                rows = arm_rows[observed[arm_rows]]
+                rows = arm_rows[observed[arm_rows] & (S[arm_rows] == 1)]
                 model, outcome[arm][test] = fit_predict(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
                 fitted[("outcome", arm)].append(model)
-            if zero_cells:
-                rows = arm_rows[S[arm_rows] == 0]
+            if zero_outcomes:
+                rows = arm_rows[(S[arm_rows] == 0) & known[arm_rows] & observed[arm_rows]]
                 model, outcome[(arm, 0)][test] = fit_predict(
                     models["outcome"], X, Y, rows, test, w, weighted, binary_outcome
                 )
@@ -254,6 +258,7 @@ def fit_nuisance(
             splits,
             numeric_design(X) if pieces else None,
             parametric_piece if pieces else None,
+            zero_cells=zero_cells,
         )
         fitted.update(missing_models)
         result.missingness = missingness

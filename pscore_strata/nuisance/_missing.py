@@ -5,7 +5,10 @@ or not, and a survivor with known status has an observed outcome (``R = 1``) or 
 missingness at random given X within each arm, two more nuisance functions identify everything:
 
 - follow-up ``c_t(X) = P(C=1 | T=t, X)``, fitted on every row of arm t;
-- response ``r_t(X) = P(R=1 | T=t, S=1, C=1, X)``, fitted among the arm's known survivors.
+- response ``r_t(X) = P(R=1 | T=t, S=1, C=1, X)``, fitted among the arm's known survivors;
+  for the strata other than the always-survivors (whose formulas use the outcomes of units with
+  intermediate 0) also ``r_t0(X) = P(R=1 | T=t, S=0, C=1, X)``, among the arm's known units
+  with intermediate 0.
 
 An arm in which nothing is missing gets no model: its probability is exactly 1 (a logistic fit
 on a constant target would separate perfectly). The derivation of the estimators that use these
@@ -22,7 +25,7 @@ from .._validation import EXTREME_PROBABILITY
 from ..exceptions import OverlapWarning
 from ._models import ConstantModel, fit_predict
 
-__all__ = ["fit_missingness", "missingness_counts"]
+__all__ = ["fit_missingness", "missingness_counts", "model_cells", "model_key"]
 
 _LABELS = {"follow_up": "follow-up (status known)", "response": "response (outcome observed)"}
 
@@ -38,7 +41,26 @@ def _cells(data, arm):
     }
 
 
-def fit_missingness(data, model, splits, design, parametric_builder):
+def model_cells(data, zero_cells=False):
+    """``{(kind, key): (mask, target)}`` of every model; ``key`` is the arm, or ``(arm, 0)``
+    for the response model among the arm's known units with intermediate 0 (``zero_cells``:
+    the strata other than the always-survivors use those units' outcomes)."""
+    cells = {}
+    for arm in (0, 1):
+        for kind, cell in _cells(data, arm).items():
+            cells[(kind, arm)] = cell
+        if zero_cells:
+            zero = (data.treatment == arm) & (data.status_known == 1) & (data.survival == 0)
+            cells[("response", (arm, 0))] = (zero, data.outcome_observed.astype(float))
+    return cells
+
+
+def model_key(kind, key):
+    """The key of a fitted model: ``(kind, arm)`` or ``(kind, arm, 0)``."""
+    return (kind, key) if not isinstance(key, tuple) else (kind, *key)
+
+
+def fit_missingness(data, model, splits, design, parametric_builder, zero_cells=False):
     """Fit the follow-up and response models per arm (per fold when cross-fitted).
 
     Parameters
@@ -54,6 +76,9 @@ def fit_missingness(data, model, splits, design, parametric_builder):
     parametric_builder : callable or None
         ``(design, mask, target, prediction, slope, weights) -> ParametricFit``; ``None`` skips
         the sandwich pieces.
+    zero_cells : bool, default=False
+        Also fit the response model among each arm's known units with intermediate 0 (stored
+        under ``predictions["response"][(arm, 0)]`` and ``("response", arm, 0)``).
 
     Returns
     -------
@@ -68,46 +93,50 @@ def fit_missingness(data, model, splits, design, parametric_builder):
     n, w = data.n_samples, data.sample_weight
     predictions = {"follow_up": {}, "response": {}}
     fitted, parametric = {}, {}
-    for arm in (0, 1):
-        for kind, (mask, target) in _cells(data, arm).items():
-            rows = mask & (w > 0)
-            if np.all(target[rows] == 1):
-                predictions[kind][arm] = np.ones(n)
-                continue
-            values = np.empty(n)
-            fitted[(kind, arm)] = []
-            for train, test in splits:
-                fit_rows = train[mask[train]]
-                if np.unique(target[fit_rows]).size < 2:
-                    # A fold whose rows are all observed: the share is 1 there, not a separated fit.
-                    model_fit = ConstantModel(target[fit_rows].mean())
-                    values[test] = model_fit.predict(np.empty(test.size))
-                else:
-                    model_fit, values[test] = fit_predict(
-                        model[kind] if isinstance(model, dict) else model, data.X, target,
-                        fit_rows, test, w, data.weighted, True,
-                    )
-                fitted[(kind, arm)].append(model_fit)
-            predictions[kind][arm] = values
-            if parametric_builder is not None:
-                parametric[(kind, arm)] = parametric_builder(
-                    design, mask, target, values, values * (1 - values), w
+    for (kind, key), (mask, target) in model_cells(data, zero_cells).items():
+        rows = mask & (w > 0)
+        if np.all(target[rows] == 1):
+            predictions[kind][key] = np.ones(n)
+            continue
+        values = np.empty(n)
+        name = model_key(kind, key)
+        fitted[name] = []
+        for train, test in splits:
+            fit_rows = train[mask[train]]
+            if np.unique(target[fit_rows]).size < 2:
+                # A fold whose rows are all observed: the share is 1 there, not a separated fit.
+                model_fit = ConstantModel(target[fit_rows].mean())
+                values[test] = model_fit.predict(np.empty(test.size))
+            else:
+                model_fit, values[test] = fit_predict(
+                    model[kind] if isinstance(model, dict) else model, data.X, target,
+                    fit_rows, test, w, data.weighted, True,
                 )
+            fitted[name].append(model_fit)
+        predictions[kind][key] = values
+        if parametric_builder is not None:
+            parametric[name] = parametric_builder(
+                design, mask, target, values, values * (1 - values), w
+            )
     _warn_small(predictions, data)
     return predictions, fitted, parametric
 
 
 def _warn_small(predictions, data):
     messages = []
-    for kind, per_arm in predictions.items():
-        for arm in (1, 0):
-            mask, _ = _cells(data, arm)[kind]
-            count = int(np.sum(per_arm[arm][mask] < EXTREME_PROBABILITY))
-            if count:
-                messages.append(
-                    f"{count} row(s) have a fitted {_LABELS[kind]} probability under "
-                    f"{'treatment' if arm else 'control'} below {EXTREME_PROBABILITY}"
-                )
+    cells = model_cells(data, zero_cells=(1, 0) in predictions["response"])
+    order = [(kind, arm) for kind in ("follow_up", "response") for arm in (1, 0)]
+    order += [key for key in cells if key not in order]
+    for kind, key in order:
+        mask = cells[(kind, key)][0]
+        arm = key if not isinstance(key, tuple) else key[0]
+        count = int(np.sum(predictions[kind][key][mask] < EXTREME_PROBABILITY))
+        if count:
+            among = " among units with intermediate 0" if isinstance(key, tuple) else ""
+            messages.append(
+                f"{count} row(s) have a fitted {_LABELS[kind]} probability under "
+                f"{'treatment' if arm else 'control'}{among} below {EXTREME_PROBABILITY}"
+            )
     if messages:
         warnings.warn(
             "; ".join(messages)
@@ -127,18 +156,35 @@ def missingness_counts(data):
     list of dict
         One record per arm: ``arm``, ``n``, ``n_status_unknown``, ``share_status_unknown``
         (of the arm), ``n_known_survivors``, ``n_outcome_missing`` and
-        ``share_outcome_missing`` (of the known survivors).
+        ``share_outcome_missing`` (of the known survivors); when the outcomes of units with
+        intermediate 0 are used (strata other than the always-survivors), also
+        ``n_known_intermediate_0``, ``n_outcome_missing_intermediate_0`` and
+        ``share_outcome_missing_intermediate_0``.
     """
     w = data.sample_weight
     known = np.ones(data.n_samples, bool) if data.status_known is None else data.status_known == 1
     observed = (
         data.survival == 1 if data.outcome_observed is None else data.outcome_observed == 1
     )
+    # Outcomes of units with intermediate 0 count only when the analysis uses them (another
+    # stratum than the always-survivors: some are observed).
+    zero_outcomes = bool(np.any(observed & (data.survival == 0)))
     records = []
     for arm, label in ((1, "treated"), (0, "control")):
         in_arm = data.treatment == arm
         survivors = in_arm & known & (data.survival == 1)
         missing_outcome = survivors & ~observed
+        if zero_outcomes:
+            zero = in_arm & known & (data.survival == 0)
+            extra = {
+                "n_known_intermediate_0": int(zero.sum()),
+                "n_outcome_missing_intermediate_0": int(np.sum(zero & ~observed)),
+                "share_outcome_missing_intermediate_0": float(
+                    np.sum(w * (zero & ~observed)) / max(np.sum(w * zero), np.finfo(float).tiny)
+                ),
+            }
+        else:
+            extra = {}
         records.append({
             "arm": label,
             "n": int(in_arm.sum()),
@@ -149,6 +195,7 @@ def missingness_counts(data):
             "share_outcome_missing": float(
                 np.sum(w * missing_outcome) / max(np.sum(w * survivors), np.finfo(float).tiny)
             ),
+            **extra,
         })  # fmt: skip
     return records
 

@@ -244,7 +244,7 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
     if known is None:
         known = np.ones(n, bool)
     if observed is None:
-        observed = S == 1
+        observed = np.ones(n, bool)  # every outcome observed; each cell's piece takes its rows
     roles = ["survival"] + (["outcome"] if fit_outcome else [])
     if not known_probability:
         roles.insert(0, "treatment")
@@ -308,7 +308,7 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
                 m = nuisance.outcome[arm]
                 slope = m * (1 - m) if binary_outcome else 1.0
                 pieces[("outcome", arm)] = parametric_piece(
-                    design_for(fitted, user), (T == arm) & observed, Y, m, slope, w,
+                    design_for(fitted, user), (T == arm) & observed & (S == 1), Y, m, slope, w,
                     check_root=check, role=f"outcome model (arm {arm})",
                 )  # fmt: skip
                 if ("outcome", arm, 0) in nuisance.models:
@@ -316,7 +316,7 @@ def build_parametric(data, nuisance, given, *, fit_outcome, binary_outcome, know
                     m = nuisance.outcome[(arm, 0)]
                     pieces[("outcome", arm, 0)] = parametric_piece(
                         design_for(nuisance.models[("outcome", arm, 0)][0], user),
-                        (T == arm) & (S == 0), np.nan_to_num(Y), m,
+                        (T == arm) & (S == 0) & known & observed, np.nan_to_num(Y), m,
                         m * (1 - m) if binary_outcome else 1.0, w,
                         check_root=check, role=f"outcome model (arm {arm}, intermediate 0)",
                     )  # fmt: skip

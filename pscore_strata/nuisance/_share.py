@@ -18,7 +18,8 @@ import numpy as np
 from sklearn.base import is_classifier
 
 from ._fit import NuisanceFit
-from ._missing import _cells
+from ._missing import model_cells
+from ._missing import model_key as missing_model_key
 from ._sandwich import build_parametric, parametric_piece, response_glm
 
 __all__ = ["record_settings", "shared_nuisance", "model_key"]
@@ -195,12 +196,13 @@ def _missing_pieces(data, nuisance, response_model, follow_up_model=None):
         return None
     design = None if data.X is None else np.asarray(data.X, dtype=float)
     pieces = {}
-    for key in nuisance.models:
-        if not (isinstance(key, tuple) and key[0] in ("follow_up", "response")):
+    cells = model_cells(data, zero_cells=("response", 1, 0) in nuisance.models
+                        or ("response", 0, 0) in nuisance.models)  # fmt: skip
+    for (kind, cell), (mask, target) in cells.items():
+        key = missing_model_key(kind, cell)
+        if key not in nuisance.models:
             continue
-        kind, arm = key
-        mask, target = _cells(data, arm)[kind]
-        values = nuisance.missingness[kind][arm]
+        values = nuisance.missingness[kind][cell]
         pieces[key] = parametric_piece(design, mask, target, values, values * (1 - values),
                                        data.sample_weight)  # fmt: skip
     return pieces

@@ -68,10 +68,15 @@ def print_key_results(results, out_dir):
               f"{number(bounds['upper'])}")  # fmt: skip
     missing = results.get("missing_data") or {}
     for arm in missing.get("by_arm", []):
+        zero = ""
+        if "n_known_intermediate_0" in arm:
+            zero = (f" and {arm['n_outcome_missing_intermediate_0']} of "
+                    f"{arm['n_known_intermediate_0']} with intermediate 0 "
+                    f"({arm['share_outcome_missing_intermediate_0']:.1%})")  # fmt: skip
         print(f"  Missing data, {arm['arm']}: status unknown {arm['n_status_unknown']} "
               f"({arm['share_status_unknown']:.1%}), outcome missing {arm['n_outcome_missing']} "
               f"of {arm['n_known_survivors']} known survivors "
-              f"({arm['share_outcome_missing']:.1%}); assumed missing at random")  # fmt: skip
+              f"({arm['share_outcome_missing']:.1%}){zero}; assumed missing at random")  # fmt: skip
     shift = missing.get("outcome_shift") or {}
     if shift:
         value = shift["smallest_shift_covering_zero"]

@@ -23,6 +23,21 @@ MISSING_ASSUMPTION_TEXT = (
 )
 
 
+MISSING_ASSUMPTION_TEXT_STRATA = (
+    "Within each arm, units whose intermediate status is unknown (lost to follow-up) are, given "
+    "their covariates, like units of known status. Likewise, units without an observed outcome "
+    "would, given their covariates, arm and intermediate status, have had the same mean "
+    "outcome as units with one (the outcome exists for every unit here). The analysis "
+    "reweights the observed units by the inverse of their fitted chance of being observed, "
+    "with a response model for each arm and intermediate value. This cannot be checked from "
+    "the data."
+)
+OUTCOME_SHIFT_STRATA_NOTE = (
+    "The table of outcome shifts (non-responders differing from responders) is computed for "
+    "the always-survivor stratum only; it is not shown for this stratum."
+)
+
+
 def missing_section(collector, primary, data, level):
     """JSON-ready record of the section; ``None`` when no status or outcome was missing."""
     from ..assumptions import sensitivity_grid
@@ -32,19 +47,22 @@ def missing_section(collector, primary, data, level):
     fitted = primary.training_data_
     if fitted.status_known is None:
         return None
+    other = getattr(primary, "stratum_", "always_survivor") != "always_survivor"
     record = {
-        "assumption": MISSING_ASSUMPTION_TEXT,
+        "assumption": MISSING_ASSUMPTION_TEXT_STRATA if other else MISSING_ASSUMPTION_TEXT,
         "by_arm": missingness_counts(fitted),
         "balance": [],
         "outcome_shift": None,
     }
+    if other:
+        record["outcome_shift_note"] = OUTCOME_SHIFT_STRATA_NOTE
     if data.design is not None:
         table = collector.run("missing-data checks", missing_data_balance, primary, data.design)
         for name, row in table.iterrows():
             record["balance"].append(
                 {"covariate": str(name), **{k: number(v) for k, v in row.items()}}
             )
-    if fitted.outcome_observed is not None and np.any(
+    if not other and fitted.outcome_observed is not None and np.any(
         (fitted.survival == 1) & (fitted.status_known == 1) & (fitted.outcome_observed == 0)
     ):
         spread = float(np.nanstd(fitted.outcome[fitted.outcome_observed == 1], ddof=1)) or 1.0
