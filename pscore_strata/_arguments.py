@@ -9,9 +9,10 @@ from __future__ import annotations
 import functools
 import inspect
 import numbers
-import warnings
 
 import numpy as np
+
+from ._warnings import warn_at_caller
 
 __all__ = [
     "check_estimator_arguments",
@@ -182,13 +183,11 @@ def positional_still_accepted(function):
             if twice:
                 raise TypeError(f"{name}() got {', '.join(twice)} both by position and keyword.")
             written = ", ".join(f"{key}=..." for key in given)
-            warnings.warn(
+            warn_at_caller(
                 f"Passing {', '.join(given)} to {name}() by position is deprecated and will "
                 f"stop working in the next release; write them by keyword: "
                 f"{function.__name__}(X, {written}).",
-                FutureWarning,
-                stacklevel=2,
-            )
+                FutureWarning)
             kwargs.update(given)
         return function(*args[:leading], **kwargs)
 

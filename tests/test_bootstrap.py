@@ -456,7 +456,7 @@ def test_bounds_give_two_named_columns(method):
     )
     assert list(result.replicates.columns) == ["lower", "upper"]
     np.testing.assert_allclose(result.replicates["upper"] - result.replicates["lower"], 2.0)
-    interval = result.conf_int(0.9, kind="bca")
+    interval = result.statistic_intervals(0.9, kind="bca")
     assert list(interval.index) == ["lower", "upper"] and list(interval.columns) == ["low", "high"]
     assert isinstance(result.std_error, pd.Series)
     table = result.summary()

@@ -208,3 +208,25 @@ def test_every_estimator_takes_pipelines(cls):
     reference = _fit_any(cls())
     assert fitted_numbers(est, DATA.X)[0] == pytest.approx(fitted_numbers(reference, DATA.X)[0],
                                                            abs=1e-4)  # fmt: skip
+
+
+@pytest.mark.parametrize("cls", ALL_ESTIMATORS)
+def test_every_estimator_records_and_checks_feature_names(cls):
+    # Reference: scikit-learn's own convention, shown by a LogisticRegression fitted on the same
+    # DataFrame (feature_names_in_ only for string column names; new data with the columns
+    # reordered or renamed is refused; an array where a DataFrame was fitted gets a warning).
+    X = pd.DataFrame(DATA.X, columns=["a", "b", "c"])
+    reference = LogisticRegression().fit(X, DATA.treatment)
+    fitted = _fit_any(cls(), X=X)
+    np.testing.assert_array_equal(fitted.feature_names_in_, reference.feature_names_in_)
+    assert fitted.n_features_in_ == reference.n_features_in_ == 3
+    assert not hasattr(_fit_any(cls(), X=DATA.X), "feature_names_in_")
+    if not hasattr(fitted, "predict_proba"):
+        return  # the bounds predict nothing per row
+    for changed in (X[["b", "a", "c"]], X.rename(columns={"a": "z"})):
+        with pytest.raises(ValueError, match="feature names"):
+            reference.predict_proba(changed)
+        with pytest.raises(ValueError, match="feature names"):
+            fitted.predict_proba(changed)
+    with pytest.warns(UserWarning, match="does not have valid feature names"):
+        fitted.predict_proba(DATA.X)

@@ -7,6 +7,7 @@ from sklearn.linear_model import LogisticRegression
 
 import pscore_strata as ps
 from pscore_strata.datasets import make_truncation
+from pscore_strata.estimators._repeats import repeat_seeds
 
 FIELDS = ("effect_", "std_error_", "mean_treated_", "mean_control_")
 
@@ -173,3 +174,37 @@ def test_shared_fit_with_missing_data():
             assert shared.std_error_method_ == separate.std_error_method_ == "sandwich"
             for name in FIELDS:
                 assert getattr(shared, name) == getattr(separate, name), (cls, name)
+
+
+def test_fit_estimators_takes_every_parameter_of_the_three_estimators():
+    import inspect
+
+    taken = set(inspect.signature(ps.fit_estimators).parameters)
+    for cls in (ps.PrincipalScoreWeighting, ps.OutcomeRegression, ps.MultiplyRobust):
+        missing = set(cls().get_params(deep=False)) - taken
+        assert not missing, (cls.__name__, sorted(missing))
+
+
+def test_fit_estimators_passes_every_parameter_on(data):
+    settings = dict(n_folds=3, n_repeats=3, n_bootstrap=0, random_state=2, n_jobs=2)
+    fits = ps.fit_estimators(data.X, data.y, treatment=data.treatment, survival=data.survival,
+                             **settings)  # fmt: skip
+    for key, fitted in fits.items():
+        params = fitted.get_params(deep=False)
+        given = {k: v for k, v in settings.items() if k in params}
+        assert {k: params[k] for k in given} == given, key
+    robust = _fit(ps.MultiplyRobust(**settings), data)
+    for name in FIELDS:
+        assert getattr(fits["robust"], name) == getattr(robust, name), name
+    # The other two read the same repeats: one fit per repeat, by hand, then the median.
+    for key, cls in (("weighting", ps.PrincipalScoreWeighting),
+                     ("regression", ps.OutcomeRegression)):  # fmt: skip
+        table = fits[key].repeat_estimates_
+        assert len(table) == 3
+        single = {k: v for k, v in settings.items() if k not in ("n_repeats", "random_state")}
+        by_hand = [
+            _fit(cls(random_state=seed, **single), data, nuisance=fit).effect_
+            for fit, seed in zip(robust._repeat_fits, repeat_seeds(2, 3), strict=True)
+        ]
+        np.testing.assert_allclose(table["effect"], by_hand, rtol=0, atol=1e-12)
+        assert fits[key].effect_ == pytest.approx(np.median(by_hand), abs=1e-12)

@@ -19,6 +19,8 @@ from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
 from .._arguments import check_estimator_arguments, check_positive_integer
+from .._features import check_feature_names
+from .._results import BOUNDS
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
 from ..estimands._view import orient
@@ -72,6 +74,10 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
 
     Attributes
     ----------
+    identification : str
+        ``"bounds"`` (class attribute): without principal ignorability the effect is only known
+        to lie in an interval, estimated by ``lower_`` and ``upper_``; the point estimators have
+        ``"point"``.
     lower_, upper_ : float
         Estimated bounds on the SACE.
     std_error_lower_, std_error_upper_ : float
@@ -85,6 +91,9 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     n_clusters_ : int or None
         Number of clusters in ``groups``; below 30 the intervals use Student's t with
         ``n_clusters_ - 1`` degrees of freedom.
+    n_features_in_ : int
+    feature_names_in_ : ndarray of str
+        Only when ``X`` is a DataFrame with string column names.
     n_clipped_cells_ : int
         Cells where the data gave ``q > 1`` (contradicting monotonicity); ``q`` was set to 1.
     quantile_bounds_ : DataFrame or None
@@ -123,6 +132,8 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     True
     """
 
+    identification = BOUNDS
+
     def __init__(
         self,
         *,
@@ -155,10 +166,9 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         X : array-like of shape (n_samples, n_features) or None
             Covariates for the treatment (and survival) models; ``None`` gives unadjusted
             bounds.
-        y, treatment, survival, sample_weight, groups
-            As in the estimators' ``fit``; ``intermediate`` is ``survival`` under its general
-            name (give exactly one).
-            As in :meth:`PrincipalScoreWeighting.fit`.
+        y, treatment, survival, intermediate, sample_weight, groups
+            As in :meth:`PrincipalScoreWeighting.fit`; ``intermediate`` is ``survival`` under
+            its general name (give exactly one).
         cells : array-like of shape (n_samples,), optional
             Covariate cell labels (functions of pre-treatment covariates only). Bounds are
             computed within each cell and averaged.
@@ -187,6 +197,8 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
             missing=self.missing,
         )  # fmt: skip
         self.n_clusters_ = count_clusters(data.groups)
+        if X is not None:  # scikit-learn's convention, as the estimators keep it
+            check_feature_names(self, X if hasattr(X, "columns") else data.X, reset=True)
         if self.strata == "score":
             if data.X is None:
                 raise ValueError(

@@ -7,11 +7,10 @@ refines it.
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 from scipy import optimize
 
+from .._warnings import warn_at_caller
 from ..inference._standard_errors import estimator_dof, normal_interval
 from ._sensitivity import (
     NULL_SETTING,
@@ -164,8 +163,7 @@ _CLIPPED_SHARE = 0.5
 
 
 def _not_reached(reason):
-    warnings.warn(f"Tipping point not reached: {reason}; returning NaN.", UserWarning,
-                  stacklevel=3)  # fmt: skip
+    warn_at_caller(f"Tipping point not reached: {reason}; returning NaN.", UserWarning)  # fmt: skip
     return float("nan")
 
 

@@ -4,16 +4,15 @@ their influence values (Zhang & Rubin 2003; Lee 2009; derivation in the class do
 
 from __future__ import annotations
 
-import warnings
 from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
-from scipy import optimize
 
+from .._warnings import warn_at_caller
 from ..estimands._view import ratio
 from ..exceptions import MonotonicityWarning
-from ..inference._standard_errors import influence_std_error, reference_distribution
+from ..inference._standard_errors import imbens_manski_critical_value, influence_std_error
 
 __all__ = ["trimmed_means", "binary_trimmed_means", "imbens_manski_interval", "trimming_bounds"]
 
@@ -23,6 +22,14 @@ def trimmed_means(values, weights, share):
 
     The observation that straddles the cut keeps the fraction of its weight that fits, so ties
     and small samples are trimmed exactly (no rounding of ``share * n``).
+
+    Parameters
+    ----------
+    values : ndarray of shape (n,)
+    weights : ndarray of shape (n,)
+        Non-negative weights (at least one positive).
+    share : float in (0, 1]
+        Share of the weight mass kept at each end.
 
     Returns
     -------
@@ -60,20 +67,22 @@ def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95, dof=Non
     Solves ``Phi(c + width / max(se)) - Phi(-c) = level`` for ``c`` (Imbens & Manski 2004,
     Econometrica 72) and returns ``(lower - c se_lower, upper + c se_upper)``. With
     ``dof`` (few clusters) ``Phi`` is Student's t with ``dof`` degrees of freedom.
+
+    Parameters
+    ----------
+    lower, upper : float
+        Estimated bounds.
+    se_lower, se_upper : float
+        Their standard errors.
+    level : float, default=0.95
+    dof : int or None, default=None
+
+    Returns
+    -------
+    (low, high) : tuple of float
     """
-    reference = reference_distribution(dof)
-    width = max(upper - lower, 0.0)
-    scale = max(se_lower, se_upper)
-    z_two_sided = reference.ppf(0.5 + level / 2)
-    if not np.isfinite(scale) or scale <= 0:
-        return float(lower - z_two_sided * se_lower), float(upper + z_two_sided * se_upper)
-
-    def gap(c):
-        return reference.cdf(c + width / scale) - reference.cdf(-c) - level
-
-    c = 0.0 if gap(0.0) >= 0 else optimize.brentq(gap, 0.0, z_two_sided + 1.0, xtol=1e-12)
+    c = imbens_manski_critical_value(upper - lower, se_lower, se_upper, level, dof)
     return float(lower - c * se_lower), float(upper + c * se_upper)
-
 
 
 def trimming_bounds(o, labels, data):
@@ -208,11 +217,9 @@ def trimming_bounds(o, labels, data):
     fitted.n_features_in_ = data.n_features
     fitted.binary_outcome_ = data.binary_outcome
     if n_clipped:
-        warnings.warn(
+        warn_at_caller(
             f"In {n_clipped} cell(s) the {'treated' if o.increasing else 'control'} arm "
             "survives less than the other arm, contradicting the monotonicity assumption; "
             "no trimming was done there (always-survivor share set to 1).",
-            MonotonicityWarning,
-            stacklevel=3,
-        )
+            MonotonicityWarning)
     return vars(fitted)

@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 from sklearn.exceptions import NotFittedError
 
+from .._results import BOUNDS, identification_of
 from ..estimands._view import orient
 
 # Thresholds below are common practice (rules of thumb), not derived from theory.
@@ -30,9 +31,9 @@ VIOLATION_TOLERANCE = 1e-8
 
 def oriented_predictions(estimator):
     if not (hasattr(estimator, "nuisance_") and hasattr(estimator, "training_data_")):
-        if hasattr(estimator, "lower_") and hasattr(estimator, "upper_"):
+        if identification_of(estimator) == BOUNDS:
             raise TypeError(
-                f"`estimator` is a fitted {type(estimator).__name__}: bounds keep no principal "
+                f"`estimator` is a {type(estimator).__name__}: bounds keep no principal "
                 "score weights to diagnose. Pass a fitted PrincipalScoreWeighting, "
                 "OutcomeRegression or MultiplyRobust (with the same models) instead."
             )
@@ -96,7 +97,18 @@ def survivor_weights(o):
 
 
 def effective_sample_size(weights):
-    """Kish (1965) effective sample size ``(sum w)^2 / sum w^2`` of non-negative weights."""
+    """Kish (1965) effective sample size ``(sum w)^2 / sum w^2`` of non-negative weights.
+
+    Parameters
+    ----------
+    weights : array-like of shape (n_rows,)
+        Non-negative weights.
+
+    Returns
+    -------
+    float
+        Between 1 and the number of rows with positive weight; NaN when every weight is 0.
+    """
     weights = np.asarray(weights, dtype=float)
     square_sum = np.sum(weights**2)
     return float(np.sum(weights) ** 2 / square_sum) if square_sum > 0 else 0.0

@@ -43,6 +43,10 @@ def _groups(estimator):
 def missing_data_summary(estimator):
     """Counts and shares of unknown survival status and of missing outcomes, by arm.
 
+    Parameters
+    ----------
+    estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+
     Returns
     -------
     DataFrame indexed by arm (``treated``, ``control``)

@@ -105,7 +105,14 @@ class SurvivorDistribution:
     dof: int | None = None
 
     def to_frame(self):
-        """One row per value: estimates, standard errors, pointwise intervals, bands, naive CDFs."""
+        """One row per value: estimates, standard errors, pointwise intervals, bands, naive CDFs.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``value``, ``treated``, ``control`` and their standard errors, pointwise
+            interval ends and band ends at ``level``, and the naive survivor-only CDFs.
+        """
         z = reference_quantile(self.level, self.dof)
         table = {"value": self.values}
         for arm in ("treated", "control"):

@@ -55,6 +55,8 @@ class OrdinalComparison:
         distributions, with its standard error and normal interval (clipped to [0, 1]).
     influence : ndarray of shape (n_rows,)
     better : str
+    level : float
+        Level of the intervals.
     notes : list of str
     """
 

@@ -21,6 +21,7 @@ from scipy import stats
 from sklearn.base import clone
 
 from .._validation import check_level
+from .._warnings import warn_at_caller
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
 from ._cdf import CAUTION, default_values, observed_survivors
@@ -236,7 +237,7 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
             "means, or use ps.ordinal_comparison for an outcome with few levels."
         )
         notes.insert(1, message)
-        warnings.warn(message, UserWarning, stacklevel=2)
+        warn_at_caller(message, UserWarning)
     if n_bootstrap:
         replicates = _bootstrap(estimator, X, cdf_model, quantiles, n_bootstrap, random_state)
         low, high = np.quantile(replicates, [(1 - level) / 2, (1 + level) / 2], axis=0)

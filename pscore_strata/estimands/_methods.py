@@ -52,12 +52,39 @@ class Method:
         return self.std_error == "influence function"
 
     def means(self, view, setting=NULL_SETTING, subset=None):
-        """The target stratum's means and influence values on ``view`` at ``setting``."""
+        """The target stratum's means and influence values on ``view`` at ``setting``.
+
+        Parameters
+        ----------
+        view : oriented view
+            The per-row nuisance predictions as the formulas read them (``estimands._view``).
+        setting : Setting, default=NULL_SETTING
+            The sensitivity parameters; the null setting is the estimator itself.
+        subset : ndarray of shape (n_rows,), optional
+            A 0/1 row indicator that restricts the estimand to the stratum's members in it
+            (subgroup effects).
+
+        Returns
+        -------
+        MeanParts
+        """
         return self.formula(view, setting, subset)
 
     def adjusted(self, view, setting):
         """``(MeanParts, n_clipped)`` at ``setting``: the means, and the rows whose implied
-        always-survivor score was negative under ``harmed_ratio`` (set to 0)."""
+        always-survivor score was negative under ``harmed_ratio`` (set to 0).
+
+        Parameters
+        ----------
+        view : oriented view
+            As in :meth:`means`.
+        setting : Setting
+
+        Returns
+        -------
+        parts : MeanParts
+        n_clipped : int
+        """
         scores = Scores(view, setting)
         return self.formula(view, setting, scores=scores), scores.clipped
 

@@ -37,7 +37,20 @@ __all__ = ["Setting", "NULL_SETTING", "Scores"]
 
 @dataclass(frozen=True)
 class Setting:
-    """One setting of the sensitivity parameters (checked by the caller)."""
+    """One setting of the sensitivity parameters (checked by the caller).
+
+    Attributes
+    ----------
+    pi_difference : float, default=0.0
+        ``delta = E[Y|helped,X] - E[Y|always,X]`` in the mixed arm.
+    pi_ratio : float or None, default=None
+        ``eps = E[Y|helped,X] / E[Y|always,X]`` in the mixed arm (``None``: unused).
+    harmed_ratio : float in [0, 1), default=0.0
+        ``xi = e_opposite(X) / e_helped(X)``.
+    pi_difference_doomed : float, default=0.0
+        ``delta_0 = E[Y|helped,X] - E[Y|doomed,X]`` among the pure arm's units with
+        intermediate 0 (used by the helped and doomed strata's effects).
+    """
 
     pi_difference: float = 0.0
     pi_ratio: float | None = None

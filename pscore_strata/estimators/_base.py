@@ -7,7 +7,6 @@ model.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import replace
 
 import numpy as np
@@ -18,6 +17,7 @@ from sklearn.utils.validation import check_is_fitted
 from .._arguments import check_estimator_arguments, check_n_folds
 from .._features import feature_fingerprint
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
+from .._warnings import warn_at_caller
 from ..estimands._methods import method_of
 from ..estimands._strata import needs_zero_cells, resolve_stratum
 from ..estimands._view import orient, scale_effect
@@ -146,9 +146,9 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         nuisance : NuisanceFit, optional
             The ``nuisance_`` of another estimator fitted on the same rows with the same
             models, folds and monotonicity (outcome regression and multiply robust share five
-            models; weighting needs the first three). Its models are reused instead of
-            refitted, giving the numbers a separate fit would; a fit on other data or with
-            other settings is refused.
+            models; weighting needs the first three), or a list of them (one per cross-fitting
+            repeat: the estimates are medians over them). Its models are reused instead of
+            refitted; a fit on other data or with other settings is refused.
 
         Returns
         -------
@@ -177,12 +177,16 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         if getattr(self, "_statistic_only", False) and nuisance is None:
             return self._fit_statistic(data, n_repeats)
         if nuisance is not None:
+            shared = nuisance if isinstance(nuisance, list) else [nuisance]
+            seeds = repeat_seeds(self.random_state, len(shared))
             fits = [
                 shared_nuisance(
-                    self, nuisance, data, uses_outcome=self._uses_outcome_model,
+                    self, fit, data, uses_outcome=self._uses_outcome_model,
                     sandwich=not self._method.orthogonal,
                     treatment_enters=self._treatment_enters_estimate, n_repeats=n_repeats,
+                    fold_seed=seed,
                 )
+                for fit, seed in zip(shared, seeds, strict=True)
             ]  # fmt: skip
             if self._uses_outcome_model and self._other_stratum() and (0, 0) not in (
                 fits[0].outcome or {}
@@ -204,10 +208,10 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         self.feature_fingerprint_ = feature_fingerprint(X) if data.n_features else None
         message = few_outcomes_message(data)
         if message:
-            warnings.warn(message, FewOutcomesWarning, stacklevel=2)
+            warn_at_caller(message, FewOutcomesWarning)
         self.n_clusters_ = n_clusters
         if self.std_error_method_ == "bootstrap":
-            self._bootstrap_std_errors(data)
+            bootstrap_std_errors(self, data)
         return self
 
     def _evaluate(self, data, nuisance):
@@ -293,10 +297,6 @@ class SurvivorEffectEstimator(PrincipalScoresMixin, BaseEstimator):
         )
         self.n_samples_ = data.n_samples
         return self
-
-    def _bootstrap_std_errors(self, data):
-        """Resample rows within arms (clusters, if given) and refit every model."""
-        bootstrap_std_errors(self, data)
 
     # -- results -----------------------------------------------------------------------------
     def conf_int(self, level=0.95):

@@ -8,6 +8,8 @@ obtained) and the shared fit and result logic (:mod:`._base`).
 
 from __future__ import annotations
 
+from .._results import POINT
+from ..nuisance._sandwich import flexible_model_reason
 from ._base import SurvivorEffectEstimator
 from ._display import EstimatorDisplay
 from ._heterogeneity import ConditionalEffectMixin
@@ -91,14 +93,21 @@ class PrincipalScoreWeighting(EstimatorDisplay, SurvivorEffectEstimator):
     Parameters
     ----------{_COMMON_PARAMETERS}
     n_bootstrap : int, default=200
-        Resamples for the standard error when a model is not the default (the sandwich formula
-        needs the default logistic models). ``0`` skips it (the standard error then ignores
-        nuisance estimation).
+        Resamples of the refitting bootstrap, the fallback for the standard error when a model
+        is one the sandwich formula does not cover (it needs unpenalized logistic or linear
+        regressions, alone or after fixed transformers, fitted on all rows): every model is
+        then refitted in each resample (rows resampled within arms, clusters if given) and
+        ``std_error_method_`` is ``"bootstrap"``. ``0`` skips it (the standard error then
+        ignores nuisance estimation).
     n_jobs : int or None, default=None
-        Parallel bootstrap workers (joblib).
+        Parallel bootstrap workers (joblib); the resamples do not depend on it.
 
     Attributes
     ----------
+    identification : str
+        ``"point"`` (class attribute): the assumptions identify the effect itself, estimated
+        by ``effect_``. :class:`~pscore_strata.TrimmingBounds` has ``"bounds"``; code that treats
+        the two differently reads this, not which attributes exist.
     effect_ : float
         The effect in the target stratum on the chosen scale (the survivor average causal
         effect by default).
@@ -147,6 +156,7 @@ class PrincipalScoreWeighting(EstimatorDisplay, SurvivorEffectEstimator):
     """
 
     method = "weighting"  # the key of its record in pscore_strata.estimands.METHODS
+    identification = POINT
 
     def __init__(
         self,
@@ -193,11 +203,13 @@ class OutcomeRegression(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffect
         regression (logistic regression for a 0/1 outcome). A classifier's predicted
         probability is used as the mean.
     n_bootstrap : int, default=200
+        The refitting bootstrap fallback, as in :class:`PrincipalScoreWeighting`.
     n_jobs : int or None, default=None
+        Parallel bootstrap workers (joblib), as in :class:`PrincipalScoreWeighting`.
 
     Attributes
     ----------
-    effect_, std_error_, mean_treated_, mean_control_, influence_
+    identification, effect_, std_error_, mean_treated_, mean_control_, influence_
         As in :class:`PrincipalScoreWeighting`; likewise every other attribute.
 
     Examples
@@ -211,6 +223,7 @@ class OutcomeRegression(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffect
     """
 
     method = "regression"
+    identification = POINT
     _treatment_enters_estimate = False
 
     def __init__(
@@ -263,10 +276,22 @@ class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEst
         Repeats of cross-fitting with independent fold splits (needs ``n_folds``). The effect
         is the median over repeats and its variance the median of
         ``SE_r^2 + (effect_r - median)^2`` (Chernozhukov et al. 2018).
+    n_bootstrap : int, default=200
+        Resamples of the refitting bootstrap, the fallback for the standard error when the
+        influence values alone do not account for the fitted models: a flexible learner (any
+        model other than scikit-learn's linear models, alone or after fixed transformers) fitted
+        on all rows (``n_folds=None``), whose fitted values follow the noise of the rows they
+        are evaluated on. Every model is then refitted in each resample (rows resampled within
+        arms, clusters if given) and ``std_error_method_`` is ``"bootstrap"``. With parametric
+        models or ``n_folds`` the influence function is used and no bootstrap runs; ``0``
+        keeps the influence-function standard error in every case. The same parameter, with
+        the same fallback role, as in :class:`PrincipalScoreWeighting`.
+    n_jobs : int or None, default=None
+        Parallel bootstrap workers (joblib), as in :class:`PrincipalScoreWeighting`.
 
     Attributes
     ----------
-    effect_, std_error_, mean_treated_, mean_control_, influence_
+    identification, effect_, std_error_, mean_treated_, mean_control_, influence_
         As in :class:`PrincipalScoreWeighting`; likewise every other attribute. With
         ``n_repeats > 1``, ``influence_`` and ``nuisance_`` are those of the repeat whose effect
         is closest to the median, and ``repeat_estimates_`` holds every repeat.
@@ -291,7 +316,7 @@ class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEst
     """
 
     method = "robust"
-    n_bootstrap = 0
+    identification = POINT
 
     def __init__(
         self,
@@ -305,7 +330,9 @@ class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEst
         scale="difference",
         n_folds=None,
         n_repeats=1,
+        n_bootstrap=200,
         random_state=None,
+        n_jobs=None,
         missing="error",
         response_model=None,
         follow_up_model=None,
@@ -319,7 +346,22 @@ class MultiplyRobust(EstimatorDisplay, ConditionalEffectMixin, SurvivorEffectEst
         self.scale = scale
         self.n_folds = n_folds
         self.n_repeats = n_repeats
+        self.n_bootstrap = n_bootstrap
         self.random_state = random_state
+        self.n_jobs = n_jobs
         self.missing = missing
         self.response_model = response_model
         self.follow_up_model = follow_up_model
+
+    def _std_error_method(self, nuisance):
+        # The efficient influence function carries the nuisance fits' error unless a flexible
+        # learner was fitted and evaluated on the same rows (flexible_model_reason).
+        if self.n_bootstrap > 0 and flexible_model_reason(self) is not None:
+            return "bootstrap"
+        return "influence function"
+
+    def _fallback_reason(self):
+        return (
+            "the influence values account for the fitted models only when they are parametric "
+            f"or cross-fitted, and here {flexible_model_reason(self)}"
+        )

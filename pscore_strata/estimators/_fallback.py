@@ -14,6 +14,7 @@ import pandas as pd
 from joblib import Parallel, delayed
 from sklearn.base import clone
 
+from .._warnings import warn_at_caller
 from ..inference._failures import MAX_FAILURE_SHARE, describe_failures
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 
@@ -58,16 +59,14 @@ def _report_failures(estimator, failures):
         # The remaining replicates describe only resamples that kept deaths and survivors
         # in every arm: their spread is not the estimate's.
         estimator.std_error_ = float("nan")
-        warnings.warn(
+        warn_at_caller(
             f"{counted}. With more than {MAX_FAILURE_SHARE:.0%} failing, no bootstrap "
             "standard error or interval is given (std_error_ is NaN). Use the default "
             "models (sandwich standard errors), merge sparse covariate levels, or use more "
             "data.",
-            UserWarning, stacklevel=5,
-        )  # fmt: skip
+            UserWarning)  # fmt: skip
     else:
-        warnings.warn(f"{counted}; they are left out of the replicates.", UserWarning,
-                  stacklevel=5)  # fmt: skip
+        warn_at_caller(f"{counted}; they are left out of the replicates.", UserWarning)  # fmt: skip
 
 
 def _one_replicate(estimator, data, seed):

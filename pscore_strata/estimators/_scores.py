@@ -3,14 +3,13 @@
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
 from .._features import check_feature_names
 from .._validation import check_features
+from .._warnings import warn_at_caller
 from ..diagnostics._arrays import ROW_SHARE_TOLERANCE, SCORE_FLOOR, VIOLATION_TOLERANCE
 from ..exceptions import MonotonicityWarning
 from ..nuisance._models import predict_models
@@ -153,7 +152,7 @@ def count_crossings(oriented, n_samples):
     violations = int(np.sum(oriented.p_pure - oriented.p_mixed > VIOLATION_TOLERANCE))
     marked = int(np.sum(oriented.p_pure - oriented.p_mixed > SCORE_FLOOR))
     if marked > ROW_SHARE_TOLERANCE * n_samples:
-        warnings.warn(
+        warn_at_caller(
             f"For {marked} of {n_samples} rows ({marked / n_samples:.1%}) the fitted survival "
             f"probability under {'treatment' if oriented.increasing else 'control'} is more "
             f"than {SCORE_FLOOR} below that under the other arm ({violations} rows are reversed "
@@ -162,7 +161,5 @@ def count_crossings(oriented, n_samples):
             "(unclipped); only the principal scores that predict_proba reports are clipped "
             "at zero there so that each row's scores add to one. Check the survival model, "
             "and see the sensitivity analysis for monotonicity.",
-            MonotonicityWarning,
-            stacklevel=4,
-        )
+            MonotonicityWarning)
     return violations

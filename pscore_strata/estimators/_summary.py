@@ -191,11 +191,15 @@ def _notes(estimator):
     elif method == "bootstrap":
         from ..nuisance._sandwich import sandwich_reason
 
+        reason = getattr(estimator, "_fallback_reason", None)
+        reason = reason() if reason else (
+            "the sandwich formula needs unpenalized logistic/linear models fitted on all rows "
+            f"and here {sandwich_reason(estimator)}"
+        )  # fmt: skip
         notes.append(
             f"Standard errors of the effect and the stratum means come from "
             f"{len(estimator.bootstrap_replicates_)} bootstrap resamples (within arms) that refit "
-            "every model, because the sandwich formula needs unpenalized logistic/linear models "
-            f"fitted on all rows and here {sandwich_reason(estimator)}."
+            f"every model, because {reason}."
         )
     elif method == "influence function":
         notes.append("Standard errors come from the efficient influence function.")

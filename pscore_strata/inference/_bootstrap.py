@@ -16,14 +16,16 @@ import pandas as pd
 from joblib import delayed
 from sklearn.base import clone
 
-from .._validation import check_choice, check_level, intermediate_alias
-from ..tables import SummaryTable
-from ._display import BootstrapDisplay
+from .._validation import check_choice, intermediate_alias
+from .._warnings import warn_at_caller
 from ._failures import _check_failures, failure_reasons
-from ._intervals import bca_interval, influence_acceleration, percentile_interval
+from ._intervals import influence_acceleration
 from ._refits import Inputs, influence_matrix, refit_block, refit_jackknife_acceleration, statistics
 from ._resampling import multiplier_contributions, multiplier_draws, spawn_seeds
-from ._standard_errors import normal_interval, reference_dof
+from ._result import BootstrapResult
+from ._standard_errors import (
+    reference_dof,
+)
 from ._tasks import run_tasks
 
 __all__ = ["bootstrap", "BootstrapResult"]
@@ -57,8 +59,9 @@ def bootstrap(
     ----------
     estimator : estimator
         Unfitted template (it is cloned, never modified), e.g. :class:`PrincipalScoreWeighting`.
-        After ``fit`` it must expose ``effect_`` (one statistic, ``"effect"``) or ``lower_`` and
-        ``upper_`` (two statistics, ``"lower"`` and ``"upper"``, as bounds do). Clones get
+        After ``fit`` it must be a point estimate (``identification`` ``"point"``, or an
+        ``effect_``: one statistic, ``"effect"``) or bounds (``"bounds"``, or ``lower_`` and
+        ``upper_``: two statistics, ``"lower"`` and ``"upper"``). Clones get
         ``n_bootstrap=0`` where that parameter exists, so no bootstrap runs inside another.
     X, y, treatment, survival : array-like
         As in the estimator's ``fit``.
@@ -96,7 +99,8 @@ def bootstrap(
     Returns
     -------
     BootstrapResult
-        ``estimate``, ``replicates``, ``std_error``, ``conf_int(level, kind)``, ``n_failed``,
+        ``identification``, ``estimate``, ``replicates``, ``std_error``,
+        ``conf_int(level, kind)``, ``statistic_intervals(level, kind)``, ``n_failed``,
         ``summary()``.
 
     Raises
@@ -150,7 +154,7 @@ def bootstrap(
                 "The influence values ignore the estimation of the nuisance models, and so do "
                 "these replicates; use method='resample' for an interval that accounts for it."
             )
-            warnings.warn(notes[-1], UserWarning, stacklevel=2)
+            warn_at_caller(notes[-1], UserWarning)
     else:
         size = -(-n_resamples // _RESAMPLE_TASKS)
         blocks = [seeds[i : i + size] for i in range(0, n_resamples, size)]
@@ -192,136 +196,6 @@ def bootstrap(
         acceleration=acceleration if acceleration is not None else jackknife,
         notes=_describe(method, stratify, groups is not None, failures, notes),
     )
-
-
-class BootstrapResult(BootstrapDisplay):
-    """Replicates of a bootstrap and the intervals they give.
-
-    With one statistic (``"effect"``) ``estimate`` and ``std_error`` are floats and
-    :meth:`conf_int` returns ``(low, high)``; with several (bounds: ``"lower"``, ``"upper"``)
-    they are Series and :meth:`conf_int` returns a DataFrame with columns ``low`` and ``high``.
-
-    Attributes
-    ----------
-    estimate : float or Series
-        The point estimate from the full data.
-    replicates : DataFrame
-        One row per successful replicate (index: replicate number), one column per statistic.
-    std_error : float or Series
-        Standard deviation of the replicates (``ddof=1``).
-    n_resamples, n_failed : int
-        Replicates asked for, and replicates whose fit failed (left out).
-    method : str
-    notes : list of str
-    """
-
-    def __init__(self, *, estimate, replicates, n_resamples, n_failed, method, acceleration, notes,
-                 dof=None):  # fmt: skip
-        self._estimate = estimate
-        self._dof = dof
-        self.replicates = replicates
-        self.n_resamples = n_resamples
-        self.n_failed = n_failed
-        self.method = method
-        self.notes = notes
-        self._acceleration = acceleration
-
-    def _unwrap(self, series):
-        return float(series.iloc[0]) if len(series) == 1 else series
-
-    @property
-    def estimate(self):
-        return self._unwrap(self._estimate)
-
-    @property
-    def std_error(self):
-        return self._unwrap(self.replicates.std(ddof=1))
-
-    @property
-    def acceleration(self):
-        """BCa acceleration per statistic (from jackknife refits, computed on first use)."""
-        if callable(self._acceleration):
-            self._acceleration = np.asarray(self._acceleration(), dtype=float)
-        return self._unwrap(pd.Series(self._acceleration, index=self._estimate.index))
-
-    def conf_int(self, level=0.95, kind="percentile"):
-        """Confidence interval(s) at ``level``.
-
-        Parameters
-        ----------
-        level : float, default=0.95
-        kind : {"percentile", "bca", "normal"}, default="percentile"
-            ``"bca"`` corrects the percentiles for bias and skewness (Efron 1987); for the
-            resample method its acceleration needs one refit per jackknife block.
-            ``"normal"`` is ``estimate +/- z * std_error``; with fewer than 30 clusters in
-            ``groups``, ``z`` is the quantile of Student's t with ``G - 1`` degrees of freedom.
-        """
-        level = check_level(level)
-        check_choice(kind, "kind", ("percentile", "bca", "normal"))
-        names = self._estimate.index
-        if kind == "percentile":
-            low, high = percentile_interval(self.replicates.to_numpy(), level)
-        elif kind == "bca":
-            acceleration = np.atleast_1d(self.acceleration)
-            low, high = bca_interval(
-                self.replicates.to_numpy(), self._estimate.to_numpy(), acceleration, level
-            )
-        else:
-            se = self.replicates.std(ddof=1)
-            low, high = np.transpose(
-                [normal_interval(e, s, level, dof=self._dof)
-                 for e, s in zip(self._estimate, se, strict=True)]  # fmt: skip
-            )
-        if len(names) == 1:
-            return float(low[0]), float(high[0])
-        return pd.DataFrame({"low": low, "high": high}, index=names)
-
-    def summary(self, level=0.95, kind="percentile"):
-        """One row per statistic: estimate, standard error and interval; notes in ``attrs``."""
-        interval = self.conf_int(level, kind)
-        if isinstance(interval, tuple):
-            interval = pd.DataFrame([interval], columns=["low", "high"], index=self._estimate.index)
-        table = pd.DataFrame(
-            {
-                "estimate": self._estimate,
-                "std_error": self.replicates.std(ddof=1),
-                "ci_low": interval["low"],
-                "ci_high": interval["high"],
-                "n_replicates": len(self.replicates),
-            }
-        )
-        table.index.name = "statistic"
-        table.attrs["notes"] = [
-            *self.notes,
-            f"{level:.0%} {kind} interval from {len(self.replicates)} replicates.",
-            "The always-survivor stratum is latent and the assumptions behind these numbers "
-            "(monotonicity and, for point estimates, principal ignorability) cannot be tested "
-            "from the data; the bootstrap measures sampling error only. Do not base decisions "
-            "about individual patients on them; follow the study protocol and local "
-            "regulation, and have a qualified statistician review the analysis.",
-        ]
-        return SummaryTable(table, title="Bootstrap", level=level)
-
-    def __repr__(self):
-        # What an analyst wants at a glance: each statistic's estimate, SE and 95% percentile
-        # interval (the default of conf_int), then how the replicates were drawn.
-        if len(self.replicates) >= 2:
-            interval = self.conf_int(0.95, kind="percentile")
-            if isinstance(interval, tuple):
-                interval = pd.DataFrame([interval], columns=["low", "high"],
-                                        index=self._estimate.index)  # fmt: skip
-            se = self.replicates.std(ddof=1)
-            parts = [
-                f"{name}={self._estimate[name]:.4g} (SE {se[name]:.3g}, 95% percentile CI "
-                f"{interval.loc[name, 'low']:.4g} to {interval.loc[name, 'high']:.4g})"
-                for name in self._estimate.index
-            ]
-        else:
-            parts = [f"{name}={self._estimate[name]:.4g}" for name in self._estimate.index]
-        return (
-            f"BootstrapResult({', '.join(parts)}; method={self.method!r}, "
-            f"n_resamples={self.n_resamples}, n_failed={self.n_failed})"
-        )
 
 
 def _describe(method, stratify, clustered, failures, extra):

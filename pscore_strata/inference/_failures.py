@@ -9,10 +9,10 @@ bootstrap interval is given.
 from __future__ import annotations
 
 import re
-import warnings
 
 import pandas as pd
 
+from .._warnings import warn_at_caller
 from ..exceptions import BootstrapFailureError
 
 __all__ = ["MAX_FAILURE_SHARE", "BootstrapFailureError", "describe_failures", "failure_reasons"]
@@ -56,6 +56,6 @@ def _check_failures(failures, n_resamples):
             "rely on the influence-function or sandwich interval.",
             len(failures), n_resamples, failure_reasons(failures), message,
         )  # fmt: skip
-    warnings.warn(f"{message}. They are left out of the replicates.", RuntimeWarning, stacklevel=3)
+    warn_at_caller(f"{message}. They are left out of the replicates.", RuntimeWarning)
 
 

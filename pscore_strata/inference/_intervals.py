@@ -14,7 +14,18 @@ __all__ = [
 
 
 def percentile_interval(replicates, level=0.95):
-    """Percentile interval: the ``(1 -/+ level)/2`` quantiles of the replicates (per column)."""
+    """Percentile interval: the ``(1 -/+ level)/2`` quantiles of the replicates (per column).
+
+    Parameters
+    ----------
+    replicates : array-like of shape (n_replicates,) or (n_replicates, n_statistics)
+    level : float, default=0.95
+        Confidence level, strictly between 0 and 1.
+
+    Returns
+    -------
+    low, high : float or ndarray of shape (n_statistics,)
+    """
     level = check_level(level)
     alpha = (1 - level) / 2
     values = np.asarray(replicates, dtype=float)
@@ -65,6 +76,21 @@ def bca_interval(replicates, estimate, acceleration, level=0.95):
 
     The bias correction ``z0`` counts ties as half (as :func:`scipy.stats.bootstrap` does); the
     adjusted levels are ``Phi(z0 + (z0 + z) / (1 - a (z0 + z)))``.
+
+    Parameters
+    ----------
+    replicates : array-like of shape (n_replicates, n_statistics)
+        Bootstrap replicates, one column per statistic.
+    estimate : array-like of shape (n_statistics,)
+        The full-data estimates.
+    acceleration : array-like of shape (n_statistics,)
+        The acceleration ``a`` of each statistic (jackknife or influence values).
+    level : float, default=0.95
+        Confidence level, strictly between 0 and 1.
+
+    Returns
+    -------
+    low, high : ndarray of shape (n_statistics,)
     """
     level = check_level(level)
     values = np.asarray(replicates, dtype=float)

@@ -16,6 +16,7 @@ import pandas as pd
 from joblib import Parallel, delayed
 from sklearn.base import clone
 
+from .._results import BOUNDS, POINT, identification_of
 from ._intervals import jackknife_acceleration
 from ._resampling import jackknife_blocks, resample_rows, seed_models
 
@@ -25,11 +26,13 @@ REFIT_ERRORS = (ValueError, np.linalg.LinAlgError)
 def statistics(fitted):
     """Names and values of the statistics that a fitted estimator exposes.
 
-    ``lower_``/``upper_`` (bounds) give two statistics; otherwise ``effect_`` gives one.
+    Bounds (``identification`` ``"bounds"``: ``lower_``, ``upper_``) give two statistics; a point
+    estimate (``"point"``: ``effect_``) gives one.
     """
-    if hasattr(fitted, "lower_") and hasattr(fitted, "upper_"):
+    kind = identification_of(fitted)
+    if kind == BOUNDS:
         return ("lower", "upper"), np.array([fitted.lower_, fitted.upper_], dtype=float)
-    if hasattr(fitted, "effect_"):
+    if kind == POINT:
         return ("effect",), np.array([fitted.effect_], dtype=float)
     raise TypeError(
         f"`estimator` ({type(fitted).__name__}) exposes neither `effect_` nor `lower_` and "

@@ -23,7 +23,19 @@ __all__ = [
 
 
 def spawn_seeds(random_state, n):
-    """Independent child seeds, one per replicate, so results do not depend on scheduling."""
+    """Independent child seeds, one per replicate, so results do not depend on scheduling.
+
+    Parameters
+    ----------
+    random_state : int, numpy.random.SeedSequence, Generator, RandomState or None
+        Root of the seeds (``None``: fresh entropy).
+    n : int
+        Number of seeds.
+
+    Returns
+    -------
+    list of numpy.random.SeedSequence
+    """
     if isinstance(random_state, np.random.SeedSequence):
         root = random_state
     elif isinstance(random_state, np.random.Generator):
@@ -39,6 +51,18 @@ def stratified_resample(treatment, seed):
     """Row positions of one bootstrap resample, drawn with replacement within each arm.
 
     Cluster and unstratified schemes are in :func:`resample_rows`.
+
+    Parameters
+    ----------
+    treatment : ndarray of shape (n_rows,)
+        0/1 arm of each row.
+    seed : numpy.random.SeedSequence
+        The replicate's seed.
+
+    Returns
+    -------
+    ndarray of int
+        Row positions, with repeats.
     """
     rng = np.random.default_rng(seed)
     rows = []
@@ -90,6 +114,22 @@ def resample_rows(treatment, seed, groups=None, stratify=True):
     Extends :func:`stratified_resample` (whose draws it reproduces for ``stratify=True``): rows
     are drawn with replacement within each arm, or across arms when ``stratify=False``; with
     ``groups``, whole clusters are drawn (within arms when every cluster lies in one arm).
+
+    Parameters
+    ----------
+    treatment : ndarray of shape (n_rows,)
+        0/1 arm of each row.
+    seed : numpy.random.SeedSequence
+        The replicate's seed.
+    groups : array-like of shape (n_rows,), optional
+        Cluster labels: whole clusters are drawn.
+    stratify : bool, default=True
+        Draw within each arm (arm sizes kept), or across arms.
+
+    Returns
+    -------
+    ndarray of int
+        Row positions, with repeats (a cluster's rows together when ``groups`` is given).
     """
     if stratify and groups is None:
         return stratified_resample(np.asarray(treatment), seed)
@@ -113,6 +153,19 @@ def jackknife_blocks(treatment, seed, groups=None, stratify=True, n_groups=25):
     Within each stratum the units (rows or clusters) are split at random into ``n_groups``
     blocks of near-equal size, or left out one at a time when there are no more units than
     that (the ordinary jackknife).
+
+    Parameters
+    ----------
+    treatment : ndarray of shape (n_rows,)
+        0/1 arm of each row (the strata, with ``stratify``).
+    seed : numpy.random.SeedSequence
+        Seed of the random split into blocks.
+    groups : array-like of shape (n_rows,), optional
+        Cluster labels: whole clusters are left out together.
+    stratify : bool, default=True
+        Blocks within each arm (as the resamples are drawn), or across arms.
+    n_groups : int, default=25
+        Blocks per stratum.
 
     Returns
     -------
@@ -147,6 +200,19 @@ def multiplier_contributions(influence, sample_weight=None, groups=None):
     ``c_g = sqrt(G/(G-1)) (d_g - mean(d))`` with ``d_g = sum_{i in g} w_i IF_i / sum_i w_i``, so
     that ``sum_g xi_g c_g`` for independent mean-zero unit-variance multipliers ``xi_g`` has
     exactly the variance :func:`influence_std_error` reports (one multiplier per cluster).
+
+    Parameters
+    ----------
+    influence : ndarray of shape (n_rows,) or (n_rows, n_columns)
+        Influence values of the statistic(s).
+    sample_weight : ndarray of shape (n_rows,), optional
+    groups : array-like of shape (n_rows,), optional
+        Cluster labels (one multiplier per cluster).
+
+    Returns
+    -------
+    ndarray of shape (n_units, n_columns)
+        ``c``, one row per row (or per cluster, in order of first appearance).
     """
     influence = np.asarray(influence, dtype=float)
     influence = influence.reshape(influence.shape[0], -1)
@@ -174,6 +240,15 @@ def multiplier_draws(contributions, seeds, kind="rademacher"):
     depend on how replicates are grouped into tasks. Signs come eight rows per random byte: each
     chunk of rows gets a table of the 256 signed sums of every eight rows, and a replicate adds
     up one table entry per byte.
+
+    Parameters
+    ----------
+    contributions : ndarray of shape (n_units, n_columns)
+        From :func:`multiplier_contributions`.
+    seeds : sequence of numpy.random.SeedSequence
+        One per replicate.
+    kind : {"rademacher", "gaussian"}, default="rademacher"
+        Law of the multipliers.
 
     Returns
     -------

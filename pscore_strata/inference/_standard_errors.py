@@ -8,13 +8,12 @@ intervals use a t reference with ``G - 1`` degrees of freedom.
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import pandas as pd
-from scipy import stats
+from scipy import optimize, stats
 
 from .._validation import check_level
+from .._warnings import warn_at_caller
 from ..exceptions import FewClustersWarning
 
 __all__ = [
@@ -27,6 +26,7 @@ __all__ = [
     "reference_distribution",
     "reference_quantile",
     "normal_interval",
+    "imbens_manski_critical_value",
 ]
 
 
@@ -41,14 +41,12 @@ def count_clusters(groups, stacklevel=3):
         return None
     n_clusters = int(pd.unique(np.asarray(groups)).size)
     if n_clusters < FEW_CLUSTERS:
-        warnings.warn(
+        warn_at_caller(
             f"Only {n_clusters} clusters in `groups` (fewer than {FEW_CLUSTERS}): the "
             "cluster-robust standard error is imprecise, so confidence intervals use a t "
             f"reference with {n_clusters - 1} degrees of freedom (G - 1) instead of the normal. "
             "Even so they may undercover with very few clusters; treat them with caution.",
-            FewClustersWarning,
-            stacklevel=stacklevel,
-        )
+            FewClustersWarning)
     return n_clusters
 
 
@@ -121,6 +119,21 @@ def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
 
     With ``dof`` (few clusters: see :func:`reference_dof`) the quantile is Student's t with
     ``dof`` degrees of freedom instead of the normal one.
+
+    Parameters
+    ----------
+    estimate, std_error : float
+    level : float, default=0.95
+        Confidence level, strictly between 0 and 1.
+    log_scale : bool, default=False
+        Build the interval for ``log(estimate)`` (standard error ``std_error / estimate``) and
+        exponentiate its ends; NaN ends for a non-positive estimate.
+    dof : int or None, default=None
+        Degrees of freedom of Student's t reference; ``None`` is the normal.
+
+    Returns
+    -------
+    (low, high) : tuple of float
     """
     level = check_level(level)
     z = reference_quantile(level, dof)
@@ -130,3 +143,24 @@ def normal_interval(estimate, std_error, level=0.95, log_scale=False, dof=None):
         log_se = std_error / estimate
         return (float(estimate * np.exp(-z * log_se)), float(estimate * np.exp(z * log_se)))
     return (float(estimate - z * std_error), float(estimate + z * std_error))
+
+
+def imbens_manski_critical_value(width, se_lower, se_upper, level=0.95, dof=None):
+    """The ``c`` of the Imbens-Manski interval ``(lower - c se_lower, upper + c se_upper)``.
+
+    Solves ``Phi(c + width / max(se)) - Phi(-c) = level`` (Imbens & Manski 2004, Econometrica
+    72): ``c`` runs from the one-sided quantile (wide bounds: only one end can be missed) to the
+    two-sided one (``width = 0``: a point). Without a positive finite scale, the two-sided
+    quantile. ``Phi`` is Student's t with ``dof`` degrees of freedom when given.
+    """
+    reference = reference_distribution(dof)
+    width = max(width, 0.0)
+    scale = max(se_lower, se_upper)
+    z_two_sided = reference.ppf(0.5 + level / 2)
+    if not np.isfinite(scale) or scale <= 0:
+        return z_two_sided
+
+    def gap(c):
+        return reference.cdf(c + width / scale) - reference.cdf(-c) - level
+
+    return 0.0 if gap(0.0) >= 0 else optimize.brentq(gap, 0.0, z_two_sided + 1.0, xtol=1e-12)

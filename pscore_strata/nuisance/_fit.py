@@ -8,7 +8,6 @@ Notation: ``pi(X) = P(T=1|X)``, ``p_t(X) = P(S=1|T=t,X)``, ``m_t(X) = E[Y|T=t,S=
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -16,6 +15,7 @@ from sklearn.base import is_classifier
 from sklearn.model_selection import StratifiedKFold
 
 from .._validation import EXTREME_PROBABILITY
+from .._warnings import warn_at_caller
 from ..exceptions import MonotonicityWarning, OverlapWarning, SeparationWarning
 from ._missing import fit_missingness
 from ._models import (
@@ -61,9 +61,16 @@ class NuisanceFit:
     models : dict
         Fitted models (a list per arm: one per fold when cross-fitted), for predictions on new
         rows.
+    cross_fitted : bool
+        Whether the predictions are cross-fitted (``n_folds``).
+    missingness : dict or None
+        With ``missing="at_random"`` and missing data: the follow-up and response
+        probabilities per row.
     settings : dict or None
         The rows and model settings of the fit, so that another estimator can reuse it
         (``fit(..., nuisance=est.nuisance_)``) and refuse it when they differ.
+    separation : list
+        The separated binary models found at fit (messages; empty when none).
     """
 
     treatment_probability: np.ndarray
@@ -133,6 +140,11 @@ def fit_nuisance(
         Also fit the outcome model among each arm's units with intermediate 0 (stored under
         ``outcome[(arm, 0)]`` and ``models[("outcome", arm, 0)]``): the strata other than the
         always-survivors need ``E[Y | T=t, S=0, X]`` (docs/guide/derivations/strata.md).
+
+    Returns
+    -------
+    NuisanceFit
+        Per-row predictions and the fitted models (with the sandwich pieces when built).
     """
     n = data.n_samples
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
@@ -287,10 +299,8 @@ def _warn_extremes(pi, survival, known_probability):
                 f"{'treatment' if arm else 'control'} below {low}"
             )
     if messages:
-        warnings.warn(
+        warn_at_caller(
             "; ".join(messages)
             + ". Weights built from them are unstable: check overlap, simplify or regularize the "
             "models, or restrict the population.",
-            OverlapWarning,
-            stacklevel=3,
-        )
+            OverlapWarning)

@@ -17,11 +17,10 @@ models is in docs/guide/derivations/missing-data.md.
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 
 from .._validation import EXTREME_PROBABILITY
+from .._warnings import warn_at_caller
 from ..exceptions import OverlapWarning
 from ._models import ConstantModel, fit_predict
 
@@ -138,14 +137,12 @@ def _warn_small(predictions, data):
                 f"{'treatment' if arm else 'control'}{among} below {EXTREME_PROBABILITY}"
             )
     if messages:
-        warnings.warn(
+        warn_at_caller(
             "; ".join(messages)
             + ". Inverse-probability-of-observation weights built from them are unstable: check "
             "which units are lost or do not respond, simplify the response model, or restrict "
             "the population.",
-            OverlapWarning,
-            stacklevel=4,
-        )
+            OverlapWarning)
 
 
 def missingness_counts(data):

@@ -36,6 +36,11 @@ def default_binary_model():
 
     Fitted on standardized columns and mapped back, so the units of the covariates do not
     change the fit (:mod:`._conditioned`).
+
+    Returns
+    -------
+    LogisticRegression
+        An unfitted classifier (a subclass of scikit-learn's).
     """
     return StandardizedLogisticRegression(
         C=np.inf, solver="newton-cholesky", tol=1e-10, max_iter=200
@@ -55,6 +60,18 @@ class ParametricFit:
     ``H = sum_i w_i mask_i slope_i Xd_i Xd_i' / sum_i w_i`` (Stefanski & Boos 2002), where
     ``slope`` is the derivative of the prediction with respect to the linear predictor
     (``p(1-p)`` for logistic, 1 for linear regression).
+
+    Attributes
+    ----------
+    design : ndarray of shape (n_rows, n_columns) or None
+        ``Xd`` (``None``: an intercept-only model).
+    mask : ndarray of shape (n_rows,)
+        The rows the model was fitted on.
+    residual : ndarray of shape (n_rows,)
+        ``target - prediction``.
+    slope : ndarray of shape (n_rows,)
+    h_inverse : ndarray of shape (n_columns, n_columns)
+        ``H^{-1}``.
     """
 
     design: np.ndarray | None
@@ -68,6 +85,16 @@ class ParametricFit:
 
         ``derivative`` is d f_i / d prediction_i for the target's estimating function f; the
         returned rows are ``I_i . mean_w(derivative * slope * Xd)``.
+
+        Parameters
+        ----------
+        derivative : ndarray of shape (n_rows,)
+        weights : ndarray of shape (n_rows,) or None
+            Sample weights of the mean (``None``: unit weights).
+
+        Returns
+        -------
+        ndarray of shape (n_rows,)
         """
         gradient = _design_transpose_dot(self.design, weights * derivative * self.slope)
         gradient /= weights.sum()
@@ -75,7 +102,12 @@ class ParametricFit:
         return self.mask * self.residual * _design_dot(self.design, direction)
 
     def negated(self):
-        """The same fit seen as a model of ``1 - target`` (used when arms are swapped)."""
+        """The same fit seen as a model of ``1 - target`` (used when arms are swapped).
+
+        Returns
+        -------
+        ParametricFit
+        """
         return replace(self, residual=-self.residual)
 
 

@@ -24,8 +24,6 @@ influence function of the multiply robust estimator); :func:`sandwich_reason` sa
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 from sklearn.compose import ColumnTransformer
 from sklearn.linear_model import LinearRegression, LogisticRegression
@@ -40,6 +38,7 @@ from sklearn.preprocessing import (
     StandardScaler,
 )
 
+from .._warnings import warn_at_caller
 from ..exceptions import LooseFitWarning
 from ._mixture import stratum_pieces
 from ._models import ParametricFit
@@ -47,7 +46,8 @@ from ._strata import PrincipalScoreModel
 from ._stratum_arms import stratum_arms
 
 __all__ = [
-    "glm_kind", "sandwich_reason", "build_parametric", "response_glm", "LooseFitWarning"
+    "glm_kind", "sandwich_reason", "flexible_model_reason", "build_parametric", "response_glm",
+    "LooseFitWarning",
 ]  # fmt: skip
 
 _FIXED = (
@@ -194,14 +194,12 @@ def parametric_piece(design, mask, target, prediction, slope, weights, *, check_
         size = np.sqrt(np.abs(np.diag(info)))
         moved = float(np.max(np.abs(step * size)))
         if moved > _LOOSE_STEP:
-            warnings.warn(
+            warn_at_caller(
                 f"The {role} stopped before the root of its score equations (one more Newton "
                 f"step would move its standardized coefficients by {moved:.1e}). "
                 "The sandwich standard error uses its predictions as fitted; tighten `tol` "
                 "(or use solver='newton-cholesky') for an exact maximum-likelihood fit.",
-                LooseFitWarning,
-                stacklevel=4,
-            )
+                LooseFitWarning)
     # The mask stays boolean (one byte a row) and a constant slope a scalar: the correction
     # only multiplies by them.
     return ParametricFit(design=design, mask=mask, residual=residual, slope=slope,
@@ -212,6 +210,43 @@ def _information_vector(Z, u):
     if Z is None:
         return np.array([u.sum()])
     return np.concatenate([[u.sum()], Z.T @ u])
+
+
+def flexible_model_reason(estimator):
+    """Why the influence values alone do not carry the nuisance fits' error (a sentence), or None.
+
+    The efficient influence function accounts for the estimation of the nuisance models when they
+    are parametric or cross-fitted (Chernozhukov et al. 2018, section 3: without sample splitting
+    the learners must lie in a Donsker class). A flexible learner fitted and evaluated on the
+    same rows (``n_folds=None``) adapts to their noise, and the spread of the influence values
+    then understates the error.
+    """
+    if getattr(estimator, "n_folds", None) is not None:
+        return None
+    roles = ["treatment_model", "survival_model", "outcome_model"]
+    if getattr(estimator, "missing", "error") == "at_random":
+        roles += ["follow_up_model", "response_model"]
+    for role in roles:
+        model = getattr(estimator, role, None)
+        if not _parametric(model):
+            return (
+                f"`{role}` is {type(model).__name__}, a flexible learner fitted and evaluated on "
+                "the same rows (n_folds=None)"
+            )
+    return None
+
+
+def _parametric(model):
+    """A known probability, the default, or a scikit-learn linear model (penalized or not),
+    alone, after fixed transformers, or inside a PrincipalScoreModel."""
+    if model is None or isinstance(model, int | float):
+        return True
+    if _stratum_model(model):
+        return _parametric(model.estimator)
+    if isinstance(model, Pipeline):
+        fixed = all(_fixed_transformer(step) for _, step in model.steps[:-1])
+        return fixed and _parametric(model.steps[-1][1])
+    return any(kind.__module__.startswith("sklearn.linear_model") for kind in type(model).__mro__)
 
 
 def _stratum_model(model):

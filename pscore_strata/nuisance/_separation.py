@@ -23,6 +23,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from .._warnings import warn_at_caller
+
 __all__ = ["CERTAIN", "LARGE_COEFFICIENT", "separation_findings", "separation_message"]
 
 #: A fitted probability this close to 0 or 1 is a perfect prediction.
@@ -162,9 +164,8 @@ def separation_checks(data, result, known_probability, strata=False):
                 yield (kind, arm, rows, target, result.missingness[kind][arm], model)
 
 
-def warn_separation(data, result, known_probability, category, strata=False, stacklevel=5):
+def warn_separation(data, result, known_probability, category, strata=False):
     """Warn once per separated model (``category``); return the messages."""
-    import warnings
 
     if data.X is None or data.n_features == 0:
         return []
@@ -179,5 +180,5 @@ def warn_separation(data, result, known_probability, category, strata=False, sta
         )  # fmt: skip
         if findings is not None:
             messages.append(separation_message(kind, arm, findings))
-            warnings.warn(messages[-1], category, stacklevel=stacklevel)
+            warn_at_caller(messages[-1], category)
     return messages

@@ -90,8 +90,11 @@ def _differs(name, fitted, wanted):
 
 
 def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_enters=True,
-                    n_repeats=1):  # fmt: skip
+                    n_repeats=1, fold_seed=None):  # fmt: skip
     """Check a previously fitted nuisance against ``owner`` and these data; adapt its sandwich.
+
+    ``fold_seed``: the fold-split seed the fit must have been made with (one repeat's seed, when
+    the fits of several cross-fitting repeats are shared); ``None``: ``owner.random_state``.
 
     Returns the nuisance to use: the same predictions and models, with the sandwich pieces
     ``owner`` would have built itself (rebuilt from the fitted models, or none).
@@ -151,7 +154,9 @@ def shared_nuisance(owner, nuisance, data, *, uses_outcome, sandwich, treatment_
     n_folds = getattr(owner, "n_folds", None)
     if settings["n_folds"] != n_folds:
         problems.append(_differs("n_folds", settings["n_folds"], n_folds))
-    elif n_folds is not None and settings["random_state"] != _state_key(owner.random_state):
+    elif n_folds is not None and settings["random_state"] != _state_key(
+        owner.random_state if fold_seed is None else fold_seed
+    ):
         problems.append(
             _differs("random_state (fold split)", settings["random_state"], owner.random_state)
         )

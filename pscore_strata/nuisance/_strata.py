@@ -20,6 +20,7 @@ from sklearn.utils import get_tags
 from sklearn.utils.validation import check_array, check_is_fitted
 
 from .._arguments import positional_still_accepted
+from .._warnings import warn_at_caller
 from ..inference._resampling import seed_models, spawn_seeds
 from ._mixture import (
     MixtureLikelihood,
@@ -34,6 +35,7 @@ from ._stratum_fitting import (
     check_prediction_input,
     check_stratum_params,
     newton_maximize,
+    not_converged_message,
     starting_strata,
     weighted_fit,
 )
@@ -200,27 +202,8 @@ class PrincipalScoreModel(BaseEstimator):
             self._fit_multinomial(X, allowed, weights)
         else:
             self._fit_em(X, allowed, weights)
-        if not self.converged_ and self.estimator is not None:
-            warnings.warn(
-                f"PrincipalScoreModel's EM fit did not settle in max_iter={self.max_iter} "
-                f"iterations: the observed-data log-likelihood still rose by more than "
-                f"tol={self.tol} (relative) within the last {_EM_PATIENCE} iterations. The "
-                "model kept is the iteration with the highest log-likelihood. Increase "
-                "`max_iter`, loosen `tol`, or regularize the classifier (fewer or shallower "
-                "trees, larger leaves); a learner that keeps fitting the posteriors more "
-                "closely overfits them.",
-                ConvergenceWarning,
-                stacklevel=2,
-            )
-        elif not self.converged_:
-            warnings.warn(
-                f"PrincipalScoreModel did not converge in max_iter={self.max_iter} iterations "
-                f"(tol={self.tol}). Increase `max_iter`, loosen `tol`, or simplify the covariates; "
-                "a stratum with almost no units (for example no helped units anywhere) also "
-                "drives its coefficients towards infinity.",
-                ConvergenceWarning,
-                stacklevel=2,
-            )
+        if not self.converged_:
+            warn_at_caller(not_converged_message(self, _EM_PATIENCE), ConvergenceWarning)
         return self
 
     @property
@@ -392,7 +375,16 @@ class PrincipalScoreModel(BaseEstimator):
         return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
 
     def survival_probability(self, X):
-        """Survival probabilities ``(p0, p1)`` implied by the stratum probabilities."""
+        """Survival probabilities ``(p0, p1)`` implied by the stratum probabilities.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_rows, n_features) or None
+
+        Returns
+        -------
+        p0, p1 : ndarray of shape (n_rows,)
+        """
         scores = self.predict_proba(X)
         pure = scores[:, 0]
         mixed = scores[:, 0] + scores[:, 1]

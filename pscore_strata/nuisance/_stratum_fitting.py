@@ -10,7 +10,8 @@ from sklearn.utils.validation import has_fit_parameter
 from .._features import check_feature_names, check_features
 
 __all__ = ["check_stratum_params", "check_cells", "starting_strata", "newton_maximize",
-           "weighted_fit", "check_fit_input", "check_prediction_input"]  # fmt: skip
+           "weighted_fit", "check_fit_input", "check_prediction_input",
+           "not_converged_message"]  # fmt: skip
 
 
 def check_stratum_params(model):
@@ -172,3 +173,23 @@ def check_prediction_input(model, X):
         )
     if X is not None:
         check_feature_names(model, X, reset=False)
+
+
+def not_converged_message(model, patience):
+    """What to tell the user when a :class:`PrincipalScoreModel` fit did not converge."""
+    if model.estimator is not None:
+        return (
+            f"PrincipalScoreModel's EM fit did not settle in max_iter={model.max_iter} "
+            f"iterations: the observed-data log-likelihood still rose by more than "
+            f"tol={model.tol} (relative) within the last {patience} iterations. The "
+            "model kept is the iteration with the highest log-likelihood. Increase "
+            "`max_iter`, loosen `tol`, or regularize the classifier (fewer or shallower "
+            "trees, larger leaves); a learner that keeps fitting the posteriors more "
+            "closely overfits them."
+        )
+    return (
+        f"PrincipalScoreModel did not converge in max_iter={model.max_iter} iterations "
+        f"(tol={model.tol}). Increase `max_iter`, loosen `tol`, or simplify the covariates; "
+        "a stratum with almost no units (for example no helped units anywhere) also "
+        "drives its coefficients towards infinity."
+    )

@@ -41,14 +41,29 @@ SCHEMA_VERSION = "1.4.0"
 
 @dataclass
 class Analysis:
-    """What :func:`run_analysis` hands back: the JSON-ready results and the fitted objects."""
+    """What :func:`run_analysis` hands back: the JSON-ready results and the fitted objects.
+
+    Attributes
+    ----------
+    results : dict
+        The JSON-ready results (what ``results.json`` holds).
+    estimators : dict
+        The fitted estimators by method name.
+    primary : estimator or None
+        The fitted primary estimator.
+    covariates : pandas.DataFrame or None
+        The analysed covariates.
+    bounds : TrimmingBounds or None
+    visits : pandas.DataFrame or None
+        The :func:`~pscore_strata.visit_effects` table of repeated visits.
+    """
 
     results: dict
     estimators: dict = field(default_factory=dict)
     primary: object = None
     covariates: object = None
     bounds: object = None
-    visits: object = None  # the visit_effects table of repeated visits
+    visits: object = None
 
 
 class _Collector:

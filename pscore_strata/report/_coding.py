@@ -10,11 +10,11 @@ with advice that works; a categorical covariate with many levels is analysed wit
 from __future__ import annotations
 
 import re
-import warnings
 
 import numpy as np
 import pandas as pd
 
+from .._warnings import warn_at_caller
 from ..exceptions import DataWarning
 
 __all__ = ["MANY_LEVELS", "DataWarning", "indicator", "check_dates", "many_levels_messages",
@@ -156,7 +156,7 @@ def many_levels_messages(covariates, categorical):
                 "numeric summary of it."
             )
     for message in messages:
-        warnings.warn(message, DataWarning, stacklevel=3)
+        warn_at_caller(message, DataWarning)
     return messages
 
 

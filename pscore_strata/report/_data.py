@@ -7,15 +7,13 @@ says what to do.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-
 import numpy as np
 import pandas as pd
 
-from .._formula import variables_in
 from ..exceptions import InputError
 from . import _coding, _readers
 from ._formula_data import check_formula_option, formula_design
+from ._roles import ColumnRoles, PreparedData
 from ._visit_data import check_visit_roles, prepare_visits, visit_missing_rows
 
 __all__ = [
@@ -23,76 +21,20 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True)
-class ColumnRoles:
-    """Which column plays which part in the analysis."""
-
-    outcome: str
-    treatment: str
-    survival: str
-    covariates: tuple = ()
-    categorical: tuple = ()
-    cluster: str | None = None
-    weights: str | None = None
-    by: str | None = None  # subgroup column (--by): effects within each of its values
-    formula: str | None = None  # --formula: covariates as a formula (formulaic's grammar)
-    # Repeated visits: (outcome, survival) column pairs in time order; the last pair is the
-    # outcome and survival above, which the main analysis uses (report/_visit_data.py).
-    visits: tuple = ()
-
-    def all_covariates(self):
-        """Covariates in the order given, categorical columns included (added if unlisted);
-        with a formula, the columns it names."""
-        if self.formula is not None:
-            return tuple(variables_in(self.formula))
-        listed = list(self.covariates)
-        return tuple(listed + [c for c in self.categorical if c not in listed])
-
-    def used_columns(self):
-        named = [self.outcome, self.treatment, self.survival, *self.all_covariates()]
-        named += [c for c in (self.cluster, self.weights, self.by) if c is not None]
-        named += [c for pair in self.visits for c in pair]
-        return list(dict.fromkeys(named))
-
-    def as_dict(self):
-        return {
-            "outcome": self.outcome,
-            "treatment": self.treatment,
-            "survival": self.survival,
-            "covariates": list(self.all_covariates()),
-            "categorical": list(self.categorical),
-            "cluster": self.cluster,
-            "weights": self.weights,
-            "by": self.by,
-            "formula": self.formula,
-        }
-
-
-@dataclass(frozen=True)
-class PreparedData:
-    """The analysed rows: covariates (raw and model-ready) and the role arrays."""
-
-    frame: pd.DataFrame  # the analysed rows of the used columns (a copy)
-    covariates: pd.DataFrame | None  # raw covariates, categoricals as read
-    design: pd.DataFrame | None  # model-ready: categoricals one-hot coded (drop_first)
-    outcome: np.ndarray
-    treatment: np.ndarray
-    survival: np.ndarray
-    groups: np.ndarray | None
-    sample_weight: np.ndarray | None
-    n_rows_read: int
-    n_rows_dropped: int
-    missing_counts: dict = field(default_factory=dict)
-    # Level names as read: {"treatment": (treated, control), "survival": (survived, event)}.
-    levels: dict = field(default_factory=dict)
-    messages: tuple = ()  # data warnings, also shown in the report
-    visits: tuple = ()  # VisitColumns of repeated visits (report/_visit_data.py)
-
-
 def read_table(path):
     """Read a data file into a DataFrame: CSV (comma- or semicolon-separated), Parquet, Stata
     ``.dta``, SAS ``.sas7bdat`` or SPSS ``.sav`` (pandas' readers; SPSS needs
-    pyreadstat)."""
+    pyreadstat).
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The format follows the file's extension.
+
+    Returns
+    -------
+    pandas.DataFrame
+    """
     return _readers.read_table(path, InputError)
 
 

@@ -36,7 +36,12 @@ SECTIONS = (
 
 
 def schema():
-    """The JSON Schema that ``results.json`` follows."""
+    """The JSON Schema that ``results.json`` follows.
+
+    Returns
+    -------
+    dict
+    """
     text = resources.files("pscore_strata.report").joinpath(SCHEMA).read_text(encoding="utf-8")
     return json.loads(text)
 
@@ -148,7 +153,19 @@ def _view(results, figures):
 
 
 def render_html(results, figures):
-    """The report as one HTML string; every value from the user is escaped by jinja2."""
+    """The report as one HTML string; every value from the user is escaped by jinja2.
+
+    Parameters
+    ----------
+    results : dict
+        The JSON-ready results (``Analysis.results``).
+    figures : list of dict
+        One per figure: its metadata and its PNG bytes under ``"png"``.
+
+    Returns
+    -------
+    str
+    """
     try:
         import jinja2
     except ImportError as error:
@@ -168,6 +185,13 @@ def render_html(results, figures):
 
 def write_report(analysis, out_dir):
     """Write ``report.html``, ``results.json`` and one PNG per figure into ``out_dir``.
+
+    Parameters
+    ----------
+    analysis : Analysis
+        What :func:`run_analysis` returned.
+    out_dir : str or pathlib.Path
+        Created if it does not exist.
 
     Returns
     -------

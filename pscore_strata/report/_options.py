@@ -50,6 +50,48 @@ def boosting_params(n_rows=None):
 
 @dataclass(frozen=True)
 class AnalysisOptions:
+    """The settings of one analysis, as the command line's options give them.
+
+    Attributes
+    ----------
+    method : {"weighting", "regression", "robust"}, default="robust"
+        The primary estimator.
+    learner : {"linear", "boosting"}, default="linear"
+        The nuisance models: the default GLMs, or gradient boosting (cross-fitted).
+    folds : int or None, default=None
+        Cross-fitting folds (``None``: none with ``"linear"``, 5 or more with boosting).
+    bootstrap : int, default=0
+        Resamples of the refitting bootstrap of the primary estimator (``--bootstrap``).
+    level : float, default=0.95
+    monotonicity : {"increasing", "decreasing"}, default="increasing"
+    seed : int, default=0
+    event_name, unit_name : str, default="death", "unit"
+        Words of the study (report/_wording.py): the event that truncates the outcome, and
+        what one row is (``"SINGULAR"`` or ``"SINGULAR/PLURAL"``).
+    arm_names : tuple of str or None, default=None
+        ``(treated, control)`` arm names.
+    missing : {"error", "at_random"}, default="error"
+    survival_model : {"arm-wise", "strata", "by_fit"}, default="arm-wise"
+        Source of the principal scores (report/_survival_model.py): ``"by_fit"`` fits both and
+        keeps the one with the smaller AIC, a data-driven choice the standard errors do not
+        see, so neither command uses it.
+    stratum : str, default="always_survivor"
+        The principal stratum whose effect the report is about (``--stratum``; derivation in
+        docs/guide/derivations/strata.md).
+    visit_population : {"each", "last"}, default="each"
+        Repeated visits (several outcome columns; report/_visits.py).
+    quantiles : tuple of float, default=(0.1, 0.25, 0.5, 0.75, 0.9)
+        Quantiles of the quantile effects and their bounds (``--quantiles``).
+    distributions : bool, default=True
+        ``False`` skips the "Distributions" section (``--no-distributions``).
+    treatment_probability : float or None, default=None
+        A known randomization probability (``--treatment-probability``): the treatment model.
+    outcome_label : str or None, default=None
+        Headings and axes name the outcome so (``--outcome-label``); ``None``: the column name.
+    levels : tuple or None, default=None
+        Labels of the outcome's levels (``--levels "1=worse,2=same"``): ``((code, label), ...)``.
+    """
+
     method: str = "robust"
     learner: str = "linear"
     folds: int | None = None
@@ -57,30 +99,17 @@ class AnalysisOptions:
     level: float = 0.95
     monotonicity: str = "increasing"
     seed: int = 0
-    # Words of the study (report/_wording.py): the event that truncates the outcome, what one
-    # row is ("SINGULAR" or "SINGULAR/PLURAL"), and (treated, control) arm names.
     event_name: str = "death"
     unit_name: str = "unit"
     arm_names: tuple | None = None
     missing: str = "error"
-    # Source of the principal scores (report/_survival_model.py): "arm-wise", "strata", or
-    # "by_fit" (fit both, keep the one with the smaller AIC; a data-driven choice the standard
-    # errors do not see, so neither command uses it).
     survival_model: str = "arm-wise"
-    # The principal stratum whose effect the report is about (--stratum; derivation in
-    # docs/guide/derivations/strata.md).
     stratum: str = "always_survivor"
-    # Repeated visits (several outcome columns): "each" or "last" (report/_visits.py).
     visit_population: str = "each"
-    # The "Distributions" section (report/_distributions.py): quantiles of the quantile effects
-    # and their bounds (--quantiles), or the whole section skipped (--no-distributions).
     quantiles: tuple = (0.1, 0.25, 0.5, 0.75, 0.9)
     distributions: bool = True
-    # A known randomization probability (--treatment-probability): the treatment model.
     treatment_probability: float | None = None
-    # Headings and axes name the outcome so (--outcome-label); None: the column name.
     outcome_label: str | None = None
-    # Labels of the outcome's levels (--levels "1=worse,2=same"): ((code, label), ...).
     levels: tuple | None = None
 
 
@@ -150,7 +179,20 @@ def _learner_settings(options, n_rows):
 
 
 def build_estimator(method, options, n_rows=None):
-    """The estimator the command line fits for ``method`` (exposed so tests can refit it)."""
+    """The estimator the command line fits for ``method`` (exposed so tests can refit it).
+
+    Parameters
+    ----------
+    method : {"weighting", "regression", "robust"}
+    options : AnalysisOptions
+    n_rows : int, optional
+        Rows of the data (large data get more folds with the boosting learner).
+
+    Returns
+    -------
+    PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust
+        Unfitted.
+    """
     models, folds = model_settings(options, n_rows)
     params = dict(models, monotonicity=options.monotonicity, n_folds=folds,
                   random_state=options.seed, missing=options.missing,

@@ -6,7 +6,8 @@ The contract, as :func:`run_study` documents it: ``fit(X, y, *, treatment, survi
 (when absent, the Wald interval ``effect_ +/- z std_error_``, marked ``"wald"`` in the
 ``interval`` column), or bounds in ``lower_`` and ``upper_`` with ``conf_int(level)`` covering
 the true effect (Imbens & Manski 2004) and, optionally,
-``conf_int(level, coverage="identified_set")`` covering the identified set.
+``conf_int(level, coverage="identified_set")`` covering the identified set. Which of the two,
+``identification`` says (:mod:`pscore_strata._results`).
 """
 
 from __future__ import annotations
@@ -17,6 +18,8 @@ import warnings
 import numpy as np
 from scipy import stats
 from sklearn.base import clone
+
+from .._results import BOUNDS, POINT, identification_of
 
 __all__ = ["seeded_clone", "fit_one", "is_bounds"]
 
@@ -39,8 +42,7 @@ def seeded_clone(estimator, seed):
 
 def is_bounds(fitted):
     """Whether a fitted estimator reports bounds rather than a point estimate."""
-    has_bounds = hasattr(fitted, "lower_") and hasattr(fitted, "upper_")
-    return has_bounds and not hasattr(fitted, "effect_")
+    return identification_of(fitted) == BOUNDS
 
 
 def _wald(center, std_error, level):
@@ -93,7 +95,7 @@ def fit_one(estimator, data, level):
             estimator.fit(data.X, data.y, **fit_kwargs)
             if is_bounds(estimator):
                 _bounds(estimator, level, row)
-            elif hasattr(estimator, "effect_"):
+            elif identification_of(estimator) == POINT:
                 _point(estimator, level, row)
             else:
                 raise AttributeError(

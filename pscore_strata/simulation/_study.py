@@ -89,7 +89,10 @@ def run_study(
           ``effect_ +/- z std_error_``, marked ``"wald"`` in the ``interval`` column;
         - a bounds estimator sets ``lower_`` and ``upper_`` instead of ``effect_``; its
           ``conf_int(level)`` covers the true effect (Imbens-Manski) and, if it accepts
-          ``coverage="identified_set"``, that interval covers the identified set.
+          ``coverage="identified_set"``, that interval covers the identified set;
+        - which of the two an estimator is, is read from its ``identification`` (``"point"``
+          or ``"bounds"``, as the package's estimators declare it); an estimator without it
+          counts as bounds when it has ``lower_`` and ``upper_``, else as a point estimator.
     scenarios : str, callable, list of them, or dict of str -> str or callable
         Names from :data:`pscore_strata.datasets.SCENARIOS`, or callables called as
         ``f(n_samples=n, random_state=rng, **setting)`` (so ``functools.partial`` of

@@ -70,7 +70,12 @@ class SummaryTable(pd.DataFrame):
         return pd.DataFrame
 
     def to_frame(self):
-        """A plain DataFrame copy, ``attrs`` (the notes) included."""
+        """A plain DataFrame copy, ``attrs`` (the notes) included.
+
+        Returns
+        -------
+        pandas.DataFrame
+        """
         frame = pd.DataFrame(self, copy=True)
         frame.attrs = dict(self.attrs)
         return frame
@@ -223,7 +228,17 @@ def result_card(title, fields, *, warnings=(), notes=(), details=None):
 
 
 def number_text(value, digits=3):
-    """A number for a card: ``digits`` decimals (fewer above 100), "n/a" when not finite."""
+    """A number for a card: ``digits`` decimals (fewer above 100), "n/a" when not finite.
+
+    Parameters
+    ----------
+    value : float or None
+    digits : int, default=3
+
+    Returns
+    -------
+    str
+    """
     if value is None or not np.isfinite(value):
         return "n/a"
     size = abs(value)

@@ -163,11 +163,21 @@ class Table:
         return [c for c in self.data.columns if c != self.group_column]
 
     def header(self):
-        """Header texts of the printed columns."""
+        """Header texts of the printed columns.
+
+        Returns
+        -------
+        list of str
+        """
         return [str(self.labels.get(c, c)) for c in self.columns]
 
     def alignments(self):
-        """``"left"`` or ``"right"`` per printed column."""
+        """``"left"`` or ``"right"`` per printed column.
+
+        Returns
+        -------
+        list of str
+        """
         return [self.align.get(c) or self._default_align(c) for c in self.columns]
 
     def _default_align(self, column):
@@ -178,12 +188,29 @@ class Table:
         return "right" if numeric else "left"
 
     def cell(self, row, column):
-        """The text of the cell at position ``row`` of ``column``."""
+        """The text of the cell at position ``row`` of ``column``.
+
+        Parameters
+        ----------
+        row : int
+            Row position in ``data``.
+        column : str
+            A column of ``data``.
+
+        Returns
+        -------
+        str
+        """
         value = self.data[column].iloc[row]
         return format_cell(value, self.formats.get(column), missing=self.missing)
 
     def rows(self):
-        """The body: ``("group", text)`` for a group heading, ``("row", [texts])`` otherwise."""
+        """The body: ``("group", text)`` for a group heading, ``("row", [texts])`` otherwise.
+
+        Returns
+        -------
+        list of tuple
+        """
         body, current = [], object()
         for i in range(len(self.data)):
             if self.group_column is not None:
@@ -197,37 +224,77 @@ class Table:
     # -- writers ------------------------------------------------------------------------------
 
     def to_markdown(self):
-        """Pipe table with a "Table: caption" line and the footnote under it."""
+        """Pipe table with a "Table: caption" line and the footnote under it.
+
+        Returns
+        -------
+        str
+        """
         from ._text import markdown
 
         return markdown(self)
 
     def to_latex(self):
-        """A ``table`` float around a booktabs ``tabular`` (needs ``\\usepackage{booktabs}``)."""
+        """A ``table`` float around a booktabs ``tabular`` (needs ``\\usepackage{booktabs}``).
+
+        Returns
+        -------
+        str
+        """
         from ._text import latex
 
         return latex(self)
 
     def to_html(self):
-        """A ``<table>`` with ``<caption>`` and a ``<tfoot>`` footnote; every text is escaped."""
+        """A ``<table>`` with ``<caption>`` and a ``<tfoot>`` footnote; every text is escaped.
+
+        Returns
+        -------
+        str
+        """
         from ._text import html
 
         return html(self)
 
     def to_docx(self, document=None):
-        """Append the table to a python-docx ``Document`` (a new one by default) and return it."""
+        """Append the table to a python-docx ``Document`` (a new one by default) and return it.
+
+        Parameters
+        ----------
+        document : docx.Document, optional
+            The document to append to (needs python-docx).
+
+        Returns
+        -------
+        docx.Document
+        """
         from ._docx import add_table
 
         return add_table(self, document)
 
     def render(self, format):
-        """The table as text (``"tex"``, ``"md"``, ``"html"``) or a Document (``"docx"``)."""
+        """The table as text (``"tex"``, ``"md"``, ``"html"``) or a Document (``"docx"``).
+
+        Parameters
+        ----------
+        format : {"tex", "md", "html", "docx"}
+
+        Returns
+        -------
+        str or docx.Document
+        """
         format = check_format(format)
         return {"tex": self.to_latex, "md": self.to_markdown, "html": self.to_html,
                 "docx": self.to_docx}[format]()  # fmt: skip
 
     def write(self, path, format=None):
         """Write the table to ``path``; the format comes from its extension unless given.
+
+        Parameters
+        ----------
+        path : str or pathlib.Path
+        format : {"tex", "md", "html", "docx"}, optional
+            ``None``: from the extension of ``path``.
 
         Returns
         -------

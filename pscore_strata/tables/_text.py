@@ -46,7 +46,16 @@ _NUMBER_MINUS = re.compile(r"(?<![\w.)])-(?=[\d.∞])")
 
 
 def latex_escape(text):
-    """Text as pdfLaTeX prints it: special characters escaped, minus signs in math mode."""
+    """Text as pdfLaTeX prints it: special characters escaped, minus signs in math mode.
+
+    Parameters
+    ----------
+    text : str
+
+    Returns
+    -------
+    str
+    """
     text = _NUMBER_MINUS.sub("−", str(text))
     return _LATEX_PATTERN.sub(lambda m: _LATEX_SPECIAL[m.group(0)], text)
 

@@ -14,7 +14,9 @@ import numpy as np
 import pandas as pd
 from sklearn.base import clone
 
+from .._results import POINT, identification_of
 from .._validation import check_choice, check_level
+from .._warnings import warn_at_caller
 from ..estimators._summary import CAUTIONS as SUMMARY_CAUTIONS
 from ..inference import normal_interval
 from ..inference._standard_errors import reference_dof
@@ -224,7 +226,7 @@ def _fit_visits(template, X, columns, labels, treatment, sample_weight, groups):
                                           sample_weight=sample_weight, groups=groups)  # fmt: skip
             except (ValueError, TypeError) as exc:
                 raise type(exc)(f"At visit {label!r}: {exc}") from exc
-        if not (hasattr(fit, "effect_") and hasattr(fit, "influence_")):
+        if identification_of(fit) != POINT or not hasattr(fit, "influence_"):
             raise TypeError(
                 f"`estimator` ({type(template).__name__}) has no `effect_` and `influence_` after "
                 "fit; visit_effects needs a point estimator of the SACE (bounds are not "
@@ -243,7 +245,7 @@ def _warn_once(caught):
         seen.setdefault((record.category, str(record.message)), []).append(label)
     for (category, message), labels in seen.items():
         where = ", ".join(repr(v) for v in labels)
-        warnings.warn(f"At visit(s) {where}: {message}", category, stacklevel=4)
+        warn_at_caller(f"At visit(s) {where}: {message}", category)
 
 
 def _table(visits, fits, estimate, std_error, critical, level, log_scale, dof):
