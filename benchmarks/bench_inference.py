@@ -22,7 +22,11 @@ from joblib import Parallel, delayed
 from threadpoolctl import threadpool_limits
 
 import pscore_strata as ps
-from pscore_strata.inference import multiplier_contributions, multiplier_draws, spawn_seeds
+from pscore_strata.inference._resampling import (
+    multiplier_contributions,
+    multiplier_draws,
+    spawn_seeds,
+)
 from pscore_strata.inference._tasks import run_tasks
 
 BLOCK = 250  # replicates per task, as in ps.bootstrap

@@ -18,10 +18,12 @@ from pscore_strata.inference import (
     bca_interval,
     bootstrap,
     influence_std_error,
+    percentile_interval,
+)
+from pscore_strata.inference._resampling import (
     jackknife_blocks,
     multiplier_contributions,
     multiplier_draws,
-    percentile_interval,
     resample_rows,
     spawn_seeds,
     stratified_resample,
@@ -625,3 +627,11 @@ def test_caller_data_is_not_modified(small):
     )
     pd.testing.assert_frame_equal(X, before[0])
     pd.testing.assert_series_equal(y, before[1])
+
+
+def test_the_resampling_machinery_is_deprecated_on_the_public_path():
+    # Internal from this release: the old import path warns and still gives the same function.
+    with pytest.warns(DeprecationWarning, match="internal machinery of the bootstrap"):
+        old = ps.inference.spawn_seeds
+    assert old is spawn_seeds
+    assert "spawn_seeds" not in ps.inference.__all__

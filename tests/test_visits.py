@@ -20,6 +20,7 @@ from sklearn.linear_model import LogisticRegression
 
 import pscore_strata as ps
 from pscore_strata.datasets import make_visits
+from pscore_strata.inference._resampling import resample_rows, spawn_seeds
 from pscore_strata.visits._joint import band_critical
 
 
@@ -336,8 +337,8 @@ def test_joint_covariance_agrees_with_a_refitting_bootstrap():
     table = ps.visit_effects(estimator, data.X, data.y, treatment=data.treatment,
                              survival=data.survival)  # fmt: skip
     replicates = []
-    for seed in ps.inference.spawn_seeds(5, 80):
-        rows = ps.inference.resample_rows(data.treatment, seed)
+    for seed in spawn_seeds(5, 80):
+        rows = resample_rows(data.treatment, seed)
         replicates.append([
             _fit(estimator, data.X.iloc[rows], data.y.iloc[rows, k], data.treatment[rows],
                  data.survival.iloc[rows, k]).effect_

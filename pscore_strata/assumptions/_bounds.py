@@ -23,6 +23,7 @@ from .._features import check_feature_names
 from .._results import BOUNDS
 from .._validation import check_choice, check_level, check_truncation_data, intermediate_alias
 from ..distributions._quantiles import check_quantiles
+from ..estimands._strata import needs_zero_cells, resolve_stratum, stratum_words
 from ..estimands._view import orient
 from ..inference._standard_errors import (
     count_clusters,
@@ -71,6 +72,15 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     quantiles : sequence of float in (0, 1) or None, default=None
         Also bound the always-survivor quantile effects at these probabilities
         (``quantile_bounds_``; construction in :mod:`pscore_strata.assumptions._quantile_bounds`).
+    stratum : str, default="always_survivor"
+        The principal stratum whose effect is bounded, as in :class:`PrincipalScoreWeighting`
+        (``"protected"``/``"complier"``, ``"doomed"``/``"never_taker"``, ``"harmed"``); the
+        strata other than the always-survivors need the outcome of every unit. In each arm the
+        stratum's cell is trimmed to the stratum's share of it (for compliers under increasing
+        monotonicity: the treated units with intermediate 1 to ``(p1 - p0) / p1``, the control
+        units with intermediate 0 to ``(p1 - p0) / (1 - p0)``), a cell that holds the stratum
+        only is averaged, and the bounds are ``[low_1 - high_0, high_1 - low_0]``. Neither
+        principal ignorability nor the exclusion restriction is assumed.
 
     Attributes
     ----------
@@ -84,10 +94,18 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         Standard errors of the bounds from their influence values (see Notes).
     influence_lower_, influence_upper_ : ndarray of shape (n_samples,)
     trimming_share_ : float
-        Share of mixed-arm survivors trimmed, ``1 - q`` (always-survivor-weighted over cells).
+        Share of mixed-arm survivors trimmed, ``1 - q`` (always-survivor-weighted over cells);
+        for another stratum, the larger of the two arms' shares in ``trimming_shares_``.
+    trimming_shares_ : dict
+        ``{"treated": share, "control": share}``: the share of the stratum's cell trimmed in
+        each arm (stratum-weighted over cells; 0 for a cell that holds the stratum only).
     cells_ : DataFrame
         Per cell: weight, always-survivor share among mixed-arm survivors ``q``, bounds on the
-        mixed-arm always-survivor mean and the pure-arm mean.
+        mixed-arm always-survivor mean and the pure-arm mean; for another stratum the
+        stratum's share of its cell in each arm (``share_mixed``, ``share_pure``) and bounds on
+        its mean in each (``mixed_mean_lower``, ..., ``pure_mean_upper``).
+    stratum_ : str
+        The canonical name of the stratum bounded.
     n_clusters_ : int or None
         Number of clusters in ``groups``; below 30 the intervals use Student's t with
         ``n_clusters_ - 1`` degrees of freedom.
@@ -146,6 +164,7 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         response_model=None,
         quantiles=None,
         follow_up_model=None,
+        stratum="always_survivor",
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -156,6 +175,7 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         self.response_model = response_model
         self.quantiles = quantiles
         self.follow_up_model = follow_up_model
+        self.stratum = stratum
 
     def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
             groups=None, cells=None, nuisance=None):  # fmt: skip
@@ -189,12 +209,19 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         check_positive_integer(self.n_strata, "n_strata")
         if self.quantiles is not None:
             check_quantiles(self.quantiles)
+        stratum = resolve_stratum(self.stratum, self.monotonicity)
+        other = needs_zero_cells(stratum)
+        if other and self.quantiles is not None:
+            raise ValueError(
+                f"`quantiles` is not available yet with `stratum`={self.stratum!r} (only for "
+                "the always-survivor stratum); use quantiles=None."
+            )
         survival, name = intermediate_alias(survival, intermediate)
         data = check_truncation_data(
             X, y, treatment, survival, sample_weight, groups, survival_name=name,
             models=(self.treatment_model, self.survival_model, self.response_model,
                     self.follow_up_model),
-            missing=self.missing,
+            missing=self.missing, stratum=stratum if other else None,
         )  # fmt: skip
         self.n_clusters_ = count_clusters(data.groups)
         if X is not None:  # scikit-learn's convention, as the estimators keep it
@@ -214,11 +241,12 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
             nuisance = fit_nuisance(
                 data, self.treatment_model, self.survival_model, random_state=None,
                 response_model=self.response_model, monotonicity=self.monotonicity,
-                follow_up_model=self.follow_up_model,
+                follow_up_model=self.follow_up_model, zero_cells=other,
             )  # fmt: skip
         else:
             nuisance = shared_bounds_nuisance(self, nuisance, data)
-        o = orient(data, nuisance, self.monotonicity)
+        self.stratum_ = stratum
+        o = orient(data, nuisance, self.monotonicity, stratum)
         labels = self._cell_labels(cells, data, o)
         for name, value in trimming_bounds(o, labels, data).items():
             setattr(self, name, value)
@@ -227,7 +255,10 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
 
     def _cell_labels(self, cells, data, o):
         if self.strata == "score":
-            score = np.minimum(o.p_pure / o.p_mixed, 1.0)
+            # The stratum's principal score (for the always-survivors, their share among the
+            # mixed arm's survivors).
+            score = (np.minimum(o.p_pure / o.p_mixed, 1.0) if o.stratum.role == "always"
+                     else o.stratum.score(o.p_mixed, o.p_pure))  # fmt: skip
             edges = np.unique(np.quantile(score, np.linspace(0, 1, self.n_strata + 1)[1:-1]))
             return np.searchsorted(edges, score, side="right")
         if cells is None:
@@ -301,28 +332,38 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         """
         check_is_fitted(self, "lower_")
         low, high = self.conf_int(level)
+        stratum = getattr(self, "stratum_", "always_survivor")
+        always = stratum == "always_survivor"
+        name = "SACE" if always else f"{stratum_words(stratum)} effect"
         table = pd.DataFrame(
             {
                 "estimate": [self.lower_, self.upper_],
                 "std_error": [self.std_error_lower_, self.std_error_upper_],
             },
-            index=pd.Index(["SACE lower bound", "SACE upper bound"], name="quantity"),
+            index=pd.Index([f"{name} lower bound", f"{name} upper bound"], name="quantity"),
         )
         table["interval_end"] = [low, high]
+        if always:
+            trimmed = (f"{self.trimming_share_:.1%} of the "
+                       f"{'treated' if self.monotonicity == 'increasing' else 'control'} "
+                       "survivors were trimmed from each end in turn.")  # fmt: skip
+        else:
+            trimmed = "Trimmed from each end in turn, of the stratum's cell in each arm: " + (
+                ", ".join(f"{arm} {share:.1%}" for arm, share in self.trimming_shares_.items())
+            ) + "."
         table.attrs["notes"] = [
-            f"interval_end: the {level:.0%} Imbens-Manski interval for the SACE "
+            f"interval_end: the {level:.0%} Imbens-Manski interval for the {name} "
             f"[{low:.4g}, {high:.4g}], which covers the true effect, not the whole bounds.",
-            f"{self.trimming_share_:.1%} of the "
-            f"{'treated' if self.monotonicity == 'increasing' else 'control'} survivors were "
-            "trimmed from each end in turn.",
+            trimmed,
             "The bounds drop principal ignorability but keep monotonicity and, with covariates, "
             "no unmeasured confounding of treatment; these assumptions are untestable.",
-            "The always-survivor stratum is latent: the bounds concern a group that cannot be "
-            "identified person by person and must not guide decisions about individuals.",
+            f"The {stratum_words(stratum)} stratum is latent: the bounds concern a group that "
+            "cannot be identified person by person and must not guide decisions about "
+            "individuals.",
             "Interpret them under the study protocol, local regulation and with a qualified "
             "statistician.",
         ]
-        return SummaryTable(table, title="TrimmingBounds: bounds on the SACE", level=level)
+        return SummaryTable(table, title=f"TrimmingBounds: bounds on the {name}", level=level)
 
 
 def shared_bounds_nuisance(bounds, nuisance, data):

@@ -85,6 +85,34 @@ def imbens_manski_interval(lower, upper, se_lower, se_upper, level=0.95, dof=Non
     return float(lower - c * se_lower), float(upper + c * se_upper)
 
 
+def _cell_mean_bounds(C, observed, w, Y, total, keep, if_keep, binary):
+    """Bounds on the stratum's mean in one arm's cell within covariate cell ``C``: the means of
+    the lowest and the highest ``keep`` share of the cell's outcomes (its mean when ``keep`` is
+    1), with influence values, and the parts of them proportional to ``1 / r``.
+
+    Returns ``(low, high, if_low, if_high, outcome_low, outcome_high, keep)``.
+    """
+    rows = (C * observed) > 0
+    y_cell, w_cell = Y[rows], (w * observed)[rows]
+    normalizer = np.sum(w * C * observed) / total
+    if keep == 1.0:
+        mean = np.sum(w * C * observed * Y) / total / normalizer
+        influence = C * observed * (Y - mean) / normalizer
+        return mean, mean, influence, influence, influence, influence, keep
+    if binary:
+        success = float(np.sum(w_cell * y_cell) / w_cell.sum())
+        low, high = binary_trimmed_means(success, keep)
+        _, _, cut_low, cut_high = trimmed_means(y_cell, w_cell, keep)
+    else:
+        low, high, cut_low, cut_high = trimmed_means(y_cell, w_cell, keep)
+    base = C * observed / normalizer
+    outcome_low = base * (((Y - cut_low) * (Y <= cut_low) + keep * cut_low) / keep - low)
+    outcome_high = base * (((Y - cut_high) * (Y >= cut_high) + keep * cut_high) / keep - high)
+    if_low = outcome_low + (cut_low - low) / keep * if_keep
+    if_high = outcome_high + (cut_high - high) / keep * if_keep
+    return low, high, if_low, if_high, outcome_low, outcome_high, keep
+
+
 def trimming_bounds(o, labels, data):
     """Trimming bounds on the oriented view ``o`` within the cells ``labels``.
 
@@ -106,7 +134,8 @@ def trimming_bounds(o, labels, data):
             "X=None for a randomized trial, a known probability as `treatment_model`, or a "
             "regularized model."
         )
-    mixed_observed, pure_observed = o.observed_mixed / o.pi, o.observed_pure / (1 - o.pi)
+    spec = o.stratum
+    observed = {role: o.cell(role) / o.arm_probability(role) for role in ("mixed", "pure")}
     response_parts = []
     total = w.sum()
     # Each influence piece is either proportional to a row's inverse-probability weight
@@ -128,39 +157,52 @@ def trimming_bounds(o, labels, data):
                 "Merge sparse `cells` (or lower `n_strata`)."
             )
         p_m, p_p = s_m / n_m, s_p / n_p
-        q = p_p / p_m
-        if q > 1:
-            n_clipped += 1
-            q = 1.0
-            if_q = np.zeros(o.pi.size)
-        else:
-            if_q = q * (C * pure_weight * (S - p_p) / (n_p * p_p)
-                        - C * mixed_weight * (S - p_m) / (n_m * p_m))  # fmt: skip
-        survivors = (C * mixed_observed) > 0
-        y_cell, w_cell = Y[survivors], (w * mixed_observed)[survivors]
-        if data.binary_outcome:
-            success = float(np.sum(w_cell * y_cell) / w_cell.sum())
-            low, high = binary_trimmed_means(success, q)
-            _, _, cut_low, cut_high = trimmed_means(y_cell, w_cell, q)
-        else:
-            low, high, cut_low, cut_high = trimmed_means(y_cell, w_cell, q)
-        base = C * mixed_observed / (np.sum(w * C * mixed_observed) / total)
-        outcome_low = base * (((Y - cut_low) * (Y <= cut_low) + q * cut_low) / q - low)
-        if_low = outcome_low + (cut_low - low) / q * if_q
-        outcome_high = base * (((Y - cut_high) * (Y >= cut_high) + q * cut_high) / q - high)
-        if_high = outcome_high + (cut_high - high) / q * if_q
-        s_observed = np.sum(w * C * pure_observed) / total
-        pure_mean = np.sum(w * C * pure_observed * Y) / total / s_observed
-        if_pure = C * pure_observed * (Y - pure_mean) / s_observed
+        # Influence values of the two arms' survival shares in the cell.
+        shares = {"mixed": (p_m, C * mixed_weight * (S - p_m) / n_m),
+                  "pure": (p_p, C * pure_weight * (S - p_p) / n_p)}  # fmt: skip
+        score = spec.score(p_m, p_p)
         share = np.sum(w * C) / total
-        alphas.append(share * p_p)
-        # alpha = share * p_p: a pi-free part (C) and a weighted part (the influence of p_p).
-        alpha_influence.append((C * p_p, share * C * pure_weight * (S - p_p) / n_p))
-        cell_values.append((low - pure_mean, high - pure_mean, if_low - if_pure,
-                            if_high - if_pure))  # fmt: skip
-        rows.append((code, C.sum(), q, low, high, pure_mean))
+        if score <= 0:
+            # The stratum is empty here (the fitted survival shares contradict monotonicity):
+            # the cell gets no weight.
+            n_clipped += 1
+            zeros = np.zeros(o.pi.size)
+            alphas.append(0.0)
+            alpha_influence.append((zeros, zeros))
+            cell_values.append((0.0, 0.0, zeros, zeros))
+            rows.append((code, C.sum(), 0.0, 0.0, *[np.nan] * 4))
+            response_parts.append((zeros, zeros))
+            continue
+        arms = {}
+        clipped = False
+        for role in ("mixed", "pure"):
+            s_cell = spec.s_mixed if role == "mixed" else spec.s_pure
+            p, _ = shares[role]
+            cell_p = p if s_cell == 1 else 1 - p
+            keep = score / cell_p  # the stratum's share of the cell
+            if keep > 1:
+                clipped, keep, if_keep = True, 1.0, np.zeros(o.pi.size)
+            else:
+                # d keep / d p: the score's coefficient less keep times d cell_p / d p.
+                sign = 1.0 if s_cell == 1 else -1.0
+                d_mixed = spec.mixed_coefficient - (keep * sign if role == "mixed" else 0.0)
+                d_pure = spec.pure_coefficient - (keep * sign if role == "pure" else 0.0)
+                if_keep = (d_mixed * shares["mixed"][1] + d_pure * shares["pure"][1]) / cell_p
+            arms[role] = _cell_mean_bounds(C, observed[role], w, Y, total, keep, if_keep,
+                                           data.binary_outcome)  # fmt: skip
+        n_clipped += clipped
+        low_m, high_m, if_low_m, if_high_m, out_low_m, out_high_m, keep_m = arms["mixed"]
+        low_p, high_p, if_low_p, if_high_p, out_low_p, out_high_p, keep_p = arms["pure"]
+        alphas.append(share * score)
+        # alpha = share * e: a pi-free part (C) and a weighted part (the influence of e).
+        if_score = (spec.mixed_coefficient * shares["mixed"][1]
+                    + spec.pure_coefficient * shares["pure"][1])  # fmt: skip
+        alpha_influence.append((C * score, share * if_score))
+        cell_values.append((low_m - high_p, high_m - low_p, if_low_m - if_high_p,
+                            if_high_m - if_low_p))  # fmt: skip
+        rows.append((code, C.sum(), keep_m, keep_p, low_m, high_m, low_p, high_p))
         # The parts proportional to 1 / r (outcome distributions), for the response terms.
-        response_parts.append((outcome_low - if_pure, outcome_high - if_pure))
+        response_parts.append((out_low_m - out_high_p, out_high_m - out_low_p))
     alpha_total = sum(alphas)
     omegas = [a / alpha_total for a in alphas]
     weighted_alpha = sum(part for _, part in alpha_influence)
@@ -184,11 +226,12 @@ def trimming_bounds(o, labels, data):
             co = o.coarsening
             outcome_part = sum(om * parts[index]
                                for om, parts in zip(omegas, response_parts, strict=True))
+            zero_m, zero_p = ("0" if spec.s_mixed == 0 else ""), ("0" if spec.s_pure == 0 else "")
             derivatives.update({
                 "c_mixed": -ratio(A * weighted, co.c_mixed),
                 "c_pure": -ratio((1 - A) * weighted, co.c_pure),
-                "r_mixed": -ratio(A * outcome_part, co.r_mixed),
-                "r_pure": -ratio((1 - A) * outcome_part, co.r_pure),
+                f"r_mixed{zero_m}": -ratio(A * outcome_part, getattr(co, f"r_mixed{zero_m}")),
+                f"r_pure{zero_p}": -ratio((1 - A) * outcome_part, getattr(co, f"r_pure{zero_p}")),
             })  # fmt: skip
         influence[bound] = raw - o.weighted_mean(raw) + o.corrections(derivatives)
     if not o.increasing:
@@ -199,27 +242,36 @@ def trimming_bounds(o, labels, data):
     fitted.influence_lower_, fitted.influence_upper_ = influence["l"], influence["u"]
     fitted.std_error_lower_ = influence_std_error(influence["l"], w, data.groups)
     fitted.std_error_upper_ = influence_std_error(influence["u"], w, data.groups)
-    fitted.cells_ = pd.DataFrame(
-        rows,
-        columns=[
-            "cell",
-            "n_rows",
-            "always_survivor_share",
-            "mixed_mean_lower",
-            "mixed_mean_upper",
-            "pure_mean",
-        ],  # fmt: skip
-    ).set_index("cell")
-    fitted.cells_.insert(1, "weight", omegas)
-    fitted.trimming_share_ = float(1 - np.dot(omegas, fitted.cells_["always_survivor_share"]))
+    table = pd.DataFrame(rows, columns=["cell", "n_rows", "share_mixed", "share_pure",
+                                        "mixed_mean_lower", "mixed_mean_upper",
+                                        "pure_mean_lower", "pure_mean_upper"]).set_index("cell")
+    table.insert(1, "weight", omegas)
+    keep_mixed = float(np.dot(omegas, table["share_mixed"]))
+    keep_pure = float(np.dot(omegas, table["share_pure"]))
+    if spec.role == "always":
+        # The always-survivors' table as before: one trimmed cell, the pure arm's mean.
+        table = table.rename(columns={"share_mixed": "always_survivor_share",
+                                      "pure_mean_lower": "pure_mean"})
+        table = table.drop(columns=["share_pure", "pure_mean_upper"])
+    fitted.cells_ = table
+    # Share of the stratum's cell trimmed in each arm (0 where the cell holds the stratum only).
+    by_role = {"mixed": 1 - keep_mixed, "pure": 1 - keep_pure}
+    mixed_arm = "treated" if o.increasing else "control"
+    pure_arm = "control" if o.increasing else "treated"
+    fitted.trimming_shares_ = {mixed_arm: by_role["mixed"], pure_arm: by_role["pure"]}
+    fitted.trimming_share_ = by_role["mixed"] if spec.role == "always" else max(by_role.values())
     fitted.n_clipped_cells_ = n_clipped
     fitted.n_samples_ = data.n_samples
     fitted.n_features_in_ = data.n_features
     fitted.binary_outcome_ = data.binary_outcome
     if n_clipped:
+        what = ("no trimming was done there (always-survivor share set to 1)"
+                if spec.role == "always" else
+                "the stratum's share was set to 1 there, or the cell left out where the "
+                "stratum is empty")  # fmt: skip
         warn_at_caller(
             f"In {n_clipped} cell(s) the {'treated' if o.increasing else 'control'} arm "
             "survives less than the other arm, contradicting the monotonicity assumption; "
-            "no trimming was done there (always-survivor share set to 1).",
+            f"{what}.",
             MonotonicityWarning)
     return vars(fitted)

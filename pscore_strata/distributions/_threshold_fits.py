@@ -130,8 +130,15 @@ def fit_thresholds(values, rows, y_rows, w_rows, thresholds, test, out, columns)
     if columns.size and np.array_equal(columns, np.arange(columns[0], columns[0] + columns.size)):
         columns = slice(columns[0], columns[0] + columns.size)  # a plain view: no scattered writes
     if test.size == values.shape[0]:  # all rows (no cross-fitting): in row chunks, no copies
+        whole = isinstance(columns, slice) and columns == slice(0, out.shape[1])
         for start in range(0, test.size, _CHUNK):
             chunk = slice(start, start + _CHUNK)
+            if whole:  # straight into the grid's rows (contiguous): no temporary
+                linear = out[chunk]
+                np.matmul(values[chunk], slopes, out=linear)
+                linear += intercepts
+                expit(linear, out=linear)
+                continue
             linear = values[chunk] @ slopes
             linear += intercepts
             out[chunk, columns] = expit(linear, out=linear)

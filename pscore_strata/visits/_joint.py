@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from ..inference import multiplier_contributions
+from ..inference._resampling import multiplier_contributions
 
 __all__ = ["JointInference", "influence_covariance", "band_critical", "wald_test", "N_DRAWS"]
 

@@ -14,7 +14,7 @@ import pandas as pd
 from joblib import Parallel, delayed
 from sklearn.base import clone
 
-from ..inference import resample_rows, spawn_seeds
+from ..inference._resampling import resample_rows, spawn_seeds
 
 __all__ = ["joint_replicates"]
 
