@@ -20,6 +20,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..estimands._setting import Scores
+from ..estimands._strata import ALWAYS
 from ._expansion import Expansion
 
 __all__ = ["GridParts", "weighting_grid", "regression_grid", "robust_grid"]
@@ -95,18 +97,25 @@ def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
     return GridParts(mu_pure, mu_mixed, if_pure, if_mixed)
 
 
-def _coarsening_factors(o, role):
+def _coarsening_factors(o, role, s=1):
     """Per-row factors of the coarsening's ``weight_derivatives``: an estimating function
-    proportional to ``1 / (c r)`` has derivatives ``-f / c`` and ``-f / r``."""
+    proportional to ``1 / (c r)`` has derivatives ``-f / c`` and ``-f / r`` (``r`` the response
+    model of the cell's intermediate ``s``)."""
     co = o.coarsening
     if co is None:
         return {}
-    c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
-    return {f"c_{role}": -_reciprocal(c), f"r_{role}": -_reciprocal(r)}
+    c = co.c_mixed if role == "mixed" else co.c_pure
+    if s == 1:
+        r, key = (co.r_mixed if role == "mixed" else co.r_pure), f"r_{role}"
+    else:
+        r, key = (co.r_mixed0 if role == "mixed" else co.r_pure0), f"r_{role}0"
+    return {f"c_{role}": -_reciprocal(c), key: -_reciprocal(r)}
 
 
 def weighting_grid(o, indicator, with_influence=True):
     """:func:`~pscore_strata.estimands._formulas.weighting_means` on ``indicator``."""
+    if o.stratum is not ALWAYS:
+        return _stratum_weighting_grid(o, indicator, with_influence)
     w_mixed = _reciprocal(o.pi * o.p_mixed) * (o.observed_mixed * o.p_pure)
     normalizer = o.weighted_mean(w_mixed)
     weighted = indicator.scaled(w_mixed)
@@ -126,6 +135,45 @@ def weighting_grid(o, indicator, with_influence=True):
     derivatives = {"pi": (_reciprocal(1 - o.pi), f)}
     derivatives.update({k: (v, f) for k, v in _coarsening_factors(o, "pure").items()})
     if_pure = _corrected(o, f, derivatives).scaled(1 / normalizer_pure)
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def _stratum_weighting_grid(o, indicator, with_influence):
+    """The weighting formula for a stratum other than the always-survivors (null setting).
+
+    Each arm's cell is reweighted by ``w = 1{cell} e / (P(arm) q)``. With ``g = base (Y - mu)``
+    and ``base = 1{cell} / (P(arm) q)``, every derivative of ``f = w (Y - mu)`` is a per-row
+    factor times ``g``: ``sign e / P(arm)`` through the treatment model, the score's
+    coefficient plus ``e (-1/q or 1/(1-q))`` through the arm's own intermediate model, and
+    ``-e / c``, ``-e / r`` through the observation models.
+    """
+    st = Scores(o)
+    result = []
+    for role in ("mixed", "pure"):
+        s = o.stratum.s_mixed if role == "mixed" else o.stratum.s_pure
+        arm_p = o.arm_probability(role)
+        base = _reciprocal(o.cell_probability(role)) * o.cell(role)
+        w = base * st.e
+        normalizer = o.weighted_mean(w)
+        weighted = indicator.scaled(w)
+        mu = _weighted_mean(o, weighted) / normalizer
+        if not with_influence:
+            result.append((mu, None))
+            continue
+        f = weighted.plus_outer(w, -mu)
+        g = indicator.scaled(base).plus_outer(base, -mu)
+        own = o.own_probability(role)
+        own_factor = -_reciprocal(own) if s == 1 else _reciprocal(1 - own)
+        sign = -1.0 if role == "mixed" else 1.0
+        factors = {"pi": sign * st.e * _reciprocal(arm_p), "p_pure": st.b, "p_mixed": st.a}
+        key = "p_mixed" if role == "mixed" else "p_pure"
+        factors[key] = factors[key] + st.e * own_factor
+        for name, factor in _coarsening_factors(o, role, s).items():
+            factors[name] = st.e * factor
+        derivatives = {k: (v, g) for k, v in factors.items()
+                       if not (np.isscalar(v) and v == 0)}  # fmt: skip
+        result.append((mu, _corrected(o, f, derivatives).scaled(1 / normalizer)))
+    (mu_mixed, if_mixed), (mu_pure, if_pure) = result
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 

@@ -32,13 +32,15 @@ from .._features import feature_fingerprint
 from .._validation import check_features
 from ..estimands._methods import METHODS
 from ..estimands._methods import method_of as _method_record
-from ..estimands._strata import require_always_survivor
+from ..estimands._strata import ALWAYS, arm_cells, stratum_words
 from ..estimands._view import Oriented, orient
 from ._conditional import fit_conditional_cdf
 from ._expansion import Expansion, ValueGrid
 from ._grid_formulas import regression_grid, robust_grid, weighting_grid
 
-__all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula"]
+__all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula",
+           "outcome_rows"]
+
 
 def method_of(estimator):
     """``"weighting"``, ``"regression"`` or ``"robust"``; a clear error for anything else."""
@@ -57,6 +59,26 @@ class Prepared:
     conditional: object  # ConditionalCDF or None (weighting)
     cdf_model_name: str = "unpenalized logistic regression"
     checked: bool = field(default=False, repr=False)
+    stratum: str = "always_survivor"  # the canonical name of the target stratum
+    cells: dict = field(default_factory=lambda: {1: 1, 0: 1})  # its intermediate in each arm
+
+    @property
+    def words(self):
+        """The target stratum in text (``"always-survivor"``, ``"protected"``, ...)."""
+        return stratum_words(self.stratum)
+
+
+def outcome_rows(prepared, arm=None):
+    """Rows whose observed outcomes the stratum's CDFs use: its cell in each arm (``arm``: that
+    arm's only). For the always-survivors, the observed survivors."""
+    data = prepared.data
+    rows = np.zeros(data.n_samples, dtype=bool)
+    for t, s in prepared.cells.items():
+        if arm is None or t == arm:
+            rows |= (data.treatment == t) & (data.survival == s)
+    if data.outcome_observed is not None:
+        rows &= data.outcome_observed == 1
+    return rows
 
 
 # Conditional CDF models by fitted nuisance: {id(nuisance): (weakref, {key: ConditionalCDF})}.
@@ -119,11 +141,17 @@ def prepare(estimator, X=None, cdf_model=None):
     sharing the same nuisance fit).
     """
     method = method_of(estimator)
-    require_always_survivor(
-        estimator, "The distribution functions (survivor_distribution, quantile_effects, "
-        "ordinal_comparison)")  # fmt: skip
+    stratum = getattr(estimator, "stratum_", "always_survivor")
+    if stratum != "always_survivor" and method != "weighting":
+        raise ValueError(
+            f"`estimator`: the distribution functions (survivor_distribution, quantile_effects, "
+            f"ordinal_comparison) of a {type(estimator).__name__} fitted with `stratum`="
+            f"{getattr(estimator, 'stratum', stratum)!r} are not available yet (a conditional "
+            "CDF model of the stratum's cells is not built); for that stratum use a "
+            "PrincipalScoreWeighting estimator, or stratum='always_survivor'."
+        )
     data = estimator.training_data_
-    oriented = orient(data, estimator.nuisance_, estimator.monotonicity)
+    oriented = orient(data, estimator.nuisance_, estimator.monotonicity, stratum)
     conditional = None
     if method != "weighting":
         if X is None and estimator.n_features_in_ > 0:
@@ -146,7 +174,8 @@ def prepare(estimator, X=None, cdf_model=None):
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
         conditional = _conditional_cdf(estimator, data, X, cdf_model, seed)
     name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
-    prepared = Prepared(method, oriented, data, conditional, name)
+    prepared = Prepared(method, oriented, data, conditional, name, stratum=stratum,
+                        cells=arm_cells(stratum, estimator.monotonicity))
     prepared.checked = conditional is not None and conditional.cache.get(_check_key(prepared),
                                                                          False)  # fmt: skip
     return prepared
@@ -172,7 +201,10 @@ _CHECK_ROWS = 100_000
 
 def _view(prepared, value, with_influence):
     o = prepared.oriented
-    indicator = o.survival * (o.outcome <= value)
+    # The always-survivors' outcome is 0 outside the survivors; the other strata's cells carry
+    # their own indicators in the formulas.
+    below = (o.outcome <= value).astype(float)
+    indicator = o.survival * below if o.stratum is ALWAYS else below
     parametric = o.parametric if with_influence else None
     changes = {"outcome": indicator, "parametric": parametric}
     c = prepared.conditional
@@ -216,7 +248,8 @@ def _add_scaled(out, factor, base, chunk=65_536):
 
 def _grid_parts(prepared, grid, with_influence):
     o = prepared.oriented
-    indicator = Expansion.indicator(grid, o.survival)
+    indicator = Expansion.indicator(grid, o.survival if o.stratum is ALWAYS else
+                                    np.ones_like(o.survival))  # fmt: skip
     if prepared.method == "weighting":
         return weighting_grid(o, indicator, with_influence)
     c = prepared.conditional
