@@ -1,4 +1,4 @@
-"""Outcome distributions and quantile effects in every principal stratum (weighting).
+"""Outcome distributions and quantile effects in every principal stratum.
 
 Sources named in each test: the weighted empirical CDF of each arm's cell written out with numpy
 (weights ``e / (P(arm|X) P(S=s|arm,X))``, docs/guide/derivations/strata.md section 4) from the
@@ -9,6 +9,7 @@ potential outcomes simulated by ``make_intermediate``.
 
 from __future__ import annotations
 
+import functools
 import warnings
 
 import numpy as np
@@ -100,9 +101,11 @@ def test_cdf_and_standard_error_equal_the_mean_estimator_of_the_indicator(monoto
                                                                          rel=1e-8)  # fmt: skip
 
 
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.OutcomeRegression,
+                                 ps.MultiplyRobust], ids=lambda c: c.__name__)  # fmt: skip
 @pytest.mark.parametrize("missing", [False, True])
 @pytest.mark.parametrize("monotonicity,stratum", CASES)
-def test_grid_equals_the_formula_layer_at_every_value(monotonicity, stratum, missing):
+def test_grid_equals_the_formula_layer_at_every_value(monotonicity, stratum, missing, cls):
     # Source: the formula layer (METHODS["weighting"].means on a view built for the stratum)
     # with Y -> 1{Y <= v}, value by value, influence values included; with weights and
     # clusters, and with follow-up and response missing at random.
@@ -113,11 +116,11 @@ def test_grid_equals_the_formula_layer_at_every_value(monotonicity, stratum, mis
     params = {"missing": "at_random"} if missing else {}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        est = ps.PrincipalScoreWeighting(stratum=stratum, monotonicity=monotonicity, **params).fit(
+        est = cls(stratum=stratum, monotonicity=monotonicity, **params).fit(
             data.X, data.y, treatment=data.treatment, intermediate=data.intermediate,
             sample_weight=rng.uniform(0.5, 2.0, data.y.size),
             groups=rng.integers(0, 150, data.y.size))  # fmt: skip
-    prepared = prepare(est)
+    prepared = prepare(est, None if cls is ps.PrincipalScoreWeighting else data.X)
     assert prepared.oriented.stratum.role != "always"
     values = default_values(prepared.data, limit=25, rows=outcome_rows(prepared))
     path = cdf_path(prepared, values)
@@ -133,6 +136,7 @@ def test_grid_equals_the_formula_layer_at_every_value(monotonicity, stratum, mis
                                        atol=1e-10)  # fmt: skip
 
 
+@functools.cache
 def _true_quantiles(stratum, monotonicity, quantiles):
     # Source: the potential outcomes of a large draw of the same scenario.
     big = make_intermediate(400_000, monotonicity=monotonicity, stratum="doomed",
@@ -141,14 +145,16 @@ def _true_quantiles(stratum, monotonicity, quantiles):
     return np.quantile(big.y1[rows], quantiles), np.quantile(big.y0[rows], quantiles)
 
 
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.OutcomeRegression,
+                                 ps.MultiplyRobust], ids=lambda c: c.__name__)  # fmt: skip
 @pytest.mark.parametrize("monotonicity,stratum", [("increasing", "protected"),
                                                   ("increasing", "doomed"),
                                                   ("decreasing", "harmed")])  # fmt: skip
-def test_quantile_effects_recover_the_simulated_truth(monotonicity, stratum):
+def test_quantile_effects_recover_the_simulated_truth(monotonicity, stratum, cls):
     quantiles = (0.25, 0.5, 0.75)
     data = make_intermediate(5000, monotonicity=monotonicity, stratum="doomed", random_state=12)
-    est = _fit(data, stratum, monotonicity)
-    table = ps.quantile_effects(est, quantiles)
+    est = _fit(data, stratum, monotonicity, cls=cls)
+    table = ps.quantile_effects(est, quantiles, X=data.X)
     q1, q0 = _true_quantiles(stratum, monotonicity, quantiles)
     assert np.all(np.abs(table["effect"] - (q1 - q0)) < 4 * table["std_error"])
     assert np.all(np.abs(table["treated"] - q1) < 4 * table["std_error_treated"])
@@ -173,10 +179,45 @@ def test_ordinal_comparison_of_compliers():
 
 @pytest.mark.parametrize("cls", [ps.OutcomeRegression, ps.MultiplyRobust],
                          ids=lambda c: c.__name__)  # fmt: skip
-def test_outcome_model_estimators_refuse_other_strata(cls):
-    data = make_intermediate(600, random_state=0)
+def test_outcome_model_cdf_equals_the_mean_estimator_of_the_indicator(cls):
+    # Source: the stratum's mean estimator fitted to the outcome 1{Y <= v} at a threshold v of
+    # the conditional CDF model, whose logistic outcome models (scikit-learn, on each arm's
+    # cell) are the threshold's fits; the CDF then differs only by the monotone rearrangement
+    # of rows whose fitted curves cross (test_distributions_missing.py, same tolerance).
+    data = make_intermediate(2000, random_state=9)
     est = _fit(data, "complier", cls=cls)
-    with pytest.raises(ValueError, match="`estimator`.*`stratum`='complier'.*PrincipalScoreWeig"):
-        ps.survivor_distribution(est, X=data.X)
-    with pytest.raises(ValueError, match="not available yet"):
-        ps.quantile_effects(est, X=data.X)
+    conditional = prepare(est, data.X).conditional
+    value = float(conditional.thresholds[9])
+    reference = _fit(data, "complier", y=(data.y <= value).astype(float), cls=cls)
+    for arm, key in ((1, 1), (0, (0, 0))):
+        np.testing.assert_allclose(conditional.parametric[arm].predictions[:, 9],
+                                   reference.nuisance_.outcome[key], atol=1e-7)  # fmt: skip
+    dist = ps.survivor_distribution(est, values=[value], X=data.X)
+    # The rearrangement moves the CDF by far less than its standard error (here under 5%).
+    for arm in ("treated", "control"):
+        gap = getattr(dist, arm)[0] - getattr(reference, f"mean_{arm}_")
+        assert abs(gap) < 0.05 * getattr(dist, f"std_error_{arm}")[0]
+    if cls is ps.OutcomeRegression:
+        # Exactly: sum e F_t(v | X) / sum e with e = p1 - p0 and the rearranged predictions.
+        e = est.nuisance_.survival[1] - est.nuisance_.survival[0]
+        for arm, name in ((1, "treated"), (0, "control")):
+            expected = np.sum(e * conditional.grid[arm][:, 9]) / np.sum(e)
+            assert getattr(dist, name)[0] == pytest.approx(expected, abs=1e-10)
+    difference = np.asarray(dist.influence_treated)[:, 0] - np.asarray(dist.influence_control)[:, 0]
+    assert ps.inference.influence_std_error(difference) == pytest.approx(reference.std_error_,
+                                                                         rel=1e-2)  # fmt: skip
+
+
+def test_conditional_cdf_models_are_fitted_on_each_arms_cell():
+    # Source: the weighted share of the cell's outcomes at or below each threshold (no
+    # covariates: the conditional CDF model is that share).
+    data = make_intermediate(1500, random_state=10)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = ps.OutcomeRegression(stratum="never_taker").fit(
+            None, data.y, treatment=data.treatment, intermediate=data.intermediate)
+    conditional = prepare(est).conditional
+    for arm in (0, 1):
+        cell = data.y[(data.treatment == arm) & (data.intermediate == 0)]
+        shares = [np.mean(cell <= g) for g in conditional.thresholds]
+        np.testing.assert_allclose(conditional.grid[arm][0], shares, atol=1e-12)

@@ -184,7 +184,13 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
     the influence blocks that returns those blocks with the conditional CDF fits' correction
     added (it may fold the prediction's own block into it), or to ``None``.
     """
-    always = o.p_pure
+    if o.stratum is ALWAYS:
+        always, through_score = o.p_pure, {"p_pure": 1.0}
+    else:
+        st = Scores(o)
+        always = st.e  # the target stratum's score e = a p_mixed + b p_pure + c
+        through_score = {k: v for k, v in (("p_pure", st.b), ("p_mixed", st.a))
+                         if not (np.isscalar(v) and v == 0)}  # fmt: skip
     normalizer = o.weighted_mean(always)
     result = []
     for key, m in (("m_mixed", m_mixed), ("m_pure", m_pure)):
@@ -194,7 +200,8 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
             result.append((mu, None))
             continue
         f = weighted.plus_outer(always, -mu)
-        influence = _corrected(o, f, {"p_pure": (1.0, m.plus_outer(np.ones_like(always), -mu))})
+        gap = m.plus_outer(np.ones_like(always), -mu)
+        influence = _corrected(o, f, {k: (v, gap) for k, v in through_score.items()})
         if o.parametric is not None and blends.get(key) is not None:
             influence = Expansion(influence.grid, influence.D,
                                   blends[key](always, influence.blocks), influence.index)
@@ -205,6 +212,8 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
 
 def robust_grid(o, indicator, m_mixed, m_pure, with_influence=True):
     """:func:`~pscore_strata.estimands._formulas.robust_means` on expanded ``Y`` and ``m``."""
+    if o.stratum is not ALWAYS:
+        return _stratum_robust_grid(o, indicator, m_mixed, m_pure, with_influence)
     S = o.survival
     pure_residual = _reciprocal(1 - o.pi) * (o.known_pure * (S - o.p_pure))
     phi_e = pure_residual + o.p_pure
@@ -226,3 +235,29 @@ def robust_grid(o, indicator, m_mixed, m_pure, with_influence=True):
     if_mixed = phi_mixed.plus_outer(phi_e, -mu_mixed).scaled(1 / share)
     if_pure = phi_pure.plus_outer(phi_e, -mu_pure).scaled(1 / share)
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def _stratum_robust_grid(o, indicator, m_mixed, m_pure, with_influence):
+    """The multiply robust formula for a stratum other than the always-survivors.
+
+    With ``phi_e = e + a r_mixed + b r_pure`` (``r`` the intermediate residuals over the arm
+    probabilities) and ``base = 1{cell} / (P(arm) q)`` in each arm,
+    ``phi_t = m phi_e + e base (Y - m)`` (:func:`~pscore_strata.estimands._formulas.
+    robust_terms` at the null setting).
+    """
+    st = Scores(o)
+    phi_e = st.e + _times(st.a, o.residual_mixed) + _times(st.b, o.residual_pure)
+    share = o.weighted_mean(phi_e)
+    result = []
+    for role, m in (("mixed", m_mixed), ("pure", m_pure)):
+        b = _reciprocal(o.cell_probability(role)) * o.cell(role) * st.e
+        phi = indicator.scaled(b) + m.scaled(phi_e - b)
+        mu = _weighted_mean(o, phi) / share
+        influence = phi.plus_outer(phi_e, -mu).scaled(1 / share) if with_influence else None
+        result.append((mu, influence))
+    (mu_mixed, if_mixed), (mu_pure, if_pure) = result
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def _times(coefficient, values):
+    return 0.0 if np.isscalar(coefficient) and coefficient == 0 else coefficient * values

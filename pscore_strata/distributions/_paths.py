@@ -98,11 +98,11 @@ def _fingerprint(X):
     return (values.shape, hashlib.blake2b(values.data, digest_size=16).hexdigest())
 
 
-def _conditional_cdf(estimator, data, X, cdf_model, seed):
+def _conditional_cdf(estimator, data, X, cdf_model, seed, cells):
     nuisance = estimator.nuisance_
     fingerprint = _fingerprint(X)
     key = (fingerprint, estimator.n_folds, seed, "default" if cdf_model is None else
-           (id(cdf_model), repr(cdf_model)))  # fmt: skip
+           (id(cdf_model), repr(cdf_model)), tuple(sorted(cells.items())))  # fmt: skip
     entry = _FITTED.get(id(nuisance))
     if entry is None or entry[0]() is not nuisance:
         entry = (weakref.ref(nuisance), {})
@@ -111,7 +111,7 @@ def _conditional_cdf(estimator, data, X, cdf_model, seed):
     cached = entry[1].get(key)
     if cached is not None and cached[0] is data and (cdf_model is None or cached[1] is cdf_model):
         return cached[2]
-    conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed)
+    conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed, cells=cells)
     if X is None or fingerprint is not None:
         entry[1][key] = (data, cdf_model, conditional)
     return conditional
@@ -142,14 +142,7 @@ def prepare(estimator, X=None, cdf_model=None):
     """
     method = method_of(estimator)
     stratum = getattr(estimator, "stratum_", "always_survivor")
-    if stratum != "always_survivor" and method != "weighting":
-        raise ValueError(
-            f"`estimator`: the distribution functions (survivor_distribution, quantile_effects, "
-            f"ordinal_comparison) of a {type(estimator).__name__} fitted with `stratum`="
-            f"{getattr(estimator, 'stratum', stratum)!r} are not available yet (a conditional "
-            "CDF model of the stratum's cells is not built); for that stratum use a "
-            "PrincipalScoreWeighting estimator, or stratum='always_survivor'."
-        )
+    cells = arm_cells(stratum, estimator.monotonicity)
     data = estimator.training_data_
     oriented = orient(data, estimator.nuisance_, estimator.monotonicity, stratum)
     conditional = None
@@ -172,10 +165,9 @@ def prepare(estimator, X=None, cdf_model=None):
             if n_features == 0:
                 X = None
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
-        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed)
+        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed, cells)
     name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
-    prepared = Prepared(method, oriented, data, conditional, name, stratum=stratum,
-                        cells=arm_cells(stratum, estimator.monotonicity))
+    prepared = Prepared(method, oriented, data, conditional, name, stratum=stratum, cells=cells)
     prepared.checked = conditional is not None and conditional.cache.get(_check_key(prepared),
                                                                          False)  # fmt: skip
     return prepared
@@ -269,7 +261,7 @@ def _grid_parts(prepared, grid, with_influence):
                 # The prediction's own block (score x grid, the same coefficients) is folded
                 # into them: one rows x thresholds base instead of two in every later product.
                 model = [b for b in blocks if b[1] is c.grid[arm] and b[2] is coefficients]
-                key = ("corrections", o.increasing, arm, len(model) == 1)
+                key = ("corrections", o.increasing, o.stratum.role, arm, len(model) == 1)
                 if key not in c.cache:
                     base = c.parametric[arm].corrections(derivative, o.weight)
                     if len(model) == 1:
@@ -307,7 +299,7 @@ def check_against_formula(prepared, path_values, parts, with_influence):
 
 
 def _check_key(prepared):
-    return ("checked", prepared.method, prepared.oriented.increasing)
+    return ("checked", prepared.method, prepared.oriented.increasing, prepared.stratum)
 
 
 def cdf_path(prepared, values, with_influence=True):
