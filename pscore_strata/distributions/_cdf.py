@@ -88,15 +88,16 @@ class SurvivorDistribution:
     ----------
     values : ndarray
     treated, control : ndarray
-        ``P(Y(t) <= v | always-survivor)`` for ``t = 1, 0``.
+        ``P(Y(t) <= v | always-survivor)`` for ``t = 1, 0`` (the estimator's stratum in place
+        of the always-survivors when it was fitted for another).
     std_error_treated, std_error_control : ndarray
     band_critical_treated, band_critical_control : float
         Multiplier-bootstrap quantile of ``max_v |F*(v) - F(v)| / se(v)``: the simultaneous band
         is ``F(v) +/- critical x se(v)``.
     naive_treated, naive_control : ndarray
-        Empirical CDFs of the survivors in each arm (sample-weighted, no principal score
-        weights): what a survivor-only comparison shows, biased when treatment changes who
-        survives.
+        Empirical CDFs of the survivors (the stratum's cell) in each arm (sample-weighted, no
+        principal score weights): what a survivor-only comparison shows, biased when treatment
+        changes who survives.
     influence_treated, influence_control : array-like of shape (n_rows, n_values)
         Influence values in factored form (:class:`~pscore_strata.distributions._expansion.
         Expansion`): ``np.asarray`` gives the explicit matrix, ``[:, j]`` one column.
@@ -194,6 +195,11 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
     predictions are the estimator's own (with ``n_repeats > 1``, those of the repeat closest to
     the median); no such model is refitted. Methods and checks:
     ``docs/guide/derivations/distributions.md``.
+
+    For an estimator fitted with another ``stratum`` (the outcome exists for every unit), these
+    are that stratum's distributions: each arm's CDF from the stratum's cell in that arm
+    (weighting reweights the cell as for the mean; the conditional CDF models are fitted among
+    the arm's units in the cell), under principal ignorability for every ``1{Y <= v}``.
 
     Parameters
     ----------

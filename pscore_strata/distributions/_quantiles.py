@@ -138,6 +138,9 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
                      cdf_model=None, n_bootstrap=0, random_state=0):  # fmt: skip
     """Quantiles of the always-survivor outcome distribution under each arm and their differences.
 
+    For an estimator fitted with another ``stratum``, the quantiles of that stratum's
+    distributions (:func:`survivor_distribution`).
+
     Parameters
     ----------
     estimator : fitted PrincipalScoreWeighting, OutcomeRegression or MultiplyRobust

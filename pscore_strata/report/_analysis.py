@@ -319,7 +319,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
     except ImportError as error:
         results["missing_data"] = _unavailable("Missing-data checks", error)
     results["distributions"] = (
-        _unavailable("Distributions", _ALWAYS_SURVIVOR_ONLY) if other_stratum
+        _unavailable("Distributions", _DISTRIBUTIONS_IN_PYTHON) if other_stratum
         else distributions_section(collector, primary, data, options)
     )
     try:
@@ -367,6 +367,12 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["cautions"] = list(stratum_cautions(options.stratum, options.monotonicity, words))
     return analysis
 
+
+_DISTRIBUTIONS_IN_PYTHON = (
+    "the report shows them for the always-survivor stratum only so far; for the stratum of "
+    "--stratum compute them in Python with ps.survivor_distribution and ps.quantile_effects "
+    "on an estimator fitted with the same stratum"
+)
 
 _ALWAYS_SURVIVOR_ONLY = (
     "they concern the always-survivor stratum only, and the report is about another stratum "
