@@ -221,3 +221,21 @@ def test_conditional_cdf_models_are_fitted_on_each_arms_cell():
         cell = data.y[(data.treatment == arm) & (data.intermediate == 0)]
         shares = [np.mean(cell <= g) for g in conditional.thresholds]
         np.testing.assert_allclose(conditional.grid[arm][0], shares, atol=1e-12)
+
+
+def test_results_and_figures_name_the_stratum():
+    pytest.importorskip("matplotlib")
+    import matplotlib
+
+    matplotlib.use("Agg")
+    data = make_intermediate(800, random_state=1)
+    est = _fit(data, "complier")
+    dist = ps.survivor_distribution(est)
+    table = ps.quantile_effects(est)
+    assert dist.stratum == "protected" and table.attrs["stratum"] == "protected"
+    axes = ps.plotting.plot_survivor_distribution(dist)
+    assert axes[0].get_title().startswith("The protected stratum")
+    ax = ps.plotting.plot_quantile_effects(table)
+    assert ax.get_title() == "Quantile effects among the protected stratum"
+    assert "protected stratum is latent" in " ".join(dist.notes)
+    matplotlib.pyplot.close("all")

@@ -107,6 +107,8 @@ class SurvivorDistribution:
     dof : int or None
         Degrees of freedom of the pointwise intervals' t reference (fewer than 30 clusters:
         ``G - 1``); ``None``: the normal reference.
+    stratum : str
+        The principal stratum of the distributions (the estimator's ``stratum_``).
     """
 
     values: np.ndarray
@@ -124,6 +126,7 @@ class SurvivorDistribution:
     method: str = ""
     notes: list = field(default_factory=list)
     dof: int | None = None
+    stratum: str = "always_survivor"
 
     def to_frame(self):
         """One row per value: estimates, standard errors, pointwise intervals, bands, naive CDFs.
@@ -267,6 +270,7 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
         naive_control=naive_cdf(prepared, values, 0),
         influence_treated=path.influence_treated, influence_control=path.influence_control,
         level=level, method=prepared.method, notes=notes, dof=estimator_dof(estimator),
+        stratum=prepared.stratum,
     )  # fmt: skip
 
 

@@ -261,6 +261,7 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
                         "(rows drawn within arms), percentile intervals.")  # fmt: skip
     table.attrs["notes"] = notes
     table.attrs["bandwidth"] = bandwidth
+    table.attrs["stratum"] = prepared.stratum
     return table
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..estimands._strata import stratum_words
 from ._sensitivity import _CAUTION, _pyplot
 
 __all__ = ["plot_survivor_distribution", "plot_quantile_effects", "plot_level_shares"]
@@ -42,10 +43,17 @@ def plot_survivor_distribution(distribution, *, axes=None, outcome="outcome"):
         left.step(x, frame[arm], where="post", color=color, linewidth=2, label=f"under {arm}")
         right.step(x, frame[f"naive_{arm}"], where="post", color=color, linewidth=2,
                    linestyle="--", label=f"{arm} survivors")  # fmt: skip
-    left.set_title(f"Always-survivors (bands: {level} pointwise, darker; simultaneous, lighter)",
+    stratum = getattr(distribution, "stratum", "always_survivor")
+    group = ("Always-survivors" if stratum == "always_survivor" else
+             f"The {stratum_words(stratum)} stratum")  # fmt: skip
+    left.set_title(f"{group} (bands: {level} pointwise, darker; simultaneous, lighter)",
                    fontsize=9)  # fmt: skip
-    right.set_title("All survivors of each arm (naive; biased when treatment changes who "
-                    "survives)", fontsize=9)  # fmt: skip
+    if stratum == "always_survivor":
+        right.set_title("All survivors of each arm (naive; biased when treatment changes who "
+                        "survives)", fontsize=9)  # fmt: skip
+    else:
+        right.set_title("The stratum's cell in each arm as observed (naive; a cell may mix in "
+                        "another stratum)", fontsize=9)  # fmt: skip
     for ax in axes:
         ax.set_xlabel(outcome)
         ax.set_ylim(-0.02, 1.02)
@@ -85,9 +93,12 @@ def plot_quantile_effects(table, *, ax=None, outcome="outcome", bounds=None):
                   linewidth=6, alpha=0.5, label="bounds without principal ignorability")
     ax.axhline(0, color="0.3", linewidth=1, linestyle="--")
     ax.set_xticks(u, [f"{q:g}" for q in u])
-    ax.set_xlabel("quantile of the always-survivor distribution")
+    stratum = table.attrs.get("stratum", "always_survivor")
+    words = stratum_words(stratum)
+    members = "always-survivors" if stratum == "always_survivor" else f"the {words} stratum"
+    ax.set_xlabel(f"quantile of the {words} distribution")
     ax.set_ylabel(f"difference in {outcome} (treated - control)")
-    ax.set_title("Quantile effects among always-survivors", fontsize=10)
+    ax.set_title(f"Quantile effects among {members}", fontsize=10)
     ax.grid(color="0.92")
     ax.legend(fontsize=8)
     return ax
