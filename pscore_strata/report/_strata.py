@@ -119,8 +119,7 @@ def stratum_assumption(given, monotonicity):
         "name": "Principal ignorability",
         "statement": ignorability_statement(stratum, monotonicity),
         "checked_by": "Untestable. The sensitivity analysis relaxes it in each cell the "
-        "stratum shares with another; the trimming bounds concern the always-survivors only "
-        "and are not shown for this stratum.",
+        "stratum shares with another; the trimming bounds drop it.",
     }
 
 
