@@ -16,8 +16,8 @@ import numpy as np
 
 from ..estimands._strata import arm_cells, resolve_stratum
 from ._options import number
-from ._sensitivity import _label
 from ._strata import _display
+from ._strata import stratum_label as _label
 from ._text import _DEFAULT_WORDS
 
 __all__ = ["stratum_bounds_record", "QUANTILE_NOTE"]
@@ -87,7 +87,9 @@ def stratum_bounds_record(record, bounds, given, words):
             "mean_upper": number(high),
         })  # fmt: skip
     label = _display(given, stratum)
-    record["interval"] = f"Imbens-Manski interval (it covers the true effect in the {label} stratum)"
+    record["interval"] = (
+        f"Imbens-Manski interval (it covers the true effect in the {label} stratum)"
+    )
     record["trimming_shares"] = {arm: float(bounds.trimming_shares_[arm])
                                  for arm in ("treated", "control")}  # fmt: skip
     record["arms"] = arms
