@@ -195,14 +195,6 @@ def test_simulated_stratum_effects_are_the_truth():
         make_intermediate(100, stratum="harmed")
 
 
-def test_unsupported_analyses_refuse_other_strata():
-    # The sensitivity analysis serves every stratum (tests/test_strata_sensitivity.py).
-    data = make_intermediate(600, random_state=0)
-    est = _fit(ps.PrincipalScoreWeighting, data, "complier")
-    with pytest.raises(ValueError, match="not available yet .*`stratum`='complier'"):
-        ps.survivor_distribution(est)
-
-
 def test_summary_names_the_stratum_and_its_assumptions():
     data = make_intermediate(1500, random_state=0)
     est = _fit(ps.MultiplyRobust, data, "complier")

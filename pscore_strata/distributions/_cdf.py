@@ -8,13 +8,14 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_level
+from ..estimands._strata import ignorability_statement
 from ..inference._resampling import gaussian_draws, spawn_seeds
 from ..inference._standard_errors import estimator_dof, reference_quantile
 from ._expansion import expansion_covariance
-from ._paths import cdf_path, prepare
+from ._paths import cdf_path, outcome_rows, prepare
 
 __all__ = ["survivor_distribution", "SurvivorDistribution", "default_values", "observed_survivors",
-           "CAUTION"]
+           "CAUTION", "caution"]
 
 # Default evaluation points (the grid): every distinct survivor outcome up to this many, else this
 # many at evenly spaced ranks of the pooled survivor outcomes. The covariance of the band costs
@@ -29,6 +30,24 @@ CAUTION = (
 )
 
 
+def caution(prepared):
+    """:data:`CAUTION`, worded for the target stratum of ``prepared``."""
+    if prepared.stratum == "always_survivor":
+        return CAUTION
+    return CAUTION.replace("always-survivor", prepared.words, 1)
+
+
+def stratum_notes(prepared, monotonicity):
+    """For a stratum other than the always-survivors, the assumption its distributions need."""
+    if prepared.stratum == "always_survivor":
+        return []
+    return [
+        "Distributions: principal ignorability is needed for the indicators 1{Y <= v} at "
+        "every v (the strata sharing a cell have the same outcome distribution given X, not "
+        "only the same mean). " + ignorability_statement(prepared.stratum, monotonicity)
+    ]
+
+
 def observed_survivors(data):
     """Rows whose outcome is observed: survivors (with missing data, of known status who
     responded)."""
@@ -38,9 +57,10 @@ def observed_survivors(data):
     return rows
 
 
-def default_values(data, limit=MAX_DEFAULT_VALUES):
-    """The distinct observed survivor outcomes (``limit`` of them at evenly spaced ranks)."""
-    y = np.sort(data.outcome[observed_survivors(data)])
+def default_values(data, limit=MAX_DEFAULT_VALUES, rows=None):
+    """The distinct observed survivor outcomes (``limit`` of them at evenly spaced ranks);
+    ``rows``: those of these rows instead of the survivors (another stratum's cells)."""
+    y = np.sort(data.outcome[observed_survivors(data) if rows is None else rows])
     distinct = np.unique(y)
     if distinct.size <= limit:
         return distinct
@@ -148,9 +168,11 @@ def _band_critical(covariance, standard_errors, level, n_draws, random_state):
     return float(np.quantile(sup, level))
 
 
-def naive_cdf(data, values, arm):
-    """Weighted empirical CDF of the arm's observed survivors at sorted ``values``."""
-    rows = (data.treatment == arm) & observed_survivors(data)
+def naive_cdf(prepared, values, arm):
+    """Weighted empirical CDF of the arm's observed survivors (of the stratum's cell in the arm)
+    at sorted ``values``."""
+    data = prepared.data
+    rows = outcome_rows(prepared, arm)
     y, w = data.outcome[rows], data.sample_weight[rows]
     order = np.argsort(y, kind="stable")
     cumulative = np.concatenate([[0.0], np.cumsum(w[order])])
@@ -220,7 +242,8 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
         raise ValueError(f"`n_draws` must be an integer >= 100; got {n_draws!r}.")
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    values = default_values(data) if values is None else check_values(values)
+    values = (default_values(data, rows=outcome_rows(prepared)) if values is None
+              else check_values(values))  # fmt: skip
     path = cdf_path(prepared, values)
     w, groups = data.sample_weight, data.groups
     se, critical = {}, {}
@@ -228,12 +251,14 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
         covariance = expansion_covariance(getattr(path, f"influence_{arm}"), w, groups)
         se[arm] = np.sqrt(np.clip(np.diag(covariance), 0.0, None))
         critical[arm] = _band_critical(covariance, se[arm], level, n_draws, random_state)
-    notes = [_method_note(prepared, estimator), CAUTION]
+    notes = [_method_note(prepared, estimator), *stratum_notes(prepared, estimator.monotonicity),
+             caution(prepared)]  # fmt: skip
     return SurvivorDistribution(
         values=values, treated=path.treated, control=path.control,
         std_error_treated=se["treated"], std_error_control=se["control"],
         band_critical_treated=critical["treated"], band_critical_control=critical["control"],
-        naive_treated=naive_cdf(data, values, 1), naive_control=naive_cdf(data, values, 0),
+        naive_treated=naive_cdf(prepared, values, 1),
+        naive_control=naive_cdf(prepared, values, 0),
         influence_treated=path.influence_treated, influence_control=path.influence_control,
         level=level, method=prepared.method, notes=notes, dof=estimator_dof(estimator),
     )  # fmt: skip
@@ -242,7 +267,9 @@ def survivor_distribution(estimator, values=None, *, X=None, level=0.95, cdf_mod
 def _method_note(prepared, estimator):
     sandwich = prepared.oriented.parametric is not None
     if prepared.method == "weighting":
-        how = "weighted empirical CDFs of each arm's survivors with the principal score weights"
+        cells = ("survivors" if prepared.stratum == "always_survivor" else
+                 f"units in the {prepared.words} stratum's cell")  # fmt: skip
+        how = f"weighted empirical CDFs of each arm's {cells} with the principal score weights"
     else:
         c = prepared.conditional
         grid = (f"{c.thresholds.size} observed levels" if c.discrete

@@ -138,7 +138,7 @@ class ConditionalCDF:
 
 
 def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None,
-                        n_thresholds=N_THRESHOLDS):  # fmt: skip
+                        n_thresholds=N_THRESHOLDS, cells=None):  # fmt: skip
     """Fit the conditional CDF models of each arm's survivors (see the module docstring).
 
     Parameters
@@ -151,10 +151,16 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
         Cloned once per threshold and arm; ``None`` is unpenalized logistic regression.
     n_folds : int or None
         Cross-fitting folds (stratified by treatment x survival), as the estimator used.
+    cells : dict or None
+        ``{arm: s}``: fit each arm's models among its units with intermediate ``s`` (the target
+        stratum's cell in that arm); ``None``: among survivors (the always-survivors).
     """
     T, S, Y, w = data.treatment, data.survival, data.outcome, data.sample_weight
-    # Outcome-model rows: observed survivors (with missing data, known status and a response).
-    observed = S == 1
+    # Outcome-model rows: observed units of each arm's cell (survivors by default; with missing
+    # data, known status and a response).
+    cells = {1: 1, 0: 1} if cells is None else cells
+    in_cell = {arm: (T == arm) & (S == s) for arm, s in cells.items()}
+    observed = in_cell[0] | in_cell[1]
     if data.outcome_observed is not None:
         observed = observed & (data.outcome_observed == 1)
     thresholds, discrete, low, high = threshold_grid(Y, observed, w, n_thresholds)
@@ -175,7 +181,7 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
     outcome = np.nan_to_num(Y)
     for arm in (0, 1):
         for train, test in splits:
-            rows = train[(T[train] == arm) & observed[train]]
+            rows = train[in_cell[arm][train] & observed[train]]
             y_rows, w_rows = outcome[rows], w[rows]
             order = np.argsort(y_rows, kind="stable")
             cumulative = np.concatenate([[0.0], np.cumsum(w_rows[order])])
@@ -211,7 +217,7 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
         if use_sandwich:
             # The sandwich belongs to the fits as fitted (before the rearrangement).
             unsorted = raw
-            parametric[arm] = ThresholdSandwich(design, (T == arm) & observed, outcome,
+            parametric[arm] = ThresholdSandwich(design, in_cell[arm] & observed, outcome,
                                                 thresholds, unsorted, w)  # fmt: skip
     return ConditionalCDF(thresholds, discrete, low, high, grid, parametric, n_constant)
 

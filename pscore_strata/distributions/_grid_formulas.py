@@ -20,6 +20,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..estimands._setting import Scores
+from ..estimands._strata import ALWAYS
 from ._expansion import Expansion
 
 __all__ = ["GridParts", "weighting_grid", "regression_grid", "robust_grid"]
@@ -95,18 +97,25 @@ def _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
     return GridParts(mu_pure, mu_mixed, if_pure, if_mixed)
 
 
-def _coarsening_factors(o, role):
+def _coarsening_factors(o, role, s=1):
     """Per-row factors of the coarsening's ``weight_derivatives``: an estimating function
-    proportional to ``1 / (c r)`` has derivatives ``-f / c`` and ``-f / r``."""
+    proportional to ``1 / (c r)`` has derivatives ``-f / c`` and ``-f / r`` (``r`` the response
+    model of the cell's intermediate ``s``)."""
     co = o.coarsening
     if co is None:
         return {}
-    c, r = (co.c_mixed, co.r_mixed) if role == "mixed" else (co.c_pure, co.r_pure)
-    return {f"c_{role}": -_reciprocal(c), f"r_{role}": -_reciprocal(r)}
+    c = co.c_mixed if role == "mixed" else co.c_pure
+    if s == 1:
+        r, key = (co.r_mixed if role == "mixed" else co.r_pure), f"r_{role}"
+    else:
+        r, key = (co.r_mixed0 if role == "mixed" else co.r_pure0), f"r_{role}0"
+    return {f"c_{role}": -_reciprocal(c), key: -_reciprocal(r)}
 
 
 def weighting_grid(o, indicator, with_influence=True):
     """:func:`~pscore_strata.estimands._formulas.weighting_means` on ``indicator``."""
+    if o.stratum is not ALWAYS:
+        return _stratum_weighting_grid(o, indicator, with_influence)
     w_mixed = _reciprocal(o.pi * o.p_mixed) * (o.observed_mixed * o.p_pure)
     normalizer = o.weighted_mean(w_mixed)
     weighted = indicator.scaled(w_mixed)
@@ -129,6 +138,45 @@ def weighting_grid(o, indicator, with_influence=True):
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
 
 
+def _stratum_weighting_grid(o, indicator, with_influence):
+    """The weighting formula for a stratum other than the always-survivors (null setting).
+
+    Each arm's cell is reweighted by ``w = 1{cell} e / (P(arm) q)``. With ``g = base (Y - mu)``
+    and ``base = 1{cell} / (P(arm) q)``, every derivative of ``f = w (Y - mu)`` is a per-row
+    factor times ``g``: ``sign e / P(arm)`` through the treatment model, the score's
+    coefficient plus ``e (-1/q or 1/(1-q))`` through the arm's own intermediate model, and
+    ``-e / c``, ``-e / r`` through the observation models.
+    """
+    st = Scores(o)
+    result = []
+    for role in ("mixed", "pure"):
+        s = o.stratum.s_mixed if role == "mixed" else o.stratum.s_pure
+        arm_p = o.arm_probability(role)
+        base = _reciprocal(o.cell_probability(role)) * o.cell(role)
+        w = base * st.e
+        normalizer = o.weighted_mean(w)
+        weighted = indicator.scaled(w)
+        mu = _weighted_mean(o, weighted) / normalizer
+        if not with_influence:
+            result.append((mu, None))
+            continue
+        f = weighted.plus_outer(w, -mu)
+        g = indicator.scaled(base).plus_outer(base, -mu)
+        own = o.own_probability(role)
+        own_factor = -_reciprocal(own) if s == 1 else _reciprocal(1 - own)
+        sign = -1.0 if role == "mixed" else 1.0
+        factors = {"pi": sign * st.e * _reciprocal(arm_p), "p_pure": st.b, "p_mixed": st.a}
+        key = "p_mixed" if role == "mixed" else "p_pure"
+        factors[key] = factors[key] + st.e * own_factor
+        for name, factor in _coarsening_factors(o, role, s).items():
+            factors[name] = st.e * factor
+        derivatives = {k: (v, g) for k, v in factors.items()
+                       if not (np.isscalar(v) and v == 0)}  # fmt: skip
+        result.append((mu, _corrected(o, f, derivatives).scaled(1 / normalizer)))
+    (mu_mixed, if_mixed), (mu_pure, if_pure) = result
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
 def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
     """:func:`~pscore_strata.estimands._formulas.regression_means` on expanded ``m``.
 
@@ -136,7 +184,13 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
     the influence blocks that returns those blocks with the conditional CDF fits' correction
     added (it may fold the prediction's own block into it), or to ``None``.
     """
-    always = o.p_pure
+    if o.stratum is ALWAYS:
+        always, through_score = o.p_pure, {"p_pure": 1.0}
+    else:
+        st = Scores(o)
+        always = st.e  # the target stratum's score e = a p_mixed + b p_pure + c
+        through_score = {k: v for k, v in (("p_pure", st.b), ("p_mixed", st.a))
+                         if not (np.isscalar(v) and v == 0)}  # fmt: skip
     normalizer = o.weighted_mean(always)
     result = []
     for key, m in (("m_mixed", m_mixed), ("m_pure", m_pure)):
@@ -146,7 +200,8 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
             result.append((mu, None))
             continue
         f = weighted.plus_outer(always, -mu)
-        influence = _corrected(o, f, {"p_pure": (1.0, m.plus_outer(np.ones_like(always), -mu))})
+        gap = m.plus_outer(np.ones_like(always), -mu)
+        influence = _corrected(o, f, {k: (v, gap) for k, v in through_score.items()})
         if o.parametric is not None and blends.get(key) is not None:
             influence = Expansion(influence.grid, influence.D,
                                   blends[key](always, influence.blocks), influence.index)
@@ -157,6 +212,8 @@ def regression_grid(o, m_mixed, m_pure, blends, with_influence=True):
 
 def robust_grid(o, indicator, m_mixed, m_pure, with_influence=True):
     """:func:`~pscore_strata.estimands._formulas.robust_means` on expanded ``Y`` and ``m``."""
+    if o.stratum is not ALWAYS:
+        return _stratum_robust_grid(o, indicator, m_mixed, m_pure, with_influence)
     S = o.survival
     pure_residual = _reciprocal(1 - o.pi) * (o.known_pure * (S - o.p_pure))
     phi_e = pure_residual + o.p_pure
@@ -178,3 +235,29 @@ def robust_grid(o, indicator, m_mixed, m_pure, with_influence=True):
     if_mixed = phi_mixed.plus_outer(phi_e, -mu_mixed).scaled(1 / share)
     if_pure = phi_pure.plus_outer(phi_e, -mu_pure).scaled(1 / share)
     return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def _stratum_robust_grid(o, indicator, m_mixed, m_pure, with_influence):
+    """The multiply robust formula for a stratum other than the always-survivors.
+
+    With ``phi_e = e + a r_mixed + b r_pure`` (``r`` the intermediate residuals over the arm
+    probabilities) and ``base = 1{cell} / (P(arm) q)`` in each arm,
+    ``phi_t = m phi_e + e base (Y - m)`` (:func:`~pscore_strata.estimands._formulas.
+    robust_terms` at the null setting).
+    """
+    st = Scores(o)
+    phi_e = st.e + _times(st.a, o.residual_mixed) + _times(st.b, o.residual_pure)
+    share = o.weighted_mean(phi_e)
+    result = []
+    for role, m in (("mixed", m_mixed), ("pure", m_pure)):
+        b = _reciprocal(o.cell_probability(role)) * o.cell(role) * st.e
+        phi = indicator.scaled(b) + m.scaled(phi_e - b)
+        mu = _weighted_mean(o, phi) / share
+        influence = phi.plus_outer(phi_e, -mu).scaled(1 / share) if with_influence else None
+        result.append((mu, influence))
+    (mu_mixed, if_mixed), (mu_pure, if_pure) = result
+    return _unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def _times(coefficient, values):
+    return 0.0 if np.isscalar(coefficient) and coefficient == 0 else coefficient * values

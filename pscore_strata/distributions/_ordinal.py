@@ -22,9 +22,9 @@ import pandas as pd
 
 from .._validation import check_choice, check_level
 from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
-from ._cdf import CAUTION, _method_note, observed_survivors
+from ._cdf import _method_note, caution, stratum_notes
 from ._conditional import MAX_LEVELS
-from ._paths import cdf_path, prepare
+from ._paths import cdf_path, outcome_rows, prepare
 
 __all__ = ["ordinal_comparison", "OrdinalComparison", "superiority"]
 
@@ -105,7 +105,7 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
     level = check_level(level)
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    levels = np.unique(data.outcome[observed_survivors(data)]) + 0.0  # no -0.0 level
+    levels = np.unique(data.outcome[outcome_rows(prepared)]) + 0.0  # no -0.0 level
     if levels.size > MAX_LEVELS or not np.all(levels == np.round(levels)):
         raise ValueError(
             f"`ordinal_comparison` needs an outcome with integer levels (at most {MAX_LEVELS}); "
@@ -143,13 +143,17 @@ def ordinal_comparison(estimator, *, X=None, better="higher", level=0.95, cdf_mo
     })  # fmt: skip
     table["ci_low_difference"] = table["difference"] - z * table["std_error_difference"]
     table["ci_high_difference"] = table["difference"] + z * table["std_error_difference"]
+    always = prepared.stratum == "always_survivor"
+    member = "always-survivor" if always else f"{prepared.words} unit"
+    members = "always-survivors" if always else f"{prepared.words} units"
     notes = [
-        f"probability: chance that a treated always-survivor drawn at random has a {better} "
-        "level than an independently drawn control always-survivor, ties counted half. It "
-        "compares the two marginal distributions; it is not the share of always-survivors "
+        f"probability: chance that a treated {member} drawn at random has a {better} "
+        f"level than an independently drawn control {member}, ties counted half. It "
+        f"compares the two marginal distributions; it is not the share of {members} "
         "whose own level improves (not identified). 0.5 means no difference in this sense.",
         _method_note(prepared, estimator).replace("CDFs: ", "Level shares: from the CDFs of ", 1),
-        CAUTION,
+        *stratum_notes(prepared, estimator.monotonicity),
+        caution(prepared),
     ]
     return OrdinalComparison(
         levels=table, probability=theta, std_error=se,

@@ -32,13 +32,15 @@ from .._features import feature_fingerprint
 from .._validation import check_features
 from ..estimands._methods import METHODS
 from ..estimands._methods import method_of as _method_record
-from ..estimands._strata import require_always_survivor
+from ..estimands._strata import ALWAYS, arm_cells, stratum_words
 from ..estimands._view import Oriented, orient
 from ._conditional import fit_conditional_cdf
 from ._expansion import Expansion, ValueGrid
 from ._grid_formulas import regression_grid, robust_grid, weighting_grid
 
-__all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula"]
+__all__ = ["CDFPath", "prepare", "cdf_path", "method_of", "formula_cdf", "check_against_formula",
+           "outcome_rows"]
+
 
 def method_of(estimator):
     """``"weighting"``, ``"regression"`` or ``"robust"``; a clear error for anything else."""
@@ -57,6 +59,26 @@ class Prepared:
     conditional: object  # ConditionalCDF or None (weighting)
     cdf_model_name: str = "unpenalized logistic regression"
     checked: bool = field(default=False, repr=False)
+    stratum: str = "always_survivor"  # the canonical name of the target stratum
+    cells: dict = field(default_factory=lambda: {1: 1, 0: 1})  # its intermediate in each arm
+
+    @property
+    def words(self):
+        """The target stratum in text (``"always-survivor"``, ``"protected"``, ...)."""
+        return stratum_words(self.stratum)
+
+
+def outcome_rows(prepared, arm=None):
+    """Rows whose observed outcomes the stratum's CDFs use: its cell in each arm (``arm``: that
+    arm's only). For the always-survivors, the observed survivors."""
+    data = prepared.data
+    rows = np.zeros(data.n_samples, dtype=bool)
+    for t, s in prepared.cells.items():
+        if arm is None or t == arm:
+            rows |= (data.treatment == t) & (data.survival == s)
+    if data.outcome_observed is not None:
+        rows &= data.outcome_observed == 1
+    return rows
 
 
 # Conditional CDF models by fitted nuisance: {id(nuisance): (weakref, {key: ConditionalCDF})}.
@@ -76,11 +98,11 @@ def _fingerprint(X):
     return (values.shape, hashlib.blake2b(values.data, digest_size=16).hexdigest())
 
 
-def _conditional_cdf(estimator, data, X, cdf_model, seed):
+def _conditional_cdf(estimator, data, X, cdf_model, seed, cells):
     nuisance = estimator.nuisance_
     fingerprint = _fingerprint(X)
     key = (fingerprint, estimator.n_folds, seed, "default" if cdf_model is None else
-           (id(cdf_model), repr(cdf_model)))  # fmt: skip
+           (id(cdf_model), repr(cdf_model)), tuple(sorted(cells.items())))  # fmt: skip
     entry = _FITTED.get(id(nuisance))
     if entry is None or entry[0]() is not nuisance:
         entry = (weakref.ref(nuisance), {})
@@ -89,7 +111,7 @@ def _conditional_cdf(estimator, data, X, cdf_model, seed):
     cached = entry[1].get(key)
     if cached is not None and cached[0] is data and (cdf_model is None or cached[1] is cdf_model):
         return cached[2]
-    conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed)
+    conditional = fit_conditional_cdf(data, X, cdf_model, estimator.n_folds, seed, cells=cells)
     if X is None or fingerprint is not None:
         entry[1][key] = (data, cdf_model, conditional)
     return conditional
@@ -119,11 +141,10 @@ def prepare(estimator, X=None, cdf_model=None):
     sharing the same nuisance fit).
     """
     method = method_of(estimator)
-    require_always_survivor(
-        estimator, "The distribution functions (survivor_distribution, quantile_effects, "
-        "ordinal_comparison)")  # fmt: skip
+    stratum = getattr(estimator, "stratum_", "always_survivor")
+    cells = arm_cells(stratum, estimator.monotonicity)
     data = estimator.training_data_
-    oriented = orient(data, estimator.nuisance_, estimator.monotonicity)
+    oriented = orient(data, estimator.nuisance_, estimator.monotonicity, stratum)
     conditional = None
     if method != "weighting":
         if X is None and estimator.n_features_in_ > 0:
@@ -144,9 +165,9 @@ def prepare(estimator, X=None, cdf_model=None):
             if n_features == 0:
                 X = None
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
-        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed)
+        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed, cells)
     name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
-    prepared = Prepared(method, oriented, data, conditional, name)
+    prepared = Prepared(method, oriented, data, conditional, name, stratum=stratum, cells=cells)
     prepared.checked = conditional is not None and conditional.cache.get(_check_key(prepared),
                                                                          False)  # fmt: skip
     return prepared
@@ -172,7 +193,10 @@ _CHECK_ROWS = 100_000
 
 def _view(prepared, value, with_influence):
     o = prepared.oriented
-    indicator = o.survival * (o.outcome <= value)
+    # The always-survivors' outcome is 0 outside the survivors; the other strata's cells carry
+    # their own indicators in the formulas.
+    below = (o.outcome <= value).astype(float)
+    indicator = o.survival * below if o.stratum is ALWAYS else below
     parametric = o.parametric if with_influence else None
     changes = {"outcome": indicator, "parametric": parametric}
     c = prepared.conditional
@@ -216,7 +240,8 @@ def _add_scaled(out, factor, base, chunk=65_536):
 
 def _grid_parts(prepared, grid, with_influence):
     o = prepared.oriented
-    indicator = Expansion.indicator(grid, o.survival)
+    indicator = Expansion.indicator(grid, o.survival if o.stratum is ALWAYS else
+                                    np.ones_like(o.survival))  # fmt: skip
     if prepared.method == "weighting":
         return weighting_grid(o, indicator, with_influence)
     c = prepared.conditional
@@ -236,7 +261,7 @@ def _grid_parts(prepared, grid, with_influence):
                 # The prediction's own block (score x grid, the same coefficients) is folded
                 # into them: one rows x thresholds base instead of two in every later product.
                 model = [b for b in blocks if b[1] is c.grid[arm] and b[2] is coefficients]
-                key = ("corrections", o.increasing, arm, len(model) == 1)
+                key = ("corrections", o.increasing, o.stratum.role, arm, len(model) == 1)
                 if key not in c.cache:
                     base = c.parametric[arm].corrections(derivative, o.weight)
                     if len(model) == 1:
@@ -274,7 +299,7 @@ def check_against_formula(prepared, path_values, parts, with_influence):
 
 
 def _check_key(prepared):
-    return ("checked", prepared.method, prepared.oriented.increasing)
+    return ("checked", prepared.method, prepared.oriented.increasing, prepared.stratum)
 
 
 def cdf_path(prepared, values, with_influence=True):

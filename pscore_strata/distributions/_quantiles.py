@@ -22,11 +22,13 @@ from sklearn.base import clone
 
 from .._validation import check_level
 from .._warnings import warn_at_caller
+from ..estimands._strata import ALWAYS
+from ..estimands._view import ratio
 from ..inference._resampling import resample_rows, seed_models, spawn_seeds
 from ..inference._standard_errors import estimator_dof, influence_std_error, reference_quantile
-from ._cdf import CAUTION, default_values, observed_survivors
+from ._cdf import caution, default_values, stratum_notes
 from ._conditional import MAX_LEVELS
-from ._paths import cdf_path, prepare
+from ._paths import cdf_path, outcome_rows, prepare
 
 __all__ = ["quantile_effects", "quantiles_of", "interpolated_quantiles", "silverman_bandwidth",
            "kernel_density"]
@@ -73,20 +75,26 @@ def kernel_density(at, values, mass, bandwidth):
 
 
 def effective_sizes(oriented):
-    """Kish effective sizes of each arm's survivors under the principal score weights."""
+    """Kish effective sizes of each arm's survivors (each arm's cell of the target stratum)
+    under the principal score weights."""
     o = oriented
-    with np.errstate(divide="ignore", invalid="ignore"):
-        weights = {
-            "mixed": o.weight * o.mixed * o.survival * o.p_pure / (o.pi * o.p_mixed),
-            "pure": o.weight * (1 - o.mixed) * o.survival / (1 - o.pi),
-        }
+    if o.stratum is not ALWAYS:
+        e = o.stratum.score(o.p_mixed, o.p_pure)
+        weights = {role: o.weight * ratio(o.cell(role) * e, o.cell_probability(role))
+                   for role in ("mixed", "pure")}  # fmt: skip
+    else:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            weights = {
+                "mixed": o.weight * o.mixed * o.survival * o.p_pure / (o.pi * o.p_mixed),
+                "pure": o.weight * (1 - o.mixed) * o.survival / (1 - o.pi),
+            }
     sizes = {k: np.nansum(v) ** 2 / np.nansum(v**2) for k, v in weights.items()}
     mixed, pure = ("treated", "control") if o.increasing else ("control", "treated")
     return {mixed: sizes["mixed"], pure: sizes["pure"]}
 
 
-def _survivor_values(data):
-    return np.unique(data.outcome[observed_survivors(data)])
+def _survivor_values(prepared):
+    return np.unique(prepared.data.outcome[outcome_rows(prepared)])
 
 
 def interpolated_quantiles(values, cdf, quantiles):
@@ -116,10 +124,10 @@ def _point_quantiles(prepared, quantiles):
     distinct survivor outcomes when there are at most ``MAX_PATH_VALUES`` (exactly), else at
     that many evenly spaced ranks, interpolating linearly between them.
     """
-    values = _survivor_values(prepared.data)
+    values = _survivor_values(prepared)
     invert = quantiles_of
     if prepared.method != "weighting" and values.size > MAX_PATH_VALUES:
-        values = default_values(prepared.data, limit=MAX_PATH_VALUES)
+        values = default_values(prepared.data, limit=MAX_PATH_VALUES, rows=outcome_rows(prepared))
         invert = interpolated_quantiles
     path = cdf_path(prepared, values, with_influence=False)
     return {arm: invert(path.values, getattr(path, arm), quantiles)
@@ -175,7 +183,7 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         raise ValueError(f"`n_bootstrap` must be 0 or an integer >= 2; got {n_bootstrap!r}.")
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    if _survivor_values(data).size <= MAX_LEVELS:
+    if _survivor_values(prepared).size <= MAX_LEVELS:
         raise ValueError(
             f"The survivors' outcome takes at most {MAX_LEVELS} distinct values, so its "
             "quantiles sit on point masses and have no density-based standard error. Use "
@@ -183,7 +191,8 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         )
     point = _point_quantiles(prepared, quantiles)
     # The density is a binned kernel estimate (Wand 1994, JCGS 3): CDF masses at <= 200 values.
-    path = cdf_path(prepared, default_values(data), with_influence=False)
+    path = cdf_path(prepared, default_values(data, rows=outcome_rows(prepared)),
+                    with_influence=False)
     sizes = effective_sizes(prepared.oriented)
     w, groups = data.sample_weight, data.groups
     z = reference_quantile(level, estimator_dof(estimator))  # t with few clusters
@@ -221,19 +230,21 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         "density_control": density["control"],
     })  # fmt: skip
     notes = [
-        f"Quantiles invert the always-survivor CDFs ({prepared.method} estimator); standard "
+        f"Quantiles invert the {prepared.words} CDFs ({prepared.method} estimator); standard "
         "errors from the influence function of the quantile, -IF_F(q) / f(q), with the density "
         "f from a Gaussian kernel with Silverman's bandwidth (treated "
         f"{bandwidth['treated']:.4g}, control {bandwidth['control']:.4g}).",
         "Each quantile effect is a difference of quantiles of two distributions (a marginal "
         "contrast), not the quantile of individual effects, which the data cannot identify.",
-        CAUTION,
+        *stratum_notes(prepared, estimator.monotonicity),
+        caution(prepared),
     ]
+    units = "survivors" if prepared.stratum == "always_survivor" else "units"
     for arm, value in single.items():
         message = (
-            f"The {arm} always-survivor distribution is a single value ({value:g}: the "
-            f"{arm} survivors' outcome does not vary), so its quantiles are that value and have "
-            "no density-based standard error; the quantile effects get no interval. Compare the "
+            f"The {arm} {prepared.words} distribution is a single value ({value:g}: the "
+            f"{arm} {units}' outcome does not vary), so its quantiles are that value and have no "
+            "density-based standard error; the quantile effects get no interval. Compare the "
             "means, or use ps.ordinal_comparison for an outcome with few levels."
         )
         notes.insert(1, message)
