@@ -229,6 +229,33 @@ def _write_simulated(frame, out):
     return write_atomic(out, lambda path: frame.to_parquet(path, index=False))
 
 
+def _survival_column(values):
+    import numpy as np
+
+    survival = np.asarray(values, dtype=float)
+    return survival if np.isnan(survival).any() else survival.astype(int)
+
+
+def _write_visits(args, data, frame, out):
+    """A scenario with repeated visits: one survival and one outcome column per visit."""
+    visits = list(data.y_visits.columns)
+    for visit in visits:
+        frame[f"survival_{visit}"] = _survival_column(data.survival_visits[visit])
+        frame[f"outcome_{visit}"] = data.y_visits[visit].to_numpy()
+    replaced = _write_simulated(frame, out)
+    truths = ", ".join(f"{visit} {data.true_effects.loc[visit, 'each']:.4f}" for visit in visits)
+    print(f"Wrote {len(frame)} rows of scenario '{args.scenario}' to {out}"
+          f"{' (replacing the file there)' if replaced else ''}, {len(visits)} visits; true "
+          f"SACE to each visit: {truths}.")  # fmt: skip
+    covariates = " ".join(c for c in frame.columns if c.startswith("x"))
+    columns = " ".join(f"--outcome outcome_{v} --survival survival_{v}" for v in visits)
+    missing = frame.filter(like="survival_").isna().any().any() or frame.filter(
+        like="outcome_").isna().to_numpy()[frame.filter(like="survival_").to_numpy() == 1].any()
+    print(f"Analyse it with: pscore-strata analyze {out} --treatment treatment {columns} "
+          f"--covariates {covariates}" + (" --missing at_random" if missing else ""))
+    return 0
+
+
 def simulate_command(args):
     import numpy as np
     import pandas as pd
@@ -244,9 +271,10 @@ def simulate_command(args):
     data = make_scenario(args.scenario, args.n, random_state=args.seed)
     frame = pd.DataFrame(data.X, columns=[f"x{j + 1}" for j in range(data.X.shape[1])])
     frame["treatment"] = np.asarray(data.treatment, dtype=int)
+    if data.get("y_visits") is not None:
+        return _write_visits(args, data, frame, out)
     # Scenarios with missing data leave survival blank where the status is unknown.
-    survival = np.asarray(data.survival, dtype=float)
-    frame["survival"] = survival if np.isnan(survival).any() else survival.astype(int)
+    frame["survival"] = _survival_column(data.survival)
     frame["outcome"] = data.y
     if data.get("groups") is not None:
         frame["cluster"] = data.groups

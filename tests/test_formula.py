@@ -166,3 +166,17 @@ def test_formula_estimator_errors(study):
     # Without a formula nothing changes, and a refit without it forgets the design.
     est.set_params(covariates=None).fit(frame[["age", "severity"]], data.y, **arguments)
     assert not hasattr(est, "design_")
+
+
+@pytest.mark.parametrize("strata", ["none", "score"])
+def test_bounds_on_a_formula_equal_the_hand_built_design(study, strata):
+    # The bounds' treatment (and, with strata="score", survival) models see the same design.
+    data, frame = study
+    arguments = dict(treatment=data.treatment, survival=data.survival)
+    by_formula = ps.TrimmingBounds(covariates=FORMULA, strata=strata).fit(frame, data.y,
+                                                                            **arguments)
+    by_hand = ps.TrimmingBounds(strata=strata).fit(_hand_built(frame, frame), data.y, **arguments)
+    assert by_formula.lower_ == pytest.approx(by_hand.lower_, rel=1e-9)
+    assert by_formula.upper_ == pytest.approx(by_hand.upper_, rel=1e-9)
+    assert by_formula.std_error_lower_ == pytest.approx(by_hand.std_error_lower_, rel=1e-7)
+    assert by_formula.design_.feature_names[:2] == ["age", "severity"]

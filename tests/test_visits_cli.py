@@ -150,3 +150,32 @@ def test_report_withholds_visit_intervals_that_ignore_fitted_boosting_models(vis
     section, table = visits_section(_Collector(None), data, options, "each")
     assert section["available"] is False and "interval not available" in section["reason"]
     assert table is None
+
+
+def test_simulate_visits_writes_every_visit_and_the_command_analyses_it(tmp_path, capsys):
+    # Source: the scenario's own per-visit data (datasets.make_scenario("visits")); the printed
+    # command must run and analyse every visit.
+    import shlex
+
+    import pandas as pd
+
+    from pscore_strata.cli import main
+    from pscore_strata.datasets import make_scenario
+
+    path = tmp_path / "visits.csv"
+    assert main(["simulate", "visits", "--n", "400", "--out", str(path), "--seed", "2"]) == 0
+    printed = capsys.readouterr().out
+    frame = pd.read_csv(path)
+    data = make_scenario("visits", 400, random_state=2)
+    for visit in data.y_visits.columns:
+        pd.testing.assert_series_equal(frame[f"outcome_{visit}"], data.y_visits[visit],
+                                       check_names=False)  # fmt: skip
+        assert (frame[f"survival_{visit}"] == data.survival_visits[visit]).all()
+    command = shlex.split(printed.split("Analyse it with: ")[1].strip())
+    assert command[:2] == ["pscore-strata", "analyze"]
+    out = tmp_path / "report"
+    assert main(command[1:] + ["--out", str(out), "--quiet"]) == 0
+    import json
+
+    results = json.loads((out / "results.json").read_text())
+    assert len(results["visits"]["visits"]) == len(data.y_visits.columns)

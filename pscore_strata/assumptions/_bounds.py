@@ -25,6 +25,7 @@ from .._validation import check_choice, check_level, check_truncation_data, inte
 from ..distributions._quantiles import check_quantiles
 from ..estimands._strata import needs_zero_cells, resolve_stratum, stratum_words
 from ..estimands._view import orient
+from ..estimators._design import design_at_fit
 from ..inference._standard_errors import (
     count_clusters,
     estimator_dof,
@@ -72,6 +73,10 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
     quantiles : sequence of float in (0, 1) or None, default=None
         Also bound the always-survivor quantile effects at these probabilities
         (``quantile_bounds_``; construction in :mod:`pscore_strata.assumptions._quantile_bounds`).
+    covariates : str or None, default=None
+        The covariates as a formula over the DataFrame ``X`` given to :meth:`fit`, as in
+        :class:`PrincipalScoreWeighting` (``"age + C(site) + bs(bmi, 4)"``): the treatment and
+        survival models see the design it builds (``design_``). ``None``: ``X`` as given.
     stratum : str, default="always_survivor"
         The principal stratum whose effect is bounded, as in :class:`PrincipalScoreWeighting`
         (``"protected"``/``"complier"``, ``"doomed"``/``"never_taker"``, ``"harmed"``); the
@@ -165,6 +170,7 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         quantiles=None,
         follow_up_model=None,
         stratum="always_survivor",
+        covariates=None,
     ):
         self.treatment_model = treatment_model
         self.survival_model = survival_model
@@ -176,6 +182,7 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
         self.quantiles = quantiles
         self.follow_up_model = follow_up_model
         self.stratum = stratum
+        self.covariates = covariates
 
     def fit(self, X, y, *, treatment, survival=None, intermediate=None, sample_weight=None,
             groups=None, cells=None, nuisance=None):  # fmt: skip
@@ -218,7 +225,8 @@ class TrimmingBounds(BoundsDisplay, BaseEstimator):
             )
         survival, name = intermediate_alias(survival, intermediate)
         data = check_truncation_data(
-            X, y, treatment, survival, sample_weight, groups, survival_name=name,
+            design_at_fit(self, X), y, treatment, survival, sample_weight, groups,
+            survival_name=name,
             models=(self.treatment_model, self.survival_model, self.response_model,
                     self.follow_up_model),
             missing=self.missing, stratum=stratum if other else None,

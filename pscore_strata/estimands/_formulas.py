@@ -145,7 +145,7 @@ def robust_terms(o, setting=NULL_SETTING, scores=None):
         if st.pure_is_cell:
             observed = ratio(o.cell("pure") * (Y - m), o.arm_probability("pure"))
         else:
-            observed = ratio(st.e * o.cell("pure") * (Y - m), o.cell_probability("pure"))
+            observed = st.e * o.cell_residual("pure")
         phi_pure = st.e * m + m * S_resid + observed
     return phi_e, phi_mixed, phi_pure
 
@@ -155,7 +155,7 @@ def _robust_cell(o, st, role, m, Y):
     G, G_pp, G_pm, G_m = st.g(role, m)
     return (
         G + times(G_pp, o.residual_pure) + times(G_pm, o.residual_mixed)
-        + ratio(G_m * o.cell(role) * (Y - m), o.cell_probability(role))
+        + G_m * o.cell_residual(role)
     )  # fmt: skip
 
 

@@ -100,6 +100,16 @@ class Oriented:
         p = self.own_probability(role)
         return self.arm_probability(role) * (p if s == 1 else 1 - p)
 
+    def cell_residual(self, role):
+        """``1{cell} (Y - m) / (P(arm) q)`` of the stratum's cell in ``role``'s arm: the
+        parameter-free factor of the multiply robust estimator's outcome term (computed once
+        per view, as the survival residuals below)."""
+        cache = self.__dict__.setdefault("_cell_residuals", {})
+        if role not in cache:
+            m = self.m_mixed if role == "mixed" else self.m_pure
+            cache[role] = ratio(self.cell(role) * (self.outcome - m), self.cell_probability(role))
+        return cache[role]
+
     # The survival residuals of the efficient influence function, parameter-free (computed once
     # per view: a sensitivity grid evaluates many settings on one view).
     @cached_property
