@@ -81,7 +81,8 @@ def test_report_is_worded_for_the_stratum(complier_report):
     assert "All strata" in html
     assert "Survivor average causal effect of" not in html
     assert "E[Y(0) | protected, X] = E[Y(0) | doomed, X]" in html
-    assert results["bounds"]["available"] is False
+    # The trimming bounds of the stratum (tests/test_report_strata_bounds.py).
+    assert results["bounds"]["arms"][0]["arm"] == "treated"
     # The sensitivity analysis serves the stratum (tests/test_report_strata_sensitivity.py).
     assert {"pi_difference", "pi_difference_doomed", "harmed_ratio"} <= set(results["sensitivity"])
     assert "individual" in " ".join(results["cautions"])

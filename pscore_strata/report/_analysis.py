@@ -307,12 +307,8 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         results["diagnostics"] = diagnostics_section(collector, primary, data.covariates)
     except ImportError as error:
         results["diagnostics"] = _unavailable("Diagnostics", error)
-    if other_stratum:
-        # The trimming bounds drop the always-survivor assumption only: not shown for another
-        # stratum. The sensitivity analysis relaxes the stratum's own cells.
-        results["bounds"] = _unavailable("Bounds", _ALWAYS_SURVIVOR_ONLY)
-    else:
-        _bounds(results, analysis, collector, options, data, shared)
+    # The trimming bounds of the report's stratum (for another stratum: its cell in each arm).
+    _bounds(results, analysis, collector, options, data, shared, words)
     _sensitivity(results, collector, options, data, primary, words)
     try:
         results["missing_data"] = missing_section(collector, primary, data, options.level)
@@ -380,10 +376,10 @@ _ALWAYS_SURVIVOR_ONLY = (
 )
 
 
-def _bounds(results, analysis, collector, options, data, shared):
+def _bounds(results, analysis, collector, options, data, shared, words):
     try:
         results["bounds"], analysis.bounds = bounds_section(
-            collector, options, data, None if shared.cross_fitted else shared
+            collector, options, data, None if shared.cross_fitted else shared, words
         )
         honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
     except (ImportError, ValueError) as error:

@@ -90,7 +90,8 @@ def print_key_results(results, out_dir):
     if not results["columns"]["covariates"]:
         print("  Unadjusted (no covariates): the estimators equal the naive contrast because "
               "principal ignorability without covariates says so; "
-              + ("the sensitivity analysis relaxes it." if other else "the bounds drop it."))
+              + ("the bounds drop it and the sensitivity analysis relaxes it." if other
+                 else "the bounds drop it."))  # fmt: skip
     for row in (results.get("strata") or {}).get("rows", []):
         print(f"  All strata: {row['label']:<27} share {row['share']:.1%}, effect "
               f"{number(row['effect'])}, {level} CI {interval(row['ci_low'], row['ci_high'])}")

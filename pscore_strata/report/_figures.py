@@ -177,11 +177,14 @@ def draw_figures(analysis):
          "drop principal ignorability. The naive comparison of survivors is biased when "
          "treatment changes who survives; it is shown only for contrast."),
     ]  # fmt: skip
-    if "lower" not in results.get("bounds", {}) and results.get("stratum"):
+    other = (results.get("stratum") or {}).get("name", "always_survivor") != "always_survivor"
+    if results.get("stratum") and ("lower" not in results.get("bounds", {}) or other):
+        shaded = (" Shaded bar: the bounds, which drop principal ignorability."
+                  if "lower" in results.get("bounds", {}) else "")  # fmt: skip
         figures[0] = figures[0][:4] + (
-            "Points and lines: estimates and confidence intervals. The naive contrast of the "
-            "stratum's observed cells is biased when treatment changes the intermediate; it is "
-            "shown only for contrast.",)  # fmt: skip
+            f"Points and lines: estimates and confidence intervals.{shaded} The naive contrast "
+            "of the stratum's observed cells is biased when treatment changes the "
+            "intermediate; it is shown only for contrast.",)  # fmt: skip
     diagnostics = results.get("diagnostics", {})
     if diagnostics.get("available", True):
         from .. import plotting

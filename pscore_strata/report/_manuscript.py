@@ -13,7 +13,7 @@ import pandas as pd
 
 from ..tables import Table, write_tables
 from ._format import count, number
-from ._strata import stratum_definition
+from ._strata import latent_label, stratum_definition
 
 __all__ = ["manuscript_tables", "write_manuscript_tables", "TABLE_FORMATS", "table_formats"]
 
@@ -77,8 +77,8 @@ def assumptions_note(results):
     words, _ = _words(results)
     return (
         "Assumptions of the point estimates — " + "; ".join(parts) + ". The bounds drop "
-        "principal ignorability. The always-survivor stratum is latent and these assumptions "
-        "cannot be tested; the estimates describe a population, not any individual "
+        f"principal ignorability. The {latent_label(results)} stratum is latent and these "
+        "assumptions cannot be tested; the estimates describe a population, not any individual "
         f"{words['unit']}, and are to be read under the study protocol with a qualified "
         "statistician."
     )
@@ -88,8 +88,8 @@ def short_assumptions_note(results):
     words, _ = _words(results)
     return (
         "Estimates assume monotonicity and principal ignorability (stated in the note to the "
-        "results table); the always-survivor stratum is latent and these assumptions cannot be "
-        f"tested. Population-level summaries, not for decisions about an individual "
+        f"results table); the {latent_label(results)} stratum is latent and these assumptions "
+        f"cannot be tested. Population-level summaries, not for decisions about an individual "
         f"{words['unit']}."
     )
 

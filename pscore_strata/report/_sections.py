@@ -122,10 +122,17 @@ def diagnostics_section(collector, primary, covariates):
     return out
 
 
-def bounds_section(collector, options, data, nuisance=None):
+def bounds_section(collector, options, data, nuisance=None, words=None):
+    """The ``bounds`` record and the fitted bounds, for the stratum of ``options.stratum``.
+
+    For a stratum other than the always-survivors (``--stratum``) the record also says which
+    cell is trimmed in which arm, by what share (:func:`._strata_bounds.stratum_bounds_record`).
+    """
     from ..assumptions import TrimmingBounds
 
     models, _ = model_settings(options, len(data.treatment))
+    if options.stratum != "always_survivor":
+        models["stratum"] = options.stratum
     bounds = TrimmingBounds(monotonicity=options.monotonicity, missing=options.missing, **models)
     collector.run(
         "bounds without principal ignorability",
@@ -148,6 +155,10 @@ def bounds_section(collector, options, data, nuisance=None):
         # The first note restates the interval (already in the sentence), under its column name.
         "notes": list(bounds.summary(options.level).attrs["notes"][1:3]),
     }
+    if options.stratum != "always_survivor":
+        from ._strata_bounds import stratum_bounds_record
+
+        record = stratum_bounds_record(record, bounds, options.stratum, words or {})
     return record, bounds
 
 

@@ -17,9 +17,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..estimands._strata import STRATUM_ALIASES, stratum_role, stratum_words
+from ..estimands._strata import stratum_role
 from ._options import number
 from ._sections import _tipping_status, readable_step
+from ._strata import stratum_label as _label
 from ._text import _DEFAULT_WORDS
 
 __all__ = ["sensitivity_section", "PARAMETERS", "parameters_of"]
@@ -31,9 +32,6 @@ PARAMETERS = {
     "doomed": ("pi_difference_doomed", "harmed_ratio"),
 }
 _DIFFERENCES = ("pi_difference", "pi_difference_doomed")
-_ALIAS_OF = {name: alias for alias, name in STRATUM_ALIASES.items()}
-_PLURAL = {"always-survivor": "always-survivors", "always-taker": "always-takers",
-           "never-taker": "never-takers", "complier": "compliers"}  # fmt: skip
 
 
 def parameters_of(primary):
@@ -149,17 +147,6 @@ def _always_survivor_section(collector, primary, data, level):
         },
         "criterion": f"the {level:.0%} confidence interval first covers 0",
     }
-
-
-def _label(stratum, monotonicity, plural=False):
-    """``"protected (complier)"``, ``"doomed (never-takers)"``: words and noncompliance name."""
-    words = stratum_words(stratum)
-    alias = _ALIAS_OF.get(stratum) if monotonicity == "increasing" else None
-    alias = alias and alias.replace("_", "-")
-    if plural:
-        words = _PLURAL.get(words, words)
-        alias = alias and _PLURAL.get(alias, alias)
-    return f"{words} ({alias})" if alias else words
 
 
 def stratum_parameter_words(monotonicity, words):

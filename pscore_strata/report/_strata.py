@@ -32,6 +32,8 @@ __all__ = [
     "stratum_cautions",
     "stratum_definition",
     "strata_section",
+    "latent_label",
+    "stratum_label",
 ]
 
 _ALIAS_OF = {name: alias for alias, name in STRATUM_ALIASES.items()}
@@ -42,6 +44,21 @@ def outcome_for_everyone(data):
     S = data.survival.astype(float)
     zero = S == 0
     return bool(zero.any()) and not np.isnan(data.outcome[zero]).any()
+
+
+_PLURAL = {"always-survivor": "always-survivors", "always-taker": "always-takers",
+           "never-taker": "never-takers", "complier": "compliers"}  # fmt: skip
+
+
+def stratum_label(stratum, monotonicity, plural=False):
+    """``"protected (complier)"``, ``"doomed (never-takers)"``: words and noncompliance name."""
+    words = stratum_words(stratum)
+    alias = _ALIAS_OF.get(stratum) if monotonicity == "increasing" else None
+    alias = alias and alias.replace("_", "-")
+    if plural:
+        words = _PLURAL.get(words, words)
+        alias = alias and _PLURAL.get(alias, alias)
+    return f"{words} ({alias})" if alias else words
 
 
 def _display(given, stratum):
@@ -119,8 +136,7 @@ def stratum_assumption(given, monotonicity):
         "name": "Principal ignorability",
         "statement": ignorability_statement(stratum, monotonicity),
         "checked_by": "Untestable. The sensitivity analysis relaxes it in each cell the "
-        "stratum shares with another; the trimming bounds concern the always-survivors only "
-        "and are not shown for this stratum.",
+        "stratum shares with another; the trimming bounds drop it.",
     }
 
 
@@ -140,6 +156,11 @@ def stratum_cautions(given, monotonicity, words=None):
         "local regulation, and have a qualified statistician review the analysis before it "
         "informs practice.",
     )
+
+
+def latent_label(results):
+    """The report's stratum as its sentences name it: ``"always-survivor"`` unless --stratum."""
+    return (results.get("stratum") or {}).get("label", "always-survivor")
 
 
 def stratum_definition(target, words, outcome):
