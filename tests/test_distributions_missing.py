@@ -141,3 +141,25 @@ def test_cdf_intervals_cover_the_truth_under_missing_data():
                 hits[arm].append(frame[f"{arm}_ci_low"][0] <= 0.5 <= frame[f"{arm}_ci_high"][0])
     coverage = {arm: np.mean(v) for arm, v in hits.items()}
     assert all(c >= 0.85 for c in coverage.values()), coverage
+
+
+class _Recording(ps.PrincipalScoreWeighting):
+    """Records the survival statuses each refit receives."""
+
+    seen = []
+
+    def fit(self, X, y, *, treatment, survival=None, **kwargs):
+        type(self).seen.append(int(np.isnan(np.asarray(survival, dtype=float)).sum()))
+        return super().fit(X, y, treatment=treatment, survival=survival, **kwargs)
+
+
+def test_the_quantile_bootstrap_refits_with_unknown_statuses_left_unknown():
+    # A unit lost to follow-up has an unknown status in every refit, not a death: the refit
+    # must receive NaN where the fit did (the resample keeps such units).
+    data = make_truncation(1500, random_state=8, follow_up=(0.8, 0.5))
+    est = _Recording(missing="at_random").fit(data.X, data.y, treatment=data.treatment,
+                                              survival=data.survival)  # fmt: skip
+    _Recording.seen.clear()
+    ps.quantile_effects(est, X=data.X, quantiles=[0.5], n_bootstrap=5, random_state=0)
+    assert len(_Recording.seen) == 5
+    assert all(count > 0 for count in _Recording.seen)

@@ -272,6 +272,10 @@ def _bootstrap(estimator, X, cdf_model, quantiles, n_resamples, random_state):
             "`n_bootstrap` refits the estimator on resamples, which needs `X`: pass the "
             "covariates the estimator was fitted with."
         )
+    # The status of units lost to follow-up is unknown, not death: blank again, as given to fit.
+    survival = data.survival.astype(float)
+    if data.status_known is not None:
+        survival = np.where(data.status_known == 1, survival, np.nan)
     template = clone(estimator)
     if "n_bootstrap" in template.get_params():
         template.set_params(n_bootstrap=0)  # only the point estimates are needed
@@ -285,7 +289,7 @@ def _bootstrap(estimator, X, cdf_model, quantiles, n_resamples, random_state):
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 fitted.fit(X_b, data.outcome[rows], treatment=data.treatment[rows],
-                           survival=data.survival[rows],
+                           survival=survival[rows],
                            sample_weight=data.sample_weight[rows] if data.weighted else None,
                            groups=None if data.groups is None else data.groups[rows])
                 point = _point_quantiles(prepare(fitted, X_b, cdf_model), quantiles)
