@@ -19,15 +19,6 @@ causaldata = pytest.importorskip("causaldata")
 COVARIATES = ["black", "smsa", "south"]
 
 
-@pytest.fixture(scope="module")
-def card(tmp_path_factory):
-    frame = causaldata.close_college.load_pandas().data
-    frame = frame.assign(college=np.where(frame["educ"] >= 16, "degree", "no degree"))
-    path = tmp_path_factory.mktemp("data") / "card.csv"
-    frame.to_csv(path, index=False)
-    return pd.read_csv(path), path  # the values the command line reads
-
-
 def _analyze(path, out, *extra, role="--intermediate"):
     return main(["analyze", str(path), "--outcome", "lwage", "--treatment", "nearc4", role,
                  "college", "--survived-value", "degree", "--covariates", *COVARIATES,

@@ -11,7 +11,6 @@ Zhang & Rubin (2003) and Lee (2009) written out by hand with numpy.
 import json
 
 import numpy as np
-import pandas as pd
 import pytest
 
 import pscore_strata as ps
@@ -23,15 +22,6 @@ causaldata = pytest.importorskip("causaldata")
 jsonschema = pytest.importorskip("jsonschema")
 COVARIATES = ["black", "smsa", "south"]
 RUNS = [("complier", True), ("complier", False), ("never_taker", True), ("never_taker", False)]
-
-
-@pytest.fixture(scope="module")
-def card(tmp_path_factory):
-    frame = causaldata.close_college.load_pandas().data
-    frame = frame.assign(college=np.where(frame["educ"] >= 16, "degree", "no degree"))
-    path = tmp_path_factory.mktemp("data") / "card.csv"
-    frame.to_csv(path, index=False)
-    return pd.read_csv(path), path
 
 
 @pytest.fixture(scope="module")

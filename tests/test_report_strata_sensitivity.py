@@ -24,15 +24,6 @@ jsonschema = pytest.importorskip("jsonschema")
 COVARIATES = ["black", "smsa", "south"]
 
 
-@pytest.fixture(scope="module")
-def card(tmp_path_factory):
-    frame = causaldata.close_college.load_pandas().data
-    frame = frame.assign(college=np.where(frame["educ"] >= 16, "degree", "no degree"))
-    path = tmp_path_factory.mktemp("data") / "card.csv"
-    frame.to_csv(path, index=False)
-    return pd.read_csv(path), path
-
-
 def _run(card, tmp_path_factory, stratum, covariates=True):
     frame, path = card
     out = tmp_path_factory.mktemp(f"{stratum}_{covariates}")
