@@ -116,6 +116,8 @@ def binary_indicator(values, name, allow_missing=False):
             f"`{name}` has {count} missing value(s) (NaN). Every row needs a known 0/1 {name}; "
             "drop or resolve those rows first."
         )
+    if array.dtype.kind == "b" or np.all((array == 0) | (array == 1)):
+        return array.astype(np.int8)
     found = np.unique(array)
     if not np.all(np.isin(found, [0, 1])):
         raise ValueError(

@@ -47,3 +47,25 @@ def test_cached_tables_are_copies_and_follow_the_covariates():
         ps.diagnostics.weight_summary(est)
         ps.diagnostics.weight_summary(est)
         assert w.call_count == 1
+
+
+def test_estimators_sharing_a_nuisance_fit_share_its_diagnostics():
+    """One nuisance fit, three estimators (as in the report): each diagnostic is computed once,
+    and every estimator gets what it would get from its own fit of the same models."""
+    data = make_truncation(800, random_state=3)
+    X = pd.DataFrame(data.X, columns=[f"x{j}" for j in range(data.X.shape[1])])
+    first = _fitted(data)
+    shared = [cls().fit(data.X, data.y, treatment=data.treatment, survival=data.survival,
+                        nuisance=first.nuisance_)
+              for cls in (ps.OutcomeRegression, ps.PrincipalScoreWeighting)]  # fmt: skip
+    alone = [cls().fit(data.X, data.y, treatment=data.treatment, survival=data.survival)
+             for cls in (ps.MultiplyRobust, ps.OutcomeRegression, ps.PrincipalScoreWeighting)]
+    with mock.patch.object(_monotonicity, "_strata_labels", wraps=_monotonicity._strata_labels) \
+            as labels:  # fmt: skip
+        together = [ps.diagnostics.diagnostic_warnings(est, X) for est in (first, *shared)]
+        checks = [ps.diagnostics.monotonicity_check(est) for est in (first, *shared)]
+        assert labels.call_count == 1
+    separate = [ps.diagnostics.diagnostic_warnings(est, X) for est in alone]
+    assert together == separate
+    for check, est in zip(checks, alone, strict=True):
+        pd.testing.assert_frame_equal(check, ps.diagnostics.monotonicity_check(est))

@@ -1,10 +1,13 @@
-"""Diagnostics computed once per fitted estimator.
+"""Diagnostics computed once per nuisance fit.
 
 The summary, its notes, the report and the figures all ask for the same balance, weight,
 overlap and monotonicity tables and warnings. Each is a function of the estimator's stored
-nuisance predictions (and, for balance, of the covariates passed), so it is computed on the
-first request and kept on the estimator. The cache belongs to one nuisance fit: a refit gives the
-estimator a new ``nuisance_`` and the old results are dropped. Covariates are recognized by a
+nuisance predictions, the rows they were fitted on, the monotonicity direction and the target
+stratum (and, for balance, of the covariates passed), so it is computed on the first request and
+kept in the nuisance fit's ``derived`` store. Estimators that share a fit (``nuisance=``: the
+same predictions on the same rows, checked by ``nuisance/_share.py``) share the store, so the
+report's three estimators compute each diagnostic once. A refit gives the estimator a new
+``nuisance_`` and a fresh store. Covariates are recognized by a
 digest of their values, so changing them in place gives fresh results. Tables are handed out as
 copies, so a caller editing one does not change what the next caller sees.
 """
@@ -62,16 +65,16 @@ def cached_diagnostic(cacheable, takes_x=True):
             digest = _digest(X)
             if X is not None and digest is None:
                 return call(estimator, X, args, kwargs)
-            store = estimator.__dict__.get("_diagnostic_cache")
-            if store is None or store["nuisance"] is not nuisance:
-                # Holding the nuisance keeps its identity unique while the cache lives.
-                store = {"nuisance": nuisance, "values": {}}
-                estimator.__dict__["_diagnostic_cache"] = store
-            key = (function.__name__, digest, getattr(estimator, "monotonicity", None),
+            store = getattr(nuisance, "derived", None)
+            if store is None:
+                return call(estimator, X, args, kwargs)
+            key = ("diagnostic", function.__name__, digest,
+                   getattr(estimator, "monotonicity", None),
+                   getattr(estimator, "stratum_", "always_survivor"),
                    tuple(sorted((k, repr(v)) for k, v in kwargs.items())))  # fmt: skip
-            if key not in store["values"]:
-                store["values"][key] = call(estimator, X, args, kwargs)
-            return copy.deepcopy(store["values"][key])
+            if key not in store:
+                store[key] = call(estimator, X, args, kwargs)
+            return copy.deepcopy(store[key])
 
         return wrapper
 

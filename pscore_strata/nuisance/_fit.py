@@ -71,6 +71,10 @@ class NuisanceFit:
         (``fit(..., nuisance=est.nuisance_)``) and refuse it when they differ.
     separation : list
         The separated binary models found at fit (messages; empty when none).
+    derived : dict
+        Values computed from these predictions alone (the diagnostics' tables and warnings),
+        kept on first request. Estimators that share the fit (``nuisance=``) share it too, so a
+        report fitting three estimators on one nuisance fit computes each diagnostic once.
     """
 
     treatment_probability: np.ndarray
@@ -85,6 +89,9 @@ class NuisanceFit:
     settings: dict | None = None  # what it was fitted with, for sharing (see _share.py)
     # SeparationWarning texts of the binary models that are separated (nuisance/_separation.py).
     separation: list = field(default_factory=list)
+    # Filled by diagnostics/_cache.py; dataclasses.replace (the sharing in _share.py) passes the
+    # same dict on, so the fits that hold these predictions share it.
+    derived: dict = field(default_factory=dict, repr=False, compare=False)
 
 
 def fit_nuisance(

@@ -124,8 +124,7 @@ def _overview(data, roles):
     }
 
 
-def _estimate_record(method, estimator, level, primary):
-    table = estimator.summary(level)
+def _estimate_record(method, estimator, level, primary, table):
     low, high = estimator.conf_int(level)
     return {
         "method": method,
@@ -181,8 +180,7 @@ def _method_notes(estimator, notes):
             if note not in repeated and not note.startswith("Separation in the")]  # fmt: skip
 
 
-def _summary_rows(estimator, level):
-    table = estimator.summary(level)
+def _summary_rows(table):
     rows = {}
     for name, row in table.iterrows():
         rows[name] = {
@@ -254,7 +252,8 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         estimators[method] = estimator
     estimators = {method: estimators[method] for method in order}
     primary = estimators[options.method]
-    shares, naive = _summary_rows(primary, options.level)
+    tables = {method: est.summary(options.level) for method, est in estimators.items()}
+    shares, naive = _summary_rows(tables[options.method])
     words = study_wording(options, data, roles)
     results = {
         "schema_version": SCHEMA_VERSION,
@@ -282,7 +281,7 @@ def run_analysis(data, roles, options, *, source="data", progress=None):
         "estimand": estimand(roles, options.monotonicity, words),
         "data_overview": _overview(data, roles),
         "estimates": [
-            _estimate_record(m, est, options.level, m == options.method)
+            _estimate_record(m, est, options.level, m == options.method, tables[m])
             for m, est in estimators.items()
         ],
         "stratum_shares": shares,

@@ -84,6 +84,8 @@ def model_checks_section(primary):
 def _scores_figure(primary, results):
     import matplotlib.pyplot as plt
 
+    from ..plotting._diagnostics import histogram_steps
+
     names = _arm_names(results)
     scores = np.asarray(primary.principal_scores_)
     treatment = primary.training_data_.treatment
@@ -92,8 +94,9 @@ def _scores_figure(primary, results):
     bins = np.linspace(0, 1, 26)
     for column, (ax, label) in enumerate(zip(axes, labels, strict=True)):
         for arm in (1, 0):
-            ax.hist(scores[treatment == arm, column], bins=bins, density=True, alpha=0.5,
-                    color=_ARM_COLORS[arm], label=f"{names[arm]} (n={np.sum(treatment == arm):,})")
+            histogram_steps(ax, scores[treatment == arm, column], bins, density=True, fill=True,
+                            alpha=0.5, color=_ARM_COLORS[arm],
+                            label=f"{names[arm]} (n={np.sum(treatment == arm):,})")  # fmt: skip
         ax.set_xlabel(f"{label} score")
         ax.grid(color="0.92")
     axes[0].set_ylabel("density")
@@ -105,6 +108,8 @@ def _scores_figure(primary, results):
 def _outcome_figure(primary, results):
     import matplotlib.pyplot as plt
 
+    from ..plotting._diagnostics import histogram_steps
+
     names = _arm_names(results)
     data = primary.training_data_
     figure, ax = plt.subplots(figsize=(7.2, 3.4), layout="constrained")
@@ -114,8 +119,8 @@ def _outcome_figure(primary, results):
     bins = np.histogram_bin_edges(values, bins=30)
     for arm in (1, 0):
         rows = survivors & (data.treatment == arm)
-        ax.hist(data.outcome[rows], bins=bins, density=True, alpha=0.5, color=_ARM_COLORS[arm],
-                label=f"{names[arm]} survivors (n={rows.sum():,})")
+        histogram_steps(ax, data.outcome[rows], bins, density=True, fill=True, alpha=0.5,
+                        color=_ARM_COLORS[arm], label=f"{names[arm]} survivors (n={rows.sum():,})")
     ax.set_xlabel(outcome_label(results))
     ax.set_ylabel("density")
     ax.set_title("Outcome of the survivors by arm (unweighted)", fontsize=10)
