@@ -15,7 +15,10 @@ values. Two facts make that cheap:
   A whole grid of ``delta`` then costs two passes over the rows.
 
 The other parameters (``pi_ratio``, ``harmed_ratio``) enter nonlinearly (and ``harmed_ratio``
-clips scores row by row), so they are evaluated directly, still on the stored view.
+clips scores row by row), so they are evaluated directly, still on the stored view; except
+``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust, always-survivors,
+no clusters), whose exact path is :class:`._harmed.HarmedLine`. Each setting's answer is kept,
+so a grid and a tipping-point search on the same path share their evaluations.
 """
 
 from __future__ import annotations
@@ -27,8 +30,14 @@ from ..estimands._setting import Setting
 from ..estimands._view import orient, scale_effect
 from ..estimators._repeats import median_aggregate
 from ..inference._standard_errors import influence_std_error
+from ._harmed import EXPLICIT_ROWS, HarmedLine
 
 __all__ = ["SensitivityPath"]
+
+NULL = Setting()
+
+# Answers kept per path (a few grids and tipping-point searches need a few hundred).
+_KEPT_ANSWERS = 10_000
 
 
 def _gram(basis, weights, groups):
@@ -56,7 +65,8 @@ class SensitivityPath:
     """
 
     def __init__(self, estimator, method):
-        self.estimator, self.method = estimator, method
+        # No reference to the estimator itself: paths are cached per estimator (weakly).
+        self.method, self.scale = method, estimator.scale
         data = estimator.training_data_
         self.weights, self.groups = data.sample_weight, data.groups
         fits = getattr(estimator, "_repeat_fits", None) or [estimator.nuisance_]
@@ -64,26 +74,38 @@ class SensitivityPath:
         stratum = getattr(estimator, "stratum_", "always_survivor")
         self.views = [orient(data, nuisance, estimator.monotonicity, stratum) for nuisance in fits]
         self._lines = {}
+        self._harmed = None
+        self._answers = {}
+        self._null = {}
 
     # -- direct evaluation -------------------------------------------------------------------
     def at(self, delta=0.0, eps=None, xi=0.0, delta_0=0.0):
         """``(effect, std_error, n_clipped)`` at one setting, repeats combined by medians."""
         effects, errors, clipped = [], [], 0
-        for o in self.views:
-            parts, n_clipped = self.method.adjusted(o, Setting(delta, eps, xi, delta_0))
-            effect, influence = scale_effect(parts, self.estimator.scale)
+        for index in range(len(self.views)):
+            parts, n_clipped = self._adjusted(index, Setting(delta, eps, xi, delta_0))
+            effect, influence = scale_effect(parts, self.scale)
             effects.append(float(effect))
             errors.append(influence_std_error(influence, self.weights, self.groups))
             clipped = max(clipped, n_clipped)
         effect, std_error = median_aggregate(effects, errors)
         return float(effect), float(std_error), clipped
 
+    def _adjusted(self, index, setting):
+        """``method.adjusted`` on view ``index``; the null setting's kept (the grids, the
+        tipping points and the affine path all start there)."""
+        if setting != NULL:
+            return self.method.adjusted(self.views[index], setting)
+        if index not in self._null:
+            self._null[index] = self.method.adjusted(self.views[index], setting)
+        return self._null[index]
+
     # -- the affine path in delta ------------------------------------------------------------
     def _line(self, xi):
         if xi not in self._lines:
             lines = []
-            for o in self.views:
-                start, clipped = self.method.adjusted(o, Setting(0.0, None, xi))
+            for index, o in enumerate(self.views):
+                start, clipped = self._adjusted(index, Setting(0.0, None, xi))
                 end, _ = self.method.adjusted(o, Setting(1.0, None, xi))
                 means = np.array([start.mean_treated, end.mean_treated - start.mean_treated,
                                   start.mean_control, end.mean_control - start.mean_control])
@@ -98,7 +120,7 @@ class SensitivityPath:
     def along_delta(self, deltas, xi=0.0):
         """Arrays ``(effect, std_error)`` at every ``delta`` in ``deltas``, and ``n_clipped``."""
         deltas = np.atleast_1d(np.asarray(deltas, dtype=float))
-        scale = self.estimator.scale
+        scale = self.scale
         effects, errors, clipped = [], [], 0
         for means, gram, n_clipped in self._line(xi):
             mu1 = means[0] + deltas * means[1]
@@ -120,13 +142,112 @@ class SensitivityPath:
         effect, std_error = median_aggregate(effects, errors)
         return np.asarray(effect, dtype=float), np.asarray(std_error, dtype=float), clipped
 
+    # -- the exact path in harmed_ratio ------------------------------------------------------
+    def _harmed_lines(self):
+        """One :class:`HarmedLine` per view, or ``()`` where the exact path does not apply."""
+        if self._harmed is None:
+            terms = self.method.harmed_terms
+            applies = (terms is not None and self.groups is None
+                       and all(o.stratum.role == "always" for o in self.views))  # fmt: skip
+            lines = ()
+            if applies:
+                weights = np.ones(len(self.views[0].mixed)) if self.weights is None else (
+                    np.asarray(self.weights, dtype=float))  # fmt: skip
+                lines = tuple(HarmedLine(o, terms(o), weights) for o in self.views)
+                if not all(line.available for line in lines):
+                    lines = ()
+            self._harmed = lines
+        return self._harmed
+
+    def along_harmed(self, xi):
+        """``(effect, std_error, n_clipped)`` at ``harmed_ratio`` ``xi`` (``0 < xi < 1``) from
+        the exact path, or ``None`` where it does not apply (then evaluate directly)."""
+        lines = self._harmed_lines()
+        if not lines:
+            return None
+        s = xi / (1 - xi)
+        total = lines[0].total_weight
+        effects, errors, clipped = [], [], 0
+        for o, line in zip(self.views, lines, strict=True):
+            found = line.suffix(xi)
+            if found is None:
+                return None
+            sums, products, n_clipped = found
+            effect, variance = _harmed_effect(sums, products, n_clipped, s, total, line,
+                                              o.increasing, self.scale)  # fmt: skip
+            effects.append(float(effect))
+            errors.append(float(np.sqrt(np.maximum(variance, 0.0))))
+            clipped = max(clipped, n_clipped)
+        effect, std_error = median_aggregate(effects, errors)
+        return float(effect), float(std_error), clipped
+
     def evaluate(self, setting):
         """``(effect, std_error, n_clipped)`` at a setting dict (checked values)."""
         eps = setting.get("pi_ratio")
         delta = setting.get("pi_difference", 0.0)
         xi = setting.get("harmed_ratio", 0.0)
         delta_0 = setting.get("pi_difference_doomed", 0.0)
+        key = (delta, eps, xi, delta_0)
+        if key not in self._answers:
+            if len(self._answers) >= _KEPT_ANSWERS:
+                self._answers.clear()
+            self._answers[key] = self._evaluate(delta, eps, xi, delta_0)
+        return self._answers[key]
+
+    def _evaluate(self, delta, eps, xi, delta_0):
         if eps is None and delta != 0 and delta_0 == 0:
             effect, std_error, clipped = self.along_delta([delta], xi)
             return float(effect[0]), float(std_error[0]), clipped
+        if eps is None and delta == 0 and delta_0 == 0 and xi != 0:
+            found = self.along_harmed(xi)
+            if found is not None:
+                return found
         return self.at(delta, eps, xi, delta_0)
+
+
+def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
+    """Effect and influence variance at ``s = xi / (1 - xi)`` from the suffix sums of the six
+    parts of :class:`HarmedLine` (``phi_e`` and ``phi_t - r_t phi_e``) over the rows from
+    ``start`` on (the others are clipped).
+
+    As :func:`~pscore_strata.estimands._formulas.robust_means` and
+    :func:`~pscore_strata.estimands._view.scale_effect`: ``mu_t = mean(phi_t) / mean(phi_e)``,
+    the influence values ``k1 (phi_1 - mu_1 phi_e) / share - k0 (phi_0 - mu_0 phi_e) / share``
+    with the scale's delta-method factors, and the variance of
+    :func:`~pscore_strata.inference._standard_errors.influence_std_error` (rows as clusters),
+    ``n / (n - 1) (sum c^2 - (sum c)^2 / n) / (sum w)^2`` for ``c = w IF``.
+    """
+    n = line.n
+    r_mixed, r_pure = line.reference
+    with np.errstate(divide="ignore", invalid="ignore"):
+        phi_e = sums[0] + s * sums[1]
+        share = phi_e / total
+        mu_mixed = r_mixed + (sums[2] + s * sums[3]) / phi_e
+        mu_pure = r_pure + (sums[4] + s * sums[5]) / phi_e
+        mu1, mu0 = (mu_mixed, mu_pure) if increasing else (mu_pure, mu_mixed)
+        if scale == "difference":
+            effect, k1, k0 = mu1 - mu0, 1.0, 1.0
+        elif scale == "ratio":
+            effect = mu1 / mu0
+            k1, k0 = effect / mu1, effect / mu0
+        else:
+            effect = (mu1 / (1 - mu1)) / (mu0 / (1 - mu0))
+            k1, k0 = effect / (mu1 * (1 - mu1)), effect / (mu0 * (1 - mu0))
+        c1, c0 = k1 / share, -k0 / share
+        c_mixed, c_pure = (c1, c0) if increasing else (c0, c1)
+        # c_m phi_m + c_p phi_p + c_e phi_e on the stored parts (phi_t - r_t phi_e, phi_e).
+        c_e = c_mixed * (r_mixed - mu_mixed) + c_pure * (r_pure - mu_pure)
+        coefficients = np.array([c_e, s * c_e, c_mixed, s * c_mixed, c_pure, s * c_pure])
+        if n < 2:
+            return effect, np.nan
+        if n - start <= EXPLICIT_ROWS:
+            # Few rows left: their weighted influence values one by one, centered over all n
+            # rows (the clipped ones contribute 0), as influence_std_error sums them.
+            values = coefficients @ line.rows(start)
+            mean = np.sum(values) / n
+            square = np.sum((values - mean) ** 2) + (start * mean**2 if start else 0.0)
+            return effect, n / (n - 1) * square / total**2
+        square = coefficients @ products @ coefficients
+        mean_total = coefficients @ sums
+        variance = n / (n - 1) * (square - mean_total**2 / n) / total**2
+    return effect, variance

@@ -24,8 +24,11 @@ and the default treatment model's estimation carried by M-estimation, as for the
 
 from __future__ import annotations
 
+import weakref
+
 import numpy as np
 import pandas as pd
+from scipy import stats
 
 from .._validation import check_level
 from ..distributions._cdf import observed_survivors
@@ -37,17 +40,26 @@ from ..distributions._quantiles import (
     silverman_bandwidth,
 )
 from ..inference._standard_errors import estimator_dof, influence_std_error
+from ..nuisance._models import ParametricFit
 from ._trimming import imbens_manski_interval
 
-__all__ = ["trimmed_mixtures", "quantile_bounds", "add_quantile_bounds", "quantile_intervals"]
+__all__ = ["trimmed_mixtures", "quantile_bounds", "add_quantile_bounds", "quantile_intervals",
+           "quantile_bounds_of"]  # fmt: skip
 
 
 def add_quantile_bounds(bounds, o, labels, data):
     """Set ``bounds.quantile_bounds_`` (``None`` without ``quantiles``); called by ``fit``."""
+    _remember(bounds, o, labels, data)
     bounds.quantile_bounds_ = None
     if bounds.quantiles is None:
         return
-    quantiles = check_quantiles(bounds.quantiles)
+    table, influence = _quantile_table(bounds, o, labels, data, bounds.quantiles)
+    bounds.quantile_influence_ = influence
+    bounds.quantile_bounds_ = table
+
+
+def _quantile_table(bounds, o, labels, data, quantiles):
+    quantiles = check_quantiles(quantiles)
     if np.unique(data.outcome[observed_survivors(data)]).size <= MAX_LEVELS:
         raise ValueError(
             f"`quantiles` needs a continuous outcome; the survivors' outcome takes at most "
@@ -56,8 +68,31 @@ def add_quantile_bounds(bounds, o, labels, data):
     table, influence = quantile_bounds(o, labels, quantiles)
     for key in ("lower", "upper"):
         table[f"std_error_{key}"] = influence_std_error(influence[key], o.weight, data.groups)
-    bounds.quantile_influence_ = influence
-    bounds.quantile_bounds_ = quantile_intervals(table, 0.95, estimator_dof(bounds))
+    return quantile_intervals(table, 0.95, estimator_dof(bounds)), influence
+
+
+# What the most recent fit's quantile bounds need (its oriented view, cells and data), so that
+# fitted mean bounds give quantile bounds without a refit (the report's bounds feed its
+# distribution section). One fit at a time: the memory held is one fit's.
+_LAST = {}
+
+
+def _remember(bounds, o, labels, data):
+    _LAST.clear()
+    _LAST["inputs"] = (o, labels, data)
+    _LAST["bounds"] = weakref.ref(bounds, lambda ref: _LAST.get("bounds") is ref and
+                                  _LAST.clear())  # fmt: skip
+
+
+def quantile_bounds_of(bounds, quantiles):
+    """``quantile_bounds_`` of fitted ``bounds`` at ``quantiles`` without refitting them (the
+    same numbers as a fit with ``quantiles``), or ``None`` when another fit has run since
+    (then refit with ``quantiles``)."""
+    held = _LAST.get("bounds")
+    if held is None or held() is not bounds:
+        return None
+    o, labels, data = _LAST["inputs"]
+    return _quantile_table(bounds, o, labels, data, quantiles)[0]
 
 
 def quantile_intervals(table, level=0.95, dof=None):
@@ -70,16 +105,6 @@ def quantile_intervals(table, level=0.95, dof=None):
             for r in table.itertuples()]  # fmt: skip
     table["ci_low"], table["ci_high"] = np.array(ends).T
     return table
-
-
-def _kept(values, weights, share, highest):
-    """Weight each row keeps when only the lowest (or highest) ``share`` of the mass is kept."""
-    order = np.argsort(-values if highest else values, kind="stable")
-    w = weights[order]
-    before = np.cumsum(w) - w
-    kept = np.empty_like(w)
-    kept[order] = np.clip(share * w.sum() - before, 0.0, w)
-    return kept
 
 
 def _weights(o):
@@ -122,21 +147,45 @@ def _cells(o, labels):
     return cells, alpha_total, mixed_observed, pure_observed
 
 
-def trimmed_mixtures(o, labels):
-    """Row masses of ``G_L``, ``G_U`` (mixed-arm survivors) and of the pure arm's distribution.
+def _sorted_survivors(o):
+    """Survivor rows by outcome, ties by row (one sort shared by every cell and mixture)."""
+    rows = np.flatnonzero(o.survival > 0)
+    return rows[np.argsort(o.outcome[rows], kind="stable")]
 
-    Each array sums to 1; the means of ``G_L`` and ``G_U`` are the mean bounds' mixed-arm
-    always-survivor means.
-    """
-    cells, _, mixed_observed, pure_observed = _cells(o, labels)
+
+def _descending(order, values):
+    """The stable descending order (ties by row) from the stable ascending ``order``:
+    reversed, then each run of tied values reversed back."""
+    reverse = order[::-1]
+    v = values[reverse]
+    if v.size < 2:
+        return reverse
+    change = np.flatnonzero(v[1:] != v[:-1]) + 1
+    starts = np.concatenate([[0], change])
+    ends = np.concatenate([change, [v.size]])
+    position = np.repeat(starts + ends - 1, ends - starts) - np.arange(v.size)
+    return reverse[position]
+
+
+def _masses(o, cells, mixed_observed, pure_observed, order):
+    """Row masses of ``G_L``, ``G_U`` and the pure arm (:func:`trimmed_mixtures`), from the
+    survivors sorted once (``order``)."""
     Y = o.outcome
     masses = {"lower": np.zeros(Y.size), "upper": np.zeros(Y.size)}
+    weight_mixed = o.weight * mixed_observed
     for c in cells:
         rows = (c["C"] * mixed_observed) > 0
-        cell_weight = (o.weight * mixed_observed)[rows]
-        for key, highest in (("lower", False), ("upper", True)):
-            kept = _kept(Y[rows], cell_weight, c["q"], highest)
-            masses[key][rows] += c["omega"] * kept / (c["q"] * cell_weight.sum())
+        cell_total = weight_mixed[rows].sum()
+        ascending = order[rows[order]]
+        if ascending.size != np.count_nonzero(rows):  # rows outside the survivors: own sort
+            ascending = np.flatnonzero(rows)[np.argsort(Y[rows], kind="stable")]
+        # The lowest (highest) q of the cell's mass: in increasing (decreasing) order of the
+        # outcome, ties by row, each row keeps the part of its weight that fits below the cut.
+        for key, ranked in (("lower", ascending), ("upper", _descending(ascending, Y))):
+            w = weight_mixed[ranked]
+            before = np.cumsum(w) - w
+            kept = np.clip(c["q"] * w.sum() - before, 0.0, w)
+            masses[key][ranked] += c["omega"] * kept / (c["q"] * cell_total)
     pure = o.weight * pure_observed
     masses["pure"] = np.zeros(Y.size)
     for c in cells:
@@ -144,50 +193,118 @@ def trimmed_mixtures(o, labels):
     return masses
 
 
-def _cell_cdf(key, c, below, o, mixed_observed, pure_observed, total):
-    """A cell's trimmed (or pure-arm) CDF at one value and its influence values, split into
-    the outcome part (proportional to ``1 / r`` under missing data) and the survival part."""
-    w = o.weight
+def trimmed_mixtures(o, labels):
+    """Row masses of ``G_L``, ``G_U`` (mixed-arm survivors) and of the pure arm's distribution.
+
+    Each array sums to 1; the means of ``G_L`` and ``G_U`` are the mean bounds' mixed-arm
+    always-survivor means.
+    """
+    cells, _, mixed_observed, pure_observed = _cells(o, labels)
+    return _masses(o, cells, mixed_observed, pure_observed, _sorted_survivors(o))
+
+
+def _window_density(at, values, mass, bandwidth):
+    """:func:`kernel_density` over sorted ``values``, summing only within 12 bandwidths of
+    each point (the kernel is below 6e-32 of its peak beyond: far below rounding)."""
+    if not bandwidth > 0:
+        return kernel_density(at, values, mass, bandwidth)
+    low = np.searchsorted(values, at - 12 * bandwidth, side="left")
+    high = np.searchsorted(values, at + 12 * bandwidth, side="right")
+    return np.array([stats.norm.pdf((a - values[i:j]) / bandwidth) @ mass[i:j] / bandwidth
+                     for a, i, j in zip(at, low, high, strict=True)])  # fmt: skip
+
+
+_CHUNK = 65_536
+
+
+def _cell_columns(key, c, points, Y, w, mixed_observed, pure_observed, total):
+    """A cell's trimmed (or pure-arm) CDF ``F`` at ``points`` (one per quantile) and its value:
+    ``(rows, F, normalizer, value, outcome scale, survival coefficient)``, the last two zero
+    where the trimmed CDF is flat at 0 or 1."""
+    observed = pure_observed if key == "pure" else mixed_observed
+    normalizer = c["o_p"] if key == "pure" else c["o_m"]
+    weighted = w * c["C"] * observed
+    F = np.array([np.sum(weighted * (Y <= p)) for p in points]) / total / normalizer
+    rows = c["C"] * observed
+    ones, zeros = np.ones(points.size), np.zeros(points.size)
     if key == "pure":
-        F = np.sum(w * c["C"] * pure_observed * below) / total / c["o_p"]
-        return F, c["C"] * pure_observed * (below - F) / c["o_p"], 0.0
-    F = np.sum(w * c["C"] * mixed_observed * below) / total / c["o_m"]
-    if_F = c["C"] * mixed_observed * (below - F) / c["o_m"]
-    q, if_q = c["q"], c["if_q"]
+        return rows, F, normalizer, F, ones, zeros
+    q = c["q"]
     if key == "lower":  # L_c = min(F / q, 1)
-        if F >= q:
-            return 1.0, 0.0, 0.0
-        return F / q, if_F / q, -F * if_q / q**2
-    # U_c = max((F - 1 + q) / q, 0)
-    if F <= 1 - q:
-        return 0.0, 0.0, 0.0
-    return (F - 1 + q) / q, if_F / q, (1 - F) * if_q / q**2
+        active = F < q
+        value = np.where(active, F / q, 1.0)
+        survival = -F / q**2
+    else:  # U_c = max((F - 1 + q) / q, 0)
+        active = F > 1 - q
+        value = np.where(active, (F - 1 + q) / q, 0.0)
+        survival = (1 - F) / q**2
+    scale = np.where(active, 1 / q, 0.0)
+    return rows, F, normalizer, value, scale, np.where(active, survival, 0.0)
 
 
-def _derivatives(o, weighted, outcome_part):
-    """Derivatives of the influence pieces in the treatment (and, with missing data, the
-    follow-up and response) predictions, as in the mean bounds: every weighted piece is
-    proportional to ``1 / pi`` and ``1 / c`` of its arm, the outcome pieces also to ``1 / r``."""
+def _terms(key, cells, columns, scale, weighted_alpha, free_alpha, alpha_total):
+    """Per cell: the row vectors and per-quantile coefficients of ``key``'s influence pieces,
+    each coefficient already multiplied by the cell weight and the density factor ``scale``
+    (row vectors that are zero, as a single cell's alpha terms, are ``None``)."""
+    terms = []
+    for c, (factor, F, normalizer, value, outcome_scale, survival) in zip(
+            cells, columns, strict=True):  # fmt: skip
+        om = c["omega"]
+        alpha_w = c["alpha_weighted"] - om * weighted_alpha
+        alpha_f = c["alpha_free"] - om * free_alpha
+        terms.append((factor, F, om * scale * outcome_scale / normalizer, om * scale * survival,
+                      c["if_q"] if c["if_q"].any() else None, scale * value / alpha_total,
+                      alpha_w if alpha_w.any() else None, alpha_f))  # fmt: skip
+    return terms
+
+
+def _pieces(terms, points, rows, Y):
+    """(weighted, free, outcome) influence pieces on the chunk ``rows`` (r x J): per cell
+    ``om (if_outcome + if_survival) + value / alpha (alpha_weighted - om weighted_alpha)``,
+    ``value / alpha (alpha_free - om free_alpha)`` and ``om if_outcome``, over the density."""
+    below = Y[rows, None] <= points[None, :]
+    weighted = free = outcome_part = None
+    for factor, F, coefficient, survival, if_q, share, alpha_w, alpha_f in terms:
+        part = (below - F) * coefficient
+        part *= factor[rows, None]
+        both = part.copy()
+        if if_q is not None:
+            both += if_q[rows, None] * survival
+        if alpha_w is not None:
+            both += alpha_w[rows, None] * share
+        own_free = alpha_f[rows, None] * share
+        if weighted is None:
+            weighted, free, outcome_part = both, own_free, part
+        else:
+            weighted += both
+            free += own_free
+            outcome_part += part
+    return weighted, free, outcome_part
+
+
+def _derivative_factors(o):
+    """Per-row factors of :func:`_derivatives`: the derivative in each prediction is the
+    weighted piece (``"pi"``, ``"c_*"``) or the outcome piece (``"r_*"``) times its factor."""
     A = o.mixed
-    derivatives = {"pi": np.where(A == 1, -weighted / o.pi, weighted / (1 - o.pi))}
-    co = o.coarsening
-    if co is not None:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            derivatives.update({
-                "c_mixed": np.where(A == 1, -weighted / co.c_mixed, 0.0),
-                "c_pure": np.where(A == 0, -weighted / co.c_pure, 0.0),
-                "r_mixed": np.where(A == 1, -outcome_part / co.r_mixed, 0.0),
-                "r_pure": np.where(A == 0, -outcome_part / co.r_pure, 0.0),
+    with np.errstate(divide="ignore", invalid="ignore"):
+        factors = {"pi": ("weighted", np.where(A == 1, -1 / o.pi, 1 / (1 - o.pi)))}
+        co = o.coarsening
+        if co is not None:
+            factors.update({
+                "c_mixed": ("weighted", np.where(A == 1, -1 / co.c_mixed, 0.0)),
+                "c_pure": ("weighted", np.where(A == 0, -1 / co.c_pure, 0.0)),
+                "r_mixed": ("outcome", np.where(A == 1, -1 / co.r_mixed, 0.0)),
+                "r_pure": ("outcome", np.where(A == 0, -1 / co.r_pure, 0.0)),
             })  # fmt: skip
-    return derivatives
-
-
-def _effective_size(mass):
-    return mass.sum() ** 2 / np.sum(mass**2)
+    return factors
 
 
 def quantile_bounds(o, labels, quantiles):
     """Bounds on the quantile effects with influence values.
+
+    One sort of the survivors serves every cell's trimming and the three mixtures; the
+    influence values of all quantiles are formed together in row chunks (the M-estimation
+    terms of the GLM fits from gradients accumulated over the chunks).
 
     Returns
     -------
@@ -197,49 +314,79 @@ def quantile_bounds(o, labels, quantiles):
     influence : dict
         ``"lower"``, ``"upper"``: arrays of shape (n_rows, n_quantiles).
     """
+    quantiles = np.asarray(quantiles, dtype=float)
     cells, alpha_total, mixed_observed, pure_observed = _cells(o, labels)
-    masses = trimmed_mixtures(o, labels)
-    Y, S, w = o.outcome, o.survival, o.weight
+    order = _sorted_survivors(o)
+    masses = _masses(o, cells, mixed_observed, pure_observed, order)
+    Y, w = o.outcome, o.weight
     total = w.sum()
-    survivors = S > 0
-    support = {key: (Y[survivors], m[survivors]) for key, m in masses.items()}
+    values = Y[order]
     point, density = {}, {}
-    for key, (values, mass) in support.items():
-        order = np.argsort(values, kind="stable")
-        values, mass = values[order], mass[order]
+    for key, row_mass in masses.items():
+        mass = row_mass[order]
         point[key] = quantiles_of(values, np.cumsum(mass), quantiles)
-        bandwidth = silverman_bandwidth(values, mass, _effective_size(mass))
-        density[key] = kernel_density(point[key], values, mass, bandwidth)
+        bandwidth = silverman_bandwidth(values, mass, mass.sum() ** 2 / np.sum(mass**2))
+        density[key] = _window_density(point[key], values, mass, bandwidth)
     weighted_alpha = sum(c["alpha_weighted"] for c in cells)
     free_alpha = sum(c["alpha_free"] for c in cells)
-    def piece(key, j):
-        """(weighted, free, outcome) influence pieces of quantile ``j`` of ``key``."""
-        below = (Y <= point[key][j]).astype(float)
-        outcome_part, weighted, free = 0.0, 0.0, 0.0
-        for c in cells:
-            value, if_outcome, if_survival = _cell_cdf(key, c, below, o, mixed_observed,
-                                                       pure_observed, total)  # fmt: skip
-            om = c["omega"]
-            outcome_part = outcome_part + om * if_outcome
-            weighted = weighted + om * (if_outcome + if_survival) + value / alpha_total * (
-                c["alpha_weighted"] - om * weighted_alpha)
-            free = free + value / alpha_total * (c["alpha_free"] - om * free_alpha)
-        scale = -1.0 / density[key][j]
-        return weighted * scale, free * scale, outcome_part * scale
-
-    # One quantile at a time: memory O(rows), and no strided writes into rows x quantiles.
-    influence = {key: np.empty((Y.size, quantiles.size)) for key in ("lower", "upper")}
-    for j in range(quantiles.size):
-        pure = piece("pure", j)
-        for key in ("lower", "upper"):
-            own = piece(key, j)
-            raw_w = own[0] - pure[0]
-            raw = raw_w + own[1] - pure[1]
-            raw_outcome = own[2] - pure[2]
-            correction = o.corrections(_derivatives(o, raw_w, raw_outcome))
-            influence[key][:, j] = raw - (w @ raw) / total + correction
-    lower = point["lower"] - point["pure"]
-    upper = point["upper"] - point["pure"]
+    terms = {key: _terms(key, cells, [_cell_columns(key, c, point[key], Y, w, mixed_observed,
+                                                    pure_observed, total) for c in cells],
+                         -1.0 / density[key], weighted_alpha, free_alpha, alpha_total)
+             for key in point}  # fmt: skip
+    parametric = o.parametric or {}
+    factors = {name: (source, factor) for name, (source, factor) in _derivative_factors(o).items()
+               if parametric.get(name) is not None}  # fmt: skip
+    # Plain GLM fits, batched over the quantiles: their gradient's row factor (w x slope x the
+    # derivative factor); other fits get whole derivative columns and their own correction.
+    batched = {name: w * parametric[name].slope * factor
+               for name, (_, factor) in factors.items() if type(parametric[name]) is ParametricFit}
+    keys = ("lower", "upper")
+    n, k = Y.size, quantiles.size
+    influence = {key: np.empty((n, k)) for key in keys}
+    means = {key: np.zeros(k) for key in keys}
+    gradients, full = {}, {}  # batched GLM gradients; whole derivative columns of other fits
+    for start in range(0, n, _CHUNK):
+        rows = slice(start, start + _CHUNK)
+        pure = _pieces(terms["pure"], point["pure"], rows, Y)
+        for key in keys:
+            own = _pieces(terms[key], point[key], rows, Y)
+            sources = {"weighted": own[0] - pure[0]}
+            raw = influence[key][rows]
+            np.add(sources["weighted"], own[1], out=raw)
+            raw -= pure[1]
+            means[key] += w[rows] @ raw
+            if any(source == "outcome" for source, _ in factors.values()):
+                sources["outcome"] = own[2] - pure[2]
+            for name, (source, factor) in factors.items():
+                fit = parametric[name]
+                if name not in batched:
+                    full.setdefault((key, name), []).append(sources[source] * factor[rows, None])
+                    continue
+                u = sources[source] * batched[name][rows, None]
+                part = u.sum(axis=0, keepdims=True)
+                if fit.design is not None:
+                    part = np.vstack([part, fit.design[rows].T @ u])
+                gradients[key, name] = gradients.get((key, name), 0.0) + part
+    directions = {pair: parametric[pair[1]].h_inverse @ (g / total)
+                  for pair, g in gradients.items()}  # fmt: skip
+    for start in range(0, n, _CHUNK):
+        rows = slice(start, start + _CHUNK)
+        for key in keys:
+            block = influence[key][rows]
+            block -= means[key] / total
+            for (which, name), direction in directions.items():
+                if which != key:
+                    continue
+                fit = parametric[name]
+                fitted = np.broadcast_to(direction[0], block.shape)
+                if fit.design is not None:
+                    fitted = fit.design[rows] @ direction[1:] + direction[0]
+                block += (fit.mask[rows] * fit.residual[rows])[:, None] * fitted
+    for (key, name), chunks in full.items():
+        d = np.vstack(chunks)
+        for j in range(k):
+            influence[key][:, j] += parametric[name].correction(d[:, j], w)
+    lower, upper = point["lower"] - point["pure"], point["upper"] - point["pure"]
     mixed_lower, mixed_upper, pure = point["lower"], point["upper"], point["pure"]
     if not o.increasing:
         # Effect = pure-arm quantile minus mixed-arm quantile: the bounds swap and change sign.

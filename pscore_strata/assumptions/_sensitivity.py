@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import itertools
 import numbers
+import weakref
 
 import numpy as np
 import pandas as pd
@@ -155,8 +156,32 @@ def _adjusted(method, estimator, nuisance, setting):
 
 
 def sensitivity_path(estimator):
-    """A :class:`._paths.SensitivityPath` over the estimator's stored predictions."""
-    return SensitivityPath(estimator, _check_estimator(estimator))
+    """The :class:`._paths.SensitivityPath` over the estimator's stored predictions.
+
+    Kept per fitted estimator (weakly: it goes with the estimator), so that the grids and
+    tipping points of one estimator share the oriented views, the affine and harmed-ratio paths
+    and the answers at settings already evaluated. A refit (new stored predictions) or a change
+    of ``scale`` or ``monotonicity`` gets a new path.
+    """
+    method = _check_estimator(estimator)
+    fits = getattr(estimator, "_repeat_fits", None) or [estimator.nuisance_]
+    key = (method, estimator.training_data_, *fits, estimator.scale, estimator.monotonicity,
+           getattr(estimator, "stratum_", "always_survivor"))  # fmt: skip
+    try:
+        cached = _PATHS.get(estimator)
+    except TypeError:  # not hashable or not weakly referable: no cache
+        return SensitivityPath(estimator, method)
+    if cached is not None and len(cached[0]) == len(key) and all(
+            a is b or (isinstance(a, str) and a == b)
+            for a, b in zip(cached[0], key, strict=True)):  # fmt: skip
+        return cached[1]
+    path = SensitivityPath(estimator, method)
+    _PATHS[estimator] = (key, path)
+    return path
+
+
+# Fitted estimator -> (what its path was built from, the path); entries go with the estimator.
+_PATHS = weakref.WeakKeyDictionary()
 
 
 def _effect_and_error(estimator, setting, path=None):

@@ -24,7 +24,8 @@ from ._coarsening import weight_derivatives
 from ._setting import NULL_SETTING, Scores, times
 from ._view import ratio, unorient
 
-__all__ = ["weighting_means", "regression_means", "robust_terms", "robust_means"]
+__all__ = ["weighting_means", "regression_means", "robust_terms", "robust_means",
+           "robust_harmed_terms"]  # fmt: skip
 
 
 def _indicator(o, subset):
@@ -177,3 +178,33 @@ def robust_means(o, setting=NULL_SETTING, subset=None, scores=None):
         if_mixed = (phi_mixed - mu_mixed * phi_e) / share
         if_pure = (phi_pure - mu_pure * phi_e) / share
     return unorient(o, mu_mixed, mu_pure, if_mixed, if_pure)
+
+
+def robust_harmed_terms(o):
+    """:func:`robust_terms` of the always-survivors along ``harmed_ratio`` alone, as
+    ``phi = A + s B`` per row with ``s = xi / (1 - xi)``, where the row's score is not clipped.
+
+    With ``xi`` the always-survivor score is ``e = (p_p - xi p_m) / (1 - xi) = p_p + s d`` with
+    ``d = p_p - p_m``, its coefficients are ``a = -s`` on ``p_m`` and ``b = 1 + s`` on ``p_p``,
+    and (``delta = 0``, no ``eps``) both cells are plain (``G = e m``), so
+    ``phi_e = e + a r_m + b r_p``, ``phi_t = e (m_t + c_t) + m_t (a r_m + b r_p)`` with the
+    survival residuals ``r`` and the outcome term ``c_t`` of the cell (:func:`_robust_cell`):
+    affine in ``s``. A clipped row (``xi p_m > p_p``) has ``e = a = b = 0``, so every ``phi``
+    is 0 there. At ``xi = 0`` the pure arm's outcome term is written differently (``e / q = 1``
+    exactly), so that point is left to :func:`robust_terms`.
+
+    Returns
+    -------
+    dict
+        ``{"e": (A, B), "mixed": (A, B), "pure": (A, B)}`` of per-row arrays.
+    """
+    if o.stratum.role != "always":
+        raise ValueError("robust_harmed_terms is written for the always-survivor stratum.")
+    p_m, p_p = o.p_mixed, o.p_pure
+    r_m, r_p = o.residual_mixed, o.residual_pure
+    d, dr = p_p - p_m, r_p - r_m
+    terms = {"e": (p_p + r_p, d + dr)}
+    for role, m in (("mixed", o.m_mixed), ("pure", o.m_pure)):
+        outcome_part = m + o.cell_residual(role)
+        terms[role] = (p_p * outcome_part + m * r_p, d * outcome_part + m * dr)
+    return terms

@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from ._formulas import regression_means, robust_means, weighting_means
+from ._formulas import regression_means, robust_harmed_terms, robust_means, weighting_means
 from ._setting import NULL_SETTING, Scores
 
 __all__ = ["Method", "METHODS", "METHOD_NAMES", "method_named", "method_of"]
@@ -37,6 +37,11 @@ class Method:
         nuisance fits, so no terms are added).
     formula : callable
         ``formula(view, setting=NULL_SETTING, subset=None) -> MeanParts``.
+    harmed_terms : callable or None
+        ``harmed_terms(view) -> {"e": (A, B), "mixed": (A, B), "pure": (A, B)}``: the
+        always-survivor estimating functions along ``harmed_ratio`` alone, ``A + s B`` per
+        unclipped row with ``s = xi / (1 - xi)`` and 0 on clipped rows, for methods whose
+        influence values are these functions (no nuisance-estimation terms); ``None`` otherwise.
     """
 
     name: str
@@ -45,6 +50,7 @@ class Method:
     uses_outcome_model: bool
     std_error: str
     formula: Callable
+    harmed_terms: Callable | None = None
 
     @property
     def orthogonal(self):
@@ -97,7 +103,7 @@ METHODS = {
         Method("regression", "Outcome regression", "OutcomeRegression", True, "sandwich",
                regression_means),
         Method("robust", "Multiply robust", "MultiplyRobust", True, "influence function",
-               robust_means),
+               robust_means, robust_harmed_terms),
     )
 }  # fmt: skip
 METHOD_NAMES = tuple(METHODS)

@@ -16,7 +16,7 @@ import numpy as np
 
 from .. import __version__
 from ..estimands import METHODS as METHOD_RECORDS
-from ._distributions import distributions_section
+from ._distributions import distributions_section, share_bounds
 from ._honesty import bootstrap_warning, honest_bounds, honest_estimates, honest_sensitivity
 from ._missing import missing_section
 from ._options import (
@@ -380,6 +380,7 @@ def _bounds(results, analysis, collector, options, data, shared, words):
         results["bounds"], analysis.bounds = bounds_section(
             collector, options, data, None if shared.cross_fitted else shared, words
         )
+        share_bounds(collector, analysis.bounds)  # the distribution section's quantile bounds
         honest_bounds(results["bounds"], analysis.bounds, collector, options, data)
     except (ImportError, ValueError) as error:
         results["bounds"] = _unavailable("Bounds", error)

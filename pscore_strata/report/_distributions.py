@@ -9,14 +9,26 @@ better level.
 
 from __future__ import annotations
 
+import weakref
+
 import numpy as np
 
 from ._options import METHOD_LABELS, fit_arguments, model_settings, number
 from ._wording import outcome_label
 
-__all__ = ["distributions_section", "distribution_figures", "level_labels", "QUANTILES"]
+__all__ = ["distributions_section", "distribution_figures", "level_labels", "QUANTILES",
+           "share_bounds"]  # fmt: skip
 
 QUANTILES = (0.1, 0.25, 0.5, 0.75, 0.9)
+
+# The report's fitted mean bounds, by the run's collector (see share_bounds).
+_SHARED_BOUNDS = weakref.WeakKeyDictionary()
+
+
+def share_bounds(collector, bounds):
+    """Give the distribution section of the run of ``collector`` the report's fitted mean
+    bounds: with the default (linear) models its quantile bounds are the same fit's."""
+    _SHARED_BOUNDS[collector] = bounds
 
 
 def _numbers(values):
@@ -105,23 +117,33 @@ def distributions_section(collector, primary, data, options):
 
 def _quantile_bounds(collector, options, data, primary, quantiles=QUANTILES):
     from ..assumptions import TrimmingBounds
-    from ..assumptions._quantile_bounds import quantile_intervals
+    from ..assumptions._quantile_bounds import quantile_bounds_of, quantile_intervals
     from ..inference._standard_errors import estimator_dof
 
-    models, _ = model_settings(options)
-    if options.survival_model == "arm-wise":
-        models.pop("survival_model", None)  # unused without score strata
-    bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=quantiles,
-                            missing=options.missing, **models)  # fmt: skip
-    # With the default models the bounds reuse the analysis' one fit (never a cross-fitted one).
-    shared = primary.nuisance_
-    nuisance = None if options.learner != "linear" or shared.cross_fitted else shared
+    label = "outcome distributions"
+    # With the default models the report's mean bounds are this fit (same models, the
+    # analysis' one nuisance fit): their quantile bounds need no refit.
+    bounds, table = _SHARED_BOUNDS.get(collector), None
+    shared = options.learner == "linear" and options.stratum == "always_survivor"
     try:
-        collector.run("outcome distributions", bounds.fit, data.design, data.outcome,
-                      **fit_arguments(data), nuisance=nuisance)  # fmt: skip
+        if bounds is not None and shared:
+            table = collector.run(label, quantile_bounds_of, bounds, quantiles)
+        if table is None:
+            models, _ = model_settings(options)
+            if options.survival_model == "arm-wise":
+                models.pop("survival_model", None)  # unused without score strata
+            bounds = TrimmingBounds(monotonicity=options.monotonicity, quantiles=quantiles,
+                                    missing=options.missing, **models)  # fmt: skip
+            # With the default models the bounds reuse the analysis' one fit (never a
+            # cross-fitted one).
+            nuisance = primary.nuisance_
+            nuisance = None if options.learner != "linear" or nuisance.cross_fitted else nuisance
+            collector.run(label, bounds.fit, data.design, data.outcome, **fit_arguments(data),
+                          nuisance=nuisance)  # fmt: skip
+            table = bounds.quantile_bounds_
     except ValueError:
         return None
-    table = quantile_intervals(bounds.quantile_bounds_, options.level, estimator_dof(bounds))
+    table = quantile_intervals(table, options.level, estimator_dof(bounds))
     return [{key: number(row[key]) for key in
              ("quantile", "lower", "upper", "std_error_lower", "std_error_upper", "ci_low",
               "ci_high")}
