@@ -61,30 +61,36 @@ class HarmedLine:
         if not self.available:
             return
         order = np.argsort(key)
-        self.key = key[order]
-        self.p_m, self.p_p = p_m[order], p_p[order]
+        self.key, self.order = key[order], order
+        self.p_m, self.p_p = p_m, p_p
         # The influence values are close to phi_t - mu_t phi_e: the parts of phi_t are stored
         # less a reference multiple of phi_e's (the means over all rows at xi = 0), so that the
         # quadratic form of the variance does not cancel large terms.
         total = np.sum(weights * terms["e"][0])
         self.reference = tuple(np.sum(weights * terms[role][0]) / total
                                for role in ("mixed", "pure"))  # fmt: skip
-        a_e, b_e = terms["e"]
-        columns = [a_e, b_e]
-        for role, mu in zip(("mixed", "pure"), self.reference, strict=True):
-            a, b = terms[role]
-            columns += [a - mu * a_e, b - mu * b_e]
         self.n = n = len(key)
+        self.total_weight = float(np.sum(weights))  # as Oriented.weighted_mean divides by
         n_blocks = -(-n // _BLOCK)
-        weighted = np.zeros((n_blocks * _BLOCK, len(columns)))
-        weighted[:n] = np.column_stack(columns)[order] * weights[order, None]
+        # One row per part (sorted rows along the columns), times the weights.
+        weighted = np.zeros((6, n_blocks * _BLOCK))
+        w = weights[order]
+        a_e, b_e = terms["e"][0][order], terms["e"][1][order]
+        np.multiply(a_e, w, out=weighted[0, :n])
+        np.multiply(b_e, w, out=weighted[1, :n])
+        for j, (role, mu) in enumerate(zip(("mixed", "pure"), self.reference, strict=True)):
+            for k, (part, part_e) in enumerate(zip(terms[role], (a_e, b_e), strict=True)):
+                column = part[order]
+                column -= mu * part_e
+                np.multiply(column, w, out=weighted[2 + 2 * j + k, :n])
         self.weighted = weighted
-        blocks = weighted.reshape(n_blocks, _BLOCK, len(columns))
-        sums = blocks.sum(axis=1)
-        products = np.matmul(blocks.transpose(0, 2, 1), blocks)
+        blocks = weighted.reshape(6, n_blocks, _BLOCK)
+        sums = blocks.sum(axis=2).T
+        by_block = blocks.transpose(1, 0, 2)
+        products = np.matmul(by_block, by_block.transpose(0, 2, 1))
         # Suffix sums: entry b holds blocks b, b+1, ...; the last entry is empty.
-        self.sums = np.zeros((n_blocks + 1, len(columns)))
-        self.products = np.zeros((n_blocks + 1, len(columns), len(columns)))
+        self.sums = np.zeros((n_blocks + 1, 6))
+        self.products = np.zeros((n_blocks + 1, 6, 6))
         self.sums[:-1] = np.cumsum(sums[::-1], axis=0)[::-1]
         self.products[:-1] = np.cumsum(products[::-1], axis=0)[::-1]
 
@@ -96,7 +102,8 @@ class HarmedLine:
         if high == low:
             return low
         # The direct formula's test: (p_p - xi p_m) / (1 - xi) < 0.
-        near = (self.p_p[low:high] - xi * self.p_m[low:high]) / (1 - xi) < 0
+        rows = self.order[low:high]
+        near = (self.p_p[rows] - xi * self.p_m[rows]) / (1 - xi) < 0
         count = int(np.count_nonzero(near))
         if not near[:count].all():
             return None
@@ -110,11 +117,11 @@ class HarmedLine:
         if start is None:
             return None
         block = -(-start // _BLOCK)
-        partial = self.weighted[start : block * _BLOCK]
-        sums = self.sums[block] + partial.sum(axis=0)
-        products = self.products[block] + partial.T @ partial
+        partial = self.weighted[:, start : block * _BLOCK]
+        sums = self.sums[block] + partial.sum(axis=1)
+        products = self.products[block] + partial @ partial.T
         return sums, products, start
 
     def rows(self, start):
-        """The weighted parts of the rows from ``start`` (sorted order) to the end."""
-        return self.weighted[start : self.n]
+        """The weighted parts (6, m) of the rows from ``start`` (sorted order) to the end."""
+        return self.weighted[:, start : self.n]

@@ -34,6 +34,8 @@ from ._harmed import EXPLICIT_ROWS, HarmedLine
 
 __all__ = ["SensitivityPath"]
 
+NULL = Setting()
+
 # Answers kept per path (a few grids and tipping-point searches need a few hundred).
 _KEPT_ANSWERS = 10_000
 
@@ -74,13 +76,14 @@ class SensitivityPath:
         self._lines = {}
         self._harmed = None
         self._answers = {}
+        self._null = {}
 
     # -- direct evaluation -------------------------------------------------------------------
     def at(self, delta=0.0, eps=None, xi=0.0, delta_0=0.0):
         """``(effect, std_error, n_clipped)`` at one setting, repeats combined by medians."""
         effects, errors, clipped = [], [], 0
-        for o in self.views:
-            parts, n_clipped = self.method.adjusted(o, Setting(delta, eps, xi, delta_0))
+        for index in range(len(self.views)):
+            parts, n_clipped = self._adjusted(index, Setting(delta, eps, xi, delta_0))
             effect, influence = scale_effect(parts, self.scale)
             effects.append(float(effect))
             errors.append(influence_std_error(influence, self.weights, self.groups))
@@ -88,12 +91,21 @@ class SensitivityPath:
         effect, std_error = median_aggregate(effects, errors)
         return float(effect), float(std_error), clipped
 
+    def _adjusted(self, index, setting):
+        """``method.adjusted`` on view ``index``; the null setting's kept (the grids, the
+        tipping points and the affine path all start there)."""
+        if setting != NULL:
+            return self.method.adjusted(self.views[index], setting)
+        if index not in self._null:
+            self._null[index] = self.method.adjusted(self.views[index], setting)
+        return self._null[index]
+
     # -- the affine path in delta ------------------------------------------------------------
     def _line(self, xi):
         if xi not in self._lines:
             lines = []
-            for o in self.views:
-                start, clipped = self.method.adjusted(o, Setting(0.0, None, xi))
+            for index, o in enumerate(self.views):
+                start, clipped = self._adjusted(index, Setting(0.0, None, xi))
                 end, _ = self.method.adjusted(o, Setting(1.0, None, xi))
                 means = np.array([start.mean_treated, end.mean_treated - start.mean_treated,
                                   start.mean_control, end.mean_control - start.mean_control])
@@ -154,7 +166,7 @@ class SensitivityPath:
         if not lines:
             return None
         s = xi / (1 - xi)
-        total = float(np.sum(self.views[0].weight))
+        total = lines[0].total_weight
         effects, errors, clipped = [], [], 0
         for o, line in zip(self.views, lines, strict=True):
             found = line.suffix(xi)
@@ -231,7 +243,7 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
         if n - start <= EXPLICIT_ROWS:
             # Few rows left: their weighted influence values one by one, centered over all n
             # rows (the clipped ones contribute 0), as influence_std_error sums them.
-            values = line.rows(start) @ coefficients
+            values = coefficients @ line.rows(start)
             mean = np.sum(values) / n
             square = np.sum((values - mean) ** 2) + (start * mean**2 if start else 0.0)
             return effect, n / (n - 1) * square / total**2
