@@ -1,4 +1,5 @@
-"""The exact harmed-ratio path (issue 24) gives the answers of direct evaluation.
+"""The exact harmed-ratio path and the affine pi_difference_doomed path (issue 24) give the
+answers of direct evaluation.
 
 Reference: the direct formulas (``adjusted_effect``: one full pass over the rows per value, the
 principal scores clipped row by row as in ``estimands/_setting.py``) with the standard error of
@@ -7,6 +8,7 @@ direct formula's own test ``(p_p - xi p_m) / (1 - xi) < 0`` counted row by row.
 """
 
 import gc
+import warnings
 import weakref
 from types import SimpleNamespace
 
@@ -196,3 +198,33 @@ def test_path_is_kept_per_fit_and_goes_with_the_estimator(data):
     gc.collect()
     assert alive() is None
     assert len(_PATHS) < count
+
+
+# -- the affine path in pi_difference_doomed ------------------------------------------------
+
+
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.OutcomeRegression,
+                                 ps.MultiplyRobust])  # fmt: skip
+@pytest.mark.parametrize(("monotonicity", "stratum"), [
+    ("increasing", "protected"), ("increasing", "doomed"), ("decreasing", "harmed"),
+])  # fmt: skip
+def test_doomed_difference_path_matches_direct_formulas(cls, monotonicity, stratum):
+    # Reference: the direct formulas at each value (adjusted_effect, one pass per value).
+    from pscore_strata.datasets import make_intermediate
+
+    d = make_intermediate(2000, stratum=stratum, monotonicity=monotonicity,
+                          pi_difference_doomed=0.7, random_state=11)  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = cls(stratum=stratum, monotonicity=monotonicity).fit(
+            d.X, d.y, treatment=d.treatment, intermediate=d.intermediate)  # fmt: skip
+    values = [-3.0, -0.7, 0.25, 1.0, 2.5]
+    for xi in (0.0, 0.2):
+        grid = ps.sensitivity_grid(est, pi_difference_doomed=values, harmed_ratio=[xi])
+        for _, row in grid.iterrows():
+            effect, influence, clipped = adjusted_effect(
+                est, pi_difference_doomed=row["pi_difference_doomed"], harmed_ratio=xi)
+            se = influence_std_error(influence, est.training_data_.sample_weight)
+            assert row["effect"] == pytest.approx(effect, rel=1e-11, abs=1e-12 * se)
+            assert row["std_error"] == pytest.approx(se, rel=1e-9)
+            assert row["n_rows_clipped"] == clipped

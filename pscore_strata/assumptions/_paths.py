@@ -9,10 +9,12 @@ values. Two facts make that cheap:
   difference parameter ``delta`` (``G = e_a m - delta e_a e_h / p_m``, and the weighting,
   regression and multiply robust formulas, their normalizers and M-estimation corrections are
   linear in ``G`` and its partial derivatives, while the normalizers do not involve ``delta``).
-  So the always-survivor means and their influence values at any ``delta`` are exact affine
+  So the stratum's means and their influence values at any ``delta`` are exact affine
   combinations of those at ``delta = 0`` and ``delta = 1``, and the variance of any linear
   combination of the four influence vectors is a quadratic form in a 4 x 4 matrix built once.
-  A whole grid of ``delta`` then costs two passes over the rows.
+  A whole grid of ``delta`` then costs two passes over the rows. The same holds for
+  ``delta_0`` (``pi_difference_doomed``) with ``delta = 0``: in the pure arm's
+  intermediate-0 cell ``G = e m +- delta_0 e_h e_d / (1 - p_p)``, and no normalizer involves it.
 
 The other parameters (``pi_ratio``, ``harmed_ratio``) enter nonlinearly (and ``harmed_ratio``
 clips scores row by row), so they are evaluated directly, still on the stored view; except
@@ -100,13 +102,16 @@ class SensitivityPath:
             self._null[index] = self.method.adjusted(self.views[index], setting)
         return self._null[index]
 
-    # -- the affine path in delta ------------------------------------------------------------
-    def _line(self, xi):
-        if xi not in self._lines:
+    # -- the affine paths in delta and delta_0 ----------------------------------------------
+    def _line(self, xi, parameter="pi_difference"):
+        if (parameter, xi) not in self._lines:
+            # The other difference parameter stays 0 (both paths hold pi_ratio unset).
+            unit = (Setting(1.0, None, xi) if parameter == "pi_difference"
+                    else Setting(0.0, None, xi, 1.0))  # fmt: skip
             lines = []
             for index, o in enumerate(self.views):
                 start, clipped = self._adjusted(index, Setting(0.0, None, xi))
-                end, _ = self.method.adjusted(o, Setting(1.0, None, xi))
+                end, _ = self.method.adjusted(o, unit)
                 means = np.array([start.mean_treated, end.mean_treated - start.mean_treated,
                                   start.mean_control, end.mean_control - start.mean_control])
                 basis = np.column_stack([
@@ -114,15 +119,16 @@ class SensitivityPath:
                     start.influence_control, end.influence_control - start.influence_control,
                 ])  # fmt: skip
                 lines.append((means, _gram(basis, self.weights, self.groups), clipped))
-            self._lines[xi] = lines
-        return self._lines[xi]
+            self._lines[parameter, xi] = lines
+        return self._lines[parameter, xi]
 
-    def along_delta(self, deltas, xi=0.0):
-        """Arrays ``(effect, std_error)`` at every ``delta`` in ``deltas``, and ``n_clipped``."""
+    def along_delta(self, deltas, xi=0.0, parameter="pi_difference"):
+        """Arrays ``(effect, std_error)`` at every ``delta`` in ``deltas``, and ``n_clipped``;
+        ``parameter="pi_difference_doomed"``: the same along ``delta_0`` (``delta = 0``)."""
         deltas = np.atleast_1d(np.asarray(deltas, dtype=float))
         scale = self.scale
         effects, errors, clipped = [], [], 0
-        for means, gram, n_clipped in self._line(xi):
+        for means, gram, n_clipped in self._line(xi, parameter):
             mu1 = means[0] + deltas * means[1]
             mu0 = means[2] + deltas * means[3]
             # Coefficients of the influence value on the basis (if1, slope1, if0, slope0).
@@ -195,8 +201,11 @@ class SensitivityPath:
         return self._answers[key]
 
     def _evaluate(self, delta, eps, xi, delta_0):
-        if eps is None and delta != 0 and delta_0 == 0:
-            effect, std_error, clipped = self.along_delta([delta], xi)
+        if eps is None and (delta == 0) != (delta_0 == 0):
+            # One difference parameter away from 0: its affine path.
+            value, parameter = ((delta, "pi_difference") if delta != 0
+                                else (delta_0, "pi_difference_doomed"))  # fmt: skip
+            effect, std_error, clipped = self.along_delta([value], xi, parameter)
             return float(effect[0]), float(std_error[0]), clipped
         if eps is None and delta == 0 and delta_0 == 0 and xi != 0:
             found = self.along_harmed(xi)
