@@ -10,6 +10,8 @@ import pandas as pd
 from sklearn.compose import ColumnTransformer
 from sklearn.pipeline import Pipeline
 
+from ._checked_once import once
+
 try:
     from sklearn.utils.validation import _check_feature_names
 except ImportError:  # scikit-learn < 1.6: a method of BaseEstimator
@@ -165,10 +167,14 @@ def feature_fingerprint(X):
     it, so that a shuffled or different table with the right number of rows is refused instead
     of silently pairing rows with other rows' predictions. ``None`` for ``X=None``.
     """
-    import hashlib
-
     if X is None:
         return None
+    return once("feature fingerprint", (X,), None, lambda: _fingerprint(X))
+
+
+def _fingerprint(X):
+    import hashlib
+
     digest = hashlib.sha1()
     if isinstance(X, pd.DataFrame):
         digest.update(repr([str(c) for c in X.columns]).encode())

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ._checked_once import once
 from ._features import check_features, reject_sparse
 from ._vectors import (
     MISSING_AT_RANDOM_ASSUMPTION,
@@ -121,6 +122,24 @@ def check_truncation_data(
     missing="error", *, stratum=None, survival_name="survival",
 ):  # fmt: skip
     """Validate the inputs of every ``fit`` and return a :class:`TruncationData`.
+
+    Inside :func:`~._checked_once.checked_once` (several estimators fitted by the library on
+    the same inputs) the same objects with the same options are validated once.
+    """
+    # The models matter only as a set (does each encode text columns?): repeats count once.
+    distinct = {id(model): model for model in models}.values()
+    objects = (X, y, treatment, survival, sample_weight, groups, *distinct)
+    options = (missing, stratum, survival_name)
+    return once("truncation data", objects, options, lambda: _check_truncation_data(
+        X, y, treatment, survival, sample_weight, groups, models, missing, stratum=stratum,
+        survival_name=survival_name))  # fmt: skip
+
+
+def _check_truncation_data(
+    X, y, treatment, survival, sample_weight=None, groups=None, models=(None, None, None),
+    missing="error", *, stratum=None, survival_name="survival",
+):  # fmt: skip
+    """The checks of :func:`check_truncation_data`.
 
     ``missing="at_random"`` accepts NaN survival (status unknown) and NaN outcomes of survivors
     (not observed); ``"error"`` refuses them with a message naming the option. ``stratum`` (a

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .._checked_once import checked_once
 from ..estimands._methods import METHODS
 from . import _estimators
 
@@ -82,13 +83,14 @@ random_state
         estimators[method.name] = cls(**{k: v for k, v in given.items() if k in names})
     first = estimators[methods[0].name]
     first.set_params(n_repeats=n_repeats)
-    first.fit(X, y, **arguments)
-    # Every repeat's models (one fit without n_repeats): the others take medians over them.
-    shared = first._repeat_fits if len(first._repeat_fits) > 1 else first.nuisance_
-    for method in methods[1:]:
-        estimator = estimators[method.name]
-        if covariates is not None:
-            # The design learned by the first fit, applied (not learned again) by the others.
-            estimator._given_design = first.design_
-        estimator.fit(X, y, nuisance=shared, **arguments)
+    with checked_once():  # the same inputs: validated and fingerprinted once
+        first.fit(X, y, **arguments)
+        # Every repeat's models (one fit without n_repeats): the others take medians over them.
+        shared = first._repeat_fits if len(first._repeat_fits) > 1 else first.nuisance_
+        for method in methods[1:]:
+            estimator = estimators[method.name]
+            if covariates is not None:
+                # The design learned by the first fit, applied (not learned again) by the others.
+                estimator._given_design = first.design_
+            estimator.fit(X, y, nuisance=shared, **arguments)
     return {name: estimators[name] for name in METHODS}

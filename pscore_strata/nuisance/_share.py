@@ -17,6 +17,7 @@ from dataclasses import replace
 import numpy as np
 from sklearn.base import is_classifier
 
+from .._checked_once import once
 from ._fit import NuisanceFit
 from ._missing import model_cells
 from ._missing import model_key as missing_model_key
@@ -45,6 +46,10 @@ def model_key(model):
 
 def _fingerprint(data):
     """Digest of the rows the models were fitted on (treatment, survival, outcome, weights)."""
+    return once("rows fingerprint", (data,), None, lambda: _rows_digest(data))
+
+
+def _rows_digest(data):
     digest = hashlib.blake2b(digest_size=16)
     for values in (data.treatment, data.survival, np.nan_to_num(data.outcome, nan=0.0),
                    data.sample_weight, getattr(data, "status_known", None),

@@ -65,7 +65,11 @@ def analyze_frame(frame, roles, options=None, out_dir=None, *, drop_incomplete=F
     data = prepare_data(frame, roles, drop_incomplete=drop_incomplete, missing=options.missing,
                         treated_value=treated_value, survived_value=survived_value)  # fmt: skip
     check_folds(data, options)
-    analysis = run_analysis(data, roles, options, source=source, progress=progress)
+    from .._checked_once import checked_once
+
+    # Every fit of the analysis reads the same arrays: each check of them is done once.
+    with checked_once():
+        analysis = run_analysis(data, roles, options, source=source, progress=progress)
     if out_dir is not None:
         if progress:
             progress("writing the report")
