@@ -125,6 +125,35 @@ class ConditionalCDF:
                 coefficients.append(c)
         return columns, coefficients, constant
 
+    def weights(self, values):
+        """:meth:`position` at every one of ``values`` at once: ``(coefficients (thresholds x
+        values), constants (values))`` with ``F(v_t | X) = constants[t] + grid @
+        coefficients[:, t]``."""
+        values = np.asarray(values, dtype=float)
+        g, k = self.thresholds, values.size
+        coefficients, constants = np.zeros((g.size, k)), np.zeros(k)
+        top = values >= self.high
+        if self.discrete:
+            j = np.searchsorted(g, values, side="right") - 1
+            constants[top] = 1.0
+            inside = np.flatnonzero(~top & (j >= 0))
+            coefficients[j[inside], inside] = 1.0
+            return coefficients, constants
+        low = values < self.low
+        constants[top & ~low] = 1.0
+        inside = np.flatnonzero(~low & ~top)
+        v = values[inside]
+        knots = np.concatenate([[self.low], g, [self.high]])
+        lower = np.minimum(np.searchsorted(knots, v, side="right") - 1, knots.size - 2)
+        lam = (v - knots[lower]) / (knots[lower + 1] - knots[lower])
+        for knot, c in ((lower, 1 - lam), (lower + 1, lam)):
+            # F = 0 at the smallest observed outcome, 1 at the largest (knots 0 and last).
+            last = knot == knots.size - 1
+            constants[inside[last]] += c[last]
+            grid = (knot > 0) & ~last
+            coefficients[knot[grid] - 1, inside[grid]] = c[grid]
+        return coefficients, constants
+
     def at(self, value, arm):
         """``F_arm(value | X)`` per row, and a sandwich helper (or ``None``)."""
         columns, coefficients, constant = self.position(value)

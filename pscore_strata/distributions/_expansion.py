@@ -133,15 +133,17 @@ class Expansion:
             out += product @ M
         return out
 
-    def columns(self, which=None):
-        """The explicit ``(n, len(which))`` matrix (all columns when ``which`` is None)."""
+    def columns(self, which=None, rows=None):
+        """The explicit ``(n, len(which))`` matrix (all columns when ``which`` is None; the
+        slice ``rows`` of the rows only, when given)."""
         which = np.arange(self.index.size) if which is None else np.atleast_1d(which)
-        n = self.grid.position.size
-        out = np.zeros((n, which.size))
+        rows = slice(None) if rows is None else rows
+        position = self.grid.position[rows]
+        out = np.zeros((position.size, which.size))
         if self.D is not None:
-            out += self.D[:, None] * (self.grid.position[:, None] <= self.index[which][None, :])
+            out += self.D[rows, None] * (position[:, None] <= self.index[which][None, :])
         for f, B, M in self.blocks:
-            out += np.reshape(f, (-1, 1)) * (B @ M[:, which])
+            out += (f if np.ndim(f) == 0 else f[rows, None]) * (B[rows] @ M[:, which])
         return out
 
     def __array__(self, dtype=None, copy=None):
@@ -172,6 +174,18 @@ def _cluster_contributions(expansion, h, codes, n_clusters):
     return out
 
 
+_GRAM_ROWS = 8_192
+
+
+def _one_hot(position, size):
+    """``P`` with ``P[position[i], i] = 1`` (``size x rows``, by columns: row chunks are
+    column slices)."""
+    from scipy import sparse
+
+    n = position.size
+    return sparse.csc_matrix((np.ones(n), position, np.arange(n + 1)), shape=(size, n))
+
+
 def expansion_covariance(expansion, sample_weight=None, groups=None):
     """``C'C`` of the multiplier-bootstrap contributions of ``expansion`` (``k x k``).
 
@@ -197,26 +211,30 @@ def expansion_covariance(expansion, sample_weight=None, groups=None):
     h2 = h * h
     gram = np.zeros((k, k))
     blocks = expansion.blocks
-    if expansion.D is not None:
-        D = expansion.D
+    D = expansion.D
+    if D is not None:
         a = grid.cumulative(h2 * D * D)
         gram += a[np.minimum.outer(index, index)]
-        for f, B, M in blocks:
-            # Column by column: the same products and sums as one rows x m temporary.
-            factor = h2 * D * f
-            cross = np.vstack([grid.cumulative(factor * B[:, j]) for j in range(B.shape[1])])
-            term = cross[:, index].T @ M
+    if blocks:
+        # All blocks side by side, W = [f_b B_b] (rows x sum of widths) with M stacked: the
+        # blocks' part is M' (W' diag(h^2) W) M and the indicator's cross part the cumulative
+        # sums over the grid positions of h^2 D W, both accumulated in cache-sized row chunks.
+        M = np.vstack([Mb for _, _, Mb in blocks])
+        inner = np.zeros((M.shape[0], M.shape[0]))
+        totals = None if D is None else np.zeros((grid.size + 1, M.shape[0]))
+        one_hot = None if D is None else _one_hot(grid.position, grid.size + 1)
+        for start in range(0, n, _GRAM_ROWS):
+            rows = slice(start, start + _GRAM_ROWS)
+            W = np.hstack([B[rows] * (f[rows, None] if np.ndim(f) else f) for f, B, _ in blocks])
+            hW = W * h2[rows, None]
+            inner += hW.T @ W
+            if D is not None:
+                hW *= D[rows, None]
+                totals += one_hot[:, rows] @ hW
+        gram += M.T @ inner @ M
+        if D is not None:
+            term = np.cumsum(totals[: grid.size], axis=0)[index] @ M
             gram += term + term.T
-    # One scratch array for the weighted bases (fresh rows x m arrays cost page faults).
-    scratch = np.empty(n * max((B.shape[1] for _, B, _ in blocks), default=0))
-    for a_index, (fa, Ba, Ma) in enumerate(blocks):
-        for b_index in range(a_index, len(blocks)):
-            fb, Bb, Mb = blocks[b_index]
-            weighted = scratch[: Bb.size].reshape(Bb.shape)  # contiguous, as a fresh array
-            np.multiply(np.broadcast_to(h2 * fa * fb, h.shape)[:, None], Bb, out=weighted)
-            q = Ba.T @ weighted
-            term = Ma.T @ q @ Mb
-            gram += term if b_index == a_index else term + term.T
     mean = expansion.weighted_sum(h) / n
     gram -= n * np.outer(mean, mean)
     return n / (n - 1) * gram

@@ -98,9 +98,10 @@ def _fingerprint(X):
     return (values.shape, hashlib.blake2b(values.data, digest_size=16).hexdigest())
 
 
-def _conditional_cdf(estimator, data, X, cdf_model, seed, cells):
+def _conditional_cdf(estimator, data, X, cdf_model, seed, cells, fingerprint=None):
     nuisance = estimator.nuisance_
-    fingerprint = _fingerprint(X)
+    # ``fingerprint``: the digest of X when X was just checked to be the training table.
+    fingerprint = ("training", fingerprint) if fingerprint is not None else _fingerprint(X)
     key = (fingerprint, estimator.n_folds, seed, "default" if cdf_model is None else
            (id(cdf_model), repr(cdf_model)), tuple(sorted(cells.items())))  # fmt: skip
     entry = _FITTED.get(id(nuisance))
@@ -125,7 +126,7 @@ def check_training_rows(estimator, X):
     """
     expected = getattr(estimator, "feature_fingerprint_", None)
     if expected is None or feature_fingerprint(X) == expected:
-        return
+        return expected  # the digest of X's values (None: not checked)
     raise ValueError(
         "`X` is not the covariate table the estimator was fitted on (its values or row order "
         "differ): the distribution models pair each row of `X` with that row's stored "
@@ -153,6 +154,7 @@ def prepare(estimator, X=None, cdf_model=None):
                 "outcome distribution, fitted on the covariates: pass `X`, the covariates the "
                 "estimator was fitted with (the fitted estimator does not keep them)."
             )
+        checked = None
         if X is not None:
             given = X
             X, n_features, _ = check_features(X, (cdf_model,), n_rows=data.n_samples)
@@ -161,11 +163,12 @@ def prepare(estimator, X=None, cdf_model=None):
                     f"`X` has {n_features} features but the estimator was fitted with "
                     f"{estimator.n_features_in_}; pass the same covariates."
                 )
-            check_training_rows(estimator, given)
+            checked = check_training_rows(estimator, given)
             if n_features == 0:
                 X = None
         seed = estimator.random_state if isinstance(estimator.random_state, int) else 0
-        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed, cells)
+        conditional = _conditional_cdf(estimator, data, X, cdf_model, seed, cells,
+                                       None if X is None else checked)  # fmt: skip
     name = "unpenalized logistic regression" if cdf_model is None else type(cdf_model).__name__
     prepared = Prepared(method, oriented, data, conditional, name, stratum=stratum, cells=cells)
     prepared.checked = conditional is not None and conditional.cache.get(_check_key(prepared),
@@ -219,11 +222,8 @@ def formula_cdf(prepared, value, with_influence=True):
 
 def _model_expansion(conditional, grid, arm):
     """``F_arm(v | X)`` at the grid values: constant + sum_j c_j(v) G[:, j] (interpolation)."""
-    k, n_thresholds = grid.size, conditional.thresholds.size
-    coefficients, constant = np.zeros((n_thresholds, k)), np.zeros(k)
-    for t, value in enumerate(grid.values):
-        columns, weights, constant[t] = conditional.position(value)
-        coefficients[columns, t] = weights
+    n_thresholds = conditional.thresholds.size
+    coefficients, constant = conditional.weights(grid.values)
     blocks = [(1.0, grid.ones, constant[None, :])]
     if n_thresholds:
         blocks.append((1.0, conditional.grid[arm], coefficients))

@@ -215,9 +215,15 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
             influence[arm] = np.full((data.n_samples, len(quantiles)), np.nan)
             continue
         density[arm] = kernel_density(point[arm], path.values, mass, bandwidth[arm])
-        influence[arm] = -getattr(at_quantiles, f"influence_{arm}")[:, columns] / density[arm]
-    effect_influence = influence["treated"] - influence["control"]
-    se = influence_std_error(effect_influence, w, groups)
+        influence[arm] = (getattr(at_quantiles, f"influence_{arm}"), columns)
+    if groups is None and not single:
+        se, se_arm = _std_errors(influence, density, w)
+    else:
+        for arm, value in influence.items():
+            if isinstance(value, tuple):
+                influence[arm] = -value[0][:, value[1]] / density[arm]
+        se_arm = {arm: influence_std_error(influence[arm], w, groups) for arm in influence}
+        se = influence_std_error(influence["treated"] - influence["control"], w, groups)
     effect = point["treated"] - point["control"]
     table = pd.DataFrame({
         "quantile": quantiles,
@@ -227,8 +233,8 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         "std_error": se,
         "ci_low": effect - z * se,
         "ci_high": effect + z * se,
-        "std_error_treated": influence_std_error(influence["treated"], w, groups),
-        "std_error_control": influence_std_error(influence["control"], w, groups),
+        "std_error_treated": se_arm["treated"],
+        "std_error_control": se_arm["control"],
         "density_treated": density["treated"],
         "density_control": density["control"],
     })  # fmt: skip
@@ -263,6 +269,33 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
     table.attrs["bandwidth"] = bandwidth
     table.attrs["stratum"] = prepared.stratum
     return table
+
+
+_ROWS = 16_384
+
+
+def _std_errors(influence, density, w):
+    """Standard errors of the quantile effects and of each arm's quantiles (each row its own
+    cluster), from the influence values ``-IF_F / f`` formed in row chunks: no rows x quantiles
+    array. ``influence[arm]`` is ``(expanded IF_F, columns)``. The sums of
+    :func:`~pscore_strata.inference._standard_errors.influence_std_error`, the weighted values
+    centered by ``sum c^2 - (sum c)^2 / n``."""
+    n = w.size
+    sums = {key: 0.0 for key in ("treated", "control", "effect")}
+    squares = dict(sums)
+    for start in range(0, n, _ROWS):
+        rows = slice(start, start + _ROWS)
+        values = {}
+        for arm, (expanded, columns) in influence.items():
+            values[arm] = expanded.columns(columns, rows) * (-w[rows, None] / density[arm])
+        values["effect"] = values["treated"] - values["control"]
+        for key, c in values.items():
+            sums[key] = sums[key] + c.sum(axis=0)
+            squares[key] = squares[key] + np.einsum("ij,ij->j", c, c)
+    scale = n / (n - 1) / w.sum() ** 2 if n > 1 else np.nan
+    se = {key: np.sqrt(np.clip(squares[key] - sums[key] ** 2 / n, 0.0, None) * scale)
+          for key in sums}  # fmt: skip
+    return se["effect"], {arm: se[arm] for arm in ("treated", "control")}
 
 
 def _bootstrap(estimator, X, cdf_model, quantiles, n_resamples, random_state):

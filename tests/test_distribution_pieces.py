@@ -1,0 +1,67 @@
+"""Pieces of the distribution paths computed in bulk, against their one-at-a-time definitions.
+
+External references: the scalar interpolation rule (``ConditionalCDF.position``) at every
+value, the explicit influence columns of an expansion, and
+``inference._standard_errors.influence_std_error`` (the library's standard-error formula) on
+explicit quantile influence values.
+"""
+
+import numpy as np
+import pytest
+
+import pscore_strata as ps
+from pscore_strata.distributions._conditional import ConditionalCDF
+from pscore_strata.distributions._paths import cdf_path, prepare
+from pscore_strata.distributions._quantiles import _std_errors
+from pscore_strata.inference._standard_errors import influence_std_error
+
+
+@pytest.mark.parametrize("discrete", [False, True])
+def test_weights_equal_position_at_every_value(discrete):
+    rng = np.random.default_rng(0)
+    if discrete:
+        g, low, high = np.arange(5.0), 0.0, 5.0
+        values = np.concatenate([np.arange(-1, 7.0), rng.uniform(-1, 6, 300)])
+    else:
+        g = np.sort(rng.normal(size=19))
+        low, high = g[0] - 1, g[-1] + 1
+        values = np.concatenate([rng.normal(size=2000) * 2, g, [low, high, low - 1, high + 1]])
+    c = ConditionalCDF(g, discrete, low, high, {}, None)
+    coefficients, constants = c.weights(values)
+    for t, value in enumerate(values):
+        columns, weights, constant = c.position(value)
+        expected = np.zeros(g.size)
+        expected[columns] = weights
+        assert np.array_equal(coefficients[:, t], expected) and constants[t] == constant
+
+
+@pytest.fixture(scope="module")
+def robust_path():
+    data = ps.datasets.make_truncation(3000, random_state=21)
+    est = ps.MultiplyRobust().fit(data.X, data.y, treatment=data.treatment,
+                                  survival=data.survival)  # fmt: skip
+    prepared = prepare(est, data.X)
+    return prepared, cdf_path(prepared, np.quantile(data.y[data.survival == 1], [0.2, 0.5, 0.7]))
+
+
+def test_expansion_row_chunks_equal_the_explicit_columns(robust_path):
+    _, path = robust_path
+    expansion = path.influence_treated
+    whole = expansion.columns([0, 2])
+    parts = [expansion.columns([0, 2], slice(start, start + 700)) for start in range(0, 3000, 700)]
+    np.testing.assert_allclose(np.vstack(parts), whole, rtol=1e-13, atol=1e-15)
+
+
+def test_chunked_quantile_std_errors_equal_influence_std_error(robust_path):
+    prepared, path = robust_path
+    w = np.random.default_rng(4).uniform(0.5, 2.0, 3000)
+    density = {"treated": np.array([0.3, 0.5]), "control": np.array([0.4, 0.2])}
+    influence = {"treated": (path.influence_treated, np.array([0, 1])),
+                 "control": (path.influence_control, np.array([1, 2]))}  # fmt: skip
+    se, se_arm = _std_errors(influence, density, w)
+    explicit = {arm: -expanded[:, columns] / density[arm]
+                for arm, (expanded, columns) in influence.items()}  # fmt: skip
+    for arm in ("treated", "control"):
+        np.testing.assert_allclose(se_arm[arm], influence_std_error(explicit[arm], w), rtol=1e-12)
+    expected = influence_std_error(explicit["treated"] - explicit["control"], w)
+    np.testing.assert_allclose(se, expected, rtol=1e-12)
