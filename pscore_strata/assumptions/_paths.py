@@ -18,9 +18,10 @@ values. Two facts make that cheap:
 
 The other parameters (``pi_ratio``, ``harmed_ratio``) enter nonlinearly (and ``harmed_ratio``
 clips scores row by row), so they are evaluated directly, still on the stored view; except
-``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust, always-survivors,
-no clusters), whose exact path is :class:`._harmed.HarmedLine`. Each setting's answer is kept,
-so a grid and a tipping-point search on the same path share their evaluations.
+``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust; always-survivors
+and helped stratum; no clusters), whose exact path is :class:`._harmed.HarmedLine`. Each
+setting's answer is kept, so a grid and a tipping-point search on the same path share their
+evaluations.
 """
 
 from __future__ import annotations
@@ -153,13 +154,14 @@ class SensitivityPath:
         """One :class:`HarmedLine` per view, or ``()`` where the exact path does not apply."""
         if self._harmed is None:
             terms = self.method.harmed_terms
-            applies = (terms is not None and self.groups is None
-                       and all(o.stratum.role == "always" for o in self.views))  # fmt: skip
             lines = ()
-            if applies:
+            if terms is not None and self.groups is None:
                 weights = np.ones(len(self.views[0].mixed)) if self.weights is None else (
                     np.asarray(self.weights, dtype=float))  # fmt: skip
-                lines = tuple(HarmedLine(o, terms(o), weights) for o in self.views)
+                found = [terms(o) for o in self.views]
+                if all(t is not None for t in found):
+                    lines = tuple(HarmedLine(o, t, weights)
+                                  for o, t in zip(self.views, found, strict=True))  # fmt: skip
                 if not all(line.available for line in lines):
                     lines = ()
             self._harmed = lines
@@ -178,12 +180,10 @@ class SensitivityPath:
             found = line.suffix(xi)
             if found is None:
                 return None
-            sums, products, n_clipped = found
-            effect, variance = _harmed_effect(sums, products, n_clipped, s, total, line,
-                                              o.increasing, self.scale)  # fmt: skip
+            effect, variance = _harmed_effect(found, s, total, line, o.increasing, self.scale)
             effects.append(float(effect))
             errors.append(float(np.sqrt(np.maximum(variance, 0.0))))
-            clipped = max(clipped, n_clipped)
+            clipped = max(clipped, found[-1] + line.n_low)
         effect, std_error = median_aggregate(effects, errors)
         return float(effect), float(std_error), clipped
 
@@ -214,10 +214,10 @@ class SensitivityPath:
         return self.at(delta, eps, xi, delta_0)
 
 
-def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
-    """Effect and influence variance at ``s = xi / (1 - xi)`` from the suffix sums of the six
-    parts of :class:`HarmedLine` (``phi_e`` and ``phi_t - r_t phi_e``) over the rows from
-    ``start`` on (the others are clipped).
+def _harmed_effect(found, s, total, line, increasing, scale):
+    """Effect and influence variance at ``s = xi / (1 - xi)`` from the sums of
+    :meth:`HarmedLine.suffix`: the rows from ``start`` on contribute ``A + s B`` (stored as
+    ``phi_e`` and ``phi_t - r_t phi_e``), the rows before it ``C`` (helped stratum) or 0.
 
     As :func:`~pscore_strata.estimands._formulas.robust_means` and
     :func:`~pscore_strata.estimands._view.scale_effect`: ``mu_t = mean(phi_t) / mean(phi_e)``,
@@ -226,13 +226,15 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
     :func:`~pscore_strata.inference._standard_errors.influence_std_error` (rows as clusters),
     ``n / (n - 1) (sum c^2 - (sum c)^2 / n) / (sum w)^2`` for ``c = w IF``.
     """
+    sums, products, prefix_sums, prefix_products, start = found
     n = line.n
     r_mixed, r_pure = line.reference
+    fixed = np.zeros(3) if prefix_sums is None else prefix_sums
     with np.errstate(divide="ignore", invalid="ignore"):
-        phi_e = sums[0] + s * sums[1]
+        phi_e = sums[0] + s * sums[1] + fixed[0]
         share = phi_e / total
-        mu_mixed = r_mixed + (sums[2] + s * sums[3]) / phi_e
-        mu_pure = r_pure + (sums[4] + s * sums[5]) / phi_e
+        mu_mixed = r_mixed + (sums[2] + s * sums[3] + fixed[1]) / phi_e
+        mu_pure = r_pure + (sums[4] + s * sums[5] + fixed[2]) / phi_e
         mu1, mu0 = (mu_mixed, mu_pure) if increasing else (mu_pure, mu_mixed)
         if scale == "difference":
             effect, k1, k0 = mu1 - mu0, 1.0, 1.0
@@ -249,7 +251,7 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
         coefficients = np.array([c_e, s * c_e, c_mixed, s * c_mixed, c_pure, s * c_pure])
         if n < 2:
             return effect, np.nan
-        if n - start <= EXPLICIT_ROWS:
+        if prefix_sums is None and n - start <= EXPLICIT_ROWS:
             # Few rows left: their weighted influence values one by one, centered over all n
             # rows (the clipped ones contribute 0), as influence_std_error sums them.
             values = coefficients @ line.rows(start)
@@ -258,5 +260,9 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
             return effect, n / (n - 1) * square / total**2
         square = coefficients @ products @ coefficients
         mean_total = coefficients @ sums
+        if prefix_sums is not None:
+            fixed_coefficients = np.array([c_e, c_mixed, c_pure])
+            square = square + fixed_coefficients @ prefix_products @ fixed_coefficients
+            mean_total = mean_total + fixed_coefficients @ prefix_sums
         variance = n / (n - 1) * (square - mean_total**2 / n) / total**2
     return effect, variance
