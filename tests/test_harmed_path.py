@@ -1,4 +1,5 @@
-"""The exact harmed-ratio path (issue 24) gives the answers of direct evaluation.
+"""The exact harmed-ratio path and the affine pi_difference_doomed path (issue 24) give the
+answers of direct evaluation.
 
 Reference: the direct formulas (``adjusted_effect``: one full pass over the rows per value, the
 principal scores clipped row by row as in ``estimands/_setting.py``) with the standard error of
@@ -7,6 +8,7 @@ direct formula's own test ``(p_p - xi p_m) / (1 - xi) < 0`` counted row by row.
 """
 
 import gc
+import warnings
 import weakref
 from types import SimpleNamespace
 
@@ -142,7 +144,7 @@ def test_clipped_rows_follow_the_direct_test_at_ties():
     view = SimpleNamespace(p_mixed=p_m, p_pure=p_p)
     ones = np.ones(p_m.size)
     terms = {role: (ones, ones) for role in ("e", "mixed", "pure")}
-    line = HarmedLine(view, terms, ones)
+    line = HarmedLine(view, {**terms, "prefix": None, "n_low": 0}, ones)
     assert line.available
     checked = 0
     for xi in np.r_[xis, np.nextafter(xis, 0), np.nextafter(xis, 1), 0.05, 0.999]:
@@ -158,7 +160,8 @@ def test_degenerate_probabilities_leave_the_path_unavailable():
     p_m = np.array([0.5, 1e-310, 0.3])
     view = SimpleNamespace(p_mixed=p_m, p_pure=np.array([0.1, 0.0, 0.2]))
     ones = np.ones(3)
-    line = HarmedLine(view, {role: (ones, ones) for role in ("e", "mixed", "pure")}, ones)
+    terms = {role: (ones, ones) for role in ("e", "mixed", "pure")}
+    line = HarmedLine(view, {**terms, "prefix": None, "n_low": 0}, ones)
     assert not line.available
 
 
@@ -196,3 +199,77 @@ def test_path_is_kept_per_fit_and_goes_with_the_estimator(data):
     gc.collect()
     assert alive() is None
     assert len(_PATHS) < count
+
+
+# -- the helped stratum's harmed-ratio path -------------------------------------------------
+
+
+@pytest.mark.parametrize(("monotonicity", "stratum"), [("increasing", "protected"),
+                                                       ("decreasing", "harmed")])  # fmt: skip
+def test_helped_stratum_harmed_path_matches_direct_formulas(monotonicity, stratum,
+                                                            explicit_rows):  # fmt: skip
+    from pscore_strata.datasets import make_intermediate
+
+    d = make_intermediate(3000, stratum=stratum, monotonicity=monotonicity, random_state=8)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = ps.MultiplyRobust(stratum=stratum, monotonicity=monotonicity).fit(
+            d.X, d.y, treatment=d.treatment, intermediate=d.intermediate)  # fmt: skip
+    assert sensitivity_path(est).along_harmed(0.3) is not None
+    _compare(est)
+
+
+def test_doomed_stratum_and_near_ties_evaluate_directly():
+    from pscore_strata.datasets import make_intermediate
+
+    d = make_intermediate(1500, stratum="doomed", random_state=8)
+    est = ps.MultiplyRobust(stratum="doomed").fit(d.X, d.y, treatment=d.treatment,
+                                                   intermediate=d.intermediate)  # fmt: skip
+    assert sensitivity_path(est).along_harmed(0.3) is None
+    row = ps.sensitivity_grid(est, harmed_ratio=0.3).iloc[0]
+    assert row["effect"] == pytest.approx(_direct(est, 0.3)[0], rel=1e-12)
+    # Rows whose two survival probabilities tie: the direct formula's clipping of their helped
+    # score is decided by rounding, so no exact path.
+    from dataclasses import replace
+
+    from pscore_strata.estimands._formulas import robust_harmed_terms
+
+    d = make_intermediate(1500, stratum="protected", random_state=8)
+    est = ps.MultiplyRobust(stratum="protected").fit(d.X, d.y, treatment=d.treatment,
+                                                      intermediate=d.intermediate)  # fmt: skip
+    view = sensitivity_path(est).views[0]
+    tied = np.arange(view.p_pure.size) < 10
+    assert robust_harmed_terms(replace(view, p_pure=np.where(tied, view.p_mixed,
+                                                             view.p_pure))) is None  # fmt: skip
+    apart = replace(view, p_pure=np.where(tied, view.p_mixed * (1 - 1e-6), view.p_pure))
+    assert robust_harmed_terms(apart) is not None
+
+
+# -- the affine path in pi_difference_doomed ------------------------------------------------
+
+
+@pytest.mark.parametrize("cls", [ps.PrincipalScoreWeighting, ps.OutcomeRegression,
+                                 ps.MultiplyRobust])  # fmt: skip
+@pytest.mark.parametrize(("monotonicity", "stratum"), [
+    ("increasing", "protected"), ("increasing", "doomed"), ("decreasing", "harmed"),
+])  # fmt: skip
+def test_doomed_difference_path_matches_direct_formulas(cls, monotonicity, stratum):
+    # Reference: the direct formulas at each value (adjusted_effect, one pass per value).
+    from pscore_strata.datasets import make_intermediate
+
+    d = make_intermediate(2000, stratum=stratum, monotonicity=monotonicity,
+                          pi_difference_doomed=0.7, random_state=11)  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        est = cls(stratum=stratum, monotonicity=monotonicity).fit(
+            d.X, d.y, treatment=d.treatment, intermediate=d.intermediate)  # fmt: skip
+    values = [-3.0, -0.7, 0.25, 1.0, 2.5]
+    for xi in (0.0, 0.2):
+        grid = ps.sensitivity_grid(est, pi_difference_doomed=values, harmed_ratio=[xi])
+        for _, row in grid.iterrows():
+            effect, influence, clipped = adjusted_effect(
+                est, pi_difference_doomed=row["pi_difference_doomed"], harmed_ratio=xi)
+            se = influence_std_error(influence, est.training_data_.sample_weight)
+            assert row["effect"] == pytest.approx(effect, rel=1e-11, abs=1e-12 * se)
+            assert row["std_error"] == pytest.approx(se, rel=1e-9)
+            assert row["n_rows_clipped"] == clipped

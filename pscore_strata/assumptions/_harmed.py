@@ -1,4 +1,5 @@
-"""The exact path of the always-survivor effect along ``harmed_ratio``, from one sort.
+"""The exact path of the always-survivor (and helped) effect along ``harmed_ratio``, from one
+sort.
 
 With ``harmed_ratio`` ``xi`` alone (no departure from principal ignorability), the multiply
 robust estimating functions of a row are ``A + s B`` with ``s = xi / (1 - xi)`` while its
@@ -11,7 +12,8 @@ influence values (a linear combination of them) the 6 x 6 matrix of their weight
 products over the same suffix. Both come from suffix sums over blocks of rows computed once,
 plus the rows of one partial block: an evaluation costs a few microseconds instead of a pass
 over the rows, and sums nothing it does not need (no cancellation between a total and a
-prefix).
+prefix). For the helped stratum the rows before the boundary contribute a constant each (their
+helped score is the whole mixed cell's), kept as prefix sums the same way.
 
 Which rows are clipped is decided by the direct formula's own test (``xi p_m > p_p`` in double
 precision) for every row whose ratio lies within a relative ``1e-9`` of ``xi``; the sort only
@@ -36,17 +38,19 @@ EXPLICIT_ROWS = 8192
 
 
 class HarmedLine:
-    """Suffix sums of one view's six estimating-function parts, sorted by ``p_p / p_m``.
+    """Block sums of one view's estimating-function parts, rows sorted by ``p_p / p_m``.
 
-    The parts are ``A_e, B_e`` of ``phi_e`` and ``A_t - r_t A_e, B_t - r_t B_e`` of
-    ``phi_t - r_t phi_e`` (``t`` mixed, pure) with the fixed reference means ``r_t``
-    (:attr:`reference`).
+    The suffix parts (rows not clipped) are ``A_e, B_e`` of ``phi_e`` and ``A_t - r_t A_e,
+    B_t - r_t B_e`` of ``phi_t - r_t phi_e`` (``t`` mixed, pure) with fixed reference means
+    ``r_t`` (:attr:`reference`); the prefix parts (rows whose always-survivor score is clipped;
+    the helped stratum only) ``C_e, C_t - r_t C_e``. Suffix sums run from the end, prefix sums
+    from the start.
 
     Parameters
     ----------
-    view : oriented view (always-survivor stratum)
+    view : oriented view
     terms : dict
-        ``robust_harmed_terms(view)``.
+        ``method.harmed_terms(view)``.
     weights : ndarray of shape (n,)
     """
 
@@ -63,40 +67,36 @@ class HarmedLine:
         order = np.argsort(key)
         self.key, self.order = key[order], order
         self.p_m, self.p_p = p_m, p_p
+        self.n_low = terms["n_low"]  # rows clipped at every xi > 0 (the helped stratum)
         # The influence values are close to phi_t - mu_t phi_e: the parts of phi_t are stored
         # less a reference multiple of phi_e's (the means over all rows at xi = 0), so that the
         # quadratic form of the variance does not cancel large terms.
         total = np.sum(weights * terms["e"][0])
         self.reference = tuple(np.sum(weights * terms[role][0]) / total
                                for role in ("mixed", "pure"))  # fmt: skip
-        self.n = n = len(key)
+        self.n = len(key)
         self.total_weight = float(np.sum(weights))  # as Oriented.weighted_mean divides by
-        n_blocks = -(-n // _BLOCK)
-        # One row per part (sorted rows along the columns), times the weights.
-        weighted = np.zeros((6, n_blocks * _BLOCK))
         w = weights[order]
-        a_e, b_e = terms["e"][0][order], terms["e"][1][order]
-        np.multiply(a_e, w, out=weighted[0, :n])
-        np.multiply(b_e, w, out=weighted[1, :n])
-        for j, (role, mu) in enumerate(zip(("mixed", "pure"), self.reference, strict=True)):
-            for k, (part, part_e) in enumerate(zip(terms[role], (a_e, b_e), strict=True)):
-                column = part[order]
-                column -= mu * part_e
-                np.multiply(column, w, out=weighted[2 + 2 * j + k, :n])
-        self.weighted = weighted
-        blocks = weighted.reshape(6, n_blocks, _BLOCK)
-        sums = blocks.sum(axis=2).T
-        by_block = blocks.transpose(1, 0, 2)
-        products = np.matmul(by_block, by_block.transpose(0, 2, 1))
+        suffix = [terms["e"][0], terms["e"][1]]
+        for role, mu in zip(("mixed", "pure"), self.reference, strict=True):
+            suffix += [terms[role][0] - mu * terms["e"][0], terms[role][1] - mu * terms["e"][1]]
+        self.weighted, blocks = _sorted_blocks(suffix, order, w)
         # Suffix sums: entry b holds blocks b, b+1, ...; the last entry is empty.
-        self.sums = np.zeros((n_blocks + 1, 6))
-        self.products = np.zeros((n_blocks + 1, 6, 6))
-        self.sums[:-1] = np.cumsum(sums[::-1], axis=0)[::-1]
-        self.products[:-1] = np.cumsum(products[::-1], axis=0)[::-1]
+        self.sums, self.products = (_cumulative(x[::-1])[::-1] for x in _block_sums(blocks))
+        self.prefix = terms["prefix"] is not None
+        if self.prefix:
+            c = terms["prefix"]
+            parts = [c["e"]] + [c[role] - mu * c["e"]
+                                for role, mu in zip(("mixed", "pure"), self.reference,
+                                                    strict=True)]  # fmt: skip
+            self.weighted_prefix, blocks = _sorted_blocks(parts, order, w)
+            # Prefix sums: entry b holds blocks 0, ..., b - 1; the first entry is empty.
+            self.prefix_sums, self.prefix_products = (
+                _cumulative(x) for x in _block_sums(blocks))  # fmt: skip
 
     def n_clipped(self, xi):
-        """Rows clipped at ``xi`` (a prefix in sorted order), or ``None`` if the direct test
-        does not give a prefix near the boundary."""
+        """Rows whose always-survivor score is clipped at ``xi`` (a prefix in sorted order),
+        or ``None`` if the direct test does not give a prefix near the boundary."""
         low = int(np.searchsorted(self.key, xi * (1 - _MARGIN), side="left"))
         high = int(np.searchsorted(self.key, xi * (1 + _MARGIN), side="right"))
         if high == low:
@@ -110,9 +110,10 @@ class HarmedLine:
         return low + count
 
     def suffix(self, xi):
-        """``(sums, products, n_clipped)`` over the rows not clipped at ``xi`` (``0 < xi <
-        1``): weighted sums of the six parts and their weighted cross products; ``None`` if
-        the clipped rows are not a prefix."""
+        """The sums at ``xi`` (``0 < xi < 1``): ``(sums, products, prefix_sums,
+        prefix_products, start)`` (prefix ones ``None`` without prefix parts), ``start`` the
+        number of rows whose always-survivor score is clipped; ``None`` if those rows are not a
+        prefix."""
         start = self.n_clipped(xi)
         if start is None:
             return None
@@ -120,8 +121,39 @@ class HarmedLine:
         partial = self.weighted[:, start : block * _BLOCK]
         sums = self.sums[block] + partial.sum(axis=1)
         products = self.products[block] + partial @ partial.T
-        return sums, products, start
+        if not self.prefix:
+            return sums, products, None, None, start
+        block = start // _BLOCK
+        partial = self.weighted_prefix[:, block * _BLOCK : start]
+        prefix_sums = self.prefix_sums[block] + partial.sum(axis=1)
+        prefix_products = self.prefix_products[block] + partial @ partial.T
+        return sums, products, prefix_sums, prefix_products, start
 
     def rows(self, start):
-        """The weighted parts (6, m) of the rows from ``start`` (sorted order) to the end."""
+        """The weighted suffix parts (6, m) of the rows from ``start`` (sorted order) on."""
         return self.weighted[:, start : self.n]
+
+
+def _sorted_blocks(parts, order, w):
+    """The parts as rows of one array (sorted rows along the columns, times the weights, zero
+    padded to whole blocks) and its view by block ``(n_parts, n_blocks, _BLOCK)``."""
+    n = len(order)
+    n_blocks = -(-n // _BLOCK)
+    weighted = np.zeros((len(parts), n_blocks * _BLOCK))
+    for j, part in enumerate(parts):
+        np.multiply(part[order], w, out=weighted[j, :n])
+    return weighted, weighted.reshape(len(parts), n_blocks, _BLOCK)
+
+
+def _block_sums(blocks):
+    """Per block: the sums of the parts ``(n_blocks, k)`` and their cross products
+    ``(n_blocks, k, k)``."""
+    by_block = blocks.transpose(1, 0, 2)
+    return blocks.sum(axis=2).T, np.matmul(by_block, by_block.transpose(0, 2, 1))
+
+
+def _cumulative(per_block):
+    """Running sums over blocks with an empty first entry (``n_blocks + 1`` entries)."""
+    out = np.zeros((len(per_block) + 1, *per_block.shape[1:]))
+    np.cumsum(per_block, axis=0, out=out[1:])
+    return out

@@ -9,16 +9,19 @@ values. Two facts make that cheap:
   difference parameter ``delta`` (``G = e_a m - delta e_a e_h / p_m``, and the weighting,
   regression and multiply robust formulas, their normalizers and M-estimation corrections are
   linear in ``G`` and its partial derivatives, while the normalizers do not involve ``delta``).
-  So the always-survivor means and their influence values at any ``delta`` are exact affine
+  So the stratum's means and their influence values at any ``delta`` are exact affine
   combinations of those at ``delta = 0`` and ``delta = 1``, and the variance of any linear
   combination of the four influence vectors is a quadratic form in a 4 x 4 matrix built once.
-  A whole grid of ``delta`` then costs two passes over the rows.
+  A whole grid of ``delta`` then costs two passes over the rows. The same holds for
+  ``delta_0`` (``pi_difference_doomed``) with ``delta = 0``: in the pure arm's
+  intermediate-0 cell ``G = e m +- delta_0 e_h e_d / (1 - p_p)``, and no normalizer involves it.
 
 The other parameters (``pi_ratio``, ``harmed_ratio``) enter nonlinearly (and ``harmed_ratio``
 clips scores row by row), so they are evaluated directly, still on the stored view; except
-``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust, always-survivors,
-no clusters), whose exact path is :class:`._harmed.HarmedLine`. Each setting's answer is kept,
-so a grid and a tipping-point search on the same path share their evaluations.
+``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust; always-survivors
+and helped stratum; no clusters), whose exact path is :class:`._harmed.HarmedLine`. Each
+setting's answer is kept, so a grid and a tipping-point search on the same path share their
+evaluations.
 """
 
 from __future__ import annotations
@@ -100,13 +103,16 @@ class SensitivityPath:
             self._null[index] = self.method.adjusted(self.views[index], setting)
         return self._null[index]
 
-    # -- the affine path in delta ------------------------------------------------------------
-    def _line(self, xi):
-        if xi not in self._lines:
+    # -- the affine paths in delta and delta_0 ----------------------------------------------
+    def _line(self, xi, parameter="pi_difference"):
+        if (parameter, xi) not in self._lines:
+            # The other difference parameter stays 0 (both paths hold pi_ratio unset).
+            unit = (Setting(1.0, None, xi) if parameter == "pi_difference"
+                    else Setting(0.0, None, xi, 1.0))  # fmt: skip
             lines = []
             for index, o in enumerate(self.views):
                 start, clipped = self._adjusted(index, Setting(0.0, None, xi))
-                end, _ = self.method.adjusted(o, Setting(1.0, None, xi))
+                end, _ = self.method.adjusted(o, unit)
                 means = np.array([start.mean_treated, end.mean_treated - start.mean_treated,
                                   start.mean_control, end.mean_control - start.mean_control])
                 basis = np.column_stack([
@@ -114,15 +120,16 @@ class SensitivityPath:
                     start.influence_control, end.influence_control - start.influence_control,
                 ])  # fmt: skip
                 lines.append((means, _gram(basis, self.weights, self.groups), clipped))
-            self._lines[xi] = lines
-        return self._lines[xi]
+            self._lines[parameter, xi] = lines
+        return self._lines[parameter, xi]
 
-    def along_delta(self, deltas, xi=0.0):
-        """Arrays ``(effect, std_error)`` at every ``delta`` in ``deltas``, and ``n_clipped``."""
+    def along_delta(self, deltas, xi=0.0, parameter="pi_difference"):
+        """Arrays ``(effect, std_error)`` at every ``delta`` in ``deltas``, and ``n_clipped``;
+        ``parameter="pi_difference_doomed"``: the same along ``delta_0`` (``delta = 0``)."""
         deltas = np.atleast_1d(np.asarray(deltas, dtype=float))
         scale = self.scale
         effects, errors, clipped = [], [], 0
-        for means, gram, n_clipped in self._line(xi):
+        for means, gram, n_clipped in self._line(xi, parameter):
             mu1 = means[0] + deltas * means[1]
             mu0 = means[2] + deltas * means[3]
             # Coefficients of the influence value on the basis (if1, slope1, if0, slope0).
@@ -147,13 +154,14 @@ class SensitivityPath:
         """One :class:`HarmedLine` per view, or ``()`` where the exact path does not apply."""
         if self._harmed is None:
             terms = self.method.harmed_terms
-            applies = (terms is not None and self.groups is None
-                       and all(o.stratum.role == "always" for o in self.views))  # fmt: skip
             lines = ()
-            if applies:
+            if terms is not None and self.groups is None:
                 weights = np.ones(len(self.views[0].mixed)) if self.weights is None else (
                     np.asarray(self.weights, dtype=float))  # fmt: skip
-                lines = tuple(HarmedLine(o, terms(o), weights) for o in self.views)
+                found = [terms(o) for o in self.views]
+                if all(t is not None for t in found):
+                    lines = tuple(HarmedLine(o, t, weights)
+                                  for o, t in zip(self.views, found, strict=True))  # fmt: skip
                 if not all(line.available for line in lines):
                     lines = ()
             self._harmed = lines
@@ -172,12 +180,10 @@ class SensitivityPath:
             found = line.suffix(xi)
             if found is None:
                 return None
-            sums, products, n_clipped = found
-            effect, variance = _harmed_effect(sums, products, n_clipped, s, total, line,
-                                              o.increasing, self.scale)  # fmt: skip
+            effect, variance = _harmed_effect(found, s, total, line, o.increasing, self.scale)
             effects.append(float(effect))
             errors.append(float(np.sqrt(np.maximum(variance, 0.0))))
-            clipped = max(clipped, n_clipped)
+            clipped = max(clipped, found[-1] + line.n_low)
         effect, std_error = median_aggregate(effects, errors)
         return float(effect), float(std_error), clipped
 
@@ -195,8 +201,11 @@ class SensitivityPath:
         return self._answers[key]
 
     def _evaluate(self, delta, eps, xi, delta_0):
-        if eps is None and delta != 0 and delta_0 == 0:
-            effect, std_error, clipped = self.along_delta([delta], xi)
+        if eps is None and (delta == 0) != (delta_0 == 0):
+            # One difference parameter away from 0: its affine path.
+            value, parameter = ((delta, "pi_difference") if delta != 0
+                                else (delta_0, "pi_difference_doomed"))  # fmt: skip
+            effect, std_error, clipped = self.along_delta([value], xi, parameter)
             return float(effect[0]), float(std_error[0]), clipped
         if eps is None and delta == 0 and delta_0 == 0 and xi != 0:
             found = self.along_harmed(xi)
@@ -205,10 +214,10 @@ class SensitivityPath:
         return self.at(delta, eps, xi, delta_0)
 
 
-def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
-    """Effect and influence variance at ``s = xi / (1 - xi)`` from the suffix sums of the six
-    parts of :class:`HarmedLine` (``phi_e`` and ``phi_t - r_t phi_e``) over the rows from
-    ``start`` on (the others are clipped).
+def _harmed_effect(found, s, total, line, increasing, scale):
+    """Effect and influence variance at ``s = xi / (1 - xi)`` from the sums of
+    :meth:`HarmedLine.suffix`: the rows from ``start`` on contribute ``A + s B`` (stored as
+    ``phi_e`` and ``phi_t - r_t phi_e``), the rows before it ``C`` (helped stratum) or 0.
 
     As :func:`~pscore_strata.estimands._formulas.robust_means` and
     :func:`~pscore_strata.estimands._view.scale_effect`: ``mu_t = mean(phi_t) / mean(phi_e)``,
@@ -217,13 +226,15 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
     :func:`~pscore_strata.inference._standard_errors.influence_std_error` (rows as clusters),
     ``n / (n - 1) (sum c^2 - (sum c)^2 / n) / (sum w)^2`` for ``c = w IF``.
     """
+    sums, products, prefix_sums, prefix_products, start = found
     n = line.n
     r_mixed, r_pure = line.reference
+    fixed = np.zeros(3) if prefix_sums is None else prefix_sums
     with np.errstate(divide="ignore", invalid="ignore"):
-        phi_e = sums[0] + s * sums[1]
+        phi_e = sums[0] + s * sums[1] + fixed[0]
         share = phi_e / total
-        mu_mixed = r_mixed + (sums[2] + s * sums[3]) / phi_e
-        mu_pure = r_pure + (sums[4] + s * sums[5]) / phi_e
+        mu_mixed = r_mixed + (sums[2] + s * sums[3] + fixed[1]) / phi_e
+        mu_pure = r_pure + (sums[4] + s * sums[5] + fixed[2]) / phi_e
         mu1, mu0 = (mu_mixed, mu_pure) if increasing else (mu_pure, mu_mixed)
         if scale == "difference":
             effect, k1, k0 = mu1 - mu0, 1.0, 1.0
@@ -240,7 +251,7 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
         coefficients = np.array([c_e, s * c_e, c_mixed, s * c_mixed, c_pure, s * c_pure])
         if n < 2:
             return effect, np.nan
-        if n - start <= EXPLICIT_ROWS:
+        if prefix_sums is None and n - start <= EXPLICIT_ROWS:
             # Few rows left: their weighted influence values one by one, centered over all n
             # rows (the clipped ones contribute 0), as influence_std_error sums them.
             values = coefficients @ line.rows(start)
@@ -249,5 +260,9 @@ def _harmed_effect(sums, products, start, s, total, line, increasing, scale):
             return effect, n / (n - 1) * square / total**2
         square = coefficients @ products @ coefficients
         mean_total = coefficients @ sums
+        if prefix_sums is not None:
+            fixed_coefficients = np.array([c_e, c_mixed, c_pure])
+            square = square + fixed_coefficients @ prefix_products @ fixed_coefficients
+            mean_total = mean_total + fixed_coefficients @ prefix_sums
         variance = n / (n - 1) * (square - mean_total**2 / n) / total**2
     return effect, variance

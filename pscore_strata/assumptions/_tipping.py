@@ -77,7 +77,8 @@ default="pi_difference"
     null_effect = 0.0 if estimator.scale == "difference" else 1.0
     log_scale = estimator.scale != "difference"
     sign = np.sign(estimator.effect_ - null_effect)
-    # Built once: the oriented predictions, and for pi_difference the affine path (_paths.py).
+    # Kept per estimator: the oriented predictions, the affine paths in the difference
+    # parameters, the harmed-ratio path and the answers already computed (_paths.py).
     path = sensitivity_path(estimator)
     dof = estimator_dof(estimator)
 
@@ -111,9 +112,10 @@ default="pi_difference"
         if end == null:
             continue
         points = _path(null, end, parameter)
-        if parameter == "pi_difference":
-            # The whole coarse path at once; the first crossing brackets the root.
-            effects, errors, _ = path.along_delta(points)
+        if parameter in ("pi_difference", "pi_difference_doomed"):
+            # The whole coarse path at once (affine, _paths.py); the first crossing brackets
+            # the root.
+            effects, errors, _ = path.along_delta(points, parameter=parameter)
             gaps = np.array([criterion_gap(e, s) for e, s in zip(effects, errors, strict=True)])
             crossed = np.flatnonzero(gaps <= 0)
             if crossed.size:

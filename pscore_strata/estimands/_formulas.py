@@ -181,30 +181,59 @@ def robust_means(o, setting=NULL_SETTING, subset=None, scores=None):
 
 
 def robust_harmed_terms(o):
-    """:func:`robust_terms` of the always-survivors along ``harmed_ratio`` alone, as
-    ``phi = A + s B`` per row with ``s = xi / (1 - xi)``, where the row's score is not clipped.
+    """:func:`robust_terms` along ``harmed_ratio`` alone (``delta = delta_0 = 0``, no ``eps``),
+    per row, for the always-survivor and helped strata; ``None`` for the doomed stratum.
 
-    With ``xi`` the always-survivor score is ``e = (p_p - xi p_m) / (1 - xi) = p_p + s d`` with
-    ``d = p_p - p_m``, its coefficients are ``a = -s`` on ``p_m`` and ``b = 1 + s`` on ``p_p``,
-    and (``delta = 0``, no ``eps``) both cells are plain (``G = e m``), so
-    ``phi_e = e + a r_m + b r_p``, ``phi_t = e (m_t + c_t) + m_t (a r_m + b r_p)`` with the
-    survival residuals ``r`` and the outcome term ``c_t`` of the cell (:func:`_robust_cell`):
-    affine in ``s``. A clipped row (``xi p_m > p_p``) has ``e = a = b = 0``, so every ``phi``
-    is 0 there. At ``xi = 0`` the pure arm's outcome term is written differently (``e / q = 1``
-    exactly), so that point is left to :func:`robust_terms`.
+    With ``xi`` and ``s = xi / (1 - xi)`` (so ``1 / (1 - xi) = 1 + s``), the always-survivor
+    score of a row is ``e_a = p_p + s d`` with ``d = p_p - p_m``, its coefficients ``a = -s``
+    on ``p_m`` and ``b = 1 + s`` on ``p_p``, until it is clipped (``xi p_m > p_p``: then
+    ``e_a = a = b = 0``). Both cells are plain (``G = e m``), so with the survival residuals
+    ``r`` and the cells' outcome terms ``c_t`` (:func:`_robust_cell`)
+    ``phi_e = e + a r_m + b r_p`` and ``phi_t = e (m_t + c_t) + m_t (a r_m + b r_p)`` are
+    linear in the stratum's ``(e, a, b)``:
+
+    - always-survivors: ``phi = A + s B`` on the rows not clipped, 0 on the clipped ones;
+    - helped stratum, ``e = p_m - e_a``: on the rows not clipped ``(e, a, b) = (1 + s)
+      (p_m - p_p, 1, -1)``, so ``phi = (1 + s) K`` (``A = B = K``, the helped formula at
+      ``xi = 0``), except the rows with ``p_p > p_m``, whose helped score is negative and
+      clipped at every ``xi > 0`` (their parts are 0; ``n_low`` counts them); on the rows whose
+      always-survivor score is clipped, ``(e, a, b) = (p_m, 1, 0)``: a constant ``C``.
+
+    Rows with ``p_p`` within a relative ``1e-9`` of ``p_m`` (helped stratum), whose clipping
+    the direct formula decides by rounding, give ``None``: no exact path. At ``xi = 0`` the
+    formulas are written differently (no clipping; ``e / q = 1`` exactly in the always-survivors'
+    pure cell), so that point is left to :func:`robust_terms`.
 
     Returns
     -------
-    dict
-        ``{"e": (A, B), "mixed": (A, B), "pure": (A, B)}`` of per-row arrays.
+    dict or None
+        ``{"e": (A, B), "mixed": (A, B), "pure": (A, B), "prefix": None or {"e": C,
+        "mixed": C, "pure": C}, "n_low": int}`` of per-row arrays.
     """
-    if o.stratum.role != "always":
-        raise ValueError("robust_harmed_terms is written for the always-survivor stratum.")
+    role = o.stratum.role
+    if role == "doomed":
+        return None
     p_m, p_p = o.p_mixed, o.p_pure
     r_m, r_p = o.residual_mixed, o.residual_pure
-    d, dr = p_p - p_m, r_p - r_m
-    terms = {"e": (p_p + r_p, d + dr)}
-    for role, m in (("mixed", o.m_mixed), ("pure", o.m_pure)):
-        outcome_part = m + o.cell_residual(role)
-        terms[role] = (p_p * outcome_part + m * r_p, d * outcome_part + m * dr)
-    return terms
+    outcome = {t: (m, m + o.cell_residual(t)) for t, m in (("mixed", o.m_mixed),
+                                                          ("pure", o.m_pure))}  # fmt: skip
+
+    def parts(e, a, b):
+        survival = times(a, r_m) + times(b, r_p)
+        found = {"e": e + survival}
+        for t, (m, outcome_part) in outcome.items():
+            found[t] = e * outcome_part + m * survival
+        return found
+
+    if role == "always":
+        zero = parts(p_p, 0.0, 1.0)
+        slope = parts(p_p - p_m, -1.0, 1.0)
+        return {**{k: (zero[k], slope[k]) for k in zero}, "prefix": None, "n_low": 0}
+    largest = np.maximum(p_m, p_p)
+    if np.any((np.abs(p_p - p_m) <= 1e-9 * largest) & (largest > 0)):
+        return None
+    low = p_p > p_m
+    kept = np.where(low, 0.0, 1.0)
+    k = parts(kept * (p_m - p_p), kept, -kept)
+    return {**{key: (v, v) for key, v in k.items()}, "prefix": parts(p_m, 1.0, 0.0),
+            "n_low": int(np.count_nonzero(low))}
