@@ -154,6 +154,9 @@ def test_clipped_rows_follow_the_direct_test_at_ties():
             assert found == direct
             checked += 1
     assert checked >= 12
+    # So small an xi that xi p_m could underflow: left to the direct formulas.
+    assert line.n_clipped(1e-300) is None
+    assert line.n_clipped(1e-200) == int(np.count_nonzero(p_p < 1e-200 * p_m))
 
 
 def test_degenerate_probabilities_leave_the_path_unavailable():

@@ -18,7 +18,8 @@ helped score is the whole mixed cell's), kept as prefix sums the same way.
 Which rows are clipped is decided by the direct formula's own test (``xi p_m > p_p`` in double
 precision) for every row whose ratio lies within a relative ``1e-9`` of ``xi``; the sort only
 settles rows far from it. Rows with degenerate probabilities (non-finite, or so small that the
-product underflows) leave the path unavailable, and the caller evaluates directly.
+products underflow), and values of ``xi`` so small that ``xi p_m`` could underflow, leave the
+path unavailable, and the caller evaluates directly.
 """
 
 from __future__ import annotations
@@ -60,10 +61,13 @@ class HarmedLine:
             key = np.where(p_m > 0, p_p / p_m, np.inf)
         self.available = bool(
             np.all(np.isfinite(p_m)) and np.all(np.isfinite(p_p))
-            and np.all((p_m == 0) | (p_m >= _TINY)) and np.all((key == 0) | (key >= _TINY))
+            and np.all((p_m == 0) | (p_m >= _TINY)) and np.all((p_p == 0) | (p_p >= _TINY))
+            and np.all((key == 0) | (key >= _TINY))
         )  # fmt: skip
         if not self.available:
             return
+        positive = p_m[p_m > 0]
+        self.smallest = float(positive.min()) if positive.size else np.inf
         order = np.argsort(key)
         self.key, self.order = key[order], order
         self.p_m, self.p_p = p_m, p_p
@@ -96,7 +100,10 @@ class HarmedLine:
 
     def n_clipped(self, xi):
         """Rows whose always-survivor score is clipped at ``xi`` (a prefix in sorted order),
-        or ``None`` if the direct test does not give a prefix near the boundary."""
+        or ``None`` if the direct test does not give a prefix near the boundary (or if
+        ``xi p_m`` could underflow)."""
+        if xi * self.smallest < _TINY:
+            return None
         low = int(np.searchsorted(self.key, xi * (1 - _MARGIN), side="left"))
         high = int(np.searchsorted(self.key, xi * (1 + _MARGIN), side="right"))
         if high == low:
