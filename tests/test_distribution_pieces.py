@@ -65,3 +65,37 @@ def test_chunked_quantile_std_errors_equal_influence_std_error(robust_path):
         np.testing.assert_allclose(se_arm[arm], influence_std_error(explicit[arm], w), rtol=1e-12)
     expected = influence_std_error(explicit["treated"] - explicit["control"], w)
     np.testing.assert_allclose(se, expected, rtol=1e-12)
+
+
+def test_empty_rows_gives_a_writable_array_of_the_shape():
+    from pscore_strata.distributions._expansion import empty_rows
+
+    out = empty_rows((1000, 7))
+    out[:] = 1.5
+    assert out.shape == (1000, 7) and out.dtype == float and np.all(out == 1.5)
+
+
+def test_cross_in_row_chunks_equals_the_explicit_product(robust_path, monkeypatch):
+    # Source: the explicit columns times the weighted base, summed over the rows.
+    monkeypatch.setattr("pscore_strata.distributions._expansion._GRAM_ROWS", 700)
+    _, path = robust_path
+    expansion = path.influence_control
+    rng = np.random.default_rng(7)
+    factor, base = rng.normal(size=3000), rng.normal(size=(3000, 4))
+    expected = (base * factor[:, None]).T @ expansion.columns()
+    np.testing.assert_allclose(expansion.cross(factor, base), expected, rtol=1e-10, atol=1e-12)
+
+
+def test_band_covariance_in_small_row_chunks_equals_the_explicit_one(robust_path, monkeypatch):
+    # Source: C'C of the explicit contributions sqrt(n/(n-1)) (h_i E_i - mean), h = w / sum w.
+    from pscore_strata.distributions._expansion import expansion_covariance
+
+    monkeypatch.setattr("pscore_strata.distributions._expansion._GRAM_ROWS", 700)
+    _, path = robust_path
+    expansion = path.influence_treated
+    w = np.random.default_rng(8).uniform(0.5, 2.0, 3000)
+    contributions = expansion.columns() * (w / w.sum())[:, None]
+    centered = contributions - contributions.mean(axis=0)
+    expected = 3000 / 2999 * centered.T @ centered
+    np.testing.assert_allclose(expansion_covariance(expansion, w), expected, rtol=0,
+                               atol=1e-12 * np.abs(expected).max())  # fmt: skip

@@ -33,6 +33,7 @@ from scipy import stats
 from .._validation import check_level
 from ..distributions._cdf import observed_survivors
 from ..distributions._conditional import MAX_LEVELS
+from ..distributions._expansion import empty_rows
 from ..distributions._quantiles import (
     check_quantiles,
     kernel_density,
@@ -342,7 +343,7 @@ def quantile_bounds(o, labels, quantiles):
                for name, (_, factor) in factors.items() if type(parametric[name]) is ParametricFit}
     keys = ("lower", "upper")
     n, k = Y.size, quantiles.size
-    influence = {key: np.empty((n, k)) for key in keys}
+    influence = {key: empty_rows((n, k)) for key in keys}
     means = {key: np.zeros(k) for key in keys}
     gradients, full = {}, {}  # batched GLM gradients; whole derivative columns of other fits
     for start in range(0, n, _CHUNK):

@@ -31,6 +31,7 @@ from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 
 from ..nuisance._models import default_binary_model, fit_model, take_rows
+from ._expansion import empty_rows
 from ._threshold_fits import ThresholdSandwich, fit_thresholds
 
 __all__ = ["ConditionalCDF", "fit_conditional_cdf", "threshold_grid", "MAX_LEVELS"]
@@ -201,7 +202,7 @@ def fit_conditional_cdf(data, X, cdf_model=None, n_folds=None, random_state=None
         splitter = StratifiedKFold(n_splits=int(n_folds), shuffle=True, random_state=random_state)
         splits = list(splitter.split(np.zeros(n), 2 * T + S))
     model = default_binary_model() if cdf_model is None else cdf_model
-    grid = {arm: np.empty((n, thresholds.size)) for arm in (0, 1)}
+    grid = {arm: empty_rows((n, thresholds.size)) for arm in (0, 1)}
     use_sandwich = cdf_model is None and n_folds is None
     parametric = {} if use_sandwich else None
     design = None if X is None else np.asarray(X, dtype=float) if use_sandwich else None

@@ -22,6 +22,7 @@ import numpy as np
 from scipy.special import expit
 
 from ..nuisance._sandwich import parametric_piece
+from ._expansion import empty_rows
 
 __all__ = ["fit_thresholds", "ThresholdSandwich"]
 
@@ -215,7 +216,7 @@ class ThresholdSandwich:
             gradient += Zc.T @ p
         h_inverse = _equilibrated_inverse(_unpack(info / total, upper, q))
         direction = np.einsum("jab,bj->aj", h_inverse, gradient / total)
-        out = np.empty((n, k))
+        out = empty_rows((n, k))
         for start in range(0, n, _CHUNK):
             rows = slice(start, start + _CHUNK)
             fitted = out[rows]
