@@ -154,6 +154,9 @@ def test_clipped_rows_follow_the_direct_test_at_ties():
             assert found == direct
             checked += 1
     assert checked >= 12
+    # So small an xi that xi p_m could underflow: left to the direct formulas.
+    assert line.n_clipped(1e-300) is None
+    assert line.n_clipped(1e-200) == int(np.count_nonzero(p_p < 1e-200 * p_m))
 
 
 def test_degenerate_probabilities_leave_the_path_unavailable():
@@ -165,18 +168,27 @@ def test_degenerate_probabilities_leave_the_path_unavailable():
     assert not line.available
 
 
-def test_other_methods_and_clusters_evaluate_directly(data):
+def test_other_methods_evaluate_directly(data):
     est = ps.OutcomeRegression().fit(data.X, data.y, treatment=data.treatment,
                                      survival=data.survival)  # fmt: skip
-    assert sensitivity_path(est).along_harmed(0.3) is None
-    groups = np.arange(data.y.size) % 40
-    est = ps.MultiplyRobust().fit(data.X, data.y, treatment=data.treatment,
-                                  survival=data.survival, groups=groups)  # fmt: skip
     assert sensitivity_path(est).along_harmed(0.3) is None
     effect, se, clipped = _direct(est, 0.3)
     row = ps.sensitivity_grid(est, harmed_ratio=0.3).iloc[0]
     assert row["effect"] == pytest.approx(effect, rel=1e-12)
     assert row["std_error"] == pytest.approx(se, rel=1e-10)
+
+
+@pytest.mark.parametrize("n_clusters", [5, 40, 900, 2500])
+def test_harmed_path_with_clusters(data, n_clusters, explicit_rows):
+    # Reference: influence_std_error of the direct formulas' influence values, summed within
+    # clusters (few, many, and about one row each).
+    groups = np.random.default_rng(n_clusters).integers(0, n_clusters, data.y.size)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # few clusters
+        est = ps.MultiplyRobust().fit(data.X, data.y, treatment=data.treatment,
+                                      survival=data.survival, groups=groups)  # fmt: skip
+    assert sensitivity_path(est).along_harmed(0.3) is not None
+    _compare(est, XIS[::2])
 
 
 def test_path_is_kept_per_fit_and_goes_with_the_estimator(data):

@@ -18,12 +18,14 @@ helped score is the whole mixed cell's), kept as prefix sums the same way.
 Which rows are clipped is decided by the direct formula's own test (``xi p_m > p_p`` in double
 precision) for every row whose ratio lies within a relative ``1e-9`` of ``xi``; the sort only
 settles rows far from it. Rows with degenerate probabilities (non-finite, or so small that the
-product underflows) leave the path unavailable, and the caller evaluates directly.
+products underflow), and values of ``xi`` so small that ``xi p_m`` could underflow, leave the
+path unavailable, and the caller evaluates directly.
 """
 
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 __all__ = ["HarmedLine", "EXPLICIT_ROWS"]
 
@@ -52,18 +54,25 @@ class HarmedLine:
     terms : dict
         ``method.harmed_terms(view)``.
     weights : ndarray of shape (n,)
+    groups : array-like of shape (n,), optional
+        Cluster labels (always-survivors only): the cross products are then those of the
+        cluster totals over the rows not clipped.
     """
 
-    def __init__(self, view, terms, weights):
+    def __init__(self, view, terms, weights, groups=None):
         p_m, p_p = view.p_mixed, view.p_pure
         with np.errstate(divide="ignore", invalid="ignore"):
             key = np.where(p_m > 0, p_p / p_m, np.inf)
         self.available = bool(
-            np.all(np.isfinite(p_m)) and np.all(np.isfinite(p_p))
-            and np.all((p_m == 0) | (p_m >= _TINY)) and np.all((key == 0) | (key >= _TINY))
+            (groups is None or terms["prefix"] is None)
+            and np.all(np.isfinite(p_m)) and np.all(np.isfinite(p_p))
+            and np.all((p_m == 0) | (p_m >= _TINY)) and np.all((p_p == 0) | (p_p >= _TINY))
+            and np.all((key == 0) | (key >= _TINY))
         )  # fmt: skip
         if not self.available:
             return
+        positive = p_m[p_m > 0]
+        self.smallest = float(positive.min()) if positive.size else np.inf
         order = np.argsort(key)
         self.key, self.order = key[order], order
         self.p_m, self.p_p = p_m, p_p
@@ -81,8 +90,16 @@ class HarmedLine:
         for role, mu in zip(("mixed", "pure"), self.reference, strict=True):
             suffix += [terms[role][0] - mu * terms["e"][0], terms[role][1] - mu * terms["e"][1]]
         self.weighted, blocks = _sorted_blocks(suffix, order, w)
+        self.codes = self.later = None
+        if groups is not None:
+            self.codes, self.n_clusters, self.later = _clusters(groups, order, self.weighted)
+            if self.codes is None:
+                self.available = False
+                return
+            later = self.later.reshape(blocks.shape)
         # Suffix sums: entry b holds blocks b, b+1, ...; the last entry is empty.
-        self.sums, self.products = (_cumulative(x[::-1])[::-1] for x in _block_sums(blocks))
+        per_block = _block_sums(blocks, None if groups is None else later)
+        self.sums, self.products = (_cumulative(x[::-1])[::-1] for x in per_block)
         self.prefix = terms["prefix"] is not None
         if self.prefix:
             c = terms["prefix"]
@@ -96,7 +113,10 @@ class HarmedLine:
 
     def n_clipped(self, xi):
         """Rows whose always-survivor score is clipped at ``xi`` (a prefix in sorted order),
-        or ``None`` if the direct test does not give a prefix near the boundary."""
+        or ``None`` if the direct test does not give a prefix near the boundary (or if
+        ``xi p_m`` could underflow)."""
+        if xi * self.smallest < _TINY:
+            return None
         low = int(np.searchsorted(self.key, xi * (1 - _MARGIN), side="left"))
         high = int(np.searchsorted(self.key, xi * (1 + _MARGIN), side="right"))
         if high == low:
@@ -121,6 +141,9 @@ class HarmedLine:
         partial = self.weighted[:, start : block * _BLOCK]
         sums = self.sums[block] + partial.sum(axis=1)
         products = self.products[block] + partial @ partial.T
+        if self.later is not None:
+            later = self.later[:, start : block * _BLOCK]
+            products = products + partial @ later.T + later @ partial.T
         if not self.prefix:
             return sums, products, None, None, start
         block = start // _BLOCK
@@ -145,11 +168,39 @@ def _sorted_blocks(parts, order, w):
     return weighted, weighted.reshape(len(parts), n_blocks, _BLOCK)
 
 
-def _block_sums(blocks):
+def _block_sums(blocks, later=None):
     """Per block: the sums of the parts ``(n_blocks, k)`` and their cross products
-    ``(n_blocks, k, k)``."""
+    ``(n_blocks, k, k)``; with ``later`` (clusters) also ``u later' + later u'``."""
     by_block = blocks.transpose(1, 0, 2)
-    return blocks.sum(axis=2).T, np.matmul(by_block, by_block.transpose(0, 2, 1))
+    products = np.matmul(by_block, by_block.transpose(0, 2, 1))
+    if later is not None:
+        cross = np.matmul(by_block, later.transpose(1, 2, 0))
+        products += cross + cross.transpose(0, 2, 1)
+    return blocks.sum(axis=2).T, products
+
+
+def _clusters(groups, order, weighted):
+    """Cluster codes of the sorted rows, the number of clusters, and for each row the sum of
+    the weighted parts of the rows after it (in sorted order) in its cluster.
+
+    The cluster totals over the rows from ``k`` on are ``T_g = sum_{i >= k, i in g} u_i``, and
+    ``sum_g T_g T_g' = sum_{i >= k} (u_i u_i' + u_i l_i' + l_i u_i')`` with ``l_i`` those later
+    sums: a sum over the rows from ``k`` on, like the others.
+    """
+    codes, uniques = pd.factorize(np.asarray(groups))
+    if np.any(codes < 0):  # missing labels: the direct formulas decide what they mean
+        return None, 0, None
+    codes = codes[order]
+    n = len(order)
+    by_cluster = np.argsort(codes, kind="stable")  # within a cluster: sorted order
+    counts = np.bincount(codes, minlength=len(uniques))
+    ends = np.cumsum(counts)
+    # Later rows of the same cluster: the cluster's total minus the running sum up to the row.
+    running = np.cumsum(weighted[:, :n][:, by_cluster], axis=1)
+    later_sorted = np.repeat(running[:, ends - 1], counts, axis=1) - running
+    later = np.zeros_like(weighted)
+    later[:, by_cluster] = later_sorted
+    return codes, len(uniques), later
 
 
 def _cumulative(per_block):

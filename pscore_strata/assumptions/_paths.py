@@ -18,10 +18,10 @@ values. Two facts make that cheap:
 
 The other parameters (``pi_ratio``, ``harmed_ratio``) enter nonlinearly (and ``harmed_ratio``
 clips scores row by row), so they are evaluated directly, still on the stored view; except
-``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust; always-survivors
-and helped stratum; no clusters), whose exact path is :class:`._harmed.HarmedLine`. Each
-setting's answer is kept, so a grid and a tipping-point search on the same path share their
-evaluations.
+``harmed_ratio`` alone for a method with ``harmed_terms`` (multiply robust; always-survivors,
+with or without clusters, and helped stratum), whose exact path is
+:class:`._harmed.HarmedLine`. Each setting's answer is kept, so a grid and a tipping-point
+search on the same path share their evaluations.
 """
 
 from __future__ import annotations
@@ -155,12 +155,12 @@ class SensitivityPath:
         if self._harmed is None:
             terms = self.method.harmed_terms
             lines = ()
-            if terms is not None and self.groups is None:
+            if terms is not None:
                 weights = np.ones(len(self.views[0].mixed)) if self.weights is None else (
                     np.asarray(self.weights, dtype=float))  # fmt: skip
                 found = [terms(o) for o in self.views]
                 if all(t is not None for t in found):
-                    lines = tuple(HarmedLine(o, t, weights)
+                    lines = tuple(HarmedLine(o, t, weights, self.groups)
                                   for o, t in zip(self.views, found, strict=True))  # fmt: skip
                 if not all(line.available for line in lines):
                     lines = ()
@@ -227,7 +227,8 @@ def _harmed_effect(found, s, total, line, increasing, scale):
     ``n / (n - 1) (sum c^2 - (sum c)^2 / n) / (sum w)^2`` for ``c = w IF``.
     """
     sums, products, prefix_sums, prefix_products, start = found
-    n = line.n
+    # Rows, or clusters with groups (the cluster totals over all rows, clipped ones giving 0).
+    n = line.n if line.codes is None else line.n_clusters
     r_mixed, r_pure = line.reference
     fixed = np.zeros(3) if prefix_sums is None else prefix_sums
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -251,12 +252,15 @@ def _harmed_effect(found, s, total, line, increasing, scale):
         coefficients = np.array([c_e, s * c_e, c_mixed, s * c_mixed, c_pure, s * c_pure])
         if n < 2:
             return effect, np.nan
-        if prefix_sums is None and n - start <= EXPLICIT_ROWS:
-            # Few rows left: their weighted influence values one by one, centered over all n
-            # rows (the clipped ones contribute 0), as influence_std_error sums them.
+        if prefix_sums is None and line.n - start <= EXPLICIT_ROWS:
+            # Few rows left: their weighted influence values one by one (summed by cluster),
+            # centered over all n rows or clusters (the clipped rows contribute 0), as
+            # influence_std_error sums them.
             values = coefficients @ line.rows(start)
+            if line.codes is not None:
+                values = np.bincount(line.codes[start : line.n], weights=values, minlength=n)
             mean = np.sum(values) / n
-            square = np.sum((values - mean) ** 2) + (start * mean**2 if start else 0.0)
+            square = np.sum((values - mean) ** 2) + ((n - values.size) * mean**2)
             return effect, n / (n - 1) * square / total**2
         square = coefficients @ products @ coefficients
         mean_total = coefficients @ sums
