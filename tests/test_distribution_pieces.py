@@ -119,3 +119,13 @@ def test_curves_reused_by_a_path_without_influence_equal_a_fresh_one(robust_path
     fresh = cdf_path(prepared, path.values, with_influence=False)
     np.testing.assert_array_equal(fresh.treated, path.treated)
     np.testing.assert_array_equal(fresh.control, path.control)
+
+
+def test_default_values_are_numpy_unique_of_the_survivors():
+    from pscore_strata.distributions._cdf import default_values
+
+    data = ps.datasets.make_truncation(2000, random_state=22)
+    y = np.round(data.y, 1)  # ties
+    checked = ps._validation.check_truncation_data(data.X, y, data.treatment, data.survival)
+    expected = np.unique(y[data.survival == 1])
+    np.testing.assert_array_equal(default_values(checked, limit=10_000), expected)
