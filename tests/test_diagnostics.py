@@ -6,6 +6,7 @@ import sys
 import warnings
 
 import matplotlib
+import matplotlib.pyplot  # the plots are drawn with pyplot figures
 import numpy as np
 import pandas as pd
 import pytest

@@ -53,9 +53,21 @@ def oriented_predictions(estimator):
             f"OutcomeRegression or MultiplyRobust); got {type(estimator).__name__}."
         )
     monotonicity = getattr(estimator, "monotonicity", "increasing")
-    if getattr(estimator, "stratum_", "always_survivor") != "always_survivor":
-        return estimator._oriented(estimator.training_data_, estimator.nuisance_)
-    return orient(estimator.training_data_, estimator.nuisance_, monotonicity)
+    stratum = getattr(estimator, "stratum_", "always_survivor")
+    data, nuisance = estimator.training_data_, estimator.nuisance_
+    # One view per fit, rows and direction, kept with the fit's other derived values (every
+    # diagnostic reads it; building it copies several columns of the rows).
+    store = getattr(nuisance, "derived", None)
+    key = ("oriented view", id(nuisance), id(data), monotonicity, stratum)
+    if store is not None and key in store:
+        return store[key][0]
+    if stratum != "always_survivor":
+        view = estimator._oriented(data, nuisance)
+    else:
+        view = orient(data, nuisance, monotonicity)
+    if store is not None:
+        store[key] = (view, nuisance, data)  # held, so that the ids stay theirs
+    return view
 
 
 def treated_indicator(o):
