@@ -99,3 +99,33 @@ def test_band_covariance_in_small_row_chunks_equals_the_explicit_one(robust_path
     expected = 3000 / 2999 * centered.T @ centered
     np.testing.assert_allclose(expansion_covariance(expansion, w), expected, rtol=0,
                                atol=1e-12 * np.abs(expected).max())  # fmt: skip
+
+
+def test_column_std_errors_equal_influence_std_error():
+    from pscore_strata.distributions._expansion import column_std_errors
+
+    rng = np.random.default_rng(9)
+    influence, w = rng.normal(size=(40_000, 3)) + 0.1, rng.uniform(0.5, 2.0, 40_000)
+    np.testing.assert_allclose(column_std_errors(influence, w), influence_std_error(influence, w),
+                               rtol=1e-12)  # fmt: skip
+
+
+def test_curves_reused_by_a_path_without_influence_equal_a_fresh_one(robust_path):
+    # The cached estimates of an earlier path (with influence values) at the same values.
+    prepared, path = robust_path
+    again = cdf_path(prepared, path.values, with_influence=False)
+    assert again.treated is path.treated or np.array_equal(again.treated, path.treated)
+    prepared.conditional.cache.clear()
+    fresh = cdf_path(prepared, path.values, with_influence=False)
+    np.testing.assert_array_equal(fresh.treated, path.treated)
+    np.testing.assert_array_equal(fresh.control, path.control)
+
+
+def test_default_values_are_numpy_unique_of_the_survivors():
+    from pscore_strata.distributions._cdf import default_values
+
+    data = ps.datasets.make_truncation(2000, random_state=22)
+    y = np.round(data.y, 1)  # ties
+    checked = ps._validation.check_truncation_data(data.X, y, data.treatment, data.survival)
+    expected = np.unique(y[data.survival == 1])
+    np.testing.assert_array_equal(default_values(checked, limit=10_000), expected)

@@ -33,7 +33,7 @@ from scipy import stats
 from .._validation import check_level
 from ..distributions._cdf import observed_survivors
 from ..distributions._conditional import MAX_LEVELS
-from ..distributions._expansion import empty_rows
+from ..distributions._expansion import column_std_errors, empty_rows
 from ..distributions._quantiles import (
     check_quantiles,
     kernel_density,
@@ -68,13 +68,14 @@ def _quantile_table(bounds, o, labels, data, quantiles):
         )
     table, influence = quantile_bounds(o, labels, quantiles)
     for key in ("lower", "upper"):
-        table[f"std_error_{key}"] = influence_std_error(influence[key], o.weight, data.groups)
+        table[f"std_error_{key}"] = (
+            column_std_errors(influence[key], o.weight) if data.groups is None
+            else influence_std_error(influence[key], o.weight, data.groups))  # fmt: skip
     return quantile_intervals(table, 0.95, estimator_dof(bounds)), influence
 
 
-# What the most recent fit's quantile bounds need (its oriented view, cells and data), so that
-# fitted mean bounds give quantile bounds without a refit (the report's bounds feed its
-# distribution section). One fit at a time: the memory held is one fit's.
+# The most recent fit's oriented view, cells and data: fitted mean bounds give quantile bounds
+# without a refit (the report's distribution section). One fit at a time: one fit's memory.
 _LAST = {}
 
 

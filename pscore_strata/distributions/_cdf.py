@@ -61,7 +61,7 @@ def default_values(data, limit=MAX_DEFAULT_VALUES, rows=None):
     """The distinct observed survivor outcomes (``limit`` of them at evenly spaced ranks);
     ``rows``: those of these rows instead of the survivors (another stratum's cells)."""
     y = np.sort(data.outcome[observed_survivors(data) if rows is None else rows])
-    distinct = np.unique(y)
+    distinct = y[np.concatenate([[True], y[1:] != y[:-1]])] if y.size else y  # np.unique's rule
     if distinct.size <= limit:
         return distinct
     ranks = np.round(np.linspace(0, y.size - 1, limit)).astype(int)

@@ -24,7 +24,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-__all__ = ["ValueGrid", "Expansion", "expansion_covariance", "empty_rows"]
+__all__ = ["ValueGrid", "Expansion", "expansion_covariance", "empty_rows", "column_std_errors"]
 
 
 def empty_rows(shape):
@@ -47,6 +47,22 @@ def empty_rows(shape):
         return np.empty(shape)
     finally:
         toggle(previous)
+
+
+def column_std_errors(influence, weights, rows=16_384):
+    """:func:`~pscore_strata.inference._standard_errors.influence_std_error` of every column
+    of ``influence`` (each row its own cluster) in one pass of row chunks: the weighted values
+    ``c`` centered by ``sum c^2 - (sum c)^2 / n``, no rows x columns temporaries."""
+    n = influence.shape[0]
+    sums, squares = 0.0, 0.0
+    for start in range(0, n, rows):
+        c = influence[start : start + rows] * weights[start : start + rows, None]
+        sums = sums + c.sum(axis=0)
+        squares = squares + np.einsum("ij,ij->j", c, c)
+    if n < 2:
+        return np.full(influence.shape[1], np.nan)
+    variance = n / (n - 1) * np.clip(squares - sums**2 / n, 0.0, None) / weights.sum() ** 2
+    return np.sqrt(variance)
 
 
 @dataclass

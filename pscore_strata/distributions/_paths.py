@@ -312,6 +312,13 @@ def cdf_path(prepared, values, with_influence=True):
     influence values move with the estimates they belong to.
     """
     values = np.asarray(values, dtype=float)
+    c = prepared.conditional
+    key = ("curves", prepared.method, prepared.oriented.increasing, prepared.stratum,
+           values.tobytes())  # fmt: skip
+    if not with_influence and c is not None and key in c.cache:
+        # The estimates of an earlier path at the same values (with or without influence
+        # values: the same sums), e.g. survivor_distribution's for quantile_effects' density.
+        return CDFPath(values, *c.cache[key], None, None)
     grid = ValueGrid.of(values, prepared.oriented.outcome)
     with np.errstate(divide="ignore", invalid="ignore"):
         parts = _grid_parts(prepared, grid, with_influence)
@@ -333,4 +340,6 @@ def cdf_path(prepared, values, with_influence=True):
         curves.append((np.clip(curve[order], 0.0, 1.0), None if infl is None else
                        infl.permuted(order)))  # fmt: skip
     (treated, if_treated), (control, if_control) = curves
+    if c is not None:
+        c.cache[key] = (treated, control)
     return CDFPath(values, treated, control, if_treated, if_control)

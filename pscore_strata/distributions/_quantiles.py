@@ -116,7 +116,7 @@ def interpolated_quantiles(values, cdf, quantiles):
     return out
 
 
-def _point_quantiles(prepared, quantiles):
+def _point_quantiles(prepared, quantiles, distinct=None):
     """Quantiles of the two always-survivor distributions (no influence values).
 
     Weighting inverts its weighted ECDF exactly (every distinct survivor outcome: one sort and
@@ -124,7 +124,7 @@ def _point_quantiles(prepared, quantiles):
     distinct survivor outcomes when there are at most ``MAX_PATH_VALUES`` (exactly), else at
     that many evenly spaced ranks, interpolating linearly between them.
     """
-    values = _survivor_values(prepared)
+    values = _survivor_values(prepared) if distinct is None else distinct
     invert = quantiles_of
     if prepared.method != "weighting" and values.size > MAX_PATH_VALUES:
         values = default_values(prepared.data, limit=MAX_PATH_VALUES, rows=outcome_rows(prepared))
@@ -186,13 +186,14 @@ def quantile_effects(estimator, quantiles=(0.25, 0.5, 0.75), level=0.95, *, X=No
         raise ValueError(f"`n_bootstrap` must be 0 or an integer >= 2; got {n_bootstrap!r}.")
     prepared = prepare(estimator, X, cdf_model)
     data = prepared.data
-    if _survivor_values(prepared).size <= MAX_LEVELS:
+    distinct = _survivor_values(prepared)
+    if distinct.size <= MAX_LEVELS:
         raise ValueError(
             f"The survivors' outcome takes at most {MAX_LEVELS} distinct values, so its "
             "quantiles sit on point masses and have no density-based standard error. Use "
             "ps.ordinal_comparison for binary or ordinal outcomes, or ps.survivor_distribution."
         )
-    point = _point_quantiles(prepared, quantiles)
+    point = _point_quantiles(prepared, quantiles, distinct)
     # The density is a binned kernel estimate (Wand 1994, JCGS 3): CDF masses at <= 200 values.
     path = cdf_path(prepared, default_values(data, rows=outcome_rows(prepared)),
                     with_influence=False)
