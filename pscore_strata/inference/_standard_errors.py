@@ -8,6 +8,8 @@ intervals use a t reference with ``G - 1`` degrees of freedom.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 import pandas as pd
 from scipy import optimize, stats
@@ -111,6 +113,13 @@ def reference_distribution(dof=None):
 
 def reference_quantile(level, dof=None):
     """Two-sided quantile of :func:`reference_distribution` at ``level``."""
+    return _quantile(float(level), None if dof is None else float(dof))
+
+
+@functools.lru_cache(maxsize=256)
+def _quantile(level, dof):
+    # A grid or a tipping-point search asks for the same few quantiles hundreds of times, and
+    # each scipy ppf call costs about 0.1 ms.
     return float(reference_distribution(dof).ppf(0.5 + level / 2))
 
 
