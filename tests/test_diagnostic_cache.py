@@ -69,3 +69,27 @@ def test_estimators_sharing_a_nuisance_fit_share_its_diagnostics():
     assert together == separate
     for check, est in zip(checks, alone, strict=True):
         pd.testing.assert_frame_equal(check, ps.diagnostics.monotonicity_check(est))
+
+
+def test_summary_data_rows_shared_and_clusters_kept_apart():
+    """The shares and the naive contrast are computed once for a shared fit; with other
+    clusters (not part of the shared fit's check) their standard errors are computed again."""
+    data = make_truncation(800, random_state=5)
+    first = _fitted(data)
+    from pscore_strata.estimators import _summary
+
+    with mock.patch.object(_summary, "_stratum_shares", wraps=_summary._stratum_shares) as calls:
+        shared = ps.OutcomeRegression().fit(data.X, data.y, treatment=data.treatment,
+                                            survival=data.survival, nuisance=first.nuisance_)
+        rows = [est.summary().iloc[3:] for est in (first, shared)]
+        assert calls.call_count == 1
+        clustered = ps.OutcomeRegression().fit(
+            data.X, data.y, treatment=data.treatment, survival=data.survival,
+            groups=np.arange(800) // 4, nuisance=first.nuisance_)
+        table = clustered.summary().iloc[3:]
+        assert calls.call_count == 2
+    alone = ps.OutcomeRegression().fit(data.X, data.y, treatment=data.treatment,
+                                       survival=data.survival).summary().iloc[3:]
+    pd.testing.assert_frame_equal(rows[1], alone)
+    pd.testing.assert_frame_equal(rows[0], rows[1])
+    assert not np.allclose(table["std_error"], alone["std_error"])

@@ -76,8 +76,6 @@ def share_interval(share, std_error, level=0.95, dof=None):
 
 def summary_table(estimator, level):
     """Rows: the SACE, the always-survivor means, the stratum shares and the naive contrast."""
-    data = estimator.training_data_
-    w, groups = data.sample_weight, data.groups
     method = estimator.std_error_method_
     boot = estimator.bootstrap_replicates_
     repeats = estimator.repeat_estimates_
@@ -100,20 +98,7 @@ def summary_table(estimator, level):
         else:
             se = float(median_aggregate(repeats[column], repeats[f"std_error_{column}"])[1])
         rows.append((name, value, se, method))
-    for name, value, infl in _stratum_shares(estimator):
-        rows.append((name, value, influence_std_error(infl, w, groups), "influence function"))
-    cells = arm_cells(stratum, estimator.monotonicity)
-    naive, naive_influence = _naive_contrast(data, cells)
-    rows.append(
-        (
-            "naive survivor contrast (biased)" if stratum == "always_survivor" else
-            f"naive contrast, treated with intermediate {cells[1]} against control with "
-            f"intermediate {cells[0]} (biased)",
-            naive,
-            influence_std_error(naive_influence, w, groups),
-            "influence function",
-        )
-    )
+    rows += _data_rows(estimator, stratum)
     table = pd.DataFrame(rows, columns=["quantity", "estimate", "std_error", "std_error_method"])
     log_first = estimator.scale != "difference"
     dof = estimator_dof(estimator)
@@ -132,6 +117,35 @@ def summary_table(estimator, level):
     table.attrs["notes"] = _notes(estimator) + diagnostic_warnings(estimator)
     title = f"{type(estimator).__name__}: survivor average causal effect"
     return SummaryTable(table, title=title, level=level)
+
+
+def _data_rows(estimator, stratum):
+    """The stratum shares' and the naive contrast's rows: functions of the nuisance fit and the
+    rows alone, so kept in the fit's ``derived`` store and shared by the estimators that share
+    the fit (the same rows, checked when shared; the clusters are part of the key)."""
+    data = estimator.training_data_
+    store = getattr(estimator.nuisance_, "derived", None)
+    key = ("summary rows", id(data.groups), estimator.monotonicity, stratum)
+    if store is not None and key in store:
+        return list(store[key][0])
+    w, groups = data.sample_weight, data.groups
+    rows = [(name, value, influence_std_error(infl, w, groups), "influence function")
+            for name, value, infl in _stratum_shares(estimator)]  # fmt: skip
+    cells = arm_cells(stratum, estimator.monotonicity)
+    naive, naive_influence = _naive_contrast(data, cells)
+    rows.append(
+        (
+            "naive survivor contrast (biased)" if stratum == "always_survivor" else
+            f"naive contrast, treated with intermediate {cells[1]} against control with "
+            f"intermediate {cells[0]} (biased)",
+            naive,
+            influence_std_error(naive_influence, w, groups),
+            "influence function",
+        )
+    )
+    if store is not None:
+        store[key] = (tuple(rows), data.groups)  # the groups held, so that their id stays theirs
+    return rows
 
 
 def _stratum_shares(estimator):
