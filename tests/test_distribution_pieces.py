@@ -129,3 +129,11 @@ def test_default_values_are_numpy_unique_of_the_survivors():
     checked = ps._validation.check_truncation_data(data.X, y, data.treatment, data.survival)
     expected = np.unique(y[data.survival == 1])
     np.testing.assert_array_equal(default_values(checked, limit=10_000), expected)
+
+
+def test_kept_curves_stay_bounded(robust_path):
+    prepared, path = robust_path
+    for shift in np.linspace(0, 1, 20):
+        cdf_path(prepared, path.values + shift, with_influence=False)
+    kept = [key for key in prepared.conditional.cache if key[0] == "curves"]
+    assert 1 <= len(kept) <= 8

@@ -192,6 +192,7 @@ class CDFPath:
 
 
 _CHECK_ROWS = 100_000
+_KEPT_CURVES = 8  # estimated curves kept per conditional CDF model (cdf_path)
 
 
 def _view(prepared, value, with_influence):
@@ -341,5 +342,8 @@ def cdf_path(prepared, values, with_influence=True):
                        infl.permuted(order)))  # fmt: skip
     (treated, if_treated), (control, if_control) = curves
     if c is not None:
+        kept = [k for k in c.cache if k[0] == "curves"]
+        for old in kept[: max(0, len(kept) - _KEPT_CURVES + 1)]:
+            del c.cache[old]  # the oldest first: memory stays bounded in long loops
         c.cache[key] = (treated, control)
     return CDFPath(values, treated, control, if_treated, if_control)
