@@ -93,3 +93,17 @@ def test_summary_data_rows_shared_and_clusters_kept_apart():
     pd.testing.assert_frame_equal(rows[1], alone)
     pd.testing.assert_frame_equal(rows[0], rows[1])
     assert not np.allclose(table["std_error"], alone["std_error"])
+
+
+def test_a_pickled_fit_leaves_the_derived_values_out_and_recomputes_them():
+    import pickle
+
+    data = make_truncation(600, random_state=6)
+    est = _fitted(data)
+    before = ps.diagnostics.diagnostic_warnings(est)
+    table = est.summary()
+    assert est.nuisance_.derived  # filled by the requests above
+    loaded = pickle.loads(pickle.dumps(est))
+    assert loaded.nuisance_.derived == {}
+    assert ps.diagnostics.diagnostic_warnings(loaded) == before
+    pd.testing.assert_frame_equal(loaded.summary(), table)

@@ -93,6 +93,13 @@ class NuisanceFit:
     # same dict on, so the fits that hold these predictions share it.
     derived: dict = field(default_factory=dict, repr=False, compare=False)
 
+    def __getstate__(self):
+        # The derived values are recomputed on request; a pickled or copied fit leaves them out
+        # (the oriented view alone holds several columns per row).
+        state = self.__dict__.copy()
+        state["derived"] = {}
+        return state
+
 
 def fit_nuisance(
     data,
