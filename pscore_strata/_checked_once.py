@@ -13,7 +13,7 @@ from __future__ import annotations
 import contextlib
 import contextvars
 
-__all__ = ["checked_once", "once"]
+__all__ = ["checked_once", "once", "checking_once"]
 
 _MEMO = contextvars.ContextVar("pscore_strata_checked_once", default=None)
 # Kept entries per block: the analysis' own inputs, not every bootstrap resample or subgroup.
@@ -31,6 +31,12 @@ def checked_once():
         yield
     finally:
         _MEMO.reset(token)
+
+
+def checking_once():
+    """Whether a :func:`checked_once` block is active (callers skip :func:`once` otherwise, so
+    that a user's error traceback shows no extra frames)."""
+    return _MEMO.get() is not None
 
 
 def once(kind, objects, options, compute):

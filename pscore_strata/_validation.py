@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ._checked_once import once
+from ._checked_once import checking_once, once
 from ._features import check_features, reject_sparse
 from ._vectors import (
     MISSING_AT_RANDOM_ASSUMPTION,
@@ -126,6 +126,9 @@ def check_truncation_data(
     Inside :func:`~._checked_once.checked_once` (several estimators fitted by the library on
     the same inputs) the same objects with the same options are validated once.
     """
+    if not checking_once():
+        return _check_truncation_data(X, y, treatment, survival, sample_weight, groups, models,
+                                      missing, stratum=stratum, survival_name=survival_name)
     # The models matter only as a set (does each encode text columns?): repeats count once.
     distinct = {id(model): model for model in models}.values()
     objects = (X, y, treatment, survival, sample_weight, groups, *distinct)
