@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 
 from ..estimands._setting import Setting
-from ..estimands._view import orient, scale_effect
+from ..estimands._view import orient, scale_effect, scale_factors
 from ..estimators._repeats import median_aggregate
 from ..inference._standard_errors import influence_std_error
 from ._harmed import EXPLICIT_ROWS, HarmedLine
@@ -133,14 +133,8 @@ class SensitivityPath:
             mu1 = means[0] + deltas * means[1]
             mu0 = means[2] + deltas * means[3]
             # Coefficients of the influence value on the basis (if1, slope1, if0, slope0).
-            if scale == "difference":
-                effect, k1, k0 = mu1 - mu0, np.ones_like(deltas), np.ones_like(deltas)
-            elif scale == "ratio":
-                effect = mu1 / mu0
-                k1, k0 = effect / mu1, effect / mu0
-            else:
-                effect = (mu1 / (1 - mu1)) / (mu0 / (1 - mu0))
-                k1, k0 = effect / (mu1 * (1 - mu1)), effect / (mu0 * (1 - mu0))
+            effect, k1, k0 = scale_factors(mu1, mu0, scale)
+            k1, k0 = np.broadcast_to(k1, deltas.shape), np.broadcast_to(k0, deltas.shape)
             coefficients = np.column_stack([k1, k1 * deltas, -k0, -k0 * deltas])
             variance = np.einsum("ij,jk,ik->i", coefficients, gram, coefficients)
             effects.append(effect)
@@ -237,14 +231,7 @@ def _harmed_effect(found, s, total, line, increasing, scale):
         mu_mixed = r_mixed + (sums[2] + s * sums[3] + fixed[1]) / phi_e
         mu_pure = r_pure + (sums[4] + s * sums[5] + fixed[2]) / phi_e
         mu1, mu0 = (mu_mixed, mu_pure) if increasing else (mu_pure, mu_mixed)
-        if scale == "difference":
-            effect, k1, k0 = mu1 - mu0, 1.0, 1.0
-        elif scale == "ratio":
-            effect = mu1 / mu0
-            k1, k0 = effect / mu1, effect / mu0
-        else:
-            effect = (mu1 / (1 - mu1)) / (mu0 / (1 - mu0))
-            k1, k0 = effect / (mu1 * (1 - mu1)), effect / (mu0 * (1 - mu0))
+        effect, k1, k0 = scale_factors(mu1, mu0, scale)
         c1, c0 = k1 / share, -k0 / share
         c_mixed, c_pure = (c1, c0) if increasing else (c0, c1)
         # c_m phi_m + c_p phi_p + c_e phi_e on the stored parts (phi_t - r_t phi_e, phi_e).

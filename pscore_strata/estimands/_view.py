@@ -18,7 +18,8 @@ import numpy as np
 from . import _coarsening
 from ._strata import ALWAYS, Stratum, stratum_role
 
-__all__ = ["Oriented", "orient", "MeanParts", "ratio", "unorient", "scale_effect"]
+__all__ = ["Oriented", "orient", "MeanParts", "ratio", "unorient", "scale_effect",
+           "scale_factors"]
 
 
 def ratio(numerator, denominator):
@@ -204,6 +205,18 @@ def unorient(o, mu_mixed, mu_pure, if_mixed, if_pure):
     if o.increasing:
         return MeanParts(mu_mixed, mu_pure, if_mixed, if_pure)
     return MeanParts(mu_pure, mu_mixed, if_pure, if_mixed)
+
+
+def scale_factors(mu1, mu0, scale):
+    """``(effect, k1, k0)``: the effect on ``scale`` from the two means and its delta-method
+    factors, ``d effect = k1 d mu1 - k0 d mu0`` (arrays or scalars alike)."""
+    if scale == "difference":
+        return mu1 - mu0, 1.0, 1.0
+    if scale == "ratio":
+        effect = mu1 / mu0
+        return effect, effect / mu1, effect / mu0
+    effect = (mu1 / (1 - mu1)) / (mu0 / (1 - mu0))
+    return effect, effect / (mu1 * (1 - mu1)), effect / (mu0 * (1 - mu0))
 
 
 def scale_effect(parts, scale):
